@@ -1,0 +1,56 @@
+"""The orchestrator: scenario -> problem -> integration -> result."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Any
+
+from . import __version__
+from .model import Problem
+from .results import SimulationResult, build_result
+from .scenario import Scenario, load_scenario, scenario_from_dict
+from .solve import SolverOptions, integrate_problem
+
+__all__ = ["simulate", "simulate_file"]
+
+
+def simulate(scenario: Scenario | Problem | dict, options: SolverOptions | None = None,
+             overrides: dict[str, Any] | None = None) -> SimulationResult:
+    """Simulate one mission.
+
+    Parameters
+    ----------
+    scenario : Scenario, Problem or dict
+        A loaded scenario, an SI problem, or scenario data as a dict.
+    options : SolverOptions, optional
+        Integrator settings; default: the scenario's ``[solver]`` section.
+    overrides : dict, optional
+        Dotted-path replacements applied to a Scenario or dict first.
+
+    Returns
+    -------
+    SimulationResult
+        Time series, summary, status and solver counters.
+    """
+    metadata: dict[str, Any] = {"thermoelec_version": __version__}
+    if isinstance(scenario, dict):
+        scenario = scenario_from_dict(scenario, overrides=overrides)
+    elif isinstance(scenario, Scenario) and overrides:
+        scenario = scenario.with_overrides(overrides)
+    if isinstance(scenario, Scenario):
+        problem = scenario.problem()
+        options = options or scenario.solver_options()
+        metadata.update(scenario_name=scenario.name, scenario_file=scenario.source,
+                        scenario_sha256=scenario.digest,
+                        overrides=[f"{k}={v}" for k, v in scenario.overrides])
+    else:
+        problem = scenario
+        options = options or SolverOptions()
+    metadata.update(backend=options.backend, rtol=options.rtol, output_interval_s=options.output_interval)
+    trajectory = integrate_problem(problem, options)
+    return build_result(problem, trajectory, options, metadata)
+
+
+def simulate_file(path: str | Path, overrides: dict[str, Any] | None = None) -> SimulationResult:
+    """Load a scenario file and simulate it."""
+    return simulate(load_scenario(path, overrides))

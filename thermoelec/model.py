@@ -1,0 +1,456 @@
+"""The coupled electro-thermal right-hand side, its Jacobian and event functions.
+
+States (SI units), for one scenario::
+
+    y[0]                 z      state of charge [-]
+    y[1 : 1+n]           v_k    RC-pair voltages of one cell [V]
+    y[1+n]               Tc     lumped cell temperature [K]
+    y[2+n]               Ts     heat-sink node temperature [K]
+    y[3+n : 3+n+8]       running integrals (quadratures), see ``Q_*`` below
+
+Equations (see DESIGN notes): Thevenin cell ``V = U - sum v_k - I R0`` with
+``U(z, T) = U_ref(z) + (T - T_ref) dU/dT(z)``; pack ``Ns x Np`` with
+``E = Ns (U - sum v_k)``, ``R_tot = Ns R0 / Np + R_ic``; the pack current is
+closed-form for each load mode; Bernardi heat; two lumped thermal nodes.
+
+The quadratures integrate battery and load energy, heat generated, heat rejected
+to ambient and charge throughput with the same integrator as the states. BDF is
+a linear method, so the linear invariant ``heat generated = heat stored + heat
+to ambient`` is kept to the Newton tolerance, not only to the error tolerance.
+
+All kernels read their parameters from one flat float64 vector built by
+:func:`pack_parameters`, because a numba call with one array argument costs a
+fraction of one with twenty: the right-hand side is called ~10^5 times a mission.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numba
+import numpy as np
+
+from . import cell as cellphys
+from . import thermal as thermphys
+from .cell import Cell, Pack, ResistanceLaw
+from .profile import Segment
+from .thermal import ThermalNetwork
+
+_jit = numba.njit(cache=True, nogil=True)
+
+_interp1 = cellphys.interpolate_1d
+_interp2 = cellphys.interpolate_2d
+_arrhenius = cellphys.arrhenius_factor
+_ocv = cellphys.open_circuit_voltage
+_current_for_power = cellphys.current_for_power
+_current_for_resistance = cellphys.current_for_resistance
+_current_for_voltage = cellphys.current_for_voltage
+_power_margin = cellphys.power_deliverable_margin
+_bernardi = cellphys.bernardi_heat
+_cell_rate = thermphys.cell_node_rate
+_sink_rate = thermphys.sink_node_rate
+
+# ---- load modes of a phase (a segment is one or two phases) -------------------
+MODE_CURRENT, MODE_POWER, MODE_RESISTANCE, MODE_VOLTAGE = 0, 1, 2, 3
+MODE_CODES = {"current": MODE_CURRENT, "power": MODE_POWER, "resistance": MODE_RESISTANCE,
+              "voltage": MODE_VOLTAGE}
+
+# ---- events: root functions g_k, positive while all is well --------------------
+EV_VOLTAGE_MIN, EV_VOLTAGE_MAX, EV_POWER, EV_TEMPERATURE = 0, 1, 2, 3
+EV_SOC_EMPTY, EV_SOC_FULL, EV_CV_SWITCH, EV_CV_CUTOFF = 4, 5, 6, 7
+EV_END_VOLTAGE_BELOW, EV_END_VOLTAGE_ABOVE, EV_END_SOC_BELOW, EV_END_SOC_ABOVE = 8, 9, 10, 11
+N_EVENTS = 12
+EVENT_NAMES = ("voltage_min", "voltage_max", "power_limit", "temperature_max", "soc_empty", "soc_full",
+               "cv_switch", "cv_cutoff", "end_voltage_below", "end_voltage_above", "end_soc_below",
+               "end_soc_above")
+#: Scale of each root function, to compare how close to zero they are [V, V, V², K, -, -, V, A, V, V, -, -].
+EVENT_SCALES = np.array([1.0, 1.0, 100.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0])
+
+# ---- quadratures (offsets after the dynamic states) ----------------------------
+Q_BATTERY_DISCHARGE = 0  # ∫ Ns U I+ dt  [J]
+Q_BATTERY_CHARGE = 1     # ∫ Ns U I- dt  [J] (negative)
+Q_LOAD_DISCHARGE = 2     # ∫ V I+ dt     [J]
+Q_LOAD_CHARGE = 3        # ∫ V I- dt     [J] (negative)
+Q_HEAT = 4               # ∫ heat generated (cells + interconnect) dt [J]
+Q_REVERSIBLE = 5         # ∫ reversible (entropic) heat dt [J]
+Q_HEAT_AMBIENT = 6       # ∫ heat rejected to ambient dt [J]
+Q_THROUGHPUT = 7         # ∫ |I| dt      [C]
+N_QUADRATURES = 8
+
+# ---- algebraic outputs ---------------------------------------------------------
+A_CURRENT, A_VOLTAGE, A_CELL_VOLTAGE, A_OCV, A_EMF, A_RESISTANCE = 0, 1, 2, 3, 4, 5
+A_HEAT, A_REVERSIBLE, A_HEAT_AMBIENT, A_ENTROPIC, A_R0, A_POWER_MARGIN = 6, 7, 8, 9, 10, 11
+N_ALGEBRAICS = 12
+ALGEBRAIC_NAMES = ("current", "voltage", "cell_voltage", "ocv", "emf", "resistance", "heat",
+                   "reversible_heat", "heat_to_ambient", "entropic", "r0", "power_margin")
+
+# ---- header of the flat parameter vector ---------------------------------------
+H_MODE, H_VALUE, H_AMBIENT = 0, 1, 2
+H_NS, H_NP, H_RIC, H_CAPACITY = 3, 4, 5, 6
+H_CCELL, H_CSINK, H_GCS, H_GSA, H_GCA = 7, 8, 9, 10, 11
+H_NRC, H_OCV, H_R0, H_RC = 12, 13, 14, 15
+H_ACTIVE = 16                      # N_EVENTS activity flags
+H_THRESHOLD = H_ACTIVE + N_EVENTS  # N_EVENTS thresholds
+HEADER = H_THRESHOLD + N_EVENTS
+
+
+def n_states(n_rc: int) -> int:
+    """Number of states for ``n_rc`` RC pairs (dynamic states plus quadratures)."""
+    return 3 + n_rc + N_QUADRATURES
+
+
+def cell_temperature_index(n_rc: int) -> int:
+    """Index of the cell temperature in the state vector."""
+    return 1 + n_rc
+
+
+@dataclass(frozen=True)
+class Limits:
+    """Operating limits [V per cell, K]."""
+
+    cell_temperature_max: float = 333.15
+    charge_temperature_min: float = 273.15
+
+
+@dataclass(frozen=True)
+class Problem:
+    """Everything needed to simulate one scenario, in SI units."""
+
+    cell: Cell
+    pack: Pack
+    thermal: ThermalNetwork
+    segments: tuple[Segment, ...]
+    ambient_temperature: float
+    initial_soc: float
+    initial_cell_temperature: float
+    initial_sink_temperature: float
+    limits: Limits = field(default_factory=Limits)
+    name: str = ""
+
+    @property
+    def n_rc(self) -> int:
+        """Number of RC pairs."""
+        return len(self.cell.rc)
+
+    def initial_state(self) -> np.ndarray:
+        """State vector at t = 0: RC pairs relaxed, integrals zero."""
+        y = np.zeros(n_states(self.n_rc))
+        y[0] = self.initial_soc
+        y[1 + self.n_rc] = self.initial_cell_temperature
+        y[2 + self.n_rc] = self.initial_sink_temperature
+        return y
+
+
+def _law_block(law: ResistanceLaw) -> list[float]:
+    nz, nt = len(law.soc), len(law.temperature)
+    return [nz, nt, law.activation_energy, law.reference_temperature,
+            *law.soc, *law.temperature, *np.asarray(law.values, float).ravel()]
+
+
+def pack_parameters(problem: Problem) -> np.ndarray:
+    """The flat parameter vector read by the kernels (phase fields left at zero)."""
+    c, pk, th = problem.cell, problem.pack, problem.thermal
+    header = np.zeros(HEADER)
+    header[H_NS], header[H_NP], header[H_RIC] = pk.series, pk.parallel, pk.interconnect_resistance
+    header[H_CAPACITY] = c.capacity
+    header[H_CCELL] = pk.series * pk.parallel * c.mass * c.specific_heat
+    header[H_CSINK], header[H_GCS] = th.sink_heat_capacity, th.cell_to_sink
+    header[H_GSA], header[H_GCA] = th.sink_to_ambient, th.cell_to_ambient
+    header[H_NRC] = len(c.rc)
+    header[H_AMBIENT] = problem.ambient_temperature
+    body: list[float] = []
+    header[H_OCV] = HEADER + len(body)
+    body += [len(c.ocv_soc), c.ocv_reference_temperature, *c.ocv_soc, *c.ocv_voltage, *c.ocv_entropic]
+    header[H_R0] = HEADER + len(body)
+    body += _law_block(c.r0)
+    header[H_RC] = HEADER + len(body)
+    for pair in c.rc:
+        if pair.time_constant is not None:
+            body += [1.0, pair.time_constant]
+        else:
+            body += [0.0, float(pair.capacitance)]
+        body += _law_block(pair.resistance)
+    return np.concatenate([header, np.asarray(body, float)])
+
+
+@_jit
+def _law_value(p, off, z, temperature):
+    """Resistance [Ω] of the resistance-law block that starts at ``off``."""
+    nz = int(p[off])
+    nt = int(p[off + 1])
+    ea = p[off + 2]
+    a = off + 4
+    base = _interp2(p[a:a + nz], p[a + nz:a + nz + nt], p[a + nz + nt:a + nz + nt + nz * nt], z, temperature)
+    if ea != 0.0:
+        base *= _arrhenius(temperature, ea, p[off + 3])
+    return base
+
+
+@_jit
+def _law_length(p, off):
+    nz = int(p[off])
+    nt = int(p[off + 1])
+    return 4 + nz + nt + nz * nt
+
+
+@_jit
+def evaluate(y, p, ydot, alg):
+    """Fill ``ydot`` (state derivatives) and ``alg`` (algebraic outputs) at state ``y``.
+
+    Numba kernel; all units SI. ``alg`` holds the ``A_*`` quantities.
+    """
+    nrc = int(p[H_NRC])
+    z = y[0]
+    tc = y[1 + nrc]
+    ts = y[2 + nrc]
+    ta = p[H_AMBIENT]
+    ns = p[H_NS]
+    npar = p[H_NP]
+    ric = p[H_RIC]
+
+    o = int(p[H_OCV])
+    n = int(p[o])
+    zg = p[o + 2:o + 2 + n]
+    u_ref = _interp1(zg, p[o + 2 + n:o + 2 + 2 * n], z)
+    dudt = _interp1(zg, p[o + 2 + 2 * n:o + 2 + 3 * n], z)
+    u = _ocv(u_ref, dudt, tc, p[o + 1])
+
+    r0 = _law_value(p, int(p[H_R0]), z, tc)
+    vsum = 0.0
+    for k in range(nrc):
+        vsum += y[1 + k]
+    emf = ns * (u - vsum)
+    rtot = ns * r0 / npar + ric
+
+    mode = int(p[H_MODE])
+    value = p[H_VALUE]
+    if mode == MODE_CURRENT:
+        current = value
+    elif mode == MODE_POWER:
+        current = _current_for_power(emf, rtot, value)
+    elif mode == MODE_RESISTANCE:
+        current = _current_for_resistance(emf, rtot, value)
+    else:
+        current = _current_for_voltage(emf, rtot, value)
+
+    icell = current / npar
+    vcell = u - vsum - icell * r0
+    voltage = emf - current * rtot
+
+    ydot[0] = -icell / p[H_CAPACITY]
+    off = int(p[H_RC])
+    for k in range(nrc):
+        kind = p[off]
+        r = _law_value(p, off + 2, z, tc)
+        if kind == 1.0:
+            cap = p[off + 1] / _law_value(p, off + 2, z, p[off + 5])  # C = tau / R(z, T_ref)
+        else:
+            cap = p[off + 1]
+        ydot[1 + k] = icell / cap - y[1 + k] / (r * cap)
+        off += 2 + _law_length(p, off + 2)
+
+    q_cell = _bernardi(icell, u, vcell, tc, dudt)
+    heat_cells = ns * npar * q_cell
+    heat_ic = current * current * ric
+    reversible = -ns * current * tc * dudt
+    to_ambient = p[H_GCA] * (tc - ta) + p[H_GSA] * (ts - ta)
+    ydot[1 + nrc] = _cell_rate(heat_cells, tc, ts, ta, p[H_CCELL], p[H_GCS], p[H_GCA])
+    ydot[2 + nrc] = _sink_rate(heat_ic, tc, ts, ta, p[H_CSINK], p[H_GCS], p[H_GSA])
+
+    q = 3 + nrc
+    e_ocv = ns * u
+    i_pos = current if current > 0.0 else 0.0
+    i_neg = current - i_pos
+    ydot[q + Q_BATTERY_DISCHARGE] = e_ocv * i_pos
+    ydot[q + Q_BATTERY_CHARGE] = e_ocv * i_neg
+    ydot[q + Q_LOAD_DISCHARGE] = voltage * i_pos
+    ydot[q + Q_LOAD_CHARGE] = voltage * i_neg
+    ydot[q + Q_HEAT] = heat_cells + heat_ic
+    ydot[q + Q_REVERSIBLE] = reversible
+    ydot[q + Q_HEAT_AMBIENT] = to_ambient
+    ydot[q + Q_THROUGHPUT] = abs(current)
+
+    alg[A_CURRENT] = current
+    alg[A_VOLTAGE] = voltage
+    alg[A_CELL_VOLTAGE] = vcell
+    alg[A_OCV] = u
+    alg[A_EMF] = emf
+    alg[A_RESISTANCE] = rtot
+    alg[A_HEAT] = heat_cells + heat_ic
+    alg[A_REVERSIBLE] = reversible
+    alg[A_HEAT_AMBIENT] = to_ambient
+    alg[A_ENTROPIC] = dudt
+    alg[A_R0] = r0
+    alg[A_POWER_MARGIN] = _power_margin(emf, rtot, value) if mode == MODE_POWER else 1.0
+
+
+@_jit
+def rhs(y, ydot, p, alg):
+    """Right-hand side ``dy/dt`` written into ``ydot`` (autonomous within a phase)."""
+    evaluate(y, p, ydot, alg)
+
+
+@_jit
+def roots(y, g, p, alg, scratch):
+    """Event functions ``g_k`` written into ``g``; each is positive while all is well."""
+    evaluate(y, p, scratch, alg)
+    nrc = int(p[H_NRC])
+    z = y[0]
+    vcell = alg[A_CELL_VOLTAGE]
+    voltage = alg[A_VOLTAGE]
+    for k in range(N_EVENTS):
+        if p[H_ACTIVE + k] == 0.0:
+            g[k] = 1.0
+            continue
+        thr = p[H_THRESHOLD + k]
+        if k == EV_VOLTAGE_MIN:
+            g[k] = vcell - thr
+        elif k == EV_VOLTAGE_MAX:
+            g[k] = thr - vcell
+        elif k == EV_POWER:
+            g[k] = alg[A_POWER_MARGIN]
+        elif k == EV_TEMPERATURE:
+            g[k] = thr - y[1 + nrc]
+        elif k == EV_SOC_EMPTY:
+            g[k] = z - thr
+        elif k == EV_SOC_FULL:
+            g[k] = thr - z
+        elif k == EV_CV_SWITCH:
+            g[k] = thr - voltage
+        elif k == EV_CV_CUTOFF:
+            g[k] = abs(alg[A_CURRENT]) - thr
+        elif k == EV_END_VOLTAGE_BELOW:
+            g[k] = voltage - thr
+        elif k == EV_END_VOLTAGE_ABOVE:
+            g[k] = thr - voltage
+        elif k == EV_END_SOC_BELOW:
+            g[k] = z - thr
+        else:
+            g[k] = thr - z
+
+
+@_jit
+def jacobian(y, jac, p, alg, f0, f1, yy):
+    """Forward-difference Jacobian ``df/dy`` into ``jac`` (dense, row = equation).
+
+    The quadrature columns are zero (nothing depends on a running integral), so
+    only the ``3 + n_rc`` dynamic columns are differenced. Step
+    ``sqrt(eps) * max(|y_j|, 1)`` as in Dennis & Schnabel, *Numerical Methods for
+    Unconstrained Optimization and Nonlinear Equations* (1983), §5.4.
+    """
+    n = y.shape[0]
+    ndyn = 3 + int(p[H_NRC])
+    evaluate(y, p, f0, alg)
+    for i in range(n):
+        yy[i] = y[i]
+    for j in range(n):
+        for i in range(n):
+            jac[i, j] = 0.0
+    for j in range(ndyn):
+        h = 1.4901161193847656e-08 * max(abs(y[j]), 1.0)
+        yy[j] = y[j] + h
+        evaluate(yy, p, f1, alg)
+        yy[j] = y[j]
+        for i in range(n):
+            jac[i, j] = (f1[i] - f0[i]) / h
+
+
+@_jit
+def evaluate_rows(states, params, algebraics):
+    """Algebraic outputs for many rows, each with its own parameter vector."""
+    n = states.shape[1]
+    scratch = np.empty(n)
+    alg = np.empty(N_ALGEBRAICS)
+    for r in range(states.shape[0]):
+        evaluate(states[r], params[r], scratch, alg)
+        for k in range(N_ALGEBRAICS):
+            algebraics[r, k] = alg[k]
+
+
+class Kernels:
+    """Python-callable closures over one parameter vector, in the signatures solvers want.
+
+    The vector ``p`` is shared and mutated between phases (mode, demand, ambient,
+    active events), so the closures never need rebuilding.
+    """
+
+    def __init__(self, p: np.ndarray, size: int):
+        self.p = p
+        self.size = size
+        self._alg = np.empty(N_ALGEBRAICS)
+        self._scratch = np.empty(size)
+        self._f0 = np.empty(size)
+        self._f1 = np.empty(size)
+        self._yy = np.empty(size)
+        self.error: BaseException | None = None
+
+    # scikits.odes signatures: write into the given buffers, return 0 or a negative flag
+    def cvode_rhs(self, t: float, y: np.ndarray, ydot: np.ndarray) -> int:
+        try:
+            rhs(y, ydot, self.p, self._alg)
+        except BaseException as exc:  # an exception must not cross the C boundary
+            self.error = exc
+            return -1
+        return 0
+
+    def cvode_roots(self, t: float, y: np.ndarray, g: np.ndarray) -> int:
+        try:
+            roots(y, g, self.p, self._alg, self._scratch)
+        except BaseException as exc:
+            self.error = exc
+            return -1
+        return 0
+
+    def cvode_jacobian(self, t: float, y: np.ndarray, fy: np.ndarray, jac: np.ndarray) -> int:
+        try:
+            jacobian(y, jac, self.p, self._alg, self._f0, self._f1, self._yy)
+        except BaseException as exc:
+            self.error = exc
+            return -1
+        return 0
+
+    # scipy signatures: return new arrays
+    def scipy_rhs(self, t: float, y: np.ndarray) -> np.ndarray:
+        ydot = np.empty(self.size)
+        rhs(y, ydot, self.p, self._alg)
+        return ydot
+
+    def event_values(self, y: np.ndarray) -> np.ndarray:
+        """All root functions at ``y`` (inactive ones read 1)."""
+        g = np.empty(N_EVENTS)
+        roots(np.ascontiguousarray(y, dtype=float), g, self.p, self._alg, self._scratch)
+        return g
+
+    def scipy_jacobian(self, t: float, y: np.ndarray) -> np.ndarray:
+        jac = np.empty((self.size, self.size))
+        jacobian(np.ascontiguousarray(y, dtype=float), jac, self.p, self._alg, self._f0, self._f1, self._yy)
+        return jac
+
+    def algebraics(self, y: np.ndarray) -> np.ndarray:
+        """The ``A_*`` outputs at ``y``."""
+        alg = np.empty(N_ALGEBRAICS)
+        evaluate(np.ascontiguousarray(y, dtype=float), self.p, self._scratch, alg)
+        return alg
+
+    def derivative(self, y: np.ndarray) -> np.ndarray:
+        """``dy/dt`` at ``y``."""
+        return self.scipy_rhs(0.0, np.ascontiguousarray(y, dtype=float))
+
+
+def mode_code(mode: str) -> int:
+    """Kernel code of a demand mode name."""
+    return MODE_CODES[mode]
+
+
+__all__ = [
+    "ALGEBRAIC_NAMES",
+    "EVENT_NAMES",
+    "Kernels",
+    "Limits",
+    "Problem",
+    "cell_temperature_index",
+    "evaluate",
+    "evaluate_rows",
+    "n_states",
+    "pack_parameters",
+]

@@ -1,0 +1,291 @@
+"""Simulation results: time series, summary metrics, energy and heat accounting.
+
+Energy accounting (pack level, as areas under the voltage-charge curves):
+battery energy ``∫ Ns U I dt``, load energy ``∫ V I dt``, their difference the
+energy dissipated; the heat generated adds the reversible (entropic) heat
+``-∫ Ns I T dU/dT dt`` (Bernardi, Pawlikowski & Newman, J. Electrochem. Soc. 132
+(1985) 5). The integrals are carried as states of the integration, so they are
+as accurate as the states themselves and independent of the output interval.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from . import model as m
+from .model import Problem
+from .solve import SolverOptions, Trajectory
+
+__all__ = ["SERIES_UNITS", "SimulationResult", "build_result"]
+
+KELVIN_AT_0_DEGC = 273.15
+JOULES_PER_WH = 3600.0
+COULOMBS_PER_AH = 3600.0
+
+#: Reported series and their units; the first ten are the output contract.
+SERIES_UNITS: dict[str, str] = {
+    "time_s": "s",
+    "current_A": "A",
+    "voltage_V": "V",
+    "power_W": "W",
+    "soc": "1",
+    "ocv_V": "V",
+    "cell_temperature_degC": "degC",
+    "sink_temperature_degC": "degC",
+    "ambient_temperature_degC": "degC",
+    "heat_W": "W",
+    "cell_voltage_V": "V",
+    "reversible_heat_W": "W",
+    "heat_to_ambient_W": "W",
+    "pack_resistance_ohm": "ohm",
+}
+SERIES_DESCRIPTIONS: dict[str, str] = {
+    "time_s": "time since the mission start",
+    "current_A": "pack current, positive discharging",
+    "voltage_V": "pack terminal voltage",
+    "power_W": "pack power to the load, positive discharging",
+    "soc": "state of charge",
+    "ocv_V": "pack open-circuit voltage Ns*U",
+    "cell_temperature_degC": "lumped cell temperature",
+    "sink_temperature_degC": "heat-sink node temperature",
+    "ambient_temperature_degC": "ambient temperature",
+    "heat_W": "heat generated in cells and interconnect (irreversible + reversible)",
+    "cell_voltage_V": "terminal voltage of one cell",
+    "reversible_heat_W": "reversible (entropic) part of the heat",
+    "heat_to_ambient_W": "heat rejected to ambient",
+    "pack_resistance_ohm": "total series resistance Ns*R0/Np + R_ic",
+}
+
+
+def _celsius(kelvin: np.ndarray | float) -> np.ndarray | float:
+    return kelvin - KELVIN_AT_0_DEGC
+
+
+def _time_where(times: np.ndarray, mask: np.ndarray) -> float:
+    """Seconds during which ``mask`` holds on the left end of each output interval."""
+    if len(times) < 2:
+        return 0.0
+    return float(np.sum(np.diff(times)[mask[:-1]]))
+
+
+@dataclass
+class SimulationResult:
+    """Outcome of one simulated mission.
+
+    Attributes
+    ----------
+    series : dict of str to array
+        Reported time series, keys and units in :data:`SERIES_UNITS`. At a
+        discontinuity of the demand the time appears twice: before and after.
+    summary : dict
+        Summary metrics (the output contract of ``summary.json`` and more).
+    status : str
+        ``"ok"`` when the integration ran to its end or a stop event, ``"failed"``
+        when the solver gave up (the series then runs up to the failure).
+    message : str
+        Solver message for a failure, else empty.
+    statistics : dict
+        Solver counters summed over all phases, and the wall time [s].
+    events : list of dict
+        Located events (stops, CC-CV switches, segment end conditions) with times [s].
+    metadata : dict
+        Package version, scenario hash, back end and tolerances.
+    """
+
+    series: dict[str, np.ndarray]
+    summary: dict[str, Any]
+    status: str
+    message: str
+    statistics: dict[str, float]
+    events: list[dict]
+    metadata: dict[str, Any] = field(default_factory=dict)
+    states: np.ndarray | None = None
+
+    @property
+    def completed(self) -> bool:
+        """True when the whole profile ran without a stop."""
+        return bool(self.summary["completed"])
+
+    @property
+    def stop_reason(self) -> str:
+        """Why the run ended (``end_of_profile`` or a limit)."""
+        return str(self.summary["stop_reason"])
+
+    @property
+    def warnings(self) -> list[str]:
+        """Warnings raised while simulating."""
+        return list(self.summary["warnings"])
+
+    def to_dataframe(self):
+        """The time series as a pandas DataFrame (columns with units in their names)."""
+        import pandas as pd
+
+        return pd.DataFrame({k: self.series[k] for k in SERIES_UNITS})
+
+    def to_dataset(self):
+        """The time series as an xarray Dataset with ``units`` attributes and run metadata.
+
+        The dimension ``time`` holds the output times [s]; a time repeats at each
+        jump of the demand (values just before and just after).
+        """
+        import xarray as xr
+
+        data = {k: ("time", self.series[k], {"units": SERIES_UNITS[k], "long_name": SERIES_DESCRIPTIONS[k]})
+                for k in SERIES_UNITS if k != "time_s"}
+        ds = xr.Dataset(data, coords={"time": ("time", self.series["time_s"],
+                                                {"units": "s", "long_name": SERIES_DESCRIPTIONS["time_s"]})})
+        attrs: dict[str, Any] = {}
+        for key, value in self.metadata.items():
+            attrs[key] = value if isinstance(value, (int, float, str)) else json.dumps(value)
+        for key, value in self.statistics.items():
+            attrs[f"solver_{key}"] = float(value)
+        attrs["status"] = self.status
+        attrs["stop_reason"] = self.stop_reason
+        attrs["completed"] = int(self.completed)
+        attrs["summary_json"] = json.dumps(self.summary)
+        ds.attrs.update(attrs)
+        return ds
+
+    def summary_json(self) -> str:
+        """The summary as JSON text."""
+        return json.dumps(self.summary, indent=2, allow_nan=False)
+
+    def write(self, out_dir: str | Path) -> list[Path]:
+        """Write ``summary.json``, ``timeseries.csv`` and ``timeseries.nc`` into ``out_dir``."""
+        out = Path(out_dir)
+        out.mkdir(parents=True, exist_ok=True)
+        written = [out / "summary.json", out / "timeseries.csv", out / "timeseries.nc"]
+        written[0].write_text(self.summary_json() + "\n")
+        self.to_dataframe().to_csv(written[1], index=False, float_format="%.9g")
+        self.to_dataset().to_netcdf(written[2])
+        return written
+
+
+def _finite_or_none(x: float) -> float | None:
+    return float(x) if math.isfinite(x) else None
+
+
+def build_result(problem: Problem, trajectory: Trajectory, options: SolverOptions,
+                 metadata: dict[str, Any] | None = None) -> SimulationResult:
+    """Series and summary metrics from a raw trajectory."""
+    n_rc = problem.n_rc
+    ns = problem.pack.series
+    states = trajectory.states
+    alg = np.empty((len(states), m.N_ALGEBRAICS))
+    m.evaluate_rows(np.ascontiguousarray(states), np.ascontiguousarray(trajectory.params), alg)
+    tc = states[:, 1 + n_rc]
+    ts = states[:, 2 + n_rc]
+    ambient = trajectory.params[:, m.H_AMBIENT]
+    current = alg[:, m.A_CURRENT]
+    voltage = alg[:, m.A_VOLTAGE]
+    series = {
+        "time_s": trajectory.times,
+        "current_A": current,
+        "voltage_V": voltage,
+        "power_W": voltage * current,
+        "soc": states[:, 0],
+        "ocv_V": ns * alg[:, m.A_OCV],
+        "cell_temperature_degC": _celsius(tc),
+        "sink_temperature_degC": _celsius(ts),
+        "ambient_temperature_degC": _celsius(ambient),
+        "heat_W": alg[:, m.A_HEAT],
+        "cell_voltage_V": alg[:, m.A_CELL_VOLTAGE],
+        "reversible_heat_W": alg[:, m.A_REVERSIBLE],
+        "heat_to_ambient_W": alg[:, m.A_HEAT_AMBIENT],
+        "pack_resistance_ohm": alg[:, m.A_RESISTANCE],
+    }
+    summary = _summary(problem, trajectory, series, states)
+    stats = dict(trajectory.statistics)
+    stats["wall_time_s"] = trajectory.wall_time
+    return SimulationResult(series=series, summary=summary, status=trajectory.status,
+                            message=trajectory.message, statistics=stats, events=trajectory.events,
+                            metadata=dict(metadata or {}), states=states)
+
+
+def _summary(problem: Problem, trajectory: Trajectory, series: dict[str, np.ndarray],
+             states: np.ndarray) -> dict[str, Any]:
+    n_rc = problem.n_rc
+    q = states[-1, 3 + n_rc:]
+    th = problem.thermal
+    pk = problem.pack
+    cell = problem.cell
+    c_cells = pk.series * pk.parallel * cell.mass * cell.specific_heat
+    tc, ts = states[:, 1 + n_rc], states[:, 2 + n_rc]
+    stored = c_cells * (tc[-1] - tc[0]) + th.sink_heat_capacity * (ts[-1] - ts[0])
+
+    battery_out, battery_in = q[m.Q_BATTERY_DISCHARGE], -q[m.Q_BATTERY_CHARGE]
+    load_out, load_in = q[m.Q_LOAD_DISCHARGE], -q[m.Q_LOAD_CHARGE]
+    energy_battery = battery_out - battery_in
+    energy_load = load_out - load_in
+    # energy out / energy in: delivered to the load and stored in the cells,
+    # over drawn from the cells and taken from the charger
+    taken = battery_out + load_in
+    efficiency = (load_out + battery_in) / taken if taken > 0 else None
+    current = series["current_A"]
+    cell_voltage = series["cell_voltage_V"]
+    times = series["time_s"]
+
+    warnings: list[str] = []
+    if trajectory.status == "failed":
+        warnings.append(f"solver failure at t = {times[-1]:.6g} s: {trajectory.message}; "
+                        "the results cover the mission up to that time only")
+    t_charge_min = problem.limits.charge_temperature_min
+    cold_charge = (current < 0) & (tc < t_charge_min)
+    cold_time = _time_where(times, cold_charge)
+    if cold_charge.any():
+        warnings.append(
+            f"charging below charge_temperature_min ({_celsius(t_charge_min):.1f} degC) for {cold_time:.0f} s, "
+            f"coldest {float(_celsius(tc[cold_charge].min())):.1f} degC: risk of lithium plating; "
+            "follow the cell maker's charge temperature window")
+    for ev in trajectory.events:
+        if ev["event"] == "cccv_cap":
+            warnings.append(f"CC-CV segment {ev['origin']} reached its duration cap at t = {ev['time_s']:.0f} s "
+                            "without falling below its cutoff current")
+
+    summary: dict[str, Any] = {
+        "scenario": problem.name,
+        "completed": trajectory.status == "ok" and trajectory.stop_reason == "end_of_profile",
+        "stop_reason": trajectory.stop_reason,
+        "duration_s": float(times[-1]),
+        "cell_temperature_max_degC": float(_celsius(tc.max())),
+        "cell_temperature_min_degC": float(_celsius(tc.min())),
+        "cell_temperature_rise_K": float(tc.max() - tc[0]),
+        "sink_temperature_max_degC": float(_celsius(ts.max())),
+        "voltage_min_V": float(series["voltage_V"].min()),
+        "voltage_max_V": float(series["voltage_V"].max()),
+        "cell_voltage_min_V": float(cell_voltage.min()),
+        "cell_voltage_max_V": float(cell_voltage.max()),
+        "voltage_margin_min_V": float(cell_voltage.min() - cell.voltage_min),
+        "voltage_margin_max_V": float(cell.voltage_max - cell_voltage.max()),
+        "temperature_margin_K": float(problem.limits.cell_temperature_max - tc.max()),
+        "current_max_A": float(np.abs(current).max()),
+        "discharge_current_max_A": float(max(current.max(), 0.0)),
+        "charge_current_max_A": float(max(-current.min(), 0.0)),
+        "power_max_W": float(series["power_W"].max()),
+        "energy_battery_Wh": energy_battery / JOULES_PER_WH,
+        "energy_load_Wh": energy_load / JOULES_PER_WH,
+        "energy_dissipated_Wh": (energy_battery - energy_load) / JOULES_PER_WH,
+        "energy_discharged_Wh": load_out / JOULES_PER_WH,
+        "energy_charged_Wh": load_in / JOULES_PER_WH,
+        "heat_generated_Wh": q[m.Q_HEAT] / JOULES_PER_WH,
+        "heat_reversible_Wh": q[m.Q_REVERSIBLE] / JOULES_PER_WH,
+        "heat_to_ambient_Wh": q[m.Q_HEAT_AMBIENT] / JOULES_PER_WH,
+        "heat_stored_Wh": stored / JOULES_PER_WH,
+        "efficiency": None if efficiency is None else _finite_or_none(efficiency),
+        "charge_throughput_Ah": q[m.Q_THROUGHPUT] / COULOMBS_PER_AH,
+        "soc_start": float(states[0, 0]),
+        "soc_end": float(states[-1, 0]),
+        "time_charging_below_limit_s": cold_time,
+        "segments_completed": trajectory.segments_completed,
+        "segments_total": len(problem.segments),
+        "events": [{"time_s": e["time_s"], "event": e["event"], "origin": e["origin"]}
+                   for e in trajectory.events],
+        "warnings": warnings,
+    }
+    return summary

@@ -1,0 +1,882 @@
+"""Scenario files (TOML, format 1): schema, units, validation, overrides.
+
+This is the only module that knows file formats and units. It reads a scenario
+(and the CSV profiles it names), converts every quantity to SI with pint,
+validates it with pydantic, and builds a :class:`thermoelec.model.Problem`.
+Every problem is reported as a :class:`ScenarioError` naming the file, the
+dotted key (list items counted from 1, as ``profile.segment[2].value``) and,
+where the text shows it, the line.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import math
+import re
+import tomllib
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from functools import lru_cache
+from pathlib import Path
+from typing import Annotated, Any, Literal
+
+import numpy as np
+from pydantic import BaseModel, BeforeValidator, ConfigDict, ValidationError, model_validator
+
+from .cell import Cell, Pack, RCPair, ResistanceLaw
+from .model import Limits, Problem
+from .profile import Segment, expand_repeats, segments_from_series
+from .solve import BACKENDS, SolverOptions
+from .thermal import ThermalNetwork, convection_conductance
+
+__all__ = ["Scenario", "ScenarioError", "apply_override", "load_scenario", "scenario_from_dict"]
+
+FORMAT_VERSION = 1
+
+
+class ScenarioError(ValueError):
+    """An invalid scenario or profile: one message naming the file and the key."""
+
+    def __init__(self, file: str, key: str, message: str, line: int | None = None):
+        self.file, self.key, self.message, self.line = file, key, message, line
+        where = f"{file}, line {line}" if line else file
+        super().__init__(f"{where}: {key}: {message}" if key else f"{where}: {message}")
+
+
+# ---------------------------------------------------------------------------
+# Quantities
+# ---------------------------------------------------------------------------
+
+_NUMBER = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
+
+
+@lru_cache(maxsize=1)
+def _registry():
+    import pint
+
+    return pint.UnitRegistry()
+
+
+def to_si(value: Any, default_unit: str, si_unit: str) -> float:
+    """A scenario quantity (bare number in ``default_unit`` or ``"value unit"``) in ``si_unit``."""
+    if isinstance(value, bool) or not isinstance(value, (int, float, str)):
+        raise ValueError(f"expected a number or a quantity string like '1.5 {default_unit}', got {value!r}")
+    if isinstance(value, str):
+        match = _NUMBER.match(value)
+        if not match:
+            raise ValueError(f"{value!r} is not a quantity: write a number and a unit, like '1.5 {default_unit}'")
+        number, unit = float(match.group(1)), match.group(2) or default_unit
+    else:
+        number, unit = float(value), default_unit
+    if not math.isfinite(number):
+        raise ValueError(f"{value!r} is not a finite number")
+    import pint
+
+    ureg = _registry()
+    try:
+        quantity = ureg.Quantity(number, unit)
+    except (pint.UndefinedUnitError, pint.errors.DefinitionSyntaxError, AttributeError, TypeError, ValueError):
+        raise ValueError(f"unknown unit {unit!r} in {value!r}") from None
+    try:
+        return float(quantity.to(si_unit).magnitude)
+    except pint.DimensionalityError:
+        raise ValueError(f"{value!r} has the wrong dimension: expected a quantity in {default_unit}") from None
+
+
+def _quantity(default_unit: str, si_unit: str | None = None):
+    si = si_unit or default_unit
+    return BeforeValidator(lambda v: to_si(v, default_unit, si))
+
+
+def _quantity_list(default_unit: str, si_unit: str | None = None):
+    si = si_unit or default_unit
+
+    def convert(v: Any) -> list[float]:
+        if not isinstance(v, list):
+            raise ValueError(f"expected a list of quantities in {default_unit}, got {v!r}")
+        if not v:
+            raise ValueError("the list is empty")
+        out = []
+        for i, item in enumerate(v):
+            try:
+                out.append(to_si(item, default_unit, si))
+            except ValueError as exc:
+                raise ValueError(f"item {i + 1}: {exc}") from None
+        return out
+
+    return BeforeValidator(convert)
+
+
+def _quantity_table(default_unit: str):
+    def convert(v: Any) -> list[list[float]]:
+        if not isinstance(v, list) or not v:
+            raise ValueError(f"expected a list of rows of values in {default_unit}")
+        rows = v if isinstance(v[0], list) else [v]
+        out = []
+        for r, row in enumerate(rows):
+            if not isinstance(row, list):
+                raise ValueError(f"row {r + 1} is not a list")
+            try:
+                out.append([to_si(x, default_unit, default_unit) for x in row])
+            except ValueError as exc:
+                raise ValueError(f"row {r + 1}: {exc}") from None
+        return out
+
+    return BeforeValidator(convert)
+
+
+def _positive_int(v: Any) -> int:
+    if isinstance(v, bool) or not isinstance(v, int) or v < 1:
+        raise ValueError(f"expected a whole number >= 1, got {v!r}")
+    return v
+
+
+Soc = Annotated[float, _quantity("", "")]
+Voltage = Annotated[float, _quantity("V")]
+Current = Annotated[float, _quantity("A")]
+Power = Annotated[float, _quantity("W")]
+Resistance = Annotated[float, _quantity("ohm")]
+Capacity = Annotated[float, _quantity("Ah", "C")]
+Mass = Annotated[float, _quantity("kg")]
+SpecificHeat = Annotated[float, _quantity("J/kg/K")]
+Temperature = Annotated[float, _quantity("degC", "K")]
+HeatCapacity = Annotated[float, _quantity("J/K")]
+Conductance = Annotated[float, _quantity("W/K")]
+Coefficient = Annotated[float, _quantity("W/m^2/K")]
+Area = Annotated[float, _quantity("m^2")]
+Energy = Annotated[float, _quantity("J/mol")]
+Capacitance = Annotated[float, _quantity("F")]
+Duration = Annotated[float, _quantity("s")]
+Dimensionless = Annotated[float, _quantity("", "")]
+SocList = Annotated[list[float], _quantity_list("", "")]
+VoltageList = Annotated[list[float], _quantity_list("V")]
+EntropicList = Annotated[list[float], _quantity_list("V/K")]
+TemperatureList = Annotated[list[float], _quantity_list("degC", "K")]
+ResistanceTable = Annotated[list[list[float]], _quantity_table("ohm")]
+Count = Annotated[int, BeforeValidator(_positive_int)]
+
+
+def _check(condition: bool, message: str) -> None:
+    if not condition:
+        raise ValueError(message)
+
+
+def _increasing(values: list[float], what: str) -> None:
+    _check(all(b > a for a, b in zip(values, values[1:])), f"{what} must be strictly increasing, got {values}")
+
+
+def _positive(value: float | None, what: str, allow_zero: bool = False) -> None:
+    if value is None:
+        return
+    if allow_zero:
+        _check(value >= 0.0, f"{what} must be >= 0, got {value:g}")
+    else:
+        _check(value > 0.0, f"{what} must be > 0, got {value:g}")
+
+
+# ---------------------------------------------------------------------------
+# Schema (pydantic), SI values after validation
+# ---------------------------------------------------------------------------
+
+
+class _Section(BaseModel):
+    model_config = ConfigDict(extra="forbid", frozen=True)
+
+
+class ScenarioInfo(_Section):
+    name: str
+    description: str = ""
+
+
+class OcvSpec(_Section):
+    soc: SocList
+    voltage: VoltageList
+    entropic: EntropicList | None = None
+    reference_temperature: Temperature = 298.15
+
+    @model_validator(mode="after")
+    def _table(self):
+        _increasing(self.soc, "soc")
+        _check(self.soc[0] >= 0.0 and self.soc[-1] <= 1.0, "soc values must lie within 0..1")
+        _check(self.soc[0] == 0.0 and self.soc[-1] == 1.0,
+               f"soc must cover 0 and 1 (got {self.soc[0]:g}..{self.soc[-1]:g})")
+        _check(len(self.voltage) == len(self.soc),
+               f"voltage has {len(self.voltage)} values but soc has {len(self.soc)}")
+        _check(all(v > 0 for v in self.voltage), "voltage values must be > 0")
+        if self.entropic is not None:
+            _check(len(self.entropic) == len(self.soc),
+                   f"entropic has {len(self.entropic)} values but soc has {len(self.soc)}")
+        return self
+
+
+class ResistanceSpec(_Section):
+    """One of: ``value``; ``soc`` + ``values``; ``soc`` + ``temperature`` + ``values`` (rows per temperature)."""
+
+    value: Resistance | None = None
+    soc: SocList | None = None
+    temperature: TemperatureList | None = None
+    values: ResistanceTable | None = None
+    activation_energy: Energy | None = None
+    reference_temperature: Temperature = 298.15
+
+    @model_validator(mode="after")
+    def _form(self):
+        if self.value is not None:
+            _check(self.soc is None and self.values is None and self.temperature is None,
+                   "give either value, or soc and values (and temperature), not both")
+            _positive(self.value, "value")
+        else:
+            _check(self.soc is not None and self.values is not None,
+                   "give value (a constant), or soc and values (a table)")
+            _increasing(self.soc, "soc")
+            rows = self.values
+            if self.temperature is None:
+                _check(len(rows) == 1, "values has several rows: give temperature, one per row")
+            else:
+                _increasing(self.temperature, "temperature")
+                _check(len(rows) == len(self.temperature),
+                       f"values has {len(rows)} rows but temperature has {len(self.temperature)} values")
+                _check(self.activation_energy is None,
+                       "activation_energy goes with a constant or a table over SoC, not a 2-D table")
+            for r, row in enumerate(rows):
+                _check(len(row) == len(self.soc), f"values row {r + 1} has {len(row)} values but soc has "
+                                                  f"{len(self.soc)}")
+                _check(all(x > 0 for x in row), f"values row {r + 1}: resistances must be > 0")
+        if self.activation_energy is not None:
+            _check(self.activation_energy >= 0, "activation_energy must be >= 0")
+        return self
+
+    def law(self) -> ResistanceLaw:
+        ea = self.activation_energy or 0.0
+        if self.value is not None:
+            return ResistanceLaw.constant(self.value, ea, self.reference_temperature)
+        temps = self.temperature or [self.reference_temperature]
+        return ResistanceLaw(np.array(self.soc), np.array(temps), np.array(self.values), ea,
+                             self.reference_temperature)
+
+
+class RCSpec(_Section):
+    resistance: Resistance | ResistanceSpec
+    capacitance: Capacitance | None = None
+    time_constant: Duration | None = None
+    activation_energy: Energy | None = None
+    reference_temperature: Temperature = 298.15
+
+    @model_validator(mode="before")
+    @classmethod
+    def _resistance_form(cls, data: Any) -> Any:
+        if isinstance(data, dict) and isinstance(data.get("resistance"), dict):
+            data = dict(data)
+            inner = dict(data["resistance"])
+            for key in ("activation_energy", "reference_temperature"):
+                if key in data and key not in inner:
+                    inner[key] = data[key]
+            data["resistance"] = inner
+        return data
+
+    @model_validator(mode="after")
+    def _pair(self):
+        _check((self.capacitance is None) != (self.time_constant is None),
+               "give exactly one of capacitance and time_constant")
+        _positive(self.capacitance, "capacitance")
+        _positive(self.time_constant, "time_constant")
+        if isinstance(self.resistance, float):
+            _positive(self.resistance, "resistance")
+        return self
+
+    def pair(self) -> RCPair:
+        if isinstance(self.resistance, ResistanceSpec):
+            law = self.resistance.law()
+        else:
+            law = ResistanceLaw.constant(self.resistance, self.activation_energy or 0.0, self.reference_temperature)
+        return RCPair(law, capacitance=self.capacitance, time_constant=self.time_constant)
+
+
+class CellSpec(_Section):
+    capacity: Capacity
+    voltage_max: Voltage
+    voltage_min: Voltage
+    mass: Mass
+    specific_heat: SpecificHeat
+    initial_soc: Soc = 1.0
+    ocv: OcvSpec
+    r0: ResistanceSpec
+    rc: list[RCSpec] = []
+
+    @model_validator(mode="after")
+    def _cell(self):
+        for key in ("capacity", "voltage_max", "voltage_min", "mass", "specific_heat"):
+            _positive(getattr(self, key), key)
+        _check(self.voltage_min < self.voltage_max,
+               f"voltage_min ({self.voltage_min:g} V) must be below voltage_max ({self.voltage_max:g} V)")
+        _check(0.0 <= self.initial_soc <= 1.0, f"initial_soc must lie within 0..1, got {self.initial_soc:g}")
+        return self
+
+
+class PackSpec(_Section):
+    series: Count = 1
+    parallel: Count = 1
+    interconnect_resistance: Resistance = 0.0
+
+    @model_validator(mode="after")
+    def _pack(self):
+        _positive(self.interconnect_resistance, "interconnect_resistance", allow_zero=True)
+        return self
+
+
+class ConvectionSpec(_Section):
+    coefficient: Coefficient
+    area: Area
+
+    @model_validator(mode="after")
+    def _convection(self):
+        _positive(self.coefficient, "coefficient", allow_zero=True)
+        _positive(self.area, "area", allow_zero=True)
+        return self
+
+
+class ThermalSpec(_Section):
+    ambient_temperature: Temperature | None = None
+    initial_cell_temperature: Temperature | None = None
+    initial_sink_temperature: Temperature | None = None
+    sink_heat_capacity: HeatCapacity
+    cell_to_sink: Conductance
+    sink_to_ambient: Conductance | None = None
+    convection: ConvectionSpec | None = None
+    cell_to_ambient: Conductance = 0.0
+
+    @model_validator(mode="after")
+    def _thermal(self):
+        _positive(self.sink_heat_capacity, "sink_heat_capacity")
+        for key in ("cell_to_sink", "sink_to_ambient", "cell_to_ambient"):
+            _positive(getattr(self, key), key, allow_zero=True)
+        _check((self.sink_to_ambient is None) != (self.convection is None),
+               "give exactly one of sink_to_ambient and [thermal.convection]")
+        for key in ("ambient_temperature", "initial_cell_temperature", "initial_sink_temperature"):
+            value = getattr(self, key)
+            _check(value is None or value > 0, f"{key} is below absolute zero")
+        return self
+
+    def network(self) -> ThermalNetwork:
+        g_sa = self.sink_to_ambient if self.convection is None else \
+            convection_conductance(self.convection.coefficient, self.convection.area)
+        return ThermalNetwork(self.sink_heat_capacity, self.cell_to_sink, g_sa, self.cell_to_ambient)
+
+
+_SEGMENT_VALUE_UNITS = {"current": "A", "power": "W", "resistance": "ohm", "voltage": "V"}
+
+
+class SegmentSpec(_Section):
+    mode: Literal["current", "power", "resistance", "voltage", "rest", "cccv"] | None = None
+    value: Any = None
+    duration: Duration | None = None
+    voltage_below: Voltage | None = None
+    voltage_above: Voltage | None = None
+    soc_below: Soc | None = None
+    soc_above: Soc | None = None
+    current: Current | None = None
+    voltage: Voltage | None = None
+    cutoff_current: Current | None = None
+    file: str | None = None
+
+    @model_validator(mode="after")
+    def _segment(self):
+        _positive(self.duration, "duration")
+        if self.file is not None:
+            _check(self.mode is None and self.value is None and self.duration is None,
+                   "a file segment takes its mode, values and times from the file: drop mode, value and duration")
+            _check(not self.file.strip() == "", "file is empty")
+            return self
+        _check(self.mode is not None, "give mode (current, power, resistance, voltage, rest, cccv) or file")
+        if self.mode == "cccv":
+            _check(self.value is None, "a cccv segment takes current, voltage and cutoff_current, not value")
+            _check(self.current is not None and self.voltage is not None and self.cutoff_current is not None,
+                   "a cccv segment needs current, voltage and cutoff_current")
+            _check(self.current < 0, f"current is the charge current and must be negative, got {self.current:g} A")
+            _positive(self.voltage, "voltage")
+            _positive(self.cutoff_current, "cutoff_current")
+            _check(self.cutoff_current < abs(self.current),
+                   "cutoff_current must be smaller than the charge current")
+            return self
+        for key in ("current", "voltage", "cutoff_current"):
+            _check(getattr(self, key) is None, f"{key} belongs to a cccv segment; use value for mode {self.mode}")
+        _check(self.duration is not None, f"a {self.mode} segment needs a duration")
+        if self.mode == "rest":
+            _check(self.value is None, "a rest segment takes no value")
+            return self
+        _check(self.value is not None, f"a {self.mode} segment needs a value")
+        unit = _SEGMENT_VALUE_UNITS[self.mode]
+        value = to_si(self.value, unit, unit)
+        if self.mode in ("resistance", "voltage"):
+            _positive(value, "value")
+        object.__setattr__(self, "value", value)
+        return self
+
+
+class ProfileSpec(_Section):
+    repeat: Count = 1
+    segment: list[SegmentSpec]
+
+    @model_validator(mode="after")
+    def _profile(self):
+        _check(len(self.segment) > 0, "the profile has no segments")
+        return self
+
+
+class LimitsSpec(_Section):
+    cell_temperature_max: Temperature = 333.15
+    charge_temperature_min: Temperature = 273.15
+
+
+class SolverSpec(_Section):
+    backend: str = "cvode"
+    rtol: Dimensionless = 1e-6
+    output_interval: Duration = 1.0
+    atol_soc: Dimensionless | None = None
+    atol_voltage: Voltage | None = None
+    atol_temperature: Annotated[float, _quantity("K")] | None = None
+    max_steps: Count = 50_000
+    scipy_method: Literal["LSODA", "BDF", "Radau", "RK45", "DOP853", "RK23"] = "LSODA"
+
+    @model_validator(mode="after")
+    def _solver(self):
+        _check(self.backend in BACKENDS, f"unknown backend {self.backend!r}; valid: {', '.join(BACKENDS)}")
+        _check(0 < self.rtol < 0.1, f"rtol must lie within 0..0.1, got {self.rtol:g}")
+        _positive(self.output_interval, "output_interval")
+        for key in ("atol_soc", "atol_voltage", "atol_temperature"):
+            _positive(getattr(self, key), key)
+        return self
+
+    def options(self) -> SolverOptions:
+        extra = {k: getattr(self, k) for k in ("atol_soc", "atol_voltage", "atol_temperature")
+                 if getattr(self, k) is not None}
+        return SolverOptions(backend=self.backend, rtol=self.rtol, output_interval=self.output_interval,
+                             max_steps=self.max_steps, scipy_method=self.scipy_method, **extra)
+
+
+class CaseSpec(BaseModel):
+    """A named variant for the compare command: dotted keys to values."""
+
+    model_config = ConfigDict(extra="allow", frozen=True)
+    name: str
+
+
+class ScenarioSpec(_Section):
+    format: Literal[1]
+    scenario: ScenarioInfo
+    cell: CellSpec
+    pack: PackSpec = PackSpec()
+    thermal: ThermalSpec
+    profile: ProfileSpec
+    limits: LimitsSpec = LimitsSpec()
+    solver: SolverSpec = SolverSpec()
+    sweep: dict[str, Any] = {}
+    case: list[CaseSpec] = []
+
+
+# ---------------------------------------------------------------------------
+# Errors: pydantic locations -> dotted keys and lines
+# ---------------------------------------------------------------------------
+
+
+def dotted(loc: tuple) -> str:
+    """``('profile', 'segment', 2, 'value')`` -> ``profile.segment[3].value`` (items counted from 1)."""
+    out = ""
+    for part in loc:
+        if isinstance(part, int):
+            out += f"[{part + 1}]"
+        elif part in ("float", "function-before", "function-after", "list[float]", "ResistanceSpec") or \
+                str(part).startswith(("function-", "constrained-")):
+            continue
+        else:
+            out += ("." if out else "") + str(part)
+    return out
+
+
+_HEADER = re.compile(r"^\s*(\[\[?)\s*([^\]]+?)\s*\]\]?\s*(#.*)?$")
+_KEY = re.compile(r"^\s*(\"[^\"]+\"|'[^']+'|[A-Za-z0-9_\-]+)\s*=")
+
+
+def find_line(text: str, loc: tuple) -> int | None:
+    """Best-effort line number of a key in TOML text (the table header when the key is missing)."""
+    keys = [p for p in loc if isinstance(p, str)]
+    indices = [p for p in loc if isinstance(p, int)]
+    counters: dict[str, int] = {}
+    table: list = []
+    best, best_len = None, 0
+    for number, line in enumerate(text.splitlines(), start=1):
+        header = _HEADER.match(line)
+        if header:
+            name = [k.strip().strip('"') for k in header.group(2).split(".")]
+            if header.group(1) == "[[":
+                joined = ".".join(name)
+                counters[joined] = counters.get(joined, -1) + 1
+                table = [*name, counters[joined]]
+            else:
+                table = name
+            path = table
+        else:
+            key = _KEY.match(line)
+            if not key:
+                continue
+            path = [*table, key.group(1).strip("\"'")]
+        flat_keys = [p for p in path if isinstance(p, str)]
+        flat_idx = [p for p in path if isinstance(p, int)]
+        if flat_keys == keys[:len(flat_keys)] and flat_idx == indices[:len(flat_idx)] and len(path) > best_len:
+            best, best_len = number, len(path)
+    return best
+
+
+def _clean(msg: str) -> str:
+    for prefix in ("Value error, ", "Assertion failed, "):
+        if msg.startswith(prefix):
+            msg = msg[len(prefix):]
+    if msg == "Field required":
+        return "required key is missing"
+    return msg
+
+
+def _first_error(exc: ValidationError, file: str, text: str | None) -> ScenarioError:
+    errors = exc.errors()
+    # prefer an error that names a specific key over a union's alternatives
+    err = errors[0]
+    loc = tuple(err["loc"])
+    msg = _clean(err["msg"])
+    if err["type"] == "extra_forbidden":
+        msg = f"unknown key {loc[-1]!r}"
+        parent = _model_at(ScenarioSpec, loc[:-1])
+        if parent is not None:
+            msg += f" (valid keys: {', '.join(parent.model_fields)})"
+    elif err["type"] == "literal_error":
+        msg = f"{err['input']!r} is not allowed: {msg[len('Input should be '):] if msg.startswith('Input') else msg}"
+    more = len(errors) - 1
+    if more:
+        msg += f" (and {more} more problem{'s' if more > 1 else ''})"
+    line = find_line(text, loc) if text else None
+    return ScenarioError(file, dotted(loc), msg, line)
+
+
+def _model_at(model: type[BaseModel], loc: tuple) -> type[BaseModel] | None:
+    """The pydantic model class found at a location, for listing its valid keys."""
+    import typing
+
+    current: Any = model
+    for part in loc:
+        if isinstance(part, int):
+            continue
+        if not (isinstance(current, type) and issubclass(current, BaseModel)) or part not in current.model_fields:
+            return None
+        annotation = current.model_fields[part].annotation
+        candidates = [annotation, *typing.get_args(annotation)]
+        nxt = None
+        for c in candidates:
+            for cc in [c, *typing.get_args(c)]:
+                if isinstance(cc, type) and issubclass(cc, BaseModel):
+                    nxt = cc
+        current = nxt
+    return current if isinstance(current, type) and issubclass(current, BaseModel) else None
+
+
+# ---------------------------------------------------------------------------
+# Overrides by dotted path
+# ---------------------------------------------------------------------------
+
+_PART = re.compile(r"([^.\[\]]+)|\[(\d+)\]")
+
+
+def split_path(path: str) -> list[str | int]:
+    """``profile.segment[2].value`` -> ``['profile', 'segment', 1, 'value']`` (0-based inside)."""
+    parts: list[str | int] = []
+    pos = 0
+    for match in _PART.finditer(path):
+        between = path[pos:match.start()]
+        if between not in ("", "."):
+            raise ValueError(f"cannot read the key path {path!r}")
+        pos = match.end()
+        if match.group(2) is not None:
+            index = int(match.group(2))
+            if index < 1:
+                raise ValueError(f"list items are counted from 1 in {path!r}")
+            parts.append(index - 1)
+        else:
+            parts.append(match.group(1).strip().strip('"'))
+    if not parts or path[pos:] not in ("",):
+        raise ValueError(f"cannot read the key path {path!r}")
+    return parts
+
+
+def parse_value(text: str) -> Any:
+    """A command-line value: TOML syntax when it parses (``1.5``, ``[1, 2]``, ``"x"``), else the bare string."""
+    try:
+        return tomllib.loads(f"v = {text}")["v"]
+    except tomllib.TOMLDecodeError:
+        return text
+
+
+def apply_override(data: dict, path: str, value: Any) -> None:
+    """Set ``value`` at a dotted ``path`` in raw scenario data (in place); a missing table is created."""
+    parts = split_path(path)
+    node: Any = data
+    for i, part in enumerate(parts[:-1]):
+        nxt = parts[i + 1]
+        if isinstance(part, int):
+            if not isinstance(node, list) or part >= len(node):
+                raise ValueError(f"{dotted(tuple(parts[:i + 1]))} does not exist")
+            node = node[part]
+        else:
+            if not isinstance(node, dict):
+                raise ValueError(f"{dotted(tuple(parts[:i]))} is not a table")
+            if part not in node:
+                node[part] = [] if isinstance(nxt, int) else {}
+            node = node[part]
+    last = parts[-1]
+    if isinstance(last, int):
+        if not isinstance(node, list) or last >= len(node):
+            raise ValueError(f"{dotted(tuple(parts))} does not exist")
+        node[last] = value
+    else:
+        if not isinstance(node, dict):
+            raise ValueError(f"{dotted(tuple(parts[:-1]))} is not a table")
+        node[last] = value
+
+
+# ---------------------------------------------------------------------------
+# CSV profiles
+# ---------------------------------------------------------------------------
+
+_CSV_DEMAND_COLUMNS = {f"{mode}_{unit}": mode for mode, unit in
+                       (("current", "A"), ("power", "W"), ("resistance", "ohm"), ("voltage", "V"))}
+_CSV_AMBIENT = "ambient_temperature_degC"
+KELVIN_AT_0_DEGC = 273.15
+
+
+@dataclass(frozen=True)
+class SeriesProfile:
+    """A CSV profile read from disk, in SI units."""
+
+    path: Path
+    mode: str
+    time: np.ndarray
+    demand: np.ndarray
+    ambient: np.ndarray | None
+
+
+def read_profile_csv(path: Path, key: str) -> SeriesProfile:
+    """Read a zero-order-hold profile: ``time_s`` plus one demand column, optional ambient."""
+    import pandas as pd
+
+    name = str(path)
+    if not path.is_file():
+        raise ScenarioError(name, key, "profile file not found")
+    try:
+        frame = pd.read_csv(path, comment="#", skipinitialspace=True)
+    except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
+        raise ScenarioError(name, key, f"not a readable CSV file: {str(exc).strip()}") from None
+    frame.columns = [str(c).strip() for c in frame.columns]
+    if "time_s" not in frame.columns:
+        raise ScenarioError(name, "time_s", f"column time_s is missing (columns: {', '.join(frame.columns)})")
+    demand_columns = [c for c in frame.columns if c in _CSV_DEMAND_COLUMNS]
+    if len(demand_columns) != 1:
+        raise ScenarioError(name, key, "give exactly one demand column of " + ", ".join(_CSV_DEMAND_COLUMNS)
+                            + f" (found {', '.join(demand_columns) or 'none'})")
+    unknown = [c for c in frame.columns if c not in ("time_s", _CSV_AMBIENT, *_CSV_DEMAND_COLUMNS)]
+    if unknown:
+        raise ScenarioError(name, unknown[0], "unknown column (valid: time_s, "
+                            + ", ".join(_CSV_DEMAND_COLUMNS) + f", {_CSV_AMBIENT})")
+    columns = ["time_s", demand_columns[0]] + ([_CSV_AMBIENT] if _CSV_AMBIENT in frame.columns else [])
+    arrays = {}
+    for column in columns:
+        values = pd.to_numeric(frame[column], errors="coerce").to_numpy(dtype=float)
+        bad = np.flatnonzero(~np.isfinite(values))
+        if bad.size:
+            row = int(bad[0])
+            raise ScenarioError(name, column, f"row {row + 1} (line {row + 2}): {frame[column].iloc[row]!r} is "
+                                "not a finite number")
+        arrays[column] = values
+    time = arrays["time_s"]
+    if len(time) < 2:
+        raise ScenarioError(name, "time_s", "a profile file needs at least two rows")
+    steps = np.diff(time)
+    if (steps <= 0).any():
+        row = int(np.flatnonzero(steps <= 0)[0]) + 1
+        raise ScenarioError(name, "time_s", f"time must be strictly increasing: row {row + 1} (line {row + 2}) "
+                            f"has {time[row]:g} s after {time[row - 1]:g} s")
+    mode = _CSV_DEMAND_COLUMNS[demand_columns[0]]
+    demand = arrays[demand_columns[0]]
+    if mode in ("resistance", "voltage") and (demand <= 0).any():
+        row = int(np.flatnonzero(demand <= 0)[0])
+        raise ScenarioError(name, demand_columns[0], f"row {row + 1} (line {row + 2}): must be > 0")
+    ambient = arrays.get(_CSV_AMBIENT)
+    if ambient is not None:
+        ambient = ambient + KELVIN_AT_0_DEGC
+        if (ambient <= 0).any():
+            raise ScenarioError(name, _CSV_AMBIENT, "temperature below absolute zero")
+    return SeriesProfile(path, mode, time, demand, ambient)
+
+
+# ---------------------------------------------------------------------------
+# The scenario object
+# ---------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Scenario:
+    """A validated scenario: the raw data, its SI specification and where it came from."""
+
+    spec: ScenarioSpec
+    raw: dict
+    source: str
+    base_dir: Path
+    digest: str
+    overrides: tuple[tuple[str, Any], ...] = field(default_factory=tuple)
+
+    @property
+    def name(self) -> str:
+        """The scenario's name."""
+        return self.spec.scenario.name
+
+    def with_overrides(self, overrides: Mapping[str, Any]) -> Scenario:
+        """A new scenario with values replaced by dotted path (validated again)."""
+        return _validate(_deep_copy(self.raw), self.source, self.base_dir, None, list(overrides.items()),
+                         self.digest, self.overrides)
+
+    def problem(self) -> Problem:
+        """The SI :class:`~thermoelec.model.Problem` for the simulator (reads CSV profiles)."""
+        return build_problem(self)
+
+    def solver_options(self) -> SolverOptions:
+        """Integrator settings from ``[solver]``."""
+        return self.spec.solver.options()
+
+
+def _deep_copy(data: Any) -> Any:
+    if isinstance(data, dict):
+        return {k: _deep_copy(v) for k, v in data.items()}
+    if isinstance(data, list):
+        return [_deep_copy(v) for v in data]
+    return data
+
+
+def _validate(data: dict, source: str, base_dir: Path, text: str | None, overrides: list[tuple[str, Any]],
+              digest: str, previous: tuple = ()) -> Scenario:
+    for path, value in overrides:
+        try:
+            apply_override(data, path, value)
+        except ValueError as exc:
+            raise ScenarioError(source, path, f"cannot override: {exc}") from None
+    try:
+        spec = ScenarioSpec.model_validate(data)
+    except ValidationError as exc:
+        raise _first_error(exc, source, text) from None
+    if overrides:
+        h = hashlib.sha256(digest.encode())
+        h.update(repr(overrides).encode())
+        digest = h.hexdigest()
+    scenario = Scenario(spec, data, source, base_dir, digest, tuple(previous) + tuple(overrides))
+    _check_profile_files(scenario)
+    return scenario
+
+
+def _check_profile_files(scenario: Scenario) -> None:
+    for i, seg in enumerate(scenario.spec.profile.segment):
+        if seg.file is not None:
+            read_profile_csv(scenario.base_dir / seg.file, f"profile.segment[{i + 1}].file")
+
+
+def load_scenario(path: str | Path, overrides: Mapping[str, Any] | None = None) -> Scenario:
+    """Read and validate a scenario file; ``overrides`` replace values by dotted path first.
+
+    Raises
+    ------
+    ScenarioError
+        For any problem in the file, its overrides or the CSV profiles it names.
+    """
+    path = Path(path)
+    source = str(path)
+    try:
+        blob = path.read_bytes()
+    except FileNotFoundError:
+        raise ScenarioError(source, "", "scenario file not found") from None
+    except OSError as exc:
+        raise ScenarioError(source, "", f"cannot read the file: {exc.strerror}") from None
+    try:
+        text = blob.decode("utf-8")
+    except UnicodeDecodeError:
+        raise ScenarioError(source, "", "the file is not UTF-8 text") from None
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        line_match = re.search(r"line (\d+)", str(exc))
+        raise ScenarioError(source, "", f"TOML syntax error: {exc}",
+                            int(line_match.group(1)) if line_match else None) from None
+    digest = hashlib.sha256(blob).hexdigest()
+    return _validate(data, source, path.parent, text, list((overrides or {}).items()), digest)
+
+
+def scenario_from_dict(data: Mapping[str, Any], base_dir: str | Path = ".", source: str = "<dict>",
+                       overrides: Mapping[str, Any] | None = None) -> Scenario:
+    """Validate scenario data given as a dict (the parsed TOML structure)."""
+    raw = _deep_copy(dict(data))
+    digest = hashlib.sha256(repr(sorted(raw.items(), key=lambda kv: kv[0])).encode()).hexdigest()
+    return _validate(raw, source, Path(base_dir), None, list((overrides or {}).items()), digest)
+
+
+# ---------------------------------------------------------------------------
+# Scenario -> Problem
+# ---------------------------------------------------------------------------
+
+
+def _segment_from_spec(spec: SegmentSpec, origin: str) -> Segment:
+    common = dict(voltage_below=spec.voltage_below, voltage_above=spec.voltage_above,
+                  soc_below=spec.soc_below, soc_above=spec.soc_above, origin=origin)
+    if spec.mode == "cccv":
+        return Segment("cccv", spec.current, spec.duration if spec.duration is not None else math.inf,
+                       cv_voltage=spec.voltage, cutoff_current=spec.cutoff_current, **common)
+    if spec.mode == "rest":
+        return Segment("rest", 0.0, spec.duration, **common)
+    return Segment(spec.mode, float(spec.value), spec.duration, **common)
+
+
+def build_problem(scenario: Scenario) -> Problem:
+    """Convert a validated scenario into an SI :class:`Problem` (reads the CSV profiles)."""
+    spec = scenario.spec
+    segments: list[Segment] = []
+    first_ambient: float | None = None
+    for i, seg in enumerate(spec.profile.segment):
+        key = f"profile.segment[{i + 1}]"
+        if seg.file is not None:
+            series = read_profile_csv(scenario.base_dir / seg.file, f"{key}.file")
+            if first_ambient is None and series.ambient is not None:
+                first_ambient = float(series.ambient[0])
+            segments += segments_from_series(series.time, series.mode, series.demand, series.ambient, seg.file)
+        else:
+            segments.append(_segment_from_spec(seg, key))
+    ambient = spec.thermal.ambient_temperature
+    if ambient is None:
+        if first_ambient is None:
+            raise ScenarioError(scenario.source, "thermal.ambient_temperature",
+                                "required unless a profile file gives the column " + _CSV_AMBIENT)
+        ambient = first_ambient
+    cell_spec = spec.cell
+    ocv = cell_spec.ocv
+    cell = Cell(
+        capacity=cell_spec.capacity, voltage_min=cell_spec.voltage_min, voltage_max=cell_spec.voltage_max,
+        mass=cell_spec.mass, specific_heat=cell_spec.specific_heat,
+        ocv_soc=np.array(ocv.soc), ocv_voltage=np.array(ocv.voltage),
+        ocv_entropic=np.array(ocv.entropic if ocv.entropic is not None else [0.0] * len(ocv.soc)),
+        ocv_reference_temperature=ocv.reference_temperature,
+        r0=cell_spec.r0.law(), rc=tuple(rc.pair() for rc in cell_spec.rc),
+    )
+    pack = Pack(spec.pack.series, spec.pack.parallel, spec.pack.interconnect_resistance)
+    start_ambient = segments[0].ambient_temperature if segments[0].ambient_temperature is not None else ambient
+    t_cell = spec.thermal.initial_cell_temperature or start_ambient
+    t_sink = spec.thermal.initial_sink_temperature or t_cell
+    return Problem(
+        cell=cell, pack=pack, thermal=spec.thermal.network(),
+        segments=tuple(expand_repeats(segments, spec.profile.repeat)),
+        ambient_temperature=ambient, initial_soc=cell_spec.initial_soc,
+        initial_cell_temperature=t_cell, initial_sink_temperature=t_sink,
+        limits=Limits(spec.limits.cell_temperature_max, spec.limits.charge_temperature_min),
+        name=spec.scenario.name,
+    )
+
