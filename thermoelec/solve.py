@@ -56,6 +56,10 @@ START_PROBE = 1e-3
 IMPOSED_VOLTAGE_SLACK = 1e-9
 
 
+#: Typical scales of the states [-, V, K, J]: the default absolute tolerance is rtol times these.
+ATOL_SCALES = {"soc": 1e-2, "voltage": 1e-2, "temperature": 1.0, "integral": 1.0}
+
+
 @dataclass(frozen=True)
 class SolverOptions:
     """Integrator settings.
@@ -66,9 +70,11 @@ class SolverOptions:
         A key of :data:`BACKENDS`.
     rtol : float
         Relative tolerance [-].
-    atol_soc, atol_voltage, atol_temperature, atol_integral : float
+    atol_soc, atol_voltage, atol_temperature, atol_integral : float or None
         Absolute tolerances of SoC [-], RC voltages [V], temperatures [K] and the
-        energy / charge integrals [J, C].
+        energy / charge integrals [J, C]. By default each is ``rtol`` times a
+        typical scale of its state (:data:`ATOL_SCALES`), so that tightening
+        ``rtol`` tightens every state.
     output_interval : float
         Spacing of the reported series [s]; phase ends and events are always reported.
     max_steps : int
@@ -79,19 +85,23 @@ class SolverOptions:
 
     backend: str = "cvode"
     rtol: float = 1e-6
-    atol_soc: float = 1e-9
-    atol_voltage: float = 1e-8
-    atol_temperature: float = 1e-6
-    atol_integral: float = 1e-3
+    atol_soc: float | None = None
+    atol_voltage: float | None = None
+    atol_temperature: float | None = None
+    atol_integral: float | None = None
     output_interval: float = 1.0
     max_steps: int = 50_000
     scipy_method: str = "LSODA"
 
     def atol_vector(self, n_rc: int) -> np.ndarray:
         """Per-state absolute tolerances in state order."""
-        return np.concatenate([[self.atol_soc], np.full(n_rc, self.atol_voltage),
-                               [self.atol_temperature, self.atol_temperature],
-                               np.full(m.N_QUADRATURES, self.atol_integral)])
+        def atol(name: str) -> float:
+            given = getattr(self, f"atol_{name}")
+            return given if given is not None else self.rtol * ATOL_SCALES[name]
+
+        return np.concatenate([[atol("soc")], np.full(n_rc, atol("voltage")),
+                               [atol("temperature"), atol("temperature")],
+                               np.full(m.N_QUADRATURES, atol("integral"))])
 
 
 @dataclass

@@ -1,0 +1,51 @@
+# thermoelec: `make demo` runs the example missions, `make test` runs the tests.
+# Both first install what is missing: Debian's libsundials-dev, a .venv, the package.
+
+PYTHON ?= python3
+VENV   := .venv
+BIN    := $(VENV)/bin
+STAMP  := $(VENV)/.thermoelec-installed
+DEMO   := out/demo
+
+.PHONY: all setup test test-all demo lint bench bench-quick clean
+
+all: test
+
+$(STAMP): pyproject.toml
+	@tools/ensure-sundials
+	@test -x $(BIN)/python || $(PYTHON) -m venv $(VENV)
+	@$(BIN)/python -m pip install -q --disable-pip-version-check --upgrade pip
+	@echo "thermoelec set-up: installing the package and its dependencies into $(VENV)"
+	@$(BIN)/python -m pip install -q --disable-pip-version-check -e '.[dev]'
+	@touch $(STAMP)
+
+setup: $(STAMP)
+
+test: $(STAMP)
+	$(BIN)/python -m pytest -q -m "not slow"
+
+test-all: $(STAMP)
+	$(BIN)/python -m pytest -q
+
+lint: $(STAMP)
+	$(BIN)/ruff check thermoelec tests benchmarks
+
+demo: $(STAMP)
+	@echo "== courier drone sortie, hot afternoon (38 degC)"
+	@$(BIN)/thermoelec run scenarios/drone_delivery.toml --out $(DEMO)/drone-hot
+	@echo
+	@echo "== the same sortie on a cold morning (-5 degC)"
+	@$(BIN)/thermoelec run scenarios/drone_delivery.toml --out $(DEMO)/drone-cold \
+		--set "thermal.ambient_temperature=-5 degC" --set "scenario.name=courier drone sortie, cold morning"
+	@echo
+	@echo "== cargo e-bike round from a 1 Hz CSV, then a CC-CV recharge"
+	@$(BIN)/thermoelec run scenarios/ebike_route.toml --out $(DEMO)/ebike
+
+bench: $(STAMP)
+	$(BIN)/python benchmarks/bench_single_mission.py
+
+bench-quick: $(STAMP)
+	$(BIN)/python benchmarks/bench_single_mission.py --quick
+
+clean:
+	rm -rf $(VENV) out .pytest_cache .ruff_cache
