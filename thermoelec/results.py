@@ -221,8 +221,8 @@ def _summary(problem: Problem, trajectory: Trajectory, series: dict[str, np.ndar
 
     battery_out, battery_in = q[m.Q_BATTERY_DISCHARGE], -q[m.Q_BATTERY_CHARGE]
     load_out, load_in = q[m.Q_LOAD_DISCHARGE], -q[m.Q_LOAD_CHARGE]
-    energy_battery = battery_out - battery_in
-    energy_load = load_out - load_in
+    energy_battery_wh = float(battery_out - battery_in) / JOULES_PER_WH
+    energy_load_wh = float(load_out - load_in) / JOULES_PER_WH
     # energy out / energy in: delivered to the load and stored in the cells,
     # over drawn from the cells and taken from the charger
     taken = battery_out + load_in
@@ -268,23 +268,23 @@ def _summary(problem: Problem, trajectory: Trajectory, series: dict[str, np.ndar
         "discharge_current_max_A": float(max(current.max(), 0.0)),
         "charge_current_max_A": float(max(-current.min(), 0.0)),
         "power_max_W": float(series["power_W"].max()),
-        "energy_battery_Wh": energy_battery / JOULES_PER_WH,
-        "energy_load_Wh": energy_load / JOULES_PER_WH,
-        "energy_dissipated_Wh": (energy_battery - energy_load) / JOULES_PER_WH,
-        "energy_discharged_Wh": load_out / JOULES_PER_WH,
-        "energy_charged_Wh": load_in / JOULES_PER_WH,
-        "heat_generated_Wh": q[m.Q_HEAT] / JOULES_PER_WH,
-        "heat_reversible_Wh": q[m.Q_REVERSIBLE] / JOULES_PER_WH,
-        "heat_to_ambient_Wh": q[m.Q_HEAT_AMBIENT] / JOULES_PER_WH,
-        "heat_stored_Wh": stored / JOULES_PER_WH,
+        "energy_battery_Wh": energy_battery_wh,
+        "energy_load_Wh": energy_load_wh,
+        "energy_dissipated_Wh": energy_battery_wh - energy_load_wh,
+        "energy_discharged_Wh": float(load_out) / JOULES_PER_WH,
+        "energy_charged_Wh": float(load_in) / JOULES_PER_WH,
+        "heat_generated_Wh": float(q[m.Q_HEAT]) / JOULES_PER_WH,
+        "heat_reversible_Wh": float(q[m.Q_REVERSIBLE]) / JOULES_PER_WH,
+        "heat_to_ambient_Wh": float(q[m.Q_HEAT_AMBIENT]) / JOULES_PER_WH,
+        "heat_stored_Wh": float(stored) / JOULES_PER_WH,
         "efficiency": None if efficiency is None else _finite_or_none(efficiency),
-        "charge_throughput_Ah": q[m.Q_THROUGHPUT] / COULOMBS_PER_AH,
+        "charge_throughput_Ah": float(q[m.Q_THROUGHPUT]) / COULOMBS_PER_AH,
         "soc_start": float(states[0, 0]),
         "soc_end": float(states[-1, 0]),
-        "time_charging_below_limit_s": cold_time,
+        "time_charging_below_limit_s": float(cold_time),
         "segments_completed": trajectory.segments_completed,
         "segments_total": len(problem.segments),
-        "events": [{"time_s": e["time_s"], "event": e["event"], "origin": e["origin"]}
+        "events": [{"time_s": float(e["time_s"]), "event": e["event"], "origin": e["origin"]}
                    for e in trajectory.events],
         "warnings": warnings,
     }

@@ -156,22 +156,31 @@ ResistanceTable = Annotated[list[list[float]], _quantity_table("ohm")]
 Count = Annotated[int, BeforeValidator(_positive_int)]
 
 
-def _check(condition: bool, message: str) -> None:
+class KeyedError(ValueError):
+    """A validation error that knows which key of its section is at fault."""
+
+    def __init__(self, key: str | None, message: str):
+        super().__init__(message)
+        self.key = key
+
+
+def _check(condition: bool, message: str, key: str | None = None) -> None:
     if not condition:
-        raise ValueError(message)
+        raise KeyedError(key, message)
 
 
 def _increasing(values: list[float], what: str) -> None:
-    _check(all(b > a for a, b in zip(values, values[1:])), f"{what} must be strictly increasing, got {values}")
+    _check(all(b > a for a, b in zip(values, values[1:], strict=False)),
+           f"{what} must be strictly increasing", what)
 
 
 def _positive(value: float | None, what: str, allow_zero: bool = False) -> None:
     if value is None:
         return
     if allow_zero:
-        _check(value >= 0.0, f"{what} must be >= 0, got {value:g}")
+        _check(value >= 0.0, f"{what} must be >= 0", what)
     else:
-        _check(value > 0.0, f"{what} must be > 0, got {value:g}")
+        _check(value > 0.0, f"{what} must be > 0", what)
 
 
 # ---------------------------------------------------------------------------
@@ -197,15 +206,15 @@ class OcvSpec(_Section):
     @model_validator(mode="after")
     def _table(self):
         _increasing(self.soc, "soc")
-        _check(self.soc[0] >= 0.0 and self.soc[-1] <= 1.0, "soc values must lie within 0..1")
+        _check(self.soc[0] >= 0.0 and self.soc[-1] <= 1.0, "soc values must lie within 0..1", "soc")
         _check(self.soc[0] == 0.0 and self.soc[-1] == 1.0,
-               f"soc must cover 0 and 1 (got {self.soc[0]:g}..{self.soc[-1]:g})")
+               f"soc must cover 0 and 1 (got {self.soc[0]:g}..{self.soc[-1]:g})", "soc")
         _check(len(self.voltage) == len(self.soc),
-               f"voltage has {len(self.voltage)} values but soc has {len(self.soc)}")
-        _check(all(v > 0 for v in self.voltage), "voltage values must be > 0")
+               f"voltage has {len(self.voltage)} values but soc has {len(self.soc)}", "voltage")
+        _check(all(v > 0 for v in self.voltage), "voltage values must be > 0", "voltage")
         if self.entropic is not None:
             _check(len(self.entropic) == len(self.soc),
-                   f"entropic has {len(self.entropic)} values but soc has {len(self.soc)}")
+                   f"entropic has {len(self.entropic)} values but soc has {len(self.soc)}", "entropic")
         return self
 
 
@@ -308,8 +317,10 @@ class CellSpec(_Section):
         for key in ("capacity", "voltage_max", "voltage_min", "mass", "specific_heat"):
             _positive(getattr(self, key), key)
         _check(self.voltage_min < self.voltage_max,
-               f"voltage_min ({self.voltage_min:g} V) must be below voltage_max ({self.voltage_max:g} V)")
-        _check(0.0 <= self.initial_soc <= 1.0, f"initial_soc must lie within 0..1, got {self.initial_soc:g}")
+               f"voltage_min ({self.voltage_min:g} V) must be below voltage_max ({self.voltage_max:g} V)",
+               "voltage_min")
+        _check(0.0 <= self.initial_soc <= 1.0, f"initial_soc must lie within 0..1, got {self.initial_soc:g}",
+               "initial_soc")
         return self
 
 
@@ -392,7 +403,8 @@ class SegmentSpec(_Section):
             _check(self.value is None, "a cccv segment takes current, voltage and cutoff_current, not value")
             _check(self.current is not None and self.voltage is not None and self.cutoff_current is not None,
                    "a cccv segment needs current, voltage and cutoff_current")
-            _check(self.current < 0, f"current is the charge current and must be negative, got {self.current:g} A")
+            _check(self.current < 0, f"current is the charge current and must be negative, got {self.current:g} A",
+                   "current")
             _positive(self.voltage, "voltage")
             _positive(self.cutoff_current, "cutoff_current")
             _check(self.cutoff_current < abs(self.current),
@@ -400,13 +412,16 @@ class SegmentSpec(_Section):
             return self
         for key in ("current", "voltage", "cutoff_current"):
             _check(getattr(self, key) is None, f"{key} belongs to a cccv segment; use value for mode {self.mode}")
-        _check(self.duration is not None, f"a {self.mode} segment needs a duration")
+        _check(self.duration is not None, f"a {self.mode} segment needs a duration", "duration")
         if self.mode == "rest":
             _check(self.value is None, "a rest segment takes no value")
             return self
-        _check(self.value is not None, f"a {self.mode} segment needs a value")
+        _check(self.value is not None, f"a {self.mode} segment needs a value", "value")
         unit = _SEGMENT_VALUE_UNITS[self.mode]
-        value = to_si(self.value, unit, unit)
+        try:
+            value = to_si(self.value, unit, unit)
+        except ValueError as exc:
+            raise KeyedError("value", str(exc)) from None
         if self.mode in ("resistance", "voltage"):
             _positive(value, "value")
         object.__setattr__(self, "value", value)
@@ -440,8 +455,9 @@ class SolverSpec(_Section):
 
     @model_validator(mode="after")
     def _solver(self):
-        _check(self.backend in BACKENDS, f"unknown backend {self.backend!r}; valid: {', '.join(BACKENDS)}")
-        _check(0 < self.rtol < 0.1, f"rtol must lie within 0..0.1, got {self.rtol:g}")
+        _check(self.backend in BACKENDS, f"unknown backend {self.backend!r}; valid: {', '.join(BACKENDS)}",
+               "backend")
+        _check(0 < self.rtol < 0.1, f"rtol must lie within 0..0.1, got {self.rtol:g}", "rtol")
         _positive(self.output_interval, "output_interval")
         for key in ("atol_soc", "atol_voltage", "atol_temperature"):
             _positive(getattr(self, key), key)
@@ -542,6 +558,10 @@ def _first_error(exc: ValidationError, file: str, text: str | None) -> ScenarioE
     err = errors[0]
     loc = tuple(err["loc"])
     msg = _clean(err["msg"])
+    cause = (err.get("ctx") or {}).get("error")
+    if isinstance(cause, KeyedError) and cause.key:
+        loc = (*loc, cause.key)
+        msg = str(cause)
     if err["type"] == "extra_forbidden":
         msg = f"unknown key {loc[-1]!r}"
         parent = _model_at(ScenarioSpec, loc[:-1])

@@ -1,0 +1,164 @@
+"""Malformed scenarios and profiles: exit status 2, one message naming the file and key, no traceback."""
+
+from __future__ import annotations
+
+import pytest
+
+from thermoelec import cli
+
+BASE = """format = 1
+[scenario]
+name = "bad input base"
+[cell]
+capacity = "2.5 Ah"
+voltage_max = "4.2 V"
+voltage_min = "2.7 V"
+mass = "0.045 kg"
+specific_heat = "950 J/kg/K"
+[cell.ocv]
+soc = [0.0, 0.5, 1.0]
+voltage = [3.2, 3.7, 4.15]
+[cell.r0]
+value = "25 mohm"
+[[cell.rc]]
+resistance = "10 mohm"
+time_constant = "15 s"
+[thermal]
+ambient_temperature = "20 degC"
+sink_heat_capacity = "150 J/K"
+cell_to_sink = "0.8 W/K"
+sink_to_ambient = "0.3 W/K"
+[[profile.segment]]
+mode = "power"
+value = "6 W"
+duration = "10 min"
+[[profile.segment]]
+file = "route.csv"
+"""
+ROUTE = "time_s,current_A\n0,1.0\n10,2.0\n20,0.5\n"
+
+# (id, text to replace, replacement, key the message must name)
+SCENARIO_CASES = [
+    ("wrong-unit", 'capacity = "2.5 Ah"', 'capacity = "2.5 V"', "cell.capacity"),
+    ("unknown-unit", 'mass = "0.045 kg"', 'mass = "0.045 kgs"', "cell.mass"),
+    ("negative-capacity", 'capacity = "2.5 Ah"', 'capacity = "-2.5 Ah"', "cell.capacity"),
+    ("zero-mass", 'mass = "0.045 kg"', "mass = 0", "cell.mass"),
+    ("zero-heat-capacity", 'sink_heat_capacity = "150 J/K"', "sink_heat_capacity = 0", "thermal.sink_heat_capacity"),
+    ("negative-conductance", 'cell_to_sink = "0.8 W/K"', 'cell_to_sink = "-0.8 W/K"', "thermal.cell_to_sink"),
+    ("vmin-above-vmax", 'voltage_min = "2.7 V"', 'voltage_min = "4.3 V"', "cell"),
+    ("soc-unsorted", "soc = [0.0, 0.5, 1.0]", "soc = [0.0, 0.7, 0.5, 1.0]", "cell.ocv"),
+    ("soc-not-covering", "soc = [0.0, 0.5, 1.0]", "soc = [0.1, 0.5, 1.0]", "cell.ocv"),
+    ("ocv-length-mismatch", "voltage = [3.2, 3.7, 4.15]", "voltage = [3.2, 3.7]", "cell.ocv"),
+    ("ocv-nan", "voltage = [3.2, 3.7, 4.15]", "voltage = [3.2, nan, 4.15]", "cell.ocv.voltage"),
+    ("entropic-mismatch", "voltage = [3.2, 3.7, 4.15]", "voltage = [3.2, 3.7, 4.15]\nentropic = [0.0]",
+     "cell.ocv"),
+    ("r0-two-forms", 'value = "25 mohm"', 'value = "25 mohm"\nsoc = [0.0, 1.0]\nvalues = [0.02, 0.03]',
+     "cell.r0"),
+    ("r0-table-mismatch", 'value = "25 mohm"', "soc = [0.0, 0.5, 1.0]\nvalues = [[0.02, 0.03]]", "cell.r0"),
+    ("r0-2d-rows", 'value = "25 mohm"',
+     'soc = [0.0, 1.0]\ntemperature = ["0 degC", "25 degC"]\nvalues = [[0.02, 0.03]]', "cell.r0"),
+    ("r0-2d-unsorted-temperature", 'value = "25 mohm"',
+     'soc = [0.0, 1.0]\ntemperature = ["25 degC", "0 degC"]\nvalues = [[0.02, 0.03], [0.02, 0.03]]', "cell.r0"),
+    ("r0-negative", 'value = "25 mohm"', 'value = "-25 mohm"', "cell.r0"),
+    ("rc-both-forms", 'time_constant = "15 s"', 'time_constant = "15 s"\ncapacitance = "100 F"', "cell.rc[1]"),
+    ("rc-wrong-unit", 'time_constant = "15 s"', 'time_constant = "15 V"', "cell.rc[1].time_constant"),
+    ("unknown-mode", 'mode = "power"', 'mode = "torque"', "profile.segment[1].mode"),
+    ("unknown-key", 'name = "bad input base"', 'name = "bad input base"\ncolour = "red"', "scenario.colour"),
+    ("unknown-section", "[thermal]", "[cooling]\nfan = 1\n[thermal]", "cooling"),
+    ("missing-required", 'specific_heat = "950 J/kg/K"\n', "", "cell.specific_heat"),
+    ("missing-duration", 'duration = "10 min"', "", "profile.segment[1]"),
+    ("zero-duration", 'duration = "10 min"', "duration = 0", "profile.segment[1]"),
+    ("power-wrong-unit", 'value = "6 W"', 'value = "6 A"', "profile.segment[1]"),
+    ("soc-out-of-range", 'specific_heat = "950 J/kg/K"', 'specific_heat = "950 J/kg/K"\ninitial_soc = 1.2',
+     "cell"),
+    ("toml-syntax", 'name = "bad input base"', 'name = "bad input base', ""),
+    ("format-version", "format = 1", "format = 2", "format"),
+    ("both-cooling-forms", 'sink_to_ambient = "0.3 W/K"',
+     'sink_to_ambient = "0.3 W/K"\n[thermal.convection]\ncoefficient = 10\narea = 0.01', "thermal"),
+    ("cccv-positive-current", 'mode = "power"\nvalue = "6 W"\nduration = "10 min"',
+     'mode = "cccv"\ncurrent = "2 A"\nvoltage = "4.2 V"\ncutoff_current = "0.1 A"', "profile.segment[1]"),
+    ("backend-unknown", "[[profile.segment]]\nfile", '[solver]\nbackend = "euler"\n[[profile.segment]]\nfile',
+     "solver"),
+    ("bool-as-quantity", 'mass = "0.045 kg"', "mass = true", "cell.mass"),
+    ("pack-zero-series", "[thermal]", "[pack]\nseries = 0\n[thermal]", "pack.series"),
+]
+
+CSV_CASES = [
+    ("csv-missing-file", None, "route.csv"),
+    ("csv-unsorted", "time_s,current_A\n0,1.0\n20,2.0\n10,0.5\n", "time_s"),
+    ("csv-non-numeric", "time_s,current_A\n0,1.0\n10,lots\n20,0.5\n", "current_A"),
+    ("csv-nan", "time_s,current_A\n0,1.0\n10,nan\n20,0.5\n", "current_A"),
+    ("csv-no-time", "t,current_A\n0,1.0\n10,2.0\n", "time_s"),
+    ("csv-two-demands", "time_s,current_A,power_W\n0,1.0,3\n10,2.0,4\n", "route.csv"),
+    ("csv-one-row", "time_s,current_A\n0,1.0\n", "time_s"),
+    ("csv-unknown-column", "time_s,current_A,speed\n0,1.0,3\n10,2.0,4\n", "speed"),
+]
+
+
+def run_cli(tmp_path, text: str, route: str | None = ROUTE) -> tuple[int, str]:
+    scenario = tmp_path / "scenario.toml"
+    scenario.write_text(text)
+    if route is not None:
+        (tmp_path / "route.csv").write_text(route)
+    return cli.main(["run", str(scenario), "--out", str(tmp_path / "out"), "--quiet"]), str(scenario)
+
+
+def assert_one_clear_message(capsys, code: int, file_name: str, key: str) -> str:
+    err = capsys.readouterr().err
+    assert code == 2, err
+    assert "Traceback" not in err
+    lines = [line for line in err.splitlines() if line.strip()]
+    assert len(lines) == 1, err
+    assert file_name in lines[0], err
+    assert key in lines[0], err
+    return lines[0]
+
+
+def test_base_is_valid(tmp_path, capsys):
+    code, _ = run_cli(tmp_path, BASE)
+    assert code == 0, capsys.readouterr().err
+
+
+@pytest.mark.parametrize(("old", "new", "key"), [c[1:] for c in SCENARIO_CASES], ids=[c[0] for c in SCENARIO_CASES])
+def test_bad_scenario(tmp_path, capsys, old, new, key):
+    assert old in BASE
+    code, path = run_cli(tmp_path, BASE.replace(old, new, 1))
+    assert_one_clear_message(capsys, code, path, key)
+    assert not (tmp_path / "out" / "summary.json").exists()
+
+
+@pytest.mark.parametrize(("route", "key"), [c[1:] for c in CSV_CASES], ids=[c[0] for c in CSV_CASES])
+def test_bad_profile_csv(tmp_path, capsys, route, key):
+    code, _ = run_cli(tmp_path, BASE, route=route)
+    assert_one_clear_message(capsys, code, "route.csv", key)
+
+
+def test_messages_give_the_line(tmp_path, capsys):
+    code, path = run_cli(tmp_path, BASE.replace('capacity = "2.5 Ah"', 'capacity = "2.5 V"'))
+    line = assert_one_clear_message(capsys, code, path, "cell.capacity")
+    assert "line 5" in line
+
+
+def test_unknown_key_lists_the_valid_ones(tmp_path, capsys):
+    code, path = run_cli(tmp_path, BASE.replace('mass = "0.045 kg"', 'mass = "0.045 kg"\nweight = 1'))
+    line = assert_one_clear_message(capsys, code, path, "cell.weight")
+    assert "specific_heat" in line
+
+
+def test_missing_scenario_file(tmp_path, capsys):
+    code = cli.main(["run", str(tmp_path / "nope.toml"), "--out", str(tmp_path / "o")])
+    assert_one_clear_message(capsys, code, "nope.toml", "not found")
+
+
+@pytest.mark.parametrize(("override", "key"), [
+    ("cell.capacity=5 V", "cell.capacity"),
+    ("profile.segment[9].value=1", "profile.segment[9]"),
+    ("novalue", "novalue"),
+])
+def test_bad_override(tmp_path, capsys, override, key):
+    (tmp_path / "route.csv").write_text(ROUTE)
+    scenario = tmp_path / "s.toml"
+    scenario.write_text(BASE)
+    code = cli.main(["run", str(scenario), "--out", str(tmp_path / "o"), "--set", override])
+    err = capsys.readouterr().err
+    assert code == 2 and key in err and "Traceback" not in err
