@@ -65,6 +65,10 @@ EVENT_NAMES = ("voltage_min", "voltage_max", "power_limit", "temperature_max", "
                "end_soc_above")
 #: Scale of each root function, to compare how close to zero they are [V, V, V², K, -, -, V, A, V, V, -, -].
 EVENT_SCALES = np.array([1.0, 1.0, 100.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0])
+EVENT_SCALES_JIT = (1.0, 1.0, 100.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0)
+#: Which event wins when several fire at once (lower rank first): the stops, then switches and ends.
+EVENT_PRIORITY = (2, 0, 1, 3, 4, 5, 6, 7, 8, 9, 10, 11)
+EVENT_RANK = tuple(EVENT_PRIORITY.index(k) for k in range(12))
 
 # ---- quadratures (offsets after the dynamic states) ----------------------------
 Q_BATTERY_DISCHARGE = 0  # ∫ Ns U I+ dt  [J]
@@ -356,6 +360,75 @@ def jacobian(y, jac, p, alg, f0, f1, yy):
 
 
 @_jit
+def start_check(y, p, alg, scratch, g, g_ahead, probe, slack):
+    """Events already true at a phase start, and the reach of the others.
+
+    Root finding cannot see a root function that is already non-positive when a
+    phase starts (a jump of the demand can put the voltage below its minimum at
+    once), so this is checked here. A function at zero that is not heading down
+    (a full cell at rest) is switched off for the phase. With an imposed terminal
+    voltage the cell voltage limits are checked here, with a relative ``slack``.
+
+    Returns the index of the event that fired (by ``EVENT_PRIORITY`` order of the
+    caller: the lowest-index stop first), or -1; ``g`` and ``g_ahead`` hold the
+    root functions at the start and ``probe`` seconds along the initial slope.
+    """
+    n = y.shape[0]
+    roots(y, g, p, alg, scratch)
+    yy = np.empty(n)
+    evaluate(y, p, scratch, alg)
+    for i in range(n):
+        yy[i] = y[i] + probe * scratch[i]
+    roots(yy, g_ahead, p, alg, scratch)
+    fired = -1
+    for k in range(N_EVENTS):
+        if p[H_ACTIVE + k] == 0.0:
+            continue
+        tol = 1e-9 * EVENT_SCALES_JIT[k]
+        if g[k] < -tol or (g[k] <= tol and g_ahead[k] < g[k]):
+            if fired < 0 or EVENT_RANK[k] < EVENT_RANK[fired]:
+                fired = k
+    if fired >= 0:
+        return fired
+    for k in range(N_EVENTS):
+        if p[H_ACTIVE + k] != 0.0 and g[k] <= 1e-9 * EVENT_SCALES_JIT[k]:
+            p[H_ACTIVE + k] = 0.0
+    if int(p[H_MODE]) == MODE_VOLTAGE:
+        evaluate(y, p, scratch, alg)
+        if alg[A_CELL_VOLTAGE] > p[H_THRESHOLD + EV_VOLTAGE_MAX] * (1.0 + slack):
+            return EV_VOLTAGE_MAX
+        if alg[A_CELL_VOLTAGE] < p[H_THRESHOLD + EV_VOLTAGE_MIN] * (1.0 - slack):
+            return EV_VOLTAGE_MIN
+    return -1
+
+
+@_jit
+def beyond_reach(g, g_ahead, p, probe, duration, factor):
+    """True when every active root function stays clear of zero over the phase.
+
+    "Clear" means ``g(t0) > factor * |g'(t0)| * duration``: beyond ``factor``
+    times the first-order reach, with ``g'`` from the probe.
+    """
+    for k in range(N_EVENTS):
+        if p[H_ACTIVE + k] == 0.0:
+            continue
+        slope = abs(g_ahead[k] - g[k]) / probe
+        if g[k] <= factor * slope * duration:
+            return False
+    return True
+
+
+@_jit
+def all_positive(y, p, alg, scratch, g):
+    """True when every active root function is positive at ``y``."""
+    roots(y, g, p, alg, scratch)
+    for k in range(N_EVENTS):
+        if p[H_ACTIVE + k] != 0.0 and g[k] <= 0.0:
+            return False
+    return True
+
+
+@_jit
 def evaluate_rows(states, params, algebraics):
     """Algebraic outputs for many rows, each with its own parameter vector."""
     n = states.shape[1]
@@ -383,6 +456,9 @@ class Kernels:
         self._f1 = np.empty(size)
         self._yy = np.empty(size)
         self.error: BaseException | None = None
+        self.g = np.empty(N_EVENTS)
+        self.g_ahead = np.empty(N_EVENTS)
+        self._g_end = np.empty(N_EVENTS)
 
     # scikits.odes signatures: write into the given buffers, return 0 or a negative flag
     def cvode_rhs(self, t: float, y: np.ndarray, ydot: np.ndarray) -> int:
@@ -431,6 +507,18 @@ class Kernels:
         alg = np.empty(N_ALGEBRAICS)
         evaluate(np.ascontiguousarray(y, dtype=float), self.p, self._scratch, alg)
         return alg
+
+    def start_check(self, y: np.ndarray, probe: float, slack: float) -> int:
+        """See :func:`start_check`; fills ``self.g`` and ``self.g_ahead``."""
+        return start_check(y, self.p, self._alg, self._scratch, self.g, self.g_ahead, probe, slack)
+
+    def beyond_reach(self, probe: float, duration: float, factor: float) -> bool:
+        """See :func:`beyond_reach`, for the last :meth:`start_check`."""
+        return beyond_reach(self.g, self.g_ahead, self.p, probe, duration, factor)
+
+    def all_positive(self, y: np.ndarray) -> bool:
+        """See :func:`all_positive`."""
+        return all_positive(y, self.p, self._alg, self._scratch, self._g_end)
 
     def derivative(self, y: np.ndarray) -> np.ndarray:
         """``dy/dt`` at ``y``."""

@@ -42,15 +42,17 @@ STOP_EVENTS = {
 SEGMENT_END_EVENTS = {m.EV_CV_CUTOFF, m.EV_END_VOLTAGE_BELOW, m.EV_END_VOLTAGE_ABOVE, m.EV_END_SOC_BELOW,
                       m.EV_END_SOC_ABOVE}
 #: Events in the order they win when several fire at the same instant.
-EVENT_PRIORITY = (m.EV_POWER, m.EV_VOLTAGE_MIN, m.EV_VOLTAGE_MAX, m.EV_TEMPERATURE, m.EV_SOC_EMPTY,
-                  m.EV_SOC_FULL, m.EV_CV_SWITCH, m.EV_CV_CUTOFF, m.EV_END_VOLTAGE_BELOW, m.EV_END_VOLTAGE_ABOVE,
-                  m.EV_END_SOC_BELOW, m.EV_END_SOC_ABOVE)
+EVENT_PRIORITY = m.EVENT_PRIORITY
 #: A root function within this many of its scales of zero (or below) counts as fired.
 ROOT_TOLERANCE = 1e-9
 #: A phase shorter than this is skipped [s] (a root that lands on a segment end).
 MIN_PHASE = 1e-12
 #: Time ahead [s] at which a root function's direction is probed at a phase start.
 START_PROBE = 1e-3
+#: A phase is integrated without root finding only when every root function starts
+#: beyond this many times its first-order reach over the phase, g > k |g'| dt; it is
+#: then checked at the phase end and repeated with root finding if any went non-positive.
+REACH_FACTOR = 4.0
 #: Relative slack on the cell voltage limits when the terminal voltage is imposed,
 #: so that a CV set point exactly at Ns x voltage_max is not taken as a violation.
 IMPOSED_VOLTAGE_SLACK = 1e-9
@@ -119,8 +121,13 @@ class Backend(Protocol):
 
     name: str
 
-    def integrate(self, t0: float, y0: np.ndarray, t_end: float, outputs: np.ndarray) -> PhaseOutcome:
-        """Integrate from ``t0`` to ``t_end``; report at ``outputs`` (ending with ``t_end``)."""
+    def integrate(self, t0: float, y0: np.ndarray, t_end: float, outputs: list[float],
+                  find_roots: bool = True) -> PhaseOutcome:
+        """Integrate from ``t0`` to ``t_end``; report at ``outputs`` (ending with ``t_end``).
+
+        With ``find_roots`` false the caller has shown that no root function can
+        reach zero in the phase, and the back end may skip root finding.
+        """
         ...
 
     def statistics(self) -> dict[str, float]:
@@ -152,31 +159,37 @@ class CvodeBackend:
         from scikits.odes import ode  # imported here: scipy runs need no SUNDIALS
 
         self.kernels = kernels
-        self._solver = ode(
-            "cvode", kernels.cvode_rhs, old_api=False, lmm_type="BDF", nonlinsolver="newton",
-            linsolver="dense", jacfn=kernels.cvode_jacobian, rootfn=kernels.cvode_roots,
-            nr_rootfns=m.N_EVENTS, rtol=options.rtol, atol=options.atol_vector(n_rc),
-            max_steps=options.max_steps,
-        )._integrator
-        self._started = False
-        self._stats: dict[str, float] = {}
+        common = dict(old_api=False, lmm_type="BDF", nonlinsolver="newton", linsolver="dense",
+                      jacfn=kernels.cvode_jacobian, rtol=options.rtol, atol=options.atol_vector(n_rc),
+                      max_steps=options.max_steps)
+        # Two instances of the same integrator: one hands CVODE the root functions, one
+        # does not, for phases where no root function can reach zero (see integrate_problem).
+        self._solvers = {
+            True: ode("cvode", kernels.cvode_rhs, rootfn=kernels.cvode_roots, nr_rootfns=m.N_EVENTS,
+                      **common)._integrator,
+            False: ode("cvode", kernels.cvode_rhs, **common)._integrator,
+        }
+        self._started = {True: False, False: False}
+        self._stats: dict[str, float] = {"NumPhasesWithRoots": 0, "NumPhasesWithoutRoots": 0}
 
-    def _accumulate(self) -> None:
-        for key, value in self._solver.get_info().items():
-            if key.startswith("Num"):
-                self._stats[key] = self._stats.get(key, 0) + value
+    def _accumulate(self, solver) -> None:
+        info = solver.get_info()
+        for key in ("NumSteps", "NumRhsEvals", "NumLinSolvSetups", "NumErrTestFails"):
+            self._stats[key] = self._stats.get(key, 0) + info[key]
 
     def statistics(self) -> dict[str, float]:
         return dict(self._stats)
 
-    def integrate(self, t0: float, y0: np.ndarray, t_end: float, outputs: np.ndarray) -> PhaseOutcome:
-        solver = self._solver
+    def integrate(self, t0: float, y0: np.ndarray, t_end: float, outputs: list[float],
+                  find_roots: bool = True) -> PhaseOutcome:
+        solver = self._solvers[find_roots]
+        self._stats["NumPhasesWithRoots" if find_roots else "NumPhasesWithoutRoots"] += 1
         self.kernels.error = None
-        if self._started:
+        if self._started[find_roots]:
             solver.reinit_IC(t0, y0)
         else:
             solver.init_step(t0, y0)
-            self._started = True
+            self._started[find_roots] = True
         solver.set_options(tstop=_float32_at_or_after(t_end))
         times: list[float] = []
         states: list[np.ndarray] = []
@@ -196,9 +209,9 @@ class CvodeBackend:
                 if flag < 0:
                     return PhaseOutcome(times, states, "error", f"CVODE: {out.message} at t = {out.values.t:.6g} s")
                 times.append(float(tout))
-                states.append(np.array(out.values.y, dtype=float))
+                states.append(out.values.y.copy())
         finally:
-            self._accumulate()
+            self._accumulate(solver)
         return PhaseOutcome(times, states, "end")
 
 
@@ -227,7 +240,8 @@ class ScipyBackend:
     def statistics(self) -> dict[str, float]:
         return dict(self._stats)
 
-    def integrate(self, t0: float, y0: np.ndarray, t_end: float, outputs: np.ndarray) -> PhaseOutcome:
+    def integrate(self, t0: float, y0: np.ndarray, t_end: float, outputs: list[float],
+                  find_roots: bool = True) -> PhaseOutcome:
         from scipy.integrate import solve_ivp
 
         p = self.kernels.p
@@ -295,19 +309,15 @@ def _phases_of(segment: Segment) -> list[_Phase]:
     return [_Phase(m.mode_code(segment.mode), segment.value, "demand")]
 
 
-def _configure(p: np.ndarray, problem: Problem, segment: Segment, phase: _Phase) -> None:
-    """Write the phase's mode, demand, ambient and active events into ``p``."""
+def _event_setup(problem: Problem, segment: Segment, phase: _Phase) -> tuple[np.ndarray, np.ndarray]:
+    """Activity flags and thresholds of the root functions in one phase."""
     cell, ns = problem.cell, problem.pack.series
-    p[m.H_MODE] = phase.mode
-    p[m.H_VALUE] = phase.value
-    p[m.H_AMBIENT] = problem.ambient_temperature if segment.ambient_temperature is None \
-        else segment.ambient_temperature
     active = np.zeros(m.N_EVENTS)
     thresholds = np.zeros(m.N_EVENTS)
     imposed_voltage = phase.mode == m.MODE_VOLTAGE
     # With the terminal voltage imposed, the cell voltage is (V + I R_ic) / Ns: it
     # stays on the safe side of V / Ns in the direction of the current, so the
-    # voltage limits are checked once at the phase start (see _start_events).
+    # voltage limits are checked once at the phase start (model.start_check).
     active[m.EV_VOLTAGE_MIN] = not imposed_voltage
     active[m.EV_VOLTAGE_MAX] = not imposed_voltage
     if phase.kind == "cc" and segment.cv_voltage <= ns * cell.voltage_max:
@@ -331,8 +341,21 @@ def _configure(p: np.ndarray, problem: Problem, segment: Segment, phase: _Phase)
         if threshold is not None:
             active[event] = True
             thresholds[event] = threshold
-    p[m.H_ACTIVE:m.H_ACTIVE + m.N_EVENTS] = active
-    p[m.H_THRESHOLD:m.H_THRESHOLD + m.N_EVENTS] = thresholds
+    return np.concatenate([active, thresholds])
+
+
+def _configure(p: np.ndarray, problem: Problem, segment: Segment, phase: _Phase, cache: dict) -> None:
+    """Write the phase's mode, demand, ambient and root-function set-up into ``p``."""
+    p[m.H_MODE] = phase.mode
+    p[m.H_VALUE] = phase.value
+    p[m.H_AMBIENT] = problem.ambient_temperature if segment.ambient_temperature is None \
+        else segment.ambient_temperature
+    key = (phase.kind, phase.mode, phase.value > 0.0, segment.cv_voltage, segment.cutoff_current,
+           segment.voltage_below, segment.voltage_above, segment.soc_below, segment.soc_above)
+    setup = cache.get(key)
+    if setup is None:
+        setup = cache[key] = _event_setup(problem, segment, phase)
+    p[m.H_ACTIVE:m.H_THRESHOLD + m.N_EVENTS] = setup
 
 
 def _fired(g: np.ndarray, p: np.ndarray, heading_down: np.ndarray | None = None) -> int | None:
@@ -351,41 +374,15 @@ def _fired(g: np.ndarray, p: np.ndarray, heading_down: np.ndarray | None = None)
     return None
 
 
-def _start_events(kernels: Kernels, y: np.ndarray, phase: _Phase) -> int | None:
-    """Events already true at a phase start, which root finding cannot see.
-
-    A root function sitting at zero and not heading down (a full cell at rest)
-    is switched off for the phase, so that neither the integrator nor the root
-    identification mistakes it for a crossing.
-    """
-    p = kernels.p
-    g = kernels.event_values(y)
-    g_ahead = kernels.event_values(y + START_PROBE * kernels.derivative(y))
-    heading_down = g_ahead < g
-    fired = _fired(g, p, heading_down=heading_down)
-    if fired is not None:
-        return fired
-    for k in range(m.N_EVENTS):
-        if p[m.H_ACTIVE + k] != 0.0 and g[k] <= ROOT_TOLERANCE * m.EVENT_SCALES[k]:
-            p[m.H_ACTIVE + k] = 0.0
-    if phase.mode == m.MODE_VOLTAGE:
-        v_cell = kernels.algebraics(y)[m.A_CELL_VOLTAGE]
-        if v_cell > p[m.H_THRESHOLD + m.EV_VOLTAGE_MAX] * (1.0 + IMPOSED_VOLTAGE_SLACK):
-            return m.EV_VOLTAGE_MAX
-        if v_cell < p[m.H_THRESHOLD + m.EV_VOLTAGE_MIN] * (1.0 - IMPOSED_VOLTAGE_SLACK):
-            return m.EV_VOLTAGE_MIN
-    return None
-
-
-def _output_times(t0: float, t_end: float, interval: float) -> np.ndarray:
+def _output_times(t0: float, t_end: float, interval: float) -> list[float]:
     """Global output grid points strictly inside (t0, t_end), then t_end."""
     if math.isinf(t_end):
         raise ValueError("an unbounded phase needs a finite cap")
+    eps = 1e-9 * interval
     first = math.floor(t0 / interval) + 1
     last = math.ceil(t_end / interval) - 1
-    grid = np.arange(first, last + 1) * interval
-    grid = grid[(grid > t0 + 1e-9 * interval) & (grid < t_end - 1e-9 * interval)]
-    return np.append(grid, t_end)
+    grid = [k * interval for k in range(first, last + 1)]
+    return [t for t in grid if t0 + eps < t < t_end - eps] + [t_end]
 
 
 def cccv_cap(problem: Problem, segment: Segment) -> float:
@@ -399,6 +396,13 @@ def integrate_problem(problem: Problem, options: SolverOptions) -> Trajectory:
 
     Never raises for a solver failure: the trajectory up to the failure comes
     back with ``status = "failed"`` and the solver's message.
+
+    Root finding: each phase starts with :func:`thermoelec.model.start_check`
+    (events already true, which root finding cannot see). A phase in which every
+    root function starts beyond :data:`REACH_FACTOR` times its first-order reach
+    is integrated without root functions and checked at its end; should any have
+    gone non-positive, the phase is integrated again with root finding, so every
+    event is located by the integrator.
     """
     if options.backend not in BACKENDS:
         raise ValueError(f"unknown solver backend {options.backend!r}; valid: {', '.join(BACKENDS)}")
@@ -406,53 +410,54 @@ def integrate_problem(problem: Problem, options: SolverOptions) -> Trajectory:
     kernels = Kernels(p, m.n_states(problem.n_rc))
     backend = BACKENDS[options.backend](kernels, options, problem.n_rc)
     started = _time.perf_counter()
+    setups: dict = {}
 
     times: list[float] = []
     states: list[np.ndarray] = []
-    params: list[np.ndarray] = []
-    phase_ids: list[int] = []
+    row_phase: list[int] = []
+    phase_params: list[np.ndarray] = []
     events: list[dict] = []
-
-    def record(t: float, y: np.ndarray, phase_id: int) -> None:
-        times.append(t)
-        states.append(y)
-        params.append(p.copy())
-        phase_ids.append(phase_id)
 
     t = 0.0
     y = problem.initial_state()
     stop_reason = "end_of_profile"
     status, message = "ok", ""
-    phase_id = -1
     segments_completed = 0
     for seg_index, segment in enumerate(problem.segments):
         duration = segment.duration if math.isfinite(segment.duration) else cccv_cap(problem, segment)
         t_seg_end = t + duration
         phases = _phases_of(segment)
         k = 0
-        segment_over = False
+        fired: int | None = None
         ended_by_time = False
-        while not segment_over:
+        while True:
             phase = phases[k]
-            phase_id += 1
-            _configure(p, problem, segment, phase)
-            fired = _start_events(kernels, y, phase)
-            record(t, y, phase_id)
+            _configure(p, problem, segment, phase, setups)
+            code = kernels.start_check(y, START_PROBE, IMPOSED_VOLTAGE_SLACK)
+            phase_params.append(p.copy())
+            phase_id = len(phase_params) - 1
+            times.append(t)
+            states.append(y)
+            row_phase.append(phase_id)
+            fired = code if code >= 0 else None
             if fired is None:
                 if t_seg_end - t <= MIN_PHASE:
-                    segment_over = True
                     break
                 outputs = _output_times(t, t_seg_end, options.output_interval)
-                outcome = backend.integrate(t, y, t_seg_end, outputs)
-                for tt, yy in zip(outcome.times, outcome.states):
-                    record(tt, yy, phase_id)
+                find_roots = not kernels.beyond_reach(START_PROBE, t_seg_end - t, REACH_FACTOR)
+                outcome = backend.integrate(t, y, t_seg_end, outputs, find_roots)
+                if not find_roots and outcome.status == "end" and not kernels.all_positive(outcome.states[-1]):
+                    outcome = backend.integrate(t, y, t_seg_end, outputs, True)
+                times.extend(outcome.times)
+                states.extend(outcome.states)
+                row_phase.extend([phase_id] * len(outcome.times))
                 if outcome.times:
                     t, y = outcome.times[-1], outcome.states[-1]
                 if outcome.status == "error":
                     status, message, stop_reason = "failed", outcome.message, "solver_error"
                     break
                 if outcome.status == "end":
-                    segment_over = ended_by_time = True
+                    ended_by_time = True
                     break
                 fired = _fired(kernels.event_values(y), p)
                 if fired is None:  # the root function that fired sits within tolerance: take the nearest
@@ -467,16 +472,17 @@ def integrate_problem(problem: Problem, options: SolverOptions) -> Trajectory:
             if fired == m.EV_CV_SWITCH:
                 k += 1
                 continue
-            segment_over = True  # a cutoff or an end condition ends the segment
+            break  # a cutoff or an end condition ends the segment
         if status == "failed" or stop_reason != "end_of_profile":
             break
         segments_completed += 1
         if ended_by_time and not math.isfinite(segment.duration):
             events.append({"time_s": t, "event": "cccv_cap", "segment": seg_index, "origin": segment.origin})
 
+    params = np.asarray(phase_params)[np.asarray(row_phase)]
     return Trajectory(
-        times=np.asarray(times), states=np.asarray(states), params=np.asarray(params),
-        phase_index=np.asarray(phase_ids), stop_reason=stop_reason, status=status, message=message,
+        times=np.asarray(times), states=np.asarray(states), params=params,
+        phase_index=np.asarray(row_phase), stop_reason=stop_reason, status=status, message=message,
         events=events, statistics=backend.statistics(), wall_time=_time.perf_counter() - started,
         segments_completed=segments_completed,
     )
