@@ -3,9 +3,8 @@
 from __future__ import annotations
 
 import copy
-from typing import Any
-
 from pathlib import Path
+from typing import Any
 
 import thermoelec
 

@@ -8,10 +8,10 @@
 
 __version__ = "0.1.0"
 
-from .api import simulate, simulate_file  # noqa: E402
-from .results import SimulationResult  # noqa: E402
-from .scenario import Scenario, ScenarioError, load_scenario, scenario_from_dict  # noqa: E402
-from .solve import SolverOptions  # noqa: E402
+from .api import simulate, simulate_file
+from .results import SimulationResult
+from .scenario import Scenario, ScenarioError, load_scenario, scenario_from_dict
+from .solve import SolverOptions
 
 __all__ = [
     "Scenario",

@@ -11,6 +11,7 @@ where the text shows it, the line.
 from __future__ import annotations
 
 import hashlib
+import itertools
 import math
 import re
 import tomllib
@@ -170,7 +171,7 @@ def _check(condition: bool, message: str, key: str | None = None) -> None:
 
 
 def _increasing(values: list[float], what: str) -> None:
-    _check(all(b > a for a, b in zip(values, values[1:], strict=False)),
+    _check(all(b > a for a, b in itertools.pairwise(values)),
            f"{what} must be strictly increasing", what)
 
 

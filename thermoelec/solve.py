@@ -261,7 +261,7 @@ class ScipyBackend:
         if sol.status == -1:
             return PhaseOutcome(times, states, "error", f"solve_ivp: {sol.message}")
         if sol.status == 1:
-            hits = [(ev[0], ye[0]) for ev, ye in zip(sol.t_events, sol.y_events) if len(ev)]
+            hits = [(ev[0], ye[0]) for ev, ye in zip(sol.t_events, sol.y_events, strict=False) if len(ev)]
             t_root, y_root = min(hits, key=lambda h: h[0])
             keep = [i for i, t in enumerate(times) if t < t_root]
             return PhaseOutcome([times[i] for i in keep] + [float(t_root)],
