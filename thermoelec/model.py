@@ -502,12 +502,6 @@ class Kernels:
         jacobian(np.ascontiguousarray(y, dtype=float), jac, self.p, self._alg, self._f0, self._f1, self._yy)
         return jac
 
-    def algebraics(self, y: np.ndarray) -> np.ndarray:
-        """The ``A_*`` outputs at ``y``."""
-        alg = np.empty(N_ALGEBRAICS)
-        evaluate(np.ascontiguousarray(y, dtype=float), self.p, self._scratch, alg)
-        return alg
-
     def start_check(self, y: np.ndarray, probe: float, slack: float) -> int:
         """See :func:`start_check`; fills ``self.g`` and ``self.g_ahead``."""
         return start_check(y, self.p, self._alg, self._scratch, self.g, self.g_ahead, probe, slack)
@@ -519,10 +513,6 @@ class Kernels:
     def all_positive(self, y: np.ndarray) -> bool:
         """See :func:`all_positive`."""
         return all_positive(y, self.p, self._alg, self._scratch, self._g_end)
-
-    def derivative(self, y: np.ndarray) -> np.ndarray:
-        """``dy/dt`` at ``y``."""
-        return self.scipy_rhs(0.0, np.ascontiguousarray(y, dtype=float))
 
 
 def mode_code(mode: str) -> int:

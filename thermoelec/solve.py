@@ -39,8 +39,6 @@ STOP_EVENTS = {
     m.EV_SOC_EMPTY: "soc_limit",
     m.EV_SOC_FULL: "soc_limit",
 }
-SEGMENT_END_EVENTS = {m.EV_CV_CUTOFF, m.EV_END_VOLTAGE_BELOW, m.EV_END_VOLTAGE_ABOVE, m.EV_END_SOC_BELOW,
-                      m.EV_END_SOC_ABOVE}
 #: Events in the order they win when several fire at the same instant.
 EVENT_PRIORITY = m.EVENT_PRIORITY
 #: A root function within this many of its scales of zero (or below) counts as fired.
