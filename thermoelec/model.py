@@ -64,8 +64,9 @@ EVENT_NAMES = ("voltage_min", "voltage_max", "power_limit", "temperature_max", "
                "cv_switch", "cv_cutoff", "end_voltage_below", "end_voltage_above", "end_soc_below",
                "end_soc_above")
 #: Scale of each root function, to compare how close to zero they are [V, V, V², K, -, -, V, A, V, V, -, -].
-EVENT_SCALES = np.array([1.0, 1.0, 100.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0])
-EVENT_SCALES_JIT = (1.0, 1.0, 100.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0)
+EVENT_SCALES = (1.0, 1.0, 100.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0)
+#: A root function within this many of its scales of zero (or below) counts as fired.
+ROOT_TOLERANCE = 1e-9
 #: Which event wins when several fire at once (lower rank first): the stops, then switches and ends.
 EVENT_PRIORITY = (2, 0, 1, 3, 4, 5, 6, 7, 8, 9, 10, 11)
 EVENT_RANK = tuple(EVENT_PRIORITY.index(k) for k in range(12))
@@ -384,14 +385,14 @@ def start_check(y, p, alg, scratch, g, g_ahead, probe, slack):
     for k in range(N_EVENTS):
         if p[H_ACTIVE + k] == 0.0:
             continue
-        tol = 1e-9 * EVENT_SCALES_JIT[k]
+        tol = ROOT_TOLERANCE * EVENT_SCALES[k]
         if g[k] < -tol or (g[k] <= tol and g_ahead[k] < g[k]):
             if fired < 0 or EVENT_RANK[k] < EVENT_RANK[fired]:
                 fired = k
     if fired >= 0:
         return fired
     for k in range(N_EVENTS):
-        if p[H_ACTIVE + k] != 0.0 and g[k] <= 1e-9 * EVENT_SCALES_JIT[k]:
+        if p[H_ACTIVE + k] != 0.0 and g[k] <= ROOT_TOLERANCE * EVENT_SCALES[k]:
             p[H_ACTIVE + k] = 0.0
     if int(p[H_MODE]) == MODE_VOLTAGE:
         evaluate(y, p, scratch, alg)

@@ -41,8 +41,6 @@ STOP_EVENTS = {
 }
 #: Events in the order they win when several fire at the same instant.
 EVENT_PRIORITY = m.EVENT_PRIORITY
-#: A root function within this many of its scales of zero (or below) counts as fired.
-ROOT_TOLERANCE = 1e-9
 #: A phase shorter than this is skipped [s] (a root that lands on a segment end).
 MIN_PHASE = 1e-12
 #: Time ahead [s] at which a root function's direction is probed at a phase start.
@@ -356,20 +354,19 @@ def _configure(p: np.ndarray, problem: Problem, segment: Segment, phase: _Phase,
     p[m.H_ACTIVE:m.H_THRESHOLD + m.N_EVENTS] = setup
 
 
-def _fired(g: np.ndarray, p: np.ndarray, heading_down: np.ndarray | None = None) -> int | None:
-    """The event that fired (by priority), given the root-function values ``g``.
+def _fired_at_root(g: np.ndarray, p: np.ndarray) -> int:
+    """The event that fired at a located root, given the root-function values ``g``.
 
-    A function counts as fired when it is below zero, or within
-    :data:`ROOT_TOLERANCE` of its scale of zero and (when ``heading_down`` is
-    given) decreasing.
+    Among the active functions within ``model.ROOT_TOLERANCE`` of their scale of
+    zero (or below) the first by priority wins; should none be that close, the
+    nearest to zero does.
     """
+    active = p[m.H_ACTIVE:m.H_ACTIVE + m.N_EVENTS] != 0.0
+    scaled = np.where(active, g / np.asarray(m.EVENT_SCALES), np.inf)
     for k in EVENT_PRIORITY:
-        if p[m.H_ACTIVE + k] == 0.0:
-            continue
-        near = g[k] <= ROOT_TOLERANCE * m.EVENT_SCALES[k]
-        if g[k] < -ROOT_TOLERANCE * m.EVENT_SCALES[k] or (near and (heading_down is None or heading_down[k])):
+        if scaled[k] <= m.ROOT_TOLERANCE:
             return k
-    return None
+    return int(np.argmin(scaled))
 
 
 def _output_times(t0: float, t_end: float, interval: float) -> list[float]:
@@ -457,11 +454,7 @@ def integrate_problem(problem: Problem, options: SolverOptions) -> Trajectory:
                 if outcome.status == "end":
                     ended_by_time = True
                     break
-                fired = _fired(kernels.event_values(y), p)
-                if fired is None:  # the root function that fired sits within tolerance: take the nearest
-                    g = kernels.event_values(y) / m.EVENT_SCALES
-                    g[p[m.H_ACTIVE:m.H_ACTIVE + m.N_EVENTS] == 0.0] = np.inf
-                    fired = int(np.argmin(g))
+                fired = _fired_at_root(kernels.event_values(y), p)
             events.append({"time_s": t, "event": m.EVENT_NAMES[fired], "segment": seg_index,
                            "origin": segment.origin})
             if fired in STOP_EVENTS:
