@@ -19,6 +19,7 @@ from scipy.constants import R as GAS_CONSTANT  # [J/(mol K)], CODATA
 __all__ = [
     "GAS_CONSTANT",
     "Cell",
+    "CellGeometry",
     "Pack",
     "RCPair",
     "ResistanceLaw",
@@ -460,6 +461,7 @@ class Cell:
     ocv_soc, ocv_voltage, ocv_entropic : arrays  [-], [V], [V/K]
     ocv_reference_temperature : float  [K]
     r0 : ResistanceLaw;  rc : tuple of RCPair
+    geometry : CellGeometry or None (only for the Biot-number check)
     """
 
     capacity: float
@@ -473,12 +475,51 @@ class Cell:
     ocv_reference_temperature: float
     r0: ResistanceLaw
     rc: tuple[RCPair, ...] = field(default_factory=tuple)
+    geometry: CellGeometry | None = None
 
     def ocv(self, soc: float, temperature: float) -> float:
         """Open-circuit voltage [V] at ``soc`` [-] and ``temperature`` [K]."""
         return open_circuit_voltage(interpolate_1d(self.ocv_soc, self.ocv_voltage, soc),
                                     interpolate_1d(self.ocv_soc, self.ocv_entropic, soc),
                                     temperature, self.ocv_reference_temperature)
+
+
+@dataclass(frozen=True)
+class CellGeometry:
+    """Outer shape of one cell, for the Biot-number check of the lumped cell node.
+
+    A cylindrical cell gives ``diameter`` and ``length``; a prismatic or pouch
+    cell gives ``thickness``, ``width`` and ``height`` [m]. ``thermal_conductivity``
+    [W/(m K)] is the lowest one (radial, or through the thickness), which limits
+    the internal temperature spread.
+    """
+
+    thermal_conductivity: float
+    diameter: float | None = None
+    length: float | None = None
+    thickness: float | None = None
+    width: float | None = None
+    height: float | None = None
+
+    @property
+    def shape(self) -> str:
+        """``"cylindrical"`` or ``"prismatic"``."""
+        return "cylindrical" if self.diameter is not None else "prismatic"
+
+    def volume(self) -> float:
+        """Cell volume [m³]."""
+        if self.diameter is not None and self.length is not None:
+            return np.pi * self.diameter**2 / 4.0 * self.length
+        assert self.thickness is not None and self.width is not None and self.height is not None
+        return self.thickness * self.width * self.height
+
+    def surface_area(self) -> float:
+        """Outer surface, ends included [m²]."""
+        if self.diameter is not None and self.length is not None:
+            return np.pi * self.diameter * self.length + np.pi * self.diameter**2 / 2.0
+        assert self.thickness is not None and self.width is not None and self.height is not None
+        t, w, h = self.thickness, self.width, self.height
+        return 2.0 * (w * h + t * w + t * h)
 
 
 @dataclass(frozen=True)

@@ -18,6 +18,7 @@ from typing import Any
 
 import numpy as np
 
+from . import diagnostics
 from . import model as m
 from .model import Problem
 from .solve import SolverOptions, Trajectory
@@ -65,13 +66,6 @@ SERIES_DESCRIPTIONS: dict[str, str] = {
 
 def _celsius(kelvin: np.ndarray | float) -> np.ndarray | float:
     return kelvin - KELVIN_AT_0_DEGC
-
-
-def _time_where(times: np.ndarray, mask: np.ndarray) -> float:
-    """Seconds during which ``mask`` holds on the left end of each output interval."""
-    if len(times) < 2:
-        return 0.0
-    return float(np.sum(np.diff(times)[mask[:-1]]))
 
 
 @dataclass
@@ -200,7 +194,7 @@ def build_result(problem: Problem, trajectory: Trajectory, options: SolverOption
         "heat_to_ambient_W": alg[:, m.A_HEAT_AMBIENT],
         "pack_resistance_ohm": alg[:, m.A_RESISTANCE],
     }
-    summary = _summary(problem, trajectory, series, states)
+    summary = _summary(problem, trajectory, series, states, options.output_interval)
     stats = dict(trajectory.statistics)
     stats["wall_time_s"] = trajectory.wall_time
     return SimulationResult(series=series, summary=summary, status=trajectory.status,
@@ -209,7 +203,7 @@ def build_result(problem: Problem, trajectory: Trajectory, options: SolverOption
 
 
 def _summary(problem: Problem, trajectory: Trajectory, series: dict[str, np.ndarray],
-             states: np.ndarray) -> dict[str, Any]:
+             states: np.ndarray, output_interval: float) -> dict[str, Any]:
     n_rc = problem.n_rc
     q = states[-1, 3 + n_rc:]
     th = problem.thermal
@@ -237,7 +231,8 @@ def _summary(problem: Problem, trajectory: Trajectory, series: dict[str, np.ndar
                         "the results cover the mission up to that time only")
     t_charge_min = problem.limits.charge_temperature_min
     cold_charge = (current < 0) & (tc < t_charge_min)
-    cold_time = _time_where(times, cold_charge)
+    charging = 0.5 * (current[:-1] + current[1:]) < 0.0
+    cold_time = diagnostics.time_above(times, -tc, -t_charge_min, charging)
     if cold_charge.any():
         warnings.append(
             f"charging below charge_temperature_min ({_celsius(t_charge_min):.1f} degC) for {cold_time:.0f} s, "
@@ -247,6 +242,11 @@ def _summary(problem: Problem, trajectory: Trajectory, series: dict[str, np.ndar
         if ev["event"] == "cccv_cap":
             warnings.append(f"CC-CV segment {ev['origin']} reached its duration cap at t = {ev['time_s']:.0f} s "
                             "without falling below its cutoff current")
+    warnings += diagnostics.table_range_warnings(cell, states[:, 0], tc)
+    biot, biot_warnings = diagnostics.biot_check(problem)
+    warnings += biot_warnings
+    warnings += diagnostics.plausibility_warnings(cell)
+    warnings += diagnostics.resolution_warnings(problem, output_interval)
 
     summary: dict[str, Any] = {
         "scenario": problem.name,
@@ -273,6 +273,8 @@ def _summary(problem: Problem, trajectory: Trajectory, series: dict[str, np.ndar
         "energy_dissipated_Wh": energy_battery_wh - energy_load_wh,
         "energy_discharged_Wh": float(load_out) / JOULES_PER_WH,
         "energy_charged_Wh": float(load_in) / JOULES_PER_WH,
+        "energy_battery_discharged_Wh": float(battery_out) / JOULES_PER_WH,
+        "energy_battery_charged_Wh": float(battery_in) / JOULES_PER_WH,
         "heat_generated_Wh": float(q[m.Q_HEAT]) / JOULES_PER_WH,
         "heat_reversible_Wh": float(q[m.Q_REVERSIBLE]) / JOULES_PER_WH,
         "heat_to_ambient_Wh": float(q[m.Q_HEAT_AMBIENT]) / JOULES_PER_WH,
@@ -282,6 +284,8 @@ def _summary(problem: Problem, trajectory: Trajectory, series: dict[str, np.ndar
         "soc_start": float(states[0, 0]),
         "soc_end": float(states[-1, 0]),
         "time_charging_below_limit_s": float(cold_time),
+        **diagnostics.stress_indicators(problem, times, current, tc),
+        "biot_number": biot,
         "segments_completed": trajectory.segments_completed,
         "segments_total": len(problem.segments),
         "events": [{"time_s": float(e["time_s"]), "event": e["event"], "origin": e["origin"]}

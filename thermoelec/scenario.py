@@ -24,8 +24,8 @@ from typing import Annotated, Any, Literal
 import numpy as np
 from pydantic import BaseModel, BeforeValidator, ConfigDict, ValidationError, model_validator
 
-from .cell import Cell, Pack, RCPair, ResistanceLaw
-from .model import Limits, Problem
+from .cell import Cell, CellGeometry, Pack, RCPair, ResistanceLaw
+from .model import Limits, Problem, StressSettings
 from .profile import Segment, expand_repeats, segments_from_series
 from .solve import BACKENDS, SolverOptions
 from .thermal import ThermalNetwork, convection_conductance
@@ -146,6 +146,8 @@ Conductance = Annotated[float, _quantity("W/K")]
 Coefficient = Annotated[float, _quantity("W/m^2/K")]
 Area = Annotated[float, _quantity("m^2")]
 Energy = Annotated[float, _quantity("J/mol")]
+Length = Annotated[float, _quantity("m")]
+Conductivity = Annotated[float, _quantity("W/m/K")]
 Capacitance = Annotated[float, _quantity("F")]
 Duration = Annotated[float, _quantity("s")]
 Dimensionless = Annotated[float, _quantity("", "")]
@@ -312,17 +314,47 @@ class CellSpec(_Section):
     ocv: OcvSpec
     r0: ResistanceSpec
     rc: list[RCSpec] = []
+    diameter: Length | None = None
+    length: Length | None = None
+    thickness: Length | None = None
+    width: Length | None = None
+    height: Length | None = None
+    thermal_conductivity: Conductivity | None = None
 
     @model_validator(mode="after")
     def _cell(self):
-        for key in ("capacity", "voltage_max", "voltage_min", "mass", "specific_heat"):
+        for key in ("capacity", "voltage_max", "voltage_min", "mass", "specific_heat", *_GEOMETRY_KEYS,
+                    "thermal_conductivity"):
             _positive(getattr(self, key), key)
+        cylinder = [k for k in ("diameter", "length") if getattr(self, k) is not None]
+        prism = [k for k in ("thickness", "width", "height") if getattr(self, k) is not None]
+        _check(not (cylinder and prism), "give diameter and length (cylindrical) or thickness, width and height "
+               "(prismatic), not both", (cylinder + prism)[0] if cylinder or prism else None)
+        if cylinder:
+            _check(len(cylinder) == 2, "a cylindrical cell needs both diameter and length",
+                   "length" if "length" not in cylinder else "diameter")
+        if prism:
+            missing = [k for k in ("thickness", "width", "height") if k not in prism]
+            _check(not missing, f"a prismatic cell needs thickness, width and height ({', '.join(missing)} missing)",
+                   missing[0] if missing else None)
+        if self.thermal_conductivity is not None:
+            _check(bool(cylinder or prism), "thermal_conductivity needs the cell geometry: diameter and length, "
+                   "or thickness, width and height", "thermal_conductivity")
         _check(self.voltage_min < self.voltage_max,
                f"voltage_min ({self.voltage_min:g} V) must be below voltage_max ({self.voltage_max:g} V)",
                "voltage_min")
         _check(0.0 <= self.initial_soc <= 1.0, f"initial_soc must lie within 0..1, got {self.initial_soc:g}",
                "initial_soc")
         return self
+
+
+    def geometry(self) -> CellGeometry | None:
+        if self.thermal_conductivity is None:
+            return None
+        return CellGeometry(self.thermal_conductivity, **{k: getattr(self, k) for k in _GEOMETRY_KEYS})
+
+
+_GEOMETRY_KEYS = ("diameter", "length", "thickness", "width", "height")
 
 
 class PackSpec(_Section):
@@ -444,6 +476,22 @@ class LimitsSpec(_Section):
     charge_temperature_min: Temperature = 273.15
 
 
+class StressSpec(_Section):
+    activation_energy: Energy = StressSettings.activation_energy
+    reference_temperature: Temperature = StressSettings.reference_temperature
+    hot_temperature: Temperature = StressSettings.hot_temperature
+
+    @model_validator(mode="after")
+    def _stress(self):
+        _positive(self.activation_energy, "activation_energy", allow_zero=True)
+        for key in ("reference_temperature", "hot_temperature"):
+            _check(getattr(self, key) > 0, f"{key} is below absolute zero", key)
+        return self
+
+    def settings(self) -> StressSettings:
+        return StressSettings(self.activation_energy, self.reference_temperature, self.hot_temperature)
+
+
 class SolverSpec(_Section):
     backend: str = "cvode"
     rtol: Dimensionless = 1e-6
@@ -487,6 +535,7 @@ class ScenarioSpec(_Section):
     profile: ProfileSpec
     limits: LimitsSpec = LimitsSpec()
     solver: SolverSpec = SolverSpec()
+    stress: StressSpec = StressSpec()
     sweep: dict[str, Any] = {}
     case: list[CaseSpec] = []
 
@@ -887,6 +936,7 @@ def build_problem(scenario: Scenario) -> Problem:
         ocv_entropic=np.array(ocv.entropic if ocv.entropic is not None else [0.0] * len(ocv.soc)),
         ocv_reference_temperature=ocv.reference_temperature,
         r0=cell_spec.r0.law(), rc=tuple(rc.pair() for rc in cell_spec.rc),
+        geometry=cell_spec.geometry(),
     )
     pack = Pack(spec.pack.series, spec.pack.parallel, spec.pack.interconnect_resistance)
     start_ambient = segments[0].ambient_temperature if segments[0].ambient_temperature is not None else ambient
@@ -898,6 +948,6 @@ def build_problem(scenario: Scenario) -> Problem:
         ambient_temperature=ambient, initial_soc=cell_spec.initial_soc,
         initial_cell_temperature=t_cell, initial_sink_temperature=t_sink,
         limits=Limits(spec.limits.cell_temperature_max, spec.limits.charge_temperature_min),
-        name=spec.scenario.name,
+        name=spec.scenario.name, stress=spec.stress.settings(),
     )
 

@@ -55,7 +55,10 @@ IMPOSED_VOLTAGE_SLACK = 1e-9
 
 
 #: Typical scales of the states [-, V, K, J]: the default absolute tolerance is rtol times these.
-ATOL_SCALES = {"soc": 1e-2, "voltage": 1e-2, "temperature": 1.0, "integral": 1.0}
+#: Mission energies and charges are kJ and kC; a much smaller integral scale lets the
+#: roundoff of an integrand (a large conductance times a tiny temperature difference)
+#: drive the step size down to milliseconds without making any reported value better.
+ATOL_SCALES = {"soc": 1e-2, "voltage": 1e-2, "temperature": 1.0, "integral": 1e3}
 
 
 @dataclass(frozen=True)

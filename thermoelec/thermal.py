@@ -16,7 +16,11 @@ from dataclasses import dataclass
 
 from numba.extending import register_jitable
 
-__all__ = ["ThermalNetwork", "cell_node_rate", "convection_conductance", "sink_node_rate"]
+__all__ = ["LUMPED_BIOT_LIMIT", "ThermalNetwork", "biot_number", "cell_node_rate", "convection_conductance",
+           "sink_node_rate"]
+
+#: Biot number below which a body may be treated as one lumped node (Incropera et al., 6th ed., Eq. 5.10).
+LUMPED_BIOT_LIMIT = 0.1
 
 
 @register_jitable
@@ -114,6 +118,32 @@ def sink_node_rate(
     flow = (heat_sink + cell_to_sink * (cell_temperature - sink_temperature)
             - sink_to_ambient * (sink_temperature - ambient_temperature))
     return flow / heat_capacity
+
+
+def biot_number(coefficient: float, volume: float, area: float, conductivity: float) -> float:
+    """Biot number ``Bi = h L_c / k`` with the characteristic length ``L_c = V / A``.
+
+    Parameters
+    ----------
+    coefficient : float
+        Heat transfer coefficient at the body surface ``h`` [W/(m² K)].
+    volume : float
+        Body volume [m³].
+    area : float
+        Surface through which heat leaves [m²].
+    conductivity : float
+        Thermal conductivity of the body [W/(m K)].
+
+    Returns
+    -------
+    float
+        ``Bi`` [-]; the lumped capacitance method holds for ``Bi < 0.1``.
+
+    References
+    ----------
+    Incropera et al., *Fundamentals of Heat and Mass Transfer*, 6th ed., Eqs. 5.10 and 5.11.
+    """
+    return coefficient * (volume / area) / conductivity
 
 
 @dataclass(frozen=True)
