@@ -45,6 +45,7 @@ SERIES_UNITS: dict[str, str] = {
     "reversible_heat_W": "W",
     "heat_to_ambient_W": "W",
     "pack_resistance_ohm": "ohm",
+    "pack_emf_V": "V",
 }
 SERIES_DESCRIPTIONS: dict[str, str] = {
     "time_s": "time since the mission start",
@@ -61,7 +62,11 @@ SERIES_DESCRIPTIONS: dict[str, str] = {
     "reversible_heat_W": "reversible (entropic) part of the heat",
     "heat_to_ambient_W": "heat rejected to ambient",
     "pack_resistance_ohm": "total series resistance Ns*R0/Np + R_ic",
+    "pack_emf_V": "source voltage behind the series resistance, Ns*(U - sum of RC voltages)",
 }
+
+#: Names of the demand modes in the order of their codes in the model.
+MODE_NAMES = tuple(sorted(m.MODE_CODES, key=m.MODE_CODES.get))
 
 
 def _celsius(kelvin: np.ndarray | float) -> np.ndarray | float:
@@ -90,6 +95,14 @@ class SimulationResult:
         Located events (stops, CC-CV switches, segment end conditions) with times [s].
     metadata : dict
         Package version, scenario hash, back end and tolerances.
+    states : array
+        Raw state rows of the integration.
+    demand_mode, demand_value : arrays
+        Demand of each output row: mode name (``"rest"`` for zero current) and
+        its value in SI units (A, W, ohm or V).
+    limits : dict
+        Pack-level limits and layout for plots and reports (``voltage_min_V``,
+        ``voltage_max_V``, ``cell_temperature_max_degC``, ...).
     """
 
     series: dict[str, np.ndarray]
@@ -100,6 +113,9 @@ class SimulationResult:
     events: list[dict]
     metadata: dict[str, Any] = field(default_factory=dict)
     states: np.ndarray | None = None
+    demand_mode: np.ndarray | None = None
+    demand_value: np.ndarray | None = None
+    limits: dict[str, float] = field(default_factory=dict)
 
     @property
     def completed(self) -> bool:
@@ -145,6 +161,24 @@ class SimulationResult:
         attrs["summary_json"] = json.dumps(self.summary)
         ds.attrs.update(attrs)
         return ds
+
+    def plot_dashboard(self):
+        """The mission dashboard as a matplotlib Figure (see :mod:`thermoelec.figures`)."""
+        from .figures import dashboard
+
+        return dashboard(self)
+
+    def plot_energy(self):
+        """The energy chart (voltage against charge, energies shaded) as a matplotlib Figure."""
+        from .figures import energy_chart
+
+        return energy_chart(self)
+
+    def plot_operating_region(self):
+        """The operating-region chart (power and dissipation against current) as a matplotlib Figure."""
+        from .figures import operating_region
+
+        return operating_region(self)
 
     def summary_json(self) -> str:
         """The summary as JSON text."""
@@ -193,13 +227,34 @@ def build_result(problem: Problem, trajectory: Trajectory, options: SolverOption
         "reversible_heat_W": alg[:, m.A_REVERSIBLE],
         "heat_to_ambient_W": alg[:, m.A_HEAT_AMBIENT],
         "pack_resistance_ohm": alg[:, m.A_RESISTANCE],
+        "pack_emf_V": alg[:, m.A_EMF],
     }
     summary = _summary(problem, trajectory, series, states, options.output_interval)
     stats = dict(trajectory.statistics)
     stats["wall_time_s"] = trajectory.wall_time
+    codes = trajectory.params[:, m.H_MODE].astype(int)
+    demand_value = trajectory.params[:, m.H_VALUE].copy()
+    demand_mode = np.array(MODE_NAMES, dtype=object)[codes]
+    demand_mode[(codes == m.MODE_CURRENT) & (demand_value == 0.0)] = "rest"
     return SimulationResult(series=series, summary=summary, status=trajectory.status,
                             message=trajectory.message, statistics=stats, events=trajectory.events,
-                            metadata=dict(metadata or {}), states=states)
+                            metadata=dict(metadata or {}), states=states, demand_mode=demand_mode,
+                            demand_value=demand_value, limits=_limits(problem))
+
+
+def _limits(problem: Problem) -> dict[str, float]:
+    ns, cell = problem.pack.series, problem.cell
+    return {
+        "voltage_min_V": ns * cell.voltage_min,
+        "voltage_max_V": ns * cell.voltage_max,
+        "cell_voltage_min_V": cell.voltage_min,
+        "cell_voltage_max_V": cell.voltage_max,
+        "cell_temperature_max_degC": float(_celsius(problem.limits.cell_temperature_max)),
+        "charge_temperature_min_degC": float(_celsius(problem.limits.charge_temperature_min)),
+        "series": ns,
+        "parallel": problem.pack.parallel,
+        "capacity_Ah": cell.capacity / COULOMBS_PER_AH,
+    }
 
 
 def _summary(problem: Problem, trajectory: Trajectory, series: dict[str, np.ndarray],
