@@ -59,7 +59,7 @@ def test_csv_power_is_voltage_times_current(drone_run):
 
 
 def test_set_override_changes_the_run(tmp_path):
-    code = cli.main(["run", str(DRONE), "--out", str(tmp_path), "--quiet",
+    code = cli.main(["run", str(DRONE), "--out", str(tmp_path), "--quiet", "--no-figures",
                      "--set", "thermal.ambient_temperature=-5 degC", "--set", "profile.segment[3].value=600 W"])
     assert code == 0
     summary = json.loads((tmp_path / "summary.json").read_text())
@@ -70,7 +70,7 @@ def test_set_override_changes_the_run(tmp_path):
 
 
 def test_terminal_summary(tmp_path, capsys):
-    code = cli.main(["run", str(DRONE), "--out", str(tmp_path)])
+    code = cli.main(["run", str(DRONE), "--out", str(tmp_path), "--no-figures"])
     out = capsys.readouterr().out
     assert code == 0
     assert "peak cell temperature" in out and "end_of_profile" in out
@@ -78,7 +78,7 @@ def test_terminal_summary(tmp_path, capsys):
 
 def test_stop_is_exit_zero(tmp_path):
     # a run that ends on a limit finished: exit 0 with completed = false
-    code = cli.main(["run", str(DRONE), "--out", str(tmp_path), "--quiet",
+    code = cli.main(["run", str(DRONE), "--out", str(tmp_path), "--quiet", "--no-figures",
                      "--set", "thermal.ambient_temperature=-30 degC"])
     summary = json.loads((tmp_path / "summary.json").read_text())
     assert code == 0

@@ -1,4 +1,4 @@
-"""The command line: ``thermoelec run SCENARIO --out DIR``.
+"""The command line: ``thermoelec run SCENARIO --out DIR`` and ``thermoelec compare SCENARIO --out DIR``.
 
 Exit status: 0 when the run finished (whatever ``completed`` says), 2 for an
 invalid scenario or profile (one message naming the file and the key), 1 for
@@ -11,10 +11,10 @@ import argparse
 import os
 import sys
 from pathlib import Path
-from typing import TextIO
 
 from . import __version__
 from .scenario import ScenarioError, load_scenario, parse_value
+from .tables import print_summary
 
 EXIT_OK, EXIT_FAILURE, EXIT_INVALID = 0, 1, 2
 
@@ -29,45 +29,15 @@ def _overrides(pairs: list[str]) -> dict:
     return overrides
 
 
-def _fmt(value, unit: str = "", digits: int = 4) -> str:
-    if value is None:
-        return "n/a"
-    if isinstance(value, bool):
-        return "yes" if value else "no"
-    if isinstance(value, float):
-        return f"{value:.{digits}g}{(' ' + unit) if unit else ''}"
-    return f"{value}{(' ' + unit) if unit else ''}"
+def _write_run(result, scenario, out: Path, figures: bool) -> None:
+    """Results first (so a plotting problem loses nothing), then figures and the report."""
+    result.write(out)
+    if figures:
+        from .figures import write_figures
+        from .report import run_report, write_report
 
-
-SUMMARY_ROWS = (
-    ("completed", "completed", ""),
-    ("stop reason", "stop_reason", ""),
-    ("duration", "duration_s", "s"),
-    ("peak cell temperature", "cell_temperature_max_degC", "degC"),
-    ("cell temperature rise", "cell_temperature_rise_K", "K"),
-    ("peak sink temperature", "sink_temperature_max_degC", "degC"),
-    ("minimum pack voltage", "voltage_min_V", "V"),
-    ("cell voltage margin", "voltage_margin_min_V", "V"),
-    ("peak current", "current_max_A", "A"),
-    ("energy to load", "energy_load_Wh", "Wh"),
-    ("energy from cells", "energy_battery_Wh", "Wh"),
-    ("energy dissipated", "energy_dissipated_Wh", "Wh"),
-    ("heat generated", "heat_generated_Wh", "Wh"),
-    ("heat to ambient", "heat_to_ambient_Wh", "Wh"),
-    ("efficiency", "efficiency", ""),
-    ("charge throughput", "charge_throughput_Ah", "Ah"),
-    ("final SoC", "soc_end", ""),
-)
-
-
-def print_summary(summary: dict, stream: TextIO) -> None:
-    """A short table of the main metrics, then the warnings."""
-    width = max(len(label) for label, _, _ in SUMMARY_ROWS)
-    print(f"scenario: {summary.get('scenario', '')}", file=stream)
-    for label, key, unit in SUMMARY_ROWS:
-        print(f"  {label:<{width}}  {_fmt(summary.get(key), unit)}", file=stream)
-    for warning in summary.get("warnings", []):
-        print(f"  warning: {warning}", file=stream)
+        pngs = {p.stem: p.read_bytes() for p in write_figures(result, out) if p.suffix == ".png"}
+        write_report(run_report(result, scenario.raw, scenario.spec.scenario.description, pngs), out)
 
 
 def _run(args: argparse.Namespace) -> int:
@@ -80,7 +50,7 @@ def _run(args: argparse.Namespace) -> int:
     result = simulate(scenario)
     out = Path(args.out)
     try:
-        result.write(out)
+        _write_run(result, scenario, out, not args.no_figures)
     except OSError as exc:
         print(f"thermoelec: cannot write results to {out}: {exc.strerror or exc}", file=sys.stderr)
         return EXIT_FAILURE
@@ -90,6 +60,49 @@ def _run(args: argparse.Namespace) -> int:
     if result.status != "ok":
         print(f"thermoelec: the solver failed: {result.message} (results up to the failure are in {out}/)",
               file=sys.stderr)
+        return EXIT_FAILURE
+    return EXIT_OK
+
+
+def _cases(tokens: list[list[str]]) -> list[tuple[str, dict]]:
+    cases = []
+    for group in tokens:
+        name, pairs = group[0], group[1:]
+        if "=" in name:
+            raise ScenarioError("--case", name, "give the case name first: --case NAME KEY=VALUE ...")
+        if not pairs:
+            raise ScenarioError("--case", name, "give at least one KEY=VALUE after the case name")
+        cases.append((name, _overrides(pairs)))
+    return cases
+
+
+def _compare(args: argparse.Namespace) -> int:
+    from .compare import case_list, format_table, run_cases, write_comparison
+
+    scenario = load_scenario(args.scenario, _overrides(args.set or []))
+    outcomes = run_cases(scenario, case_list(scenario, _cases(args.case or [])))
+    out = Path(args.out)
+    try:
+        write_comparison(outcomes, out, figures=not args.no_figures)
+        if not args.no_figures:
+            from .report import comparison_report, write_report
+
+            write_report(comparison_report(outcomes, scenario.raw, scenario.name,
+                                           scenario.spec.scenario.description), out)
+    except OSError as exc:
+        print(f"thermoelec: cannot write results to {out}: {exc.strerror or exc}", file=sys.stderr)
+        return EXIT_FAILURE
+    if not args.quiet:
+        print(f"scenario: {scenario.name}")
+        print(format_table(outcomes))
+        for outcome in outcomes:
+            for warning in outcome.result.warnings:
+                print(f"  warning ({outcome.name}): {warning}")
+        print(f"comparison in {out}/")
+    failed = [o.name for o in outcomes if o.result.status != "ok"]
+    if failed:
+        print(f"thermoelec: the solver failed for case(s) {', '.join(failed)} (their results up to the failure "
+              f"are in {out}/cases/)", file=sys.stderr)
         return EXIT_FAILURE
     return EXIT_OK
 
@@ -106,7 +119,17 @@ def build_parser() -> argparse.ArgumentParser:
                      help="override a scenario value by dotted path, e.g. thermal.ambient_temperature='-20 degC'")
     run.add_argument("--backend", choices=("cvode", "scipy"), help="solver back end (overrides [solver])")
     run.add_argument("--quiet", action="store_true", help="print no summary")
+    run.add_argument("--no-figures", action="store_true", help="write no figures and no report (faster)")
     run.set_defaults(handler=_run)
+    compare = sub.add_parser("compare", help="run the scenario's [[case]] variants side by side")
+    compare.add_argument("scenario", help="scenario file (TOML)")
+    compare.add_argument("--out", required=True, help="output folder (created if missing)")
+    compare.add_argument("--case", action="append", nargs="+", metavar="NAME KEY=VALUE",
+                         help="an extra case: its name, then dotted-path overrides; may repeat")
+    compare.add_argument("--set", action="append", metavar="KEY=VALUE", help="override a value in every case")
+    compare.add_argument("--quiet", action="store_true", help="print no table")
+    compare.add_argument("--no-figures", action="store_true", help="write no figures and no report (faster)")
+    compare.set_defaults(handler=_compare)
     return parser
 
 

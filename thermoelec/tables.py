@@ -1,0 +1,54 @@
+"""Plain-text output for the terminal: value formatting and the run summary."""
+
+from __future__ import annotations
+
+from typing import Any, TextIO
+
+__all__ = ["SUMMARY_ROWS", "format_value", "print_summary"]
+
+
+def format_value(value: Any, unit: str = "", digits: int = 4) -> str:
+    """A value for the terminal: 4 significant digits, units, yes/no, n/a."""
+    if value is None:
+        return "n/a"
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    if isinstance(value, float):
+        return f"{value:.{digits}g}{(' ' + unit) if unit else ''}"
+    return f"{value}{(' ' + unit) if unit else ''}"
+
+
+SUMMARY_ROWS = (
+    ("completed", "completed", ""),
+    ("stop reason", "stop_reason", ""),
+    ("duration", "duration_s", "s"),
+    ("peak cell temperature", "cell_temperature_max_degC", "degC"),
+    ("cell temperature rise", "cell_temperature_rise_K", "K"),
+    ("peak sink temperature", "sink_temperature_max_degC", "degC"),
+    ("minimum pack voltage", "voltage_min_V", "V"),
+    ("cell voltage margin", "voltage_margin_min_V", "V"),
+    ("peak current", "current_max_A", "A"),
+    ("energy to load", "energy_load_Wh", "Wh"),
+    ("energy from cells", "energy_battery_Wh", "Wh"),
+    ("energy dissipated", "energy_dissipated_Wh", "Wh"),
+    ("heat generated", "heat_generated_Wh", "Wh"),
+    ("heat to ambient", "heat_to_ambient_Wh", "Wh"),
+    ("efficiency", "efficiency", ""),
+    ("charge throughput", "charge_throughput_Ah", "Ah"),
+    ("final SoC", "soc_end", ""),
+    ("peak C-rate discharge / charge", "c_rate_discharge_max", ""),
+    ("", "c_rate_charge_max", ""),
+    ("time above hot temperature", "time_above_hot_temperature_s", "s"),
+    ("time charging below 0 degC", "time_charging_below_0degC_s", "s"),
+    ("Arrhenius-equivalent time", "equivalent_time_at_reference_s", "s"),
+)
+
+
+def print_summary(summary: dict, stream: TextIO) -> None:
+    """A short table of the main metrics, then the warnings."""
+    width = max(len(label) for label, _, _ in SUMMARY_ROWS)
+    print(f"scenario: {summary.get('scenario', '')}", file=stream)
+    for label, key, unit in SUMMARY_ROWS:
+        print(f"  {label:<{width}}  {format_value(summary.get(key), unit)}", file=stream)
+    for warning in summary.get("warnings", []):
+        print(f"  warning: {warning}", file=stream)
