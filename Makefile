@@ -34,12 +34,16 @@ demo: $(STAMP)
 	@echo "== courier drone sortie, hot afternoon (38 degC)"
 	@$(BIN)/thermoelec run scenarios/drone_delivery.toml --out $(DEMO)/drone-hot
 	@echo
-	@echo "== the same sortie on a cold morning (-5 degC)"
-	@$(BIN)/thermoelec run scenarios/drone_delivery.toml --out $(DEMO)/drone-cold \
-		--set "thermal.ambient_temperature=-5 degC" --set "scenario.name=courier drone sortie, cold morning"
+	@echo "== the sortie compared: hot afternoon against cold morning (-5 degC)"
+	@$(BIN)/thermoelec compare scenarios/drone_delivery.toml --out $(DEMO)/drone-compare
 	@echo
 	@echo "== cargo e-bike round from a 1 Hz CSV, then a CC-CV recharge"
 	@$(BIN)/thermoelec run scenarios/ebike_route.toml --out $(DEMO)/ebike
+	@echo
+	@echo "== the e-bike round compared: summer against a winter morning"
+	@$(BIN)/thermoelec compare scenarios/ebike_route.toml --out $(DEMO)/ebike-compare
+	@echo
+	@echo "open $(DEMO)/*/report.html in a browser for the figures and the verdicts"
 
 bench: $(STAMP)
 	$(BIN)/python benchmarks/bench_single_mission.py
