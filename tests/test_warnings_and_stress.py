@@ -149,3 +149,32 @@ def test_cold_charging_time_counts_only_charging():
     assert s["time_charging_below_0degC_s"] == pytest.approx(120, rel=1e-9)
     assert s["time_charging_below_10degC_s"] == pytest.approx(120, rel=1e-9)
     assert s["time_charging_below_limit_s"] == pytest.approx(120, rel=1e-9)
+
+
+def cccv_without_duration(cutoff: str) -> dict:
+    # flat OCV 3.7 V, R0 20 mohm: at 3.8 V the CV current holds at 5 A, above a 1 A cutoff, so
+    # only the cap (ten full charges at the 1000 A CC rate: 10 x 1000 Ah / 1000 A = 10 h) ends it
+    return scenario(cell=cell_section(initial_soc=0.2), segments=[
+        {"mode": "cccv", "current": "-1000 A", "voltage": "3.8 V", "cutoff_current": cutoff}],
+        solver={"rtol": 1e-6})
+
+
+@pytest.mark.parametrize("cutoff, expected", [("1 A", 1), ("6 A", 0)])
+def test_cccv_duration_cap_warning(cutoff, expected):
+    result = simulate(cccv_without_duration(cutoff))
+    found = warnings_with("reached its duration cap", result)
+    assert len(found) == expected
+    if expected:
+        assert result.summary["duration_s"] == pytest.approx(36_000, rel=1e-9)
+
+
+@pytest.mark.parametrize("max_steps, expected", [(1, 1), (50_000, 0)])
+def test_solver_failure_warning(max_steps, expected):
+    import thermoelec
+
+    data = scenario(cell=cell_section(rc=[{"resistance": "10 mohm", "time_constant": "20 s"}]),
+                    segments=[{"mode": "current", "value": "5 A", "duration": "600 s"}],
+                    solver={"rtol": 1e-8, "max_steps": max_steps})
+    result = thermoelec.simulate(data)
+    assert (result.status == "failed") == bool(expected)
+    assert len(warnings_with("solver failure", result)) == expected

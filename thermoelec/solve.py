@@ -179,6 +179,18 @@ class CvodeBackend:
     def statistics(self) -> dict[str, float]:
         return dict(self._stats)
 
+    @staticmethod
+    def _failure(out, t0: float, times: list[float], states: list[np.ndarray]) -> PhaseOutcome:
+        """A failed step: keep the last state CVODE reached (``out.errors``), name the time."""
+        reached = getattr(out, "errors", None)
+        t_fail = getattr(reached, "t", None)
+        y_fail = getattr(reached, "y", None)
+        if t_fail is not None and y_fail is not None and float(t_fail) > (times[-1] if times else t0):
+            times.append(float(t_fail))
+            states.append(np.array(y_fail, dtype=float))
+        where = f" at t = {float(t_fail):.6g} s" if t_fail is not None else ""
+        return PhaseOutcome(times, states, "error", f"CVODE: {out.message}{where}")
+
     def integrate(self, t0: float, y0: np.ndarray, t_end: float, outputs: list[float],
                   find_roots: bool = True) -> PhaseOutcome:
         solver = self._solvers[find_roots]
@@ -206,7 +218,7 @@ class CvodeBackend:
                     states.append(np.array(out.values.y, dtype=float))
                     return PhaseOutcome(times, states, "root")
                 if flag < 0:
-                    return PhaseOutcome(times, states, "error", f"CVODE: {out.message} at t = {out.values.t:.6g} s")
+                    return self._failure(out, t0, times, states)
                 times.append(float(tout))
                 states.append(out.values.y.copy())
         finally:
