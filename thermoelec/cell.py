@@ -35,6 +35,7 @@ __all__ = [
     "open_circuit_voltage",
     "power_deliverable_margin",
     "rc_zero_order_hold",
+    "terminal_voltage_with_auxiliary_load",
     "voltage_limited_power",
 ]
 
@@ -329,6 +330,45 @@ def voltage_limited_power(emf: float, resistance: float, voltage_min: float) -> 
         Power [W].
     """
     return voltage_min * (emf - voltage_min) / resistance
+
+
+@register_jitable
+def terminal_voltage_with_auxiliary_load(conductance_factor: float, source: float, resistance: float,
+                                         auxiliary_power: float) -> float:
+    """Terminal voltage when a constant-power auxiliary load shares the terminals.
+
+    The terminal voltage solves ``a V² - b V + R P_aux = 0``: the higher root
+    ``V = (b + sqrt(b² - 4 a R P_aux)) / (2a)``, the one that tends to the
+    no-auxiliary voltage ``b / a`` as ``P_aux -> 0``. For a current demand
+    ``I_d``: ``a = 1``, ``b = E - R I_d``; for a load resistance ``R_L``:
+    ``a = 1 + R / R_L``, ``b = E``. Past the point where no solution exists
+    (discriminant < 0) the maximum-power voltage ``b / (2a)`` is returned.
+
+    Parameters
+    ----------
+    conductance_factor : float
+        ``a`` [-], >= 1.
+    source : float
+        ``b`` [V].
+    resistance : float
+        Series resistance ``R`` [Ω].
+    auxiliary_power : float
+        ``P_aux`` [W], >= 0.
+
+    Returns
+    -------
+    float
+        Terminal voltage [V].
+
+    References
+    ----------
+    Kirchhoff's laws with a constant-power load (circuit theory, common practice);
+    derived here.
+    """
+    disc = source * source - 4.0 * conductance_factor * resistance * auxiliary_power
+    if disc < 0.0:
+        disc = 0.0
+    return (source + np.sqrt(disc)) / (2.0 * conductance_factor)
 
 
 @register_jitable

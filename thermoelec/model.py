@@ -6,12 +6,16 @@ States (SI units), for one scenario::
     y[1 : 1+n]           v_k    RC-pair voltages of one cell [V]
     y[1+n]               Tc     lumped cell temperature [K]
     y[2+n]               Ts     heat-sink node temperature [K]
-    y[3+n : 3+n+8]       running integrals (quadratures), see ``Q_*`` below
+    y[3+n]               Tf     coolant node temperature [K] (constant without a coolant mass)
+    y[4+n : 4+n+11]      running integrals (quadratures), see ``Q_*`` below
 
 Equations (see DESIGN notes): Thevenin cell ``V = U - sum v_k - I R0`` with
 ``U(z, T) = U_ref(z) + (T - T_ref) dU/dT(z)``; pack ``Ns x Np`` with
 ``E = Ns (U - sum v_k)``, ``R_tot = Ns R0 / Np + R_ic``; the pack current is
-closed-form for each load mode; Bernardi heat; two lumped thermal nodes.
+closed-form for each load mode; Bernardi heat; two lumped thermal nodes and an
+optional coolant node; convection from correlations, radiation, thermostatic
+fan, heater and pump (their on/off states are phase parameters, switched at
+located events).
 
 The quadratures integrate battery and load energy, heat generated, heat rejected
 to ambient and charge throughput with the same integrator as the states. BDF is
@@ -49,6 +53,10 @@ _power_margin = cellphys.power_deliverable_margin
 _bernardi = cellphys.bernardi_heat
 _cell_rate = thermphys.cell_node_rate
 _sink_rate = thermphys.sink_node_rate
+_h_conv = thermphys.convection_coefficient
+_radiation = thermphys.radiation_heat
+_effectiveness = thermphys.coolant_effectiveness
+_aux_voltage = cellphys.terminal_voltage_with_auxiliary_load
 
 # ---- load modes of a phase (a segment is one or two phases) -------------------
 MODE_CURRENT, MODE_POWER, MODE_RESISTANCE, MODE_VOLTAGE = 0, 1, 2, 3
@@ -59,17 +67,22 @@ MODE_CODES = {"current": MODE_CURRENT, "power": MODE_POWER, "resistance": MODE_R
 EV_VOLTAGE_MIN, EV_VOLTAGE_MAX, EV_POWER, EV_TEMPERATURE = 0, 1, 2, 3
 EV_SOC_EMPTY, EV_SOC_FULL, EV_CV_SWITCH, EV_CV_CUTOFF = 4, 5, 6, 7
 EV_END_VOLTAGE_BELOW, EV_END_VOLTAGE_ABOVE, EV_END_SOC_BELOW, EV_END_SOC_ABOVE = 8, 9, 10, 11
-N_EVENTS = 12
+EV_FAN, EV_HEATER, EV_PUMP = 12, 13, 14
+N_EVENTS = 15
 EVENT_NAMES = ("voltage_min", "voltage_max", "power_limit", "temperature_max", "soc_empty", "soc_full",
                "cv_switch", "cv_cutoff", "end_voltage_below", "end_voltage_above", "end_soc_below",
-               "end_soc_above")
-#: Scale of each root function, to compare how close to zero they are [V, V, V², K, -, -, V, A, V, V, -, -].
-EVENT_SCALES = (1.0, 1.0, 100.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0)
+               "end_soc_above", "fan_switch", "heater_switch", "pump_switch")
+#: Scale of each root function, to compare how close to zero they are
+#: [V, V, V², K, -, -, V, A, V, V, -, -, K, K, K].
+EVENT_SCALES = (1.0, 1.0, 100.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0)
 #: A root function within this many of its scales of zero (or below) counts as fired.
 ROOT_TOLERANCE = 1e-9
-#: Which event wins when several fire at once (lower rank first): the stops, then switches and ends.
-EVENT_PRIORITY = (2, 0, 1, 3, 4, 5, 6, 7, 8, 9, 10, 11)
-EVENT_RANK = tuple(EVENT_PRIORITY.index(k) for k in range(12))
+#: Which event wins when several fire at once (lower rank first): the stops, then switches and ends,
+#: then the thermostats (a thermostat event does not end anything; it toggles and the phase goes on).
+EVENT_PRIORITY = (2, 0, 1, 3, 4, 5, 6, 7, 8, 9, 10, 11, 12, 13, 14)
+EVENT_RANK = tuple(EVENT_PRIORITY.index(k) for k in range(N_EVENTS))
+#: Thermostat events and the header flag each one toggles (filled in below the header).
+CONTROL_EVENTS = (EV_FAN, EV_HEATER, EV_PUMP)
 
 # ---- quadratures (offsets after the dynamic states) ----------------------------
 Q_BATTERY_DISCHARGE = 0  # ∫ Ns U I+ dt  [J]
@@ -80,33 +93,67 @@ Q_HEAT = 4               # ∫ heat generated (cells + interconnect) dt [J]
 Q_REVERSIBLE = 5         # ∫ reversible (entropic) heat dt [J]
 Q_HEAT_AMBIENT = 6       # ∫ heat rejected to ambient dt [J]
 Q_THROUGHPUT = 7         # ∫ |I| dt      [C]
-N_QUADRATURES = 8
+Q_HEATER = 8             # ∫ heater power dt [J]
+Q_COOLANT = 9            # ∫ heat carried away by the coolant dt [J]
+Q_RADIATION = 10         # ∫ radiation from the sink dt [J] (part of Q_HEAT_AMBIENT)
+N_QUADRATURES = 11
 
 # ---- algebraic outputs ---------------------------------------------------------
 A_CURRENT, A_VOLTAGE, A_CELL_VOLTAGE, A_OCV, A_EMF, A_RESISTANCE = 0, 1, 2, 3, 4, 5
 A_HEAT, A_REVERSIBLE, A_HEAT_AMBIENT, A_ENTROPIC, A_R0, A_POWER_MARGIN = 6, 7, 8, 9, 10, 11
-N_ALGEBRAICS = 12
+A_AMBIENT, A_HEATER, A_COOLANT, A_RADIATION, A_SINK_CONDUCTANCE, A_COOLANT_OUTLET = 12, 13, 14, 15, 16, 17
+N_ALGEBRAICS = 18
 ALGEBRAIC_NAMES = ("current", "voltage", "cell_voltage", "ocv", "emf", "resistance", "heat",
-                   "reversible_heat", "heat_to_ambient", "entropic", "r0", "power_margin")
+                   "reversible_heat", "heat_to_ambient", "entropic", "r0", "power_margin", "ambient",
+                   "heater", "coolant", "radiation", "sink_conductance", "coolant_outlet")
 
 # ---- header of the flat parameter vector ---------------------------------------
 H_MODE, H_VALUE, H_AMBIENT = 0, 1, 2
 H_NS, H_NP, H_RIC, H_CAPACITY = 3, 4, 5, 6
 H_CCELL, H_CSINK, H_GCS, H_GSA, H_GCA = 7, 8, 9, 10, 11
 H_NRC, H_OCV, H_R0, H_RC = 12, 13, 14, 15
-H_ACTIVE = 16                      # N_EVENTS activity flags
+H_TIME = 16                        # current time [s], written by the callers (time-dependent ambient)
+H_AMBIENT_TABLE = 17               # offset of the ambient profile block, 0 for none
+H_FORCED, H_NATURAL, H_CONV_LENGTH, H_CONV_AREA, H_AIR_SPEED = 18, 19, 20, 21, 22
+H_FAN_ON, H_FAN_SPEED, H_FAN_G = 23, 24, 25     # fan speed < 0: the fan leaves the air speed alone
+H_EMISSIVITY, H_RAD_AREA, H_SURROUNDINGS = 26, 27, 28  # surroundings 0: ambient
+H_COOL_MCP, H_COOL_UA, H_COOL_G, H_COOL_C, H_COOL_INLET, H_PUMP_ON = 29, 30, 31, 32, 33, 34
+H_HEATER_ON, H_HEATER_POWER, H_HEATER_FROM_PACK = 35, 36, 37
+CONTROL_FLAGS = {EV_FAN: H_FAN_ON, EV_HEATER: H_HEATER_ON, EV_PUMP: H_PUMP_ON}
+CONTROL_FLAG_OF = (H_FAN_ON, H_HEATER_ON, H_PUMP_ON)  # by event - EV_FAN, for the kernels
+H_ACTIVE = 38                      # N_EVENTS activity flags
 H_THRESHOLD = H_ACTIVE + N_EVENTS  # N_EVENTS thresholds
 HEADER = H_THRESHOLD + N_EVENTS
 
 
 def n_states(n_rc: int) -> int:
     """Number of states for ``n_rc`` RC pairs (dynamic states plus quadratures)."""
-    return 3 + n_rc + N_QUADRATURES
+    return 4 + n_rc + N_QUADRATURES
+
+
+def n_dynamic(n_rc: int) -> int:
+    """Number of dynamic (non-quadrature) states."""
+    return 4 + n_rc
 
 
 def cell_temperature_index(n_rc: int) -> int:
     """Index of the cell temperature in the state vector."""
     return 1 + n_rc
+
+
+def sink_temperature_index(n_rc: int) -> int:
+    """Index of the sink temperature in the state vector."""
+    return 2 + n_rc
+
+
+def coolant_temperature_index(n_rc: int) -> int:
+    """Index of the coolant node temperature in the state vector."""
+    return 3 + n_rc
+
+
+def quadrature_index(n_rc: int) -> int:
+    """Index of the first quadrature in the state vector."""
+    return 4 + n_rc
 
 
 @dataclass(frozen=True)
@@ -150,6 +197,9 @@ class Problem:
     limits: Limits = field(default_factory=Limits)
     name: str = ""
     stress: StressSettings = field(default_factory=StressSettings)
+    initial_coolant_temperature: float | None = None
+    ambient_profile: tuple[np.ndarray, np.ndarray] | None = None
+    soak: tuple[Segment, ...] = ()
 
     @property
     def n_rc(self) -> int:
@@ -160,9 +210,22 @@ class Problem:
         """State vector at t = 0: RC pairs relaxed, integrals zero."""
         y = np.zeros(n_states(self.n_rc))
         y[0] = self.initial_soc
-        y[1 + self.n_rc] = self.initial_cell_temperature
-        y[2 + self.n_rc] = self.initial_sink_temperature
+        y[cell_temperature_index(self.n_rc)] = self.initial_cell_temperature
+        y[sink_temperature_index(self.n_rc)] = self.initial_sink_temperature
+        coolant = self.thermal.coolant
+        if self.initial_coolant_temperature is not None:
+            y[coolant_temperature_index(self.n_rc)] = self.initial_coolant_temperature
+        elif coolant is not None:
+            y[coolant_temperature_index(self.n_rc)] = coolant.inlet_temperature
+        else:
+            y[coolant_temperature_index(self.n_rc)] = self.initial_sink_temperature
         return y
+
+    def ambient_at(self, time: float) -> float:
+        """Ambient temperature [K] at ``time`` [s] from the ambient profile (else the constant)."""
+        if self.ambient_profile is None:
+            return self.ambient_temperature
+        return float(np.interp(time, *self.ambient_profile))
 
 
 def _law_block(law: ResistanceLaw) -> list[float]:
@@ -182,6 +245,7 @@ def pack_parameters(problem: Problem) -> np.ndarray:
     header[H_GSA], header[H_GCA] = th.sink_to_ambient, th.cell_to_ambient
     header[H_NRC] = len(c.rc)
     header[H_AMBIENT] = problem.ambient_temperature
+    _thermal_header(header, th)
     body: list[float] = []
     header[H_OCV] = HEADER + len(body)
     body += [len(c.ocv_soc), c.ocv_reference_temperature, *c.ocv_soc, *c.ocv_voltage, *c.ocv_entropic]
@@ -194,7 +258,35 @@ def pack_parameters(problem: Problem) -> np.ndarray:
         else:
             body += [0.0, float(pair.capacitance)]
         body += _law_block(pair.resistance)
+    if problem.ambient_profile is not None:
+        times, values = problem.ambient_profile
+        header[H_AMBIENT_TABLE] = HEADER + len(body)
+        body += [len(times), *times, *values]
     return np.concatenate([header, np.asarray(body, float)])
+
+
+def _thermal_header(header: np.ndarray, th: ThermalNetwork) -> None:
+    """Cooling options into the header; thermostat flags start off (the driver sets them)."""
+    conv = th.convection
+    if conv is not None:
+        header[H_FORCED] = thermphys.FORCED_CORRELATIONS.get(conv.forced or "", 0)
+        header[H_NATURAL] = thermphys.NATURAL_CORRELATIONS.get(conv.natural or "", 0)
+        header[H_CONV_LENGTH], header[H_CONV_AREA], header[H_AIR_SPEED] = conv.length, conv.area, conv.air_speed
+    header[H_FAN_SPEED] = -1.0
+    if th.fan is not None:
+        header[H_FAN_SPEED] = -1.0 if th.fan.air_speed is None else th.fan.air_speed
+        header[H_FAN_G] = th.fan.conductance
+    if th.radiation is not None:
+        header[H_EMISSIVITY], header[H_RAD_AREA] = th.radiation.emissivity, th.radiation.area
+        header[H_SURROUNDINGS] = th.radiation.surroundings_temperature or 0.0
+    if th.coolant is not None:
+        cool = th.coolant
+        header[H_COOL_MCP], header[H_COOL_UA], header[H_COOL_G] = (cool.capacity_rate, cool.plate_conductance,
+                                                                    cool.conductance)
+        header[H_COOL_C], header[H_COOL_INLET] = cool.heat_capacity, cool.inlet_temperature
+    header[H_PUMP_ON] = 1.0
+    if th.heater is not None:
+        header[H_HEATER_POWER], header[H_HEATER_FROM_PACK] = th.heater.power, float(th.heater.from_pack)
 
 
 @_jit
@@ -227,7 +319,12 @@ def evaluate(y, p, ydot, alg):
     z = y[0]
     tc = y[1 + nrc]
     ts = y[2 + nrc]
+    tf = y[3 + nrc]
     ta = p[H_AMBIENT]
+    table = int(p[H_AMBIENT_TABLE])
+    if table > 0:
+        nt = int(p[table])
+        ta = _interp1(p[table + 1:table + 1 + nt], p[table + 1 + nt:table + 1 + 2 * nt], p[H_TIME])
     ns = p[H_NS]
     npar = p[H_NP]
     ric = p[H_RIC]
@@ -248,12 +345,21 @@ def evaluate(y, p, ydot, alg):
 
     mode = int(p[H_MODE])
     value = p[H_VALUE]
+    heater = p[H_HEATER_POWER] if p[H_HEATER_ON] == 1.0 else 0.0
+    # a heater fed from the pack is a constant-power load on its terminals (in voltage
+    # mode the charger holding the terminals feeds it, so the cells do not see it)
+    aux = heater if p[H_HEATER_FROM_PACK] == 1.0 else 0.0
     if mode == MODE_CURRENT:
         current = value
+        if aux > 0.0:
+            current = value + aux / _aux_voltage(1.0, emf - rtot * value, rtot, aux)
     elif mode == MODE_POWER:
-        current = _current_for_power(emf, rtot, value)
+        current = _current_for_power(emf, rtot, value + aux)
     elif mode == MODE_RESISTANCE:
         current = _current_for_resistance(emf, rtot, value)
+        if aux > 0.0:
+            v_aux = _aux_voltage(1.0 + rtot / value, emf, rtot, aux)
+            current = v_aux / value + aux / v_aux
     else:
         current = _current_for_voltage(emf, rtot, value)
 
@@ -277,11 +383,40 @@ def evaluate(y, p, ydot, alg):
     heat_cells = ns * npar * q_cell
     heat_ic = current * current * ric
     reversible = -ns * current * tc * dudt
-    to_ambient = p[H_GCA] * (tc - ta) + p[H_GSA] * (ts - ta)
-    ydot[1 + nrc] = _cell_rate(heat_cells, tc, ts, ta, p[H_CCELL], p[H_GCS], p[H_GCA])
-    ydot[2 + nrc] = _sink_rate(heat_ic, tc, ts, ta, p[H_CSINK], p[H_GCS], p[H_GSA])
 
-    q = 3 + nrc
+    # sink to air: a fixed conductance or a correlation, plus a running fan
+    g_sa = p[H_GSA]
+    fan_on = p[H_FAN_ON] == 1.0
+    if p[H_FORCED] != 0.0 or p[H_NATURAL] != 0.0:
+        speed = p[H_FAN_SPEED] if fan_on and p[H_FAN_SPEED] >= 0.0 else p[H_AIR_SPEED]
+        g_sa = _h_conv(int(p[H_FORCED]), int(p[H_NATURAL]), p[H_CONV_LENGTH], speed, ts, ta) * p[H_CONV_AREA]
+    if fan_on:
+        g_sa += p[H_FAN_G]
+    radiated = 0.0
+    if p[H_EMISSIVITY] > 0.0:
+        surroundings = p[H_SURROUNDINGS] if p[H_SURROUNDINGS] > 0.0 else ta
+        radiated = _radiation(p[H_EMISSIVITY], p[H_RAD_AREA], ts, surroundings)
+    # sink to coolant: a well-mixed coolant node, or a massless channel (effectiveness)
+    inlet = p[H_COOL_INLET]
+    flow = p[H_COOL_MCP] if p[H_PUMP_ON] == 1.0 else 0.0
+    if p[H_COOL_C] > 0.0:
+        to_coolant_node = p[H_COOL_UA] * (ts - tf)
+        carried = flow * (tf - inlet)
+        ydot[3 + nrc] = (to_coolant_node - carried) / p[H_COOL_C]
+        outlet = tf
+    else:
+        g_cool = _effectiveness(p[H_COOL_UA], flow) * flow
+        if p[H_PUMP_ON] == 1.0:
+            g_cool += p[H_COOL_G]
+        to_coolant_node = g_cool * (ts - inlet) if inlet > 0.0 else 0.0
+        carried = to_coolant_node
+        ydot[3 + nrc] = 0.0
+        outlet = inlet + to_coolant_node / flow if flow > 0.0 else inlet
+    to_ambient = p[H_GCA] * (tc - ta) + g_sa * (ts - ta) + radiated
+    ydot[1 + nrc] = _cell_rate(heat_cells + heater, tc, ts, ta, p[H_CCELL], p[H_GCS], p[H_GCA])
+    ydot[2 + nrc] = _sink_rate(heat_ic - radiated - to_coolant_node, tc, ts, ta, p[H_CSINK], p[H_GCS], g_sa)
+
+    q = 4 + nrc
     e_ocv = ns * u
     i_pos = current if current > 0.0 else 0.0
     i_neg = current - i_pos
@@ -293,6 +428,9 @@ def evaluate(y, p, ydot, alg):
     ydot[q + Q_REVERSIBLE] = reversible
     ydot[q + Q_HEAT_AMBIENT] = to_ambient
     ydot[q + Q_THROUGHPUT] = abs(current)
+    ydot[q + Q_HEATER] = heater
+    ydot[q + Q_COOLANT] = carried
+    ydot[q + Q_RADIATION] = radiated
 
     alg[A_CURRENT] = current
     alg[A_VOLTAGE] = voltage
@@ -305,7 +443,13 @@ def evaluate(y, p, ydot, alg):
     alg[A_HEAT_AMBIENT] = to_ambient
     alg[A_ENTROPIC] = dudt
     alg[A_R0] = r0
-    alg[A_POWER_MARGIN] = _power_margin(emf, rtot, value) if mode == MODE_POWER else 1.0
+    alg[A_POWER_MARGIN] = _power_margin(emf, rtot, value + aux) if mode == MODE_POWER else 1.0
+    alg[A_AMBIENT] = ta
+    alg[A_HEATER] = heater
+    alg[A_COOLANT] = carried
+    alg[A_RADIATION] = radiated
+    alg[A_SINK_CONDUCTANCE] = g_sa
+    alg[A_COOLANT_OUTLET] = outlet
 
 
 @_jit
@@ -349,8 +493,14 @@ def roots(y, g, p, alg, scratch):
             g[k] = thr - voltage
         elif k == EV_END_SOC_BELOW:
             g[k] = z - thr
-        else:
+        elif k == EV_END_SOC_ABOVE:
             g[k] = thr - z
+        else:
+            # a thermostat: the threshold is the one it switches at next; a cooling
+            # switch (fan, pump) and a heater that is on wait for the temperature to
+            # rise to it, the others for it to fall
+            rising = (p[CONTROL_FLAG_OF[k - EV_FAN]] == 1.0) == (k == EV_HEATER)
+            g[k] = thr - y[1 + nrc] if rising else y[1 + nrc] - thr
 
 
 @_jit
@@ -358,12 +508,12 @@ def jacobian(y, jac, p, alg, f0, f1, yy):
     """Forward-difference Jacobian ``df/dy`` into ``jac`` (dense, row = equation).
 
     The quadrature columns are zero (nothing depends on a running integral), so
-    only the ``3 + n_rc`` dynamic columns are differenced. Step
+    only the ``4 + n_rc`` dynamic columns are differenced. Step
     ``sqrt(eps) * max(|y_j|, 1)`` as in Dennis & Schnabel, *Numerical Methods for
     Unconstrained Optimization and Nonlinear Equations* (1983), §5.4.
     """
     n = y.shape[0]
-    ndyn = 3 + int(p[H_NRC])
+    ndyn = 4 + int(p[H_NRC])
     evaluate(y, p, f0, alg)
     for i in range(n):
         yy[i] = y[i]
@@ -482,6 +632,7 @@ class Kernels:
 
     # scikits.odes signatures: write into the given buffers, return 0 or a negative flag
     def cvode_rhs(self, t: float, y: np.ndarray, ydot: np.ndarray) -> int:
+        self.p[H_TIME] = t
         try:
             rhs(y, ydot, self.p, self._alg)
         except BaseException as exc:  # an exception must not cross the C boundary
@@ -490,6 +641,7 @@ class Kernels:
         return 0
 
     def cvode_roots(self, t: float, y: np.ndarray, g: np.ndarray) -> int:
+        self.p[H_TIME] = t
         try:
             roots(y, g, self.p, self._alg, self._scratch)
         except BaseException as exc:
@@ -498,6 +650,7 @@ class Kernels:
         return 0
 
     def cvode_jacobian(self, t: float, y: np.ndarray, fy: np.ndarray, jac: np.ndarray) -> int:
+        self.p[H_TIME] = t
         try:
             jacobian(y, jac, self.p, self._alg, self._f0, self._f1, self._yy)
         except BaseException as exc:
@@ -507,6 +660,7 @@ class Kernels:
 
     # scipy signatures: return new arrays
     def scipy_rhs(self, t: float, y: np.ndarray) -> np.ndarray:
+        self.p[H_TIME] = t
         ydot = np.empty(self.size)
         rhs(y, ydot, self.p, self._alg)
         return ydot
@@ -518,6 +672,7 @@ class Kernels:
         return g
 
     def scipy_jacobian(self, t: float, y: np.ndarray) -> np.ndarray:
+        self.p[H_TIME] = t
         jac = np.empty((self.size, self.size))
         jacobian(np.ascontiguousarray(y, dtype=float), jac, self.p, self._alg, self._f0, self._f1, self._yy)
         return jac

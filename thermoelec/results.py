@@ -46,6 +46,11 @@ SERIES_UNITS: dict[str, str] = {
     "heat_to_ambient_W": "W",
     "pack_resistance_ohm": "ohm",
     "pack_emf_V": "V",
+    "coolant_temperature_degC": "degC",
+    "heater_power_W": "W",
+    "heat_to_coolant_W": "W",
+    "heat_radiated_W": "W",
+    "sink_to_air_conductance_W_per_K": "W/K",
 }
 SERIES_DESCRIPTIONS: dict[str, str] = {
     "time_s": "time since the mission start",
@@ -63,6 +68,11 @@ SERIES_DESCRIPTIONS: dict[str, str] = {
     "heat_to_ambient_W": "heat rejected to ambient",
     "pack_resistance_ohm": "total series resistance Ns*R0/Np + R_ic",
     "pack_emf_V": "source voltage behind the series resistance, Ns*(U - sum of RC voltages)",
+    "coolant_temperature_degC": "coolant temperature leaving the cold plate (the inlet without a coolant loop)",
+    "heater_power_W": "heater power on the cells",
+    "heat_to_coolant_W": "heat carried away by the coolant",
+    "heat_radiated_W": "net radiation from the sink to the surroundings (part of heat_to_ambient_W)",
+    "sink_to_air_conductance_W_per_K": "sink-to-air convective conductance h*A (with a running fan)",
 }
 
 #: Names of the demand modes in the order of their codes in the model.
@@ -80,7 +90,8 @@ class SimulationResult:
     Attributes
     ----------
     series : dict of str to array
-        Reported time series, keys and units in :data:`SERIES_UNITS`. At a
+        Reported time series, keys and units in :data:`SERIES_UNITS` (the coolant
+        temperature only with a coolant loop). At a
         discontinuity of the demand the time appears twice: before and after.
     summary : dict
         Summary metrics (the output contract of ``summary.json`` and more).
@@ -136,7 +147,7 @@ class SimulationResult:
         """The time series as a pandas DataFrame (columns with units in their names)."""
         import pandas as pd
 
-        return pd.DataFrame({k: self.series[k] for k in SERIES_UNITS})
+        return pd.DataFrame({k: self.series[k] for k in SERIES_UNITS if k in self.series})
 
     def to_dataset(self):
         """The time series as an xarray Dataset with ``units`` attributes and run metadata.
@@ -147,7 +158,7 @@ class SimulationResult:
         import xarray as xr
 
         data = {k: ("time", self.series[k], {"units": SERIES_UNITS[k], "long_name": SERIES_DESCRIPTIONS[k]})
-                for k in SERIES_UNITS if k != "time_s"}
+                for k in SERIES_UNITS if k != "time_s" and k in self.series}
         ds = xr.Dataset(data, coords={"time": ("time", self.series["time_s"],
                                                 {"units": "s", "long_name": SERIES_DESCRIPTIONS["time_s"]})})
         attrs: dict[str, Any] = {}
@@ -206,10 +217,12 @@ def build_result(problem: Problem, trajectory: Trajectory, options: SolverOption
     ns = problem.pack.series
     states = trajectory.states
     alg = np.empty((len(states), m.N_ALGEBRAICS))
-    m.evaluate_rows(np.ascontiguousarray(states), np.ascontiguousarray(trajectory.params), alg)
-    tc = states[:, 1 + n_rc]
-    ts = states[:, 2 + n_rc]
-    ambient = trajectory.params[:, m.H_AMBIENT]
+    params = np.array(trajectory.params, dtype=float)
+    params[:, m.H_TIME] = trajectory.times  # the ambient profile is a function of time
+    m.evaluate_rows(np.ascontiguousarray(states), params, alg)
+    tc = states[:, m.cell_temperature_index(n_rc)]
+    ts = states[:, m.sink_temperature_index(n_rc)]
+    ambient = alg[:, m.A_AMBIENT]
     current = alg[:, m.A_CURRENT]
     voltage = alg[:, m.A_VOLTAGE]
     series = {
@@ -228,7 +241,13 @@ def build_result(problem: Problem, trajectory: Trajectory, options: SolverOption
         "heat_to_ambient_W": alg[:, m.A_HEAT_AMBIENT],
         "pack_resistance_ohm": alg[:, m.A_RESISTANCE],
         "pack_emf_V": alg[:, m.A_EMF],
+        "heater_power_W": alg[:, m.A_HEATER],
+        "heat_to_coolant_W": alg[:, m.A_COOLANT],
+        "heat_radiated_W": alg[:, m.A_RADIATION],
+        "sink_to_air_conductance_W_per_K": alg[:, m.A_SINK_CONDUCTANCE],
     }
+    if problem.thermal.coolant is not None:
+        series["coolant_temperature_degC"] = _celsius(alg[:, m.A_COOLANT_OUTLET])
     summary = _summary(problem, trajectory, series, states, options.output_interval)
     stats = dict(trajectory.statistics)
     stats["wall_time_s"] = trajectory.wall_time
@@ -257,16 +276,38 @@ def _limits(problem: Problem) -> dict[str, float]:
     }
 
 
+def _soak_summary(problem: Problem, soak: Trajectory | None) -> dict[str, Any] | None:
+    """What the soak before the mission did: its end state, stop and heater energy."""
+    if soak is None:
+        return None
+    n_rc = problem.n_rc
+    end = soak.states[-1]
+    return {
+        "duration_s": float(soak.times[-1]),
+        "stop_reason": soak.stop_reason,
+        "status": soak.status,
+        "cell_temperature_end_degC": float(_celsius(end[m.cell_temperature_index(n_rc)])),
+        "sink_temperature_end_degC": float(_celsius(end[m.sink_temperature_index(n_rc)])),
+        "soc_end": float(end[0]),
+        "heater_energy_Wh": float(end[m.quadrature_index(n_rc) + m.Q_HEATER]) / JOULES_PER_WH,
+        "events": [{"time_s": float(e["time_s"]), "event": e["event"], **({"state": e["state"]} if "state" in e
+                                                                         else {})} for e in soak.events],
+    }
+
+
 def _summary(problem: Problem, trajectory: Trajectory, series: dict[str, np.ndarray],
              states: np.ndarray, output_interval: float) -> dict[str, Any]:
     n_rc = problem.n_rc
-    q = states[-1, 3 + n_rc:]
+    q = states[-1, m.quadrature_index(n_rc):]
     th = problem.thermal
     pk = problem.pack
     cell = problem.cell
     c_cells = pk.series * pk.parallel * cell.mass * cell.specific_heat
-    tc, ts = states[:, 1 + n_rc], states[:, 2 + n_rc]
-    stored = c_cells * (tc[-1] - tc[0]) + th.sink_heat_capacity * (ts[-1] - ts[0])
+    tc, ts = states[:, m.cell_temperature_index(n_rc)], states[:, m.sink_temperature_index(n_rc)]
+    tf = states[:, m.coolant_temperature_index(n_rc)]
+    c_coolant = th.coolant.heat_capacity if th.coolant is not None else 0.0
+    stored = (c_cells * (tc[-1] - tc[0]) + th.sink_heat_capacity * (ts[-1] - ts[0])
+              + c_coolant * (tf[-1] - tf[0]))
 
     battery_out, battery_in = q[m.Q_BATTERY_DISCHARGE], -q[m.Q_BATTERY_CHARGE]
     load_out, load_in = q[m.Q_LOAD_DISCHARGE], -q[m.Q_LOAD_CHARGE]
@@ -334,6 +375,13 @@ def _summary(problem: Problem, trajectory: Trajectory, series: dict[str, np.ndar
         "heat_reversible_Wh": float(q[m.Q_REVERSIBLE]) / JOULES_PER_WH,
         "heat_to_ambient_Wh": float(q[m.Q_HEAT_AMBIENT]) / JOULES_PER_WH,
         "heat_stored_Wh": float(stored) / JOULES_PER_WH,
+        "heat_to_coolant_Wh": float(q[m.Q_COOLANT]) / JOULES_PER_WH,
+        "heat_radiated_Wh": float(q[m.Q_RADIATION]) / JOULES_PER_WH,
+        "heater_energy_Wh": float(q[m.Q_HEATER]) / JOULES_PER_WH,
+        "heater_energy_from_pack_Wh": float(q[m.Q_HEATER]) / JOULES_PER_WH
+        if th.heater is not None and th.heater.from_pack else 0.0,
+        "thermostat_switches": sum(1 for e in trajectory.events if e["event"].endswith("_switch")
+                                   and e["event"] != "cv_switch"),
         "efficiency": None if efficiency is None else _finite_or_none(efficiency),
         "charge_throughput_Ah": float(q[m.Q_THROUGHPUT]) / COULOMBS_PER_AH,
         "soc_start": float(states[0, 0]),
@@ -343,8 +391,9 @@ def _summary(problem: Problem, trajectory: Trajectory, series: dict[str, np.ndar
         "biot_number": biot,
         "segments_completed": trajectory.segments_completed,
         "segments_total": len(problem.segments),
-        "events": [{"time_s": float(e["time_s"]), "event": e["event"], "origin": e["origin"]}
-                   for e in trajectory.events],
+        "events": [{"time_s": float(e["time_s"]), "event": e["event"], "origin": e["origin"],
+                    **({"state": e["state"]} if "state" in e else {})} for e in trajectory.events],
+        "soak": _soak_summary(problem, trajectory.soak),
         "warnings": warnings,
     }
     return summary

@@ -20,7 +20,7 @@ from __future__ import annotations
 
 import math
 import time as _time
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Protocol
 
 import numpy as np
@@ -28,6 +28,7 @@ import numpy as np
 from . import model as m
 from .model import Kernels, Problem
 from .profile import Segment
+from .thermal import Switch
 
 __all__ = ["BACKENDS", "SolverOptions", "Trajectory", "integrate_problem"]
 
@@ -101,7 +102,7 @@ class SolverOptions:
             return given if given is not None else self.rtol * ATOL_SCALES[name]
 
         return np.concatenate([[atol("soc")], np.full(n_rc, atol("voltage")),
-                               [atol("temperature"), atol("temperature")],
+                               [atol("temperature"), atol("temperature"), atol("temperature")],
                                np.full(m.N_QUADRATURES, atol("integral"))])
 
 
@@ -303,6 +304,7 @@ class Trajectory:
     statistics: dict[str, float] = field(default_factory=dict)
     wall_time: float = 0.0
     segments_completed: int = 0
+    soak: Trajectory | None = None
 
 
 @dataclass
@@ -355,18 +357,37 @@ def _event_setup(problem: Problem, segment: Segment, phase: _Phase) -> tuple[np.
     return np.concatenate([active, thresholds])
 
 
-def _configure(p: np.ndarray, problem: Problem, segment: Segment, phase: _Phase, cache: dict) -> None:
-    """Write the phase's mode, demand, ambient and root-function set-up into ``p``."""
+def _switches(problem: Problem) -> dict[int, Switch]:
+    """The thermostats of the problem, by their event."""
+    th = problem.thermal
+    found = {m.EV_FAN: th.fan.switch if th.fan else None, m.EV_HEATER: th.heater.switch if th.heater else None,
+             m.EV_PUMP: th.pump}
+    return {event: switch for event, switch in found.items() if switch is not None}
+
+
+def _configure(p: np.ndarray, problem: Problem, segment: Segment, phase: _Phase, cache: dict,
+               controls: dict[int, bool], ambient_table: float) -> None:
+    """Write the phase's mode, demand, ambient, thermostat states and root-function set-up into ``p``.
+
+    A segment with its own ambient temperature (a CSV row, a soak) overrides the
+    ambient profile for its duration.
+    """
     p[m.H_MODE] = phase.mode
     p[m.H_VALUE] = phase.value
     p[m.H_AMBIENT] = problem.ambient_temperature if segment.ambient_temperature is None \
         else segment.ambient_temperature
+    p[m.H_AMBIENT_TABLE] = ambient_table if segment.ambient_temperature is None else 0.0
     key = (phase.kind, phase.mode, phase.value > 0.0, segment.cv_voltage, segment.cutoff_current,
            segment.voltage_below, segment.voltage_above, segment.soc_below, segment.soc_above)
     setup = cache.get(key)
     if setup is None:
         setup = cache[key] = _event_setup(problem, segment, phase)
     p[m.H_ACTIVE:m.H_THRESHOLD + m.N_EVENTS] = setup
+    for event, switch in _switches(problem).items():
+        on = controls[event]
+        p[m.CONTROL_FLAGS[event]] = 1.0 if on else 0.0
+        p[m.H_ACTIVE + event] = 1.0
+        p[m.H_THRESHOLD + event] = switch.off_at if on else switch.on_at
 
 
 def _fired_at_root(g: np.ndarray, p: np.ndarray) -> int:
@@ -401,11 +422,17 @@ def cccv_cap(problem: Problem, segment: Segment) -> float:
     return 10.0 * problem.cell.capacity / max(per_cell, 1e-12)
 
 
-def integrate_problem(problem: Problem, options: SolverOptions) -> Trajectory:
+def integrate_problem(problem: Problem, options: SolverOptions, initial_state: np.ndarray | None = None) -> Trajectory:
     """Integrate a mission from t = 0 until its profile ends or a stop event fires.
 
     Never raises for a solver failure: the trajectory up to the failure comes
     back with ``status = "failed"`` and the solver's message.
+
+    Soak segments (``problem.soak``) are integrated first, from the problem's
+    initial state; the mission then starts at t = 0 from the state the soak
+    ended in (integrals reset), and the soak's own trajectory is kept in
+    ``Trajectory.soak``. Thermostats start on when the cell temperature is
+    already past their on threshold, else off, and switch at located events.
 
     Root finding: each phase starts with :func:`thermoelec.model.start_check`
     (events already true, which root finding cannot see). A phase in which every
@@ -416,7 +443,13 @@ def integrate_problem(problem: Problem, options: SolverOptions) -> Trajectory:
     """
     if options.backend not in BACKENDS:
         raise ValueError(f"unknown solver backend {options.backend!r}; valid: {', '.join(BACKENDS)}")
+    soak = None
+    if problem.soak:
+        soak = integrate_problem(replace(problem, segments=problem.soak, soak=()), options, initial_state)
+        initial_state = soak.states[-1].copy()
+        initial_state[m.quadrature_index(problem.n_rc):] = 0.0
     p = m.pack_parameters(problem)
+    ambient_table = float(p[m.H_AMBIENT_TABLE])
     kernels = Kernels(p, m.n_states(problem.n_rc))
     backend = BACKENDS[options.backend](kernels, options, problem.n_rc)
     started = _time.perf_counter()
@@ -429,7 +462,9 @@ def integrate_problem(problem: Problem, options: SolverOptions) -> Trajectory:
     events: list[dict] = []
 
     t = 0.0
-    y = problem.initial_state()
+    y = problem.initial_state() if initial_state is None else np.array(initial_state, dtype=float)
+    cell_t = y[m.cell_temperature_index(problem.n_rc)]
+    controls = {event: switch.initially_on(cell_t) for event, switch in _switches(problem).items()}
     stop_reason = "end_of_profile"
     status, message = "ok", ""
     segments_completed = 0
@@ -442,7 +477,8 @@ def integrate_problem(problem: Problem, options: SolverOptions) -> Trajectory:
         ended_by_time = False
         while True:
             phase = phases[k]
-            _configure(p, problem, segment, phase, setups)
+            _configure(p, problem, segment, phase, setups, controls, ambient_table)
+            p[m.H_TIME] = t
             code = kernels.start_check(y, START_PROBE, IMPOSED_VOLTAGE_SLACK)
             phase_params.append(p.copy())
             phase_id = len(phase_params) - 1
@@ -470,8 +506,12 @@ def integrate_problem(problem: Problem, options: SolverOptions) -> Trajectory:
                     ended_by_time = True
                     break
                 fired = _fired_at_root(kernels.event_values(y), p)
-            events.append({"time_s": t, "event": m.EVENT_NAMES[fired], "segment": seg_index,
-                           "origin": segment.origin})
+            event = {"time_s": t, "event": m.EVENT_NAMES[fired], "segment": seg_index, "origin": segment.origin}
+            events.append(event)
+            if fired in controls:
+                controls[fired] = not controls[fired]
+                event["state"] = "on" if controls[fired] else "off"
+                continue  # the same phase goes on with the thermostat switched
             if fired in STOP_EVENTS:
                 stop_reason = STOP_EVENTS[fired]
                 break
@@ -490,5 +530,5 @@ def integrate_problem(problem: Problem, options: SolverOptions) -> Trajectory:
         times=np.asarray(times), states=np.asarray(states), params=params,
         phase_index=np.asarray(row_phase), stop_reason=stop_reason, status=status, message=message,
         events=events, statistics=backend.statistics(), wall_time=_time.perf_counter() - started,
-        segments_completed=segments_completed,
+        segments_completed=segments_completed, soak=soak,
     )
