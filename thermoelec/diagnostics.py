@@ -10,6 +10,7 @@ thermal conductivity 0.2-30 W/(m K) (radial to axial).
 
 from __future__ import annotations
 
+import math
 from collections.abc import Iterator
 from typing import Any
 
@@ -17,12 +18,13 @@ import numpy as np
 
 from .cell import Cell, ResistanceLaw, arrhenius_factor
 from .model import Problem
-from .thermal import LUMPED_BIOT_LIMIT, biot_number
+from .thermal import AIR_PRANDTL, AIR_TEMPERATURE, LUMPED_BIOT_LIMIT, biot_number
 
 __all__ = [
     "PLAUSIBLE_RANGES",
     "arrhenius_equivalent_time",
     "biot_check",
+    "correlation_warnings",
     "plausibility_warnings",
     "resolution_warnings",
     "stress_indicators",
@@ -127,7 +129,7 @@ def stress_indicators(problem: Problem, times: np.ndarray, current: np.ndarray,
         indicators[f"time_charging_below_{label}_s"] = time_above(times, cold, -threshold, charging)
     indicators.update({
         "c_rate_discharge_max": float(max(cell_current.max(), 0.0) / capacity_ah),
-        "c_rate_charge_max": float(max(-cell_current.min(), 0.0) / capacity_ah),
+        "c_rate_charge_max": float(max(-cell_current.min(), 0.0) / capacity_ah) + 0.0,  # no -0.0
         "ageing_activation_energy_kJ_per_mol": stress.activation_energy / 1e3,
         "ageing_reference_temperature_degC": _degc(stress.reference_temperature),
         "equivalent_time_at_reference_s": equivalent,
@@ -241,3 +243,62 @@ def resolution_warnings(problem: Problem, output_interval: float) -> list[str]:
                 f"({tau:.3g} s): the reported series skips the fast voltage relaxation between rows; stops and "
                 "events are still located exactly, but give an interval below the time constant to see it"]
     return []
+
+
+#: Validity ranges of the convection correlations (Incropera et al., 6th ed., from memory):
+#: the quantity checked, its range, and where the range is stated.
+CORRELATION_RANGES: dict[str, tuple[str, float, float, str]] = {
+    "cylinder_crossflow": ("Re Pr", 0.2, math.inf, "Churchill-Bernstein, Eq. 7.54"),
+    "flat_plate": ("Re", 0.0, 1e8, "flat plate, Eqs. 7.30 and 7.38"),
+    "horizontal_cylinder": ("Ra", 0.0, 1e12, "Churchill-Chu, Eq. 9.34"),
+    "horizontal_plate_buoyant": ("Ra", 1e4, 1e11, "McAdams, Eqs. 9.30-9.31"),
+    "horizontal_plate_other": ("Ra", 1e5, 1e10, "McAdams, Eq. 9.32"),
+}
+#: Below this sink-to-air difference [K] free convection carries next to nothing, so its range is not checked.
+FREE_CONVECTION_MIN_DIFFERENCE = 0.5
+
+
+def _range_warning(name: str, values: np.ndarray) -> list[str]:
+    label, low, high, source = CORRELATION_RANGES[name]
+    if values.size == 0:
+        return []
+    lo, hi = float(values.min()), float(values.max())
+    if lo >= low and hi <= high:
+        return []
+    return [f"the {name.replace('_', ' ')} correlation ({source}) is valid for {low:.3g} <= {label} <= {high:.3g}, "
+            f"but the run reached {label} = {lo:.3g}..{hi:.3g}: its coefficient is extrapolated there"]
+
+
+def correlation_warnings(problem: Problem, series: dict[str, np.ndarray]) -> list[str]:
+    """Warn where a convection correlation was used outside its validity range, or air properties were held.
+
+    Free-convection ranges are checked only where the sink and the air differ by
+    more than :data:`FREE_CONVECTION_MIN_DIFFERENCE`.
+    """
+    conv = problem.thermal.convection
+    if conv is None:
+        return []
+    warnings: list[str] = []
+    ts = series["sink_temperature_degC"] + KELVIN_AT_0_DEGC
+    ta = series["ambient_temperature_degC"] + KELVIN_AT_0_DEGC
+    film = 0.5 * (ts + ta)
+    if film.min() < AIR_TEMPERATURE[0] or film.max() > AIR_TEMPERATURE[-1]:
+        warnings.append(f"air film temperature {_degc(film.min()):.1f}..{_degc(film.max()):.1f} degC leaves the "
+                        f"air property table ({_degc(AIR_TEMPERATURE[0]):.0f}..{_degc(AIR_TEMPERATURE[-1]):.0f} "
+                        "degC): properties held at its edge")
+    reynolds, rayleigh = series["reynolds_number"], series["rayleigh_number"]
+    pr = np.interp(film, AIR_TEMPERATURE, AIR_PRANDTL)
+    flowing = reynolds > 0
+    if conv.forced == "cylinder_crossflow":
+        warnings += _range_warning("cylinder_crossflow", (reynolds * pr)[flowing])
+    elif conv.forced == "flat_plate":
+        warnings += _range_warning("flat_plate", reynolds[flowing])
+    free = np.abs(ts - ta) > FREE_CONVECTION_MIN_DIFFERENCE
+    if conv.natural == "horizontal_cylinder":
+        warnings += _range_warning("horizontal_cylinder", rayleigh[free])
+    elif conv.natural in ("horizontal_plate_up", "horizontal_plate_down"):
+        hot = ts > ta
+        buoyant = hot if conv.natural == "horizontal_plate_up" else ~hot
+        warnings += _range_warning("horizontal_plate_buoyant", rayleigh[free & buoyant])
+        warnings += _range_warning("horizontal_plate_other", rayleigh[free & ~buoyant])
+    return warnings

@@ -54,6 +54,7 @@ _bernardi = cellphys.bernardi_heat
 _cell_rate = thermphys.cell_node_rate
 _sink_rate = thermphys.sink_node_rate
 _h_conv = thermphys.convection_coefficient
+_conv_numbers = thermphys.convection_numbers
 _radiation = thermphys.radiation_heat
 _effectiveness = thermphys.coolant_effectiveness
 _aux_voltage = cellphys.terminal_voltage_with_auxiliary_load
@@ -102,10 +103,11 @@ N_QUADRATURES = 11
 A_CURRENT, A_VOLTAGE, A_CELL_VOLTAGE, A_OCV, A_EMF, A_RESISTANCE = 0, 1, 2, 3, 4, 5
 A_HEAT, A_REVERSIBLE, A_HEAT_AMBIENT, A_ENTROPIC, A_R0, A_POWER_MARGIN = 6, 7, 8, 9, 10, 11
 A_AMBIENT, A_HEATER, A_COOLANT, A_RADIATION, A_SINK_CONDUCTANCE, A_COOLANT_OUTLET = 12, 13, 14, 15, 16, 17
-N_ALGEBRAICS = 18
+A_REYNOLDS, A_RAYLEIGH = 18, 19
+N_ALGEBRAICS = 20
 ALGEBRAIC_NAMES = ("current", "voltage", "cell_voltage", "ocv", "emf", "resistance", "heat",
                    "reversible_heat", "heat_to_ambient", "entropic", "r0", "power_margin", "ambient",
-                   "heater", "coolant", "radiation", "sink_conductance", "coolant_outlet")
+                   "heater", "coolant", "radiation", "sink_conductance", "coolant_outlet", "reynolds", "rayleigh")
 
 # ---- header of the flat parameter vector ---------------------------------------
 H_MODE, H_VALUE, H_AMBIENT = 0, 1, 2
@@ -387,6 +389,7 @@ def evaluate(y, p, ydot, alg):
     # sink to air: a fixed conductance or a correlation, plus a running fan
     g_sa = p[H_GSA]
     fan_on = p[H_FAN_ON] == 1.0
+    speed = 0.0
     if p[H_FORCED] != 0.0 or p[H_NATURAL] != 0.0:
         speed = p[H_FAN_SPEED] if fan_on and p[H_FAN_SPEED] >= 0.0 else p[H_AIR_SPEED]
         g_sa = _h_conv(int(p[H_FORCED]), int(p[H_NATURAL]), p[H_CONV_LENGTH], speed, ts, ta) * p[H_CONV_AREA]
@@ -450,6 +453,13 @@ def evaluate(y, p, ydot, alg):
     alg[A_RADIATION] = radiated
     alg[A_SINK_CONDUCTANCE] = g_sa
     alg[A_COOLANT_OUTLET] = outlet
+    if p[H_FORCED] != 0.0 or p[H_NATURAL] != 0.0:
+        numbers = _conv_numbers(p[H_CONV_LENGTH], speed, ts, ta)
+        alg[A_REYNOLDS] = numbers[0]
+        alg[A_RAYLEIGH] = numbers[1]
+    else:
+        alg[A_REYNOLDS] = 0.0
+        alg[A_RAYLEIGH] = 0.0
 
 
 @_jit

@@ -51,6 +51,8 @@ SERIES_UNITS: dict[str, str] = {
     "heat_to_coolant_W": "W",
     "heat_radiated_W": "W",
     "sink_to_air_conductance_W_per_K": "W/K",
+    "reynolds_number": "1",
+    "rayleigh_number": "1",
 }
 SERIES_DESCRIPTIONS: dict[str, str] = {
     "time_s": "time since the mission start",
@@ -73,6 +75,8 @@ SERIES_DESCRIPTIONS: dict[str, str] = {
     "heat_to_coolant_W": "heat carried away by the coolant",
     "heat_radiated_W": "net radiation from the sink to the surroundings (part of heat_to_ambient_W)",
     "sink_to_air_conductance_W_per_K": "sink-to-air convective conductance h*A (with a running fan)",
+    "reynolds_number": "Reynolds number of the air flow over the sink (convection correlations only)",
+    "rayleigh_number": "Rayleigh number of free convection at the sink (convection correlations only)",
 }
 
 #: Names of the demand modes in the order of their codes in the model.
@@ -248,6 +252,9 @@ def build_result(problem: Problem, trajectory: Trajectory, options: SolverOption
     }
     if problem.thermal.coolant is not None:
         series["coolant_temperature_degC"] = _celsius(alg[:, m.A_COOLANT_OUTLET])
+    if problem.thermal.convection is not None:
+        series["reynolds_number"] = alg[:, m.A_REYNOLDS]
+        series["rayleigh_number"] = alg[:, m.A_RAYLEIGH]
     summary = _summary(problem, trajectory, series, states, options.output_interval)
     stats = dict(trajectory.statistics)
     stats["wall_time_s"] = trajectory.wall_time
@@ -343,6 +350,7 @@ def _summary(problem: Problem, trajectory: Trajectory, series: dict[str, np.ndar
     warnings += biot_warnings
     warnings += diagnostics.plausibility_warnings(cell)
     warnings += diagnostics.resolution_warnings(problem, output_interval)
+    warnings += diagnostics.correlation_warnings(problem, series)
 
     summary: dict[str, Any] = {
         "scenario": problem.name,
@@ -362,7 +370,7 @@ def _summary(problem: Problem, trajectory: Trajectory, series: dict[str, np.ndar
         "temperature_margin_K": float(problem.limits.cell_temperature_max - tc.max()),
         "current_max_A": float(np.abs(current).max()),
         "discharge_current_max_A": float(max(current.max(), 0.0)),
-        "charge_current_max_A": float(max(-current.min(), 0.0)),
+        "charge_current_max_A": float(max(-current.min(), 0.0)) + 0.0,  # no -0.0
         "power_max_W": float(series["power_W"].max()),
         "energy_battery_Wh": energy_battery_wh,
         "energy_load_Wh": energy_load_wh,

@@ -16,7 +16,7 @@ import math
 import re
 import tomllib
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from functools import lru_cache
 from pathlib import Path
 from typing import Annotated, Any, Literal
@@ -28,7 +28,16 @@ from .cell import Cell, CellGeometry, Pack, RCPair, ResistanceLaw
 from .model import Limits, Problem, StressSettings
 from .profile import Segment, expand_repeats, segments_from_series
 from .solve import BACKENDS, SolverOptions
-from .thermal import ThermalNetwork, convection_conductance
+from .thermal import (
+    Convection,
+    Coolant,
+    Fan,
+    Heater,
+    Radiation,
+    Switch,
+    ThermalNetwork,
+    convection_conductance,
+)
 
 __all__ = ["Scenario", "ScenarioError", "apply_override", "load_scenario", "scenario_from_dict"]
 
@@ -147,6 +156,8 @@ Coefficient = Annotated[float, _quantity("W/m^2/K")]
 Area = Annotated[float, _quantity("m^2")]
 Energy = Annotated[float, _quantity("J/mol")]
 Length = Annotated[float, _quantity("m")]
+Speed = Annotated[float, _quantity("m/s")]
+MassFlow = Annotated[float, _quantity("kg/s")]
 Conductivity = Annotated[float, _quantity("W/m/K")]
 Capacitance = Annotated[float, _quantity("F")]
 Duration = Annotated[float, _quantity("s")]
@@ -369,13 +380,126 @@ class PackSpec(_Section):
 
 
 class ConvectionSpec(_Section):
-    coefficient: Coefficient
+    """A given coefficient, or correlations from geometry and air speed."""
+
     area: Area
+    coefficient: Coefficient | None = None
+    forced: Literal["cylinder_crossflow", "flat_plate"] | None = None
+    natural: Literal["horizontal_cylinder", "vertical_plate", "horizontal_plate_up",
+                     "horizontal_plate_down"] | None = None
+    length: Length | None = None
+    air_speed: Speed = 0.0
 
     @model_validator(mode="after")
     def _convection(self):
-        _positive(self.coefficient, "coefficient", allow_zero=True)
         _positive(self.area, "area", allow_zero=True)
+        if self.coefficient is not None:
+            _positive(self.coefficient, "coefficient", allow_zero=True)
+            _check(self.forced is None and self.natural is None and self.length is None,
+                   "give coefficient, or forced / natural correlations with a length, not both", "coefficient")
+            _check(self.air_speed == 0.0, "air_speed goes with a forced correlation, not a coefficient",
+                   "air_speed")
+            return self
+        _check(self.forced is not None or self.natural is not None,
+               "give coefficient, or a forced and / or natural correlation (with length)", "coefficient")
+        _check(self.length is not None, "a correlation needs length (diameter, plate length or height)", "length")
+        _positive(self.length, "length")
+        _positive(self.air_speed, "air_speed", allow_zero=True)
+        _check(self.forced is not None or self.air_speed == 0.0, "air_speed needs a forced correlation",
+               "air_speed")
+        return self
+
+    def model(self) -> Convection | None:
+        if self.coefficient is not None:
+            return None
+        return Convection(self.area, float(self.length), self.forced, self.natural, self.air_speed)
+
+
+class RadiationSpec(_Section):
+    emissivity: Dimensionless
+    area: Area
+    surroundings_temperature: Temperature | None = None
+
+    @model_validator(mode="after")
+    def _radiation(self):
+        _check(0.0 < self.emissivity <= 1.0, f"emissivity must lie within 0..1, got {self.emissivity:g}",
+               "emissivity")
+        _positive(self.area, "area")
+        return self
+
+
+class CoolantSpec(_Section):
+    """A cold plate on the sink: a coolant flow through a plate of conductance UA, or a given conductance."""
+
+    inlet_temperature: Temperature
+    flow_rate: MassFlow | None = None
+    specific_heat: SpecificHeat = 4179.0  # water near 300 K (Incropera et al., 6th ed., Table A.6, from memory)
+    plate_conductance: Conductance | None = None
+    conductance: Conductance | None = None
+    heat_capacity: HeatCapacity = 0.0
+
+    @model_validator(mode="after")
+    def _coolant(self):
+        flow = self.flow_rate is not None
+        _check(flow != (self.conductance is not None),
+               "give flow_rate and plate_conductance (a coolant flow), or conductance (to the inlet), not both",
+               "conductance" if flow else "flow_rate")
+        if flow:
+            _positive(self.flow_rate, "flow_rate")
+            _check(self.plate_conductance is not None, "a coolant flow needs plate_conductance (UA of the plate)",
+                   "plate_conductance")
+            _positive(self.plate_conductance, "plate_conductance")
+        else:
+            _positive(self.conductance, "conductance", allow_zero=True)
+            _check(self.heat_capacity == 0.0, "heat_capacity needs a coolant flow (flow_rate)", "heat_capacity")
+        _positive(self.specific_heat, "specific_heat")
+        _positive(self.heat_capacity, "heat_capacity", allow_zero=True)
+        return self
+
+    def model(self) -> Coolant:
+        rate = (self.flow_rate or 0.0) * self.specific_heat
+        return Coolant(self.inlet_temperature, rate, self.plate_conductance or 0.0, self.conductance or 0.0,
+                       self.heat_capacity)
+
+
+class CoolingSwitchSpec(_Section):
+    on_above: Temperature
+    off_below: Temperature
+
+    @model_validator(mode="after")
+    def _switch(self):
+        _check(self.off_below < self.on_above, "off_below must be below on_above (the hysteresis band)",
+               "off_below")
+        return self
+
+    def switch(self) -> Switch:
+        return Switch(self.on_above, self.off_below)
+
+
+class FanSpec(CoolingSwitchSpec):
+    air_speed: Speed | None = None
+    conductance: Conductance = 0.0
+
+    @model_validator(mode="after")
+    def _fan(self):
+        _check(self.air_speed is not None or self.conductance > 0.0,
+               "a fan needs air_speed (with a forced convection correlation) or conductance", "air_speed")
+        _positive(self.air_speed, "air_speed", allow_zero=True)
+        _positive(self.conductance, "conductance", allow_zero=True)
+        return self
+
+
+class HeaterSpec(_Section):
+    power: Power
+    on_below: Temperature
+    off_above: Temperature
+    source: Literal["pack", "external"] = "external"
+
+    @model_validator(mode="after")
+    def _heater(self):
+        _positive(self.power, "power")
+        _check(self.on_below < self.off_above, "on_below must be below off_above (the hysteresis band)",
+               "on_below")
         return self
 
 
@@ -388,6 +512,12 @@ class ThermalSpec(_Section):
     sink_to_ambient: Conductance | None = None
     convection: ConvectionSpec | None = None
     cell_to_ambient: Conductance = 0.0
+    ambient_profile: str | None = None
+    radiation: RadiationSpec | None = None
+    coolant: CoolantSpec | None = None
+    fan: FanSpec | None = None
+    heater: HeaterSpec | None = None
+    pump: CoolingSwitchSpec | None = None
 
     @model_validator(mode="after")
     def _thermal(self):
@@ -399,19 +529,39 @@ class ThermalSpec(_Section):
         for key in ("ambient_temperature", "initial_cell_temperature", "initial_sink_temperature"):
             value = getattr(self, key)
             _check(value is None or value > 0, f"{key} is below absolute zero")
+        _check(self.ambient_profile is None or self.ambient_temperature is None,
+               "give ambient_temperature or ambient_profile, not both", "ambient_profile")
+        _check(self.pump is None or self.coolant is not None, "a pump needs [thermal.coolant]", "pump")
+        if self.fan is not None and self.fan.air_speed is not None:
+            _check(self.convection is not None and self.convection.forced is not None,
+                   "a fan's air_speed needs [thermal.convection] with a forced correlation (or give its "
+                   "conductance instead)", "fan")
         return self
 
     def network(self) -> ThermalNetwork:
-        g_sa = self.sink_to_ambient if self.convection is None else \
-            convection_conductance(self.convection.coefficient, self.convection.area)
-        return ThermalNetwork(self.sink_heat_capacity, self.cell_to_sink, g_sa, self.cell_to_ambient)
+        convection = self.convection.model() if self.convection is not None else None
+        if self.convection is None:
+            g_sa = self.sink_to_ambient
+        elif convection is None:
+            g_sa = convection_conductance(self.convection.coefficient, self.convection.area)
+        else:
+            g_sa = 0.0
+        fan = None if self.fan is None else Fan(self.fan.switch(), self.fan.air_speed, self.fan.conductance)
+        heater = None if self.heater is None else Heater(Switch(self.heater.on_below, self.heater.off_above),
+                                                         self.heater.power, self.heater.source == "pack")
+        radiation = None if self.radiation is None else Radiation(
+            self.radiation.emissivity, self.radiation.area, self.radiation.surroundings_temperature)
+        return ThermalNetwork(self.sink_heat_capacity, self.cell_to_sink, g_sa, self.cell_to_ambient,
+                              convection=convection, radiation=radiation,
+                              coolant=None if self.coolant is None else self.coolant.model(),
+                              fan=fan, heater=heater, pump=None if self.pump is None else self.pump.switch())
 
 
 _SEGMENT_VALUE_UNITS = {"current": "A", "power": "W", "resistance": "ohm", "voltage": "V"}
 
 
 class SegmentSpec(_Section):
-    mode: Literal["current", "power", "resistance", "voltage", "rest", "cccv"] | None = None
+    mode: Literal["current", "power", "resistance", "voltage", "rest", "cccv", "soak"] | None = None
     value: Any = None
     duration: Duration | None = None
     voltage_below: Voltage | None = None
@@ -422,16 +572,21 @@ class SegmentSpec(_Section):
     voltage: Voltage | None = None
     cutoff_current: Current | None = None
     file: str | None = None
+    ambient_temperature: Temperature | None = None
 
     @model_validator(mode="after")
     def _segment(self):
         _positive(self.duration, "duration")
+        _check(self.ambient_temperature is None or self.ambient_temperature > 0,
+               "ambient_temperature is below absolute zero", "ambient_temperature")
         if self.file is not None:
             _check(self.mode is None and self.value is None and self.duration is None,
                    "a file segment takes its mode, values and times from the file: drop mode, value and duration")
             _check(not self.file.strip() == "", "file is empty")
+            _check(self.ambient_temperature is None, "a file segment takes its ambient from the file's "
+                   "ambient_temperature_degC column", "ambient_temperature")
             return self
-        _check(self.mode is not None, "give mode (current, power, resistance, voltage, rest, cccv) or file")
+        _check(self.mode is not None, "give mode (current, power, resistance, voltage, rest, cccv, soak) or file")
         if self.mode == "cccv":
             _check(self.value is None, "a cccv segment takes current, voltage and cutoff_current, not value")
             _check(self.current is not None and self.voltage is not None and self.cutoff_current is not None,
@@ -446,8 +601,11 @@ class SegmentSpec(_Section):
         for key in ("current", "voltage", "cutoff_current"):
             _check(getattr(self, key) is None, f"{key} belongs to a cccv segment; use value for mode {self.mode}")
         _check(self.duration is not None, f"a {self.mode} segment needs a duration", "duration")
-        if self.mode == "rest":
-            _check(self.value is None, "a rest segment takes no value")
+        if self.mode in ("rest", "soak"):
+            _check(self.value is None, f"a {self.mode} segment takes no value")
+            if self.mode == "soak":
+                for key in ("voltage_below", "voltage_above", "soc_below", "soc_above"):
+                    _check(getattr(self, key) is None, "a soak segment takes no end conditions", key)
             return self
         _check(self.value is not None, f"a {self.mode} segment needs a value", "value")
         unit = _SEGMENT_VALUE_UNITS[self.mode]
@@ -468,6 +626,11 @@ class ProfileSpec(_Section):
     @model_validator(mode="after")
     def _profile(self):
         _check(len(self.segment) > 0, "the profile has no segments")
+        modes = [seg.mode for seg in self.segment]
+        soaks = [i for i, mode in enumerate(modes) if mode == "soak"]
+        _check(soaks == list(range(len(soaks))), "soak segments come first, before the mission's segments",
+               "segment")
+        _check(len(soaks) < len(modes), "the profile has only soak segments: add the mission", "segment")
         return self
 
 
@@ -784,6 +947,47 @@ def read_profile_csv(path: Path, key: str) -> SeriesProfile:
     return SeriesProfile(path, mode, time, demand, ambient)
 
 
+def read_ambient_csv(path: Path, key: str) -> tuple[np.ndarray, np.ndarray]:
+    """An ambient profile: columns ``time_s`` and ``ambient_temperature_degC``, linear between rows [s, K]."""
+    import pandas as pd
+
+    name = str(path)
+    if not path.is_file():
+        raise ScenarioError(name, key, "ambient profile file not found")
+    try:
+        frame = pd.read_csv(path, comment="#", skipinitialspace=True)
+    except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
+        raise ScenarioError(name, key, f"not a readable CSV file: {str(exc).strip()}") from None
+    frame.columns = [str(c).strip() for c in frame.columns]
+    for column in ("time_s", _CSV_AMBIENT):
+        if column not in frame.columns:
+            raise ScenarioError(name, column, f"column {column} is missing (columns: {', '.join(frame.columns)})")
+    extra = [c for c in frame.columns if c not in ("time_s", _CSV_AMBIENT)]
+    if extra:
+        raise ScenarioError(name, extra[0], f"unknown column (valid: time_s, {_CSV_AMBIENT})")
+    arrays = []
+    for column in ("time_s", _CSV_AMBIENT):
+        values = pd.to_numeric(frame[column], errors="coerce").to_numpy(dtype=float)
+        bad = np.flatnonzero(~np.isfinite(values))
+        if bad.size:
+            row = int(bad[0])
+            raise ScenarioError(name, column, f"row {row + 1} (line {row + 2}): {frame[column].iloc[row]!r} is "
+                                "not a finite number")
+        arrays.append(values)
+    time, ambient = arrays
+    if len(time) < 2:
+        raise ScenarioError(name, "time_s", "an ambient profile needs at least two rows")
+    steps = np.diff(time)
+    if (steps <= 0).any():
+        row = int(np.flatnonzero(steps <= 0)[0]) + 1
+        raise ScenarioError(name, "time_s", f"time must be strictly increasing: row {row + 1} (line {row + 2}) "
+                            f"has {time[row]:g} s after {time[row - 1]:g} s")
+    kelvin = ambient + KELVIN_AT_0_DEGC
+    if (kelvin <= 0).any():
+        raise ScenarioError(name, _CSV_AMBIENT, "temperature below absolute zero")
+    return time, kelvin
+
+
 # ---------------------------------------------------------------------------
 # The scenario object
 # ---------------------------------------------------------------------------
@@ -848,6 +1052,8 @@ def _validate(data: dict, source: str, base_dir: Path, text: str | None, overrid
 
 
 def _check_profile_files(scenario: Scenario) -> None:
+    if scenario.spec.thermal.ambient_profile is not None:
+        read_ambient_csv(scenario.base_dir / scenario.spec.thermal.ambient_profile, "thermal.ambient_profile")
     for i, seg in enumerate(scenario.spec.profile.segment):
         if seg.file is not None:
             read_profile_csv(scenario.base_dir / seg.file, f"profile.segment[{i + 1}].file")
@@ -896,9 +1102,13 @@ def scenario_from_dict(data: Mapping[str, Any], base_dir: str | Path = ".", sour
 # ---------------------------------------------------------------------------
 
 
-def _segment_from_spec(spec: SegmentSpec, origin: str) -> Segment:
+def _segment_from_spec(spec: SegmentSpec, origin: str, default_ambient: float | None) -> Segment:
     common = dict(voltage_below=spec.voltage_below, voltage_above=spec.voltage_above,
-                  soc_below=spec.soc_below, soc_above=spec.soc_above, origin=origin)
+                  soc_below=spec.soc_below, soc_above=spec.soc_above, origin=origin,
+                  ambient_temperature=spec.ambient_temperature)
+    if spec.mode == "soak":
+        common["ambient_temperature"] = spec.ambient_temperature or default_ambient
+        return Segment("rest", 0.0, spec.duration, **common)
     if spec.mode == "cccv":
         return Segment("cccv", spec.current, spec.duration if spec.duration is not None else math.inf,
                        cv_voltage=spec.voltage, cutoff_current=spec.cutoff_current, **common)
@@ -911,7 +1121,13 @@ def build_problem(scenario: Scenario) -> Problem:
     """Convert a validated scenario into an SI :class:`Problem` (reads the CSV profiles)."""
     spec = scenario.spec
     segments: list[Segment] = []
+    soak: list[Segment] = []
     first_ambient: float | None = None
+    ambient_profile = None
+    if spec.thermal.ambient_profile is not None:
+        ambient_profile = read_ambient_csv(scenario.base_dir / spec.thermal.ambient_profile,
+                                           "thermal.ambient_profile")
+        first_ambient = float(ambient_profile[1][0])
     for i, seg in enumerate(spec.profile.segment):
         key = f"profile.segment[{i + 1}]"
         if seg.file is not None:
@@ -919,14 +1135,20 @@ def build_problem(scenario: Scenario) -> Problem:
             if first_ambient is None and series.ambient is not None:
                 first_ambient = float(series.ambient[0])
             segments += segments_from_series(series.time, series.mode, series.demand, series.ambient, seg.file)
+        elif seg.mode == "soak":
+            soak.append(_segment_from_spec(seg, key, spec.thermal.ambient_temperature or first_ambient))
         else:
-            segments.append(_segment_from_spec(seg, key))
+            segments.append(_segment_from_spec(seg, key, None))
     ambient = spec.thermal.ambient_temperature
     if ambient is None:
         if first_ambient is None:
             raise ScenarioError(scenario.source, "thermal.ambient_temperature",
-                                "required unless a profile file gives the column " + _CSV_AMBIENT)
+                                "required unless thermal.ambient_profile or a profile file gives the column "
+                                + _CSV_AMBIENT)
         ambient = first_ambient
+    for i, seg in enumerate(soak):
+        if seg.ambient_temperature is None:
+            soak[i] = replace(seg, ambient_temperature=ambient)
     cell_spec = spec.cell
     ocv = cell_spec.ocv
     cell = Cell(
@@ -939,7 +1161,9 @@ def build_problem(scenario: Scenario) -> Problem:
         geometry=cell_spec.geometry(),
     )
     pack = Pack(spec.pack.series, spec.pack.parallel, spec.pack.interconnect_resistance)
-    start_ambient = segments[0].ambient_temperature if segments[0].ambient_temperature is not None else ambient
+    # before a soak the pack sits at the scenario's ambient; without one, at the first segment's
+    first = segments[0]
+    start_ambient = ambient if soak or first.ambient_temperature is None else first.ambient_temperature
     t_cell = spec.thermal.initial_cell_temperature or start_ambient
     t_sink = spec.thermal.initial_sink_temperature or t_cell
     return Problem(
@@ -949,5 +1173,6 @@ def build_problem(scenario: Scenario) -> Problem:
         initial_cell_temperature=t_cell, initial_sink_temperature=t_sink,
         limits=Limits(spec.limits.cell_temperature_max, spec.limits.charge_temperature_min),
         name=spec.scenario.name, stress=spec.stress.settings(),
+        ambient_profile=ambient_profile, soak=tuple(soak),
     )
 
