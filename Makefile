@@ -43,6 +43,9 @@ demo: $(STAMP)
 	@echo "== the e-bike round compared: summer against a winter morning"
 	@$(BIN)/thermoelec compare scenarios/ebike_route.toml --out $(DEMO)/ebike-compare
 	@echo
+	@echo "== a warehouse robot shift: still air, a fan, a cold plate, and a freezer aisle with a heater"
+	@$(BIN)/thermoelec compare scenarios/robot_cooling.toml --out $(DEMO)/robot-cooling
+	@echo
 	@echo "open $(DEMO)/*/report.html in a browser for the figures and the verdicts"
 
 bench: $(STAMP)

@@ -81,6 +81,48 @@ SCENARIO_CASES = [
      "solver"),
     ("bool-as-quantity", 'mass = "0.045 kg"', "mass = true", "cell.mass"),
     ("pack-zero-series", "[thermal]", "[pack]\nseries = 0\n[thermal]", "pack.series"),
+    ("geometry-half-cylinder", 'specific_heat = "950 J/kg/K"', 'specific_heat = "950 J/kg/K"\ndiameter = "21 mm"',
+     "cell.length"),
+    ("geometry-both-shapes", 'specific_heat = "950 J/kg/K"',
+     'specific_heat = "950 J/kg/K"\ndiameter = "21 mm"\nlength = "70 mm"\nthickness = "5 mm"', "cell"),
+    ("conductivity-without-geometry", 'specific_heat = "950 J/kg/K"',
+     'specific_heat = "950 J/kg/K"\nthermal_conductivity = "0.5 W/m/K"', "cell.thermal_conductivity"),
+    ("correlation-without-length", 'sink_to_ambient = "0.3 W/K"',
+     '[thermal.convection]\nnatural = "vertical_plate"\narea = "0.05 m^2"', "thermal.convection.length"),
+    ("correlation-unknown", 'sink_to_ambient = "0.3 W/K"',
+     '[thermal.convection]\nnatural = "sphere"\nlength = 0.1\narea = 0.05', "thermal.convection.natural"),
+    ("air-speed-without-forced", 'sink_to_ambient = "0.3 W/K"',
+     '[thermal.convection]\nnatural = "vertical_plate"\nlength = 0.1\narea = 0.05\nair_speed = "2 m/s"',
+     "thermal.convection.air_speed"),
+    ("emissivity-above-one", 'sink_to_ambient = "0.3 W/K"',
+     'sink_to_ambient = "0.3 W/K"\n[thermal.radiation]\nemissivity = 1.3\narea = 0.05',
+     "thermal.radiation.emissivity"),
+    ("fan-thresholds-reversed", 'sink_to_ambient = "0.3 W/K"',
+     'sink_to_ambient = "0.3 W/K"\n[thermal.fan]\non_above = "30 degC"\noff_below = "35 degC"\nconductance = 1',
+     "thermal.fan.off_below"),
+    ("fan-nothing-to-do", 'sink_to_ambient = "0.3 W/K"',
+     'sink_to_ambient = "0.3 W/K"\n[thermal.fan]\non_above = "35 degC"\noff_below = "30 degC"',
+     "thermal.fan.air_speed"),
+    ("heater-wrong-unit", 'sink_to_ambient = "0.3 W/K"',
+     'sink_to_ambient = "0.3 W/K"\n[thermal.heater]\npower = "20 A"\non_below = "0 degC"\noff_above = "5 degC"',
+     "thermal.heater.power"),
+    ("heater-source-unknown", 'sink_to_ambient = "0.3 W/K"',
+     'sink_to_ambient = "0.3 W/K"\n[thermal.heater]\npower = 20\non_below = 0\noff_above = 5\nsource = "sun"',
+     "thermal.heater.source"),
+    ("pump-without-coolant", 'sink_to_ambient = "0.3 W/K"',
+     'sink_to_ambient = "0.3 W/K"\n[thermal.pump]\non_above = "35 degC"\noff_below = "30 degC"', "thermal.pump"),
+    ("coolant-both-forms", 'sink_to_ambient = "0.3 W/K"',
+     'sink_to_ambient = "0.3 W/K"\n[thermal.coolant]\ninlet_temperature = 20\nflow_rate = "0.01 kg/s"\n'
+     'plate_conductance = 10\nconductance = 5', "thermal.coolant.conductance"),
+    ("coolant-flow-wrong-unit", 'sink_to_ambient = "0.3 W/K"',
+     'sink_to_ambient = "0.3 W/K"\n[thermal.coolant]\ninlet_temperature = 20\nflow_rate = "0.01 m/s"\n'
+     'plate_conductance = 10', "thermal.coolant.flow_rate"),
+    ("soak-not-first", "[[profile.segment]]\nfile", '[[profile.segment]]\nmode = "soak"\nduration = "1 h"\n'
+     "[[profile.segment]]\nfile", "profile.segment"),
+    ("ambient-twice", 'ambient_temperature = "20 degC"', 'ambient_temperature = "20 degC"\nambient_profile = "a.csv"',
+     "thermal.ambient_profile"),
+    ("stress-negative-energy", "[thermal]", '[stress]\nactivation_energy = "-3 kJ/mol"\n[thermal]',
+     "stress.activation_energy"),
 ]
 
 CSV_CASES = [
@@ -162,3 +204,20 @@ def test_bad_override(tmp_path, capsys, override, key):
     code = cli.main(["run", str(scenario), "--out", str(tmp_path / "o"), "--set", override])
     err = capsys.readouterr().err
     assert code == 2 and key in err and "Traceback" not in err
+
+
+@pytest.mark.parametrize("content, key", [
+    (None, "thermal.ambient_profile"),
+    ("time_s,ambient_temperature_degC\n0,10\n0,12\n", "time_s"),
+    ("time_s,ambient_temperature_degC\n0,10\n60,nan\n", "ambient_temperature_degC"),
+    ("time_s,temperature\n0,10\n60,12\n", "ambient_temperature_degC"),
+])
+def test_bad_ambient_profile(tmp_path, capsys, content, key):
+    if content is not None:
+        (tmp_path / "air.csv").write_text(content)
+    text = BASE.replace('ambient_temperature = "20 degC"', 'ambient_profile = "air.csv"')
+    code, _ = run_cli(tmp_path, text)
+    err = capsys.readouterr().err
+    assert code == 2 and "Traceback" not in err
+    assert "air.csv" in err and key in err
+    assert len([line for line in err.splitlines() if line.strip()]) == 1

@@ -276,3 +276,38 @@ def test_soak_sets_the_mission_start():
     assert result.series["cell_temperature_degC"][0] == pytest.approx(expected, abs=1e-6)
     assert result.series["time_s"][0] == 0.0 and result.series["time_s"][-1] == pytest.approx(60.0)
     assert result.series["ambient_temperature_degC"][0] == pytest.approx(20.0)  # the mission's own ambient
+
+
+@pytest.mark.parametrize("length, expected", [("0.02 m", 1), ("0.2 m", 0)])
+def test_correlation_outside_its_range_is_named(length, expected):
+    # a hot plate facing up: McAdams 0.54 Ra^1/4 holds for 1e4 <= Ra <= 1e7; a 2 cm plate 5-20 K above
+    # the air has Ra of a few thousand (Ra ~ L^3), a 20 cm one a few million
+    th = {"ambient_temperature": "20 degC", "initial_cell_temperature": "40 degC",
+          "initial_sink_temperature": "40 degC", "sink_heat_capacity": "300 J/K", "cell_to_sink": "2 W/K",
+          "convection": {"natural": "horizontal_plate_up", "length": length, "area": "0.05 m^2"}}
+    result = simulate(scenario(thermal=th, segments=[{"mode": "rest", "duration": "10 min"}]))
+    found = [w for w in result.warnings if "horizontal plate buoyant correlation" in w]
+    assert len(found) == expected
+    if expected:
+        assert "1e+04 <= Ra <= 1e+11" in found[0]
+    assert result.series["rayleigh_number"].max() > 0
+
+
+def test_demo_compares_still_air_fan_and_cold_plate():
+    import thermoelec
+    from thermoelec import compare
+
+    from .helpers import SCENARIOS
+
+    loaded = thermoelec.load_scenario(SCENARIOS / "robot_cooling.toml")
+    cases = {o.name: o.result.summary for o in compare.run_cases(loaded, compare.case_list(loaded))}
+    still, fan, plate = cases["still air"], cases["fan"], cases["cold plate"]
+    # the same mission: the more cooling, the cooler the cells
+    assert still["energy_discharged_Wh"] == pytest.approx(fan["energy_discharged_Wh"], rel=1e-9)
+    assert still["cell_temperature_max_degC"] > fan["cell_temperature_max_degC"] > plate["cell_temperature_max_degC"]
+    assert fan["thermostat_switches"] >= 1 and plate["heat_to_coolant_Wh"] > 0
+    freezer = cases["freezer aisle, heater"]
+    assert freezer["soak"]["heater_energy_Wh"] > 0
+    assert freezer["soak"]["cell_temperature_end_degC"] > 5.0  # pre-heated above the heater's on threshold
+    for summary in cases.values():
+        assert heat_balance_error(summary) < 1e-4

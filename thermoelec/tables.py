@@ -33,6 +33,8 @@ SUMMARY_ROWS = (
     ("energy dissipated", "energy_dissipated_Wh", "Wh"),
     ("heat generated", "heat_generated_Wh", "Wh"),
     ("heat to ambient", "heat_to_ambient_Wh", "Wh"),
+    ("heat to coolant", "heat_to_coolant_Wh", "Wh"),
+    ("heater energy", "heater_energy_Wh", "Wh"),
     ("efficiency", "efficiency", ""),
     ("charge throughput", "charge_throughput_Ah", "Ah"),
     ("final SoC", "soc_end", ""),
