@@ -311,3 +311,16 @@ def test_demo_compares_still_air_fan_and_cold_plate():
     assert freezer["soak"]["cell_temperature_end_degC"] > 5.0  # pre-heated above the heater's on threshold
     for summary in cases.values():
         assert heat_balance_error(summary) < 1e-4
+
+
+def test_cooling_keys_take_dotted_path_overrides():
+    import thermoelec
+
+    from .helpers import SCENARIOS
+
+    loaded = thermoelec.load_scenario(SCENARIOS / "robot_cooling.toml")
+    still = thermoelec.simulate(loaded, overrides={"profile.repeat": 1})
+    breeze = thermoelec.simulate(loaded, overrides={"profile.repeat": 1, "thermal.convection.air_speed": "2 m/s"})
+    assert breeze.summary["cell_temperature_max_degC"] < still.summary["cell_temperature_max_degC"]
+    assert breeze.series["reynolds_number"].max() == pytest.approx(2.0 * 0.30 / thermal.air_properties(
+        0.5 * (breeze.series["sink_temperature_degC"][-1] + 32.0) + KELVIN)[0], rel=0.05)

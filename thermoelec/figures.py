@@ -35,6 +35,7 @@ SECONDS_PER_HOUR = 3600.0
 MODE_COLOURS = {"rest": "#eeeeee", "current": "#dde8f6", "power": "#fbe8d3", "resistance": "#e3f1dc",
                 "voltage": "#efe0f3"}
 STOP_EVENTS = {"voltage_min", "voltage_max", "power_limit", "temperature_max", "soc_empty", "soc_full"}
+THERMOSTAT_EVENTS = {"fan_switch", "heater_switch", "pump_switch"}
 
 
 def _time_axis(times: np.ndarray) -> tuple[np.ndarray, str]:
@@ -121,12 +122,22 @@ def dashboard(result: SimulationResult) -> Figure:
 
     ax_heat.plot(t, s["heat_W"], color="C1", lw=1.0, label="generated")
     ax_heat.plot(t, s["heat_to_ambient_W"], color="C9", lw=0.9, label="to ambient")
+    for key, colour, label in (("heater_power_W", "C3", "heater"), ("heat_to_coolant_W", "C0", "to coolant")):
+        if key in s and np.any(s[key] != 0.0):
+            ax_heat.plot(t, s[key], color=colour, lw=0.9, ls="--", label=label)
     ax_heat.axhline(0.0, color="0.3", lw=0.5)
     ax_heat.set_ylabel("heat [W]")
     ax_heat.set_xlabel(t_label)
     ax_heat.legend(loc="upper right", fontsize=7, ncol=2)
 
     for event in result.events:
+        if event["event"] in THERMOSTAT_EVENTS:
+            te = _scale_like(s["time_s"], event["time_s"])
+            ax_temp.axvline(te, color="C6", lw=0.7, ls=":")
+            ax_temp.annotate(f"{event['event'].removesuffix('_switch')} {event.get('state', '')}", (te, 0.02),
+                             xycoords=("data", "axes fraction"), rotation=90, va="bottom", ha="right", fontsize=6,
+                             color="C6")
+            continue
         if event["event"] in STOP_EVENTS or event["event"] in ("cv_switch", "cv_cutoff", "cccv_cap"):
             te = _scale_like(s["time_s"], event["time_s"])
             stop = event["event"] in STOP_EVENTS
