@@ -107,6 +107,53 @@ def _compare(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def _fit(args: argparse.Namespace) -> int:
+    from . import fit
+    from .logs import read_mapping
+    from .scenario import to_si
+
+    columns = {}
+    for pair in args.column or []:
+        key, sep, value = pair.partition("=")
+        if not sep:
+            raise ScenarioError("--column", pair, "expected QUANTITY=COLUMN, for example current=Current(A)")
+        columns[key.strip()] = value.strip()
+    mapping = read_mapping(args.mapping, columns, args.charge_positive)
+
+    def kelvin(text: str, option: str) -> float:
+        try:
+            return to_si(parse_value(text), "degC", "K")
+        except ValueError as exc:
+            raise ScenarioError(option, text, str(exc)) from None
+
+    if args.kind == "ocv":
+        outcome = fit.fit_ocv_logs(args.logs, mapping, args.points, args.cell)
+    elif args.kind == "pulse":
+        if not args.cell:
+            raise ScenarioError("fit pulse", "--cell", "give the cell file with the capacity and OCV "
+                                "(from thermoelec fit ocv)")
+        temps = None if not args.temperature else [kelvin(t, "--temperature") for t in args.temperature]
+        outcome = fit.fit_pulse_logs(args.logs, mapping, args.cell, args.rc, temps, args.arrhenius)
+    else:
+        if len(args.logs) != 1:
+            raise ScenarioError("fit thermal", "LOG", "give one heating-and-cooling log")
+        ambient = None if args.ambient is None else kelvin(args.ambient, "--ambient")
+        outcome = fit.fit_thermal_log(args.logs[0], mapping, args.cell, ambient)
+    try:
+        written = outcome.write(args.out)
+    except OSError as exc:
+        print(f"thermoelec: cannot write {args.out}: {exc.strerror or exc}", file=sys.stderr)
+        return EXIT_FAILURE
+    if not args.quiet:
+        width = max(len(name) for name, _, _ in outcome.parameters)
+        for name, value, interval in outcome.parameters:
+            print(f"  {name:<{width}}  {value}  {interval}")
+        for note in outcome.notes:
+            print(f"  note: {note}")
+        print("wrote " + ", ".join(str(path) for path in written))
+    return EXIT_OK
+
+
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser of the ``thermoelec`` command."""
     parser = argparse.ArgumentParser(prog="thermoelec", description=__doc__.splitlines()[0])
@@ -130,6 +177,26 @@ def build_parser() -> argparse.ArgumentParser:
     compare.add_argument("--quiet", action="store_true", help="print no table")
     compare.add_argument("--no-figures", action="store_true", help="write no figures and no report (faster)")
     compare.set_defaults(handler=_compare)
+    fitting = sub.add_parser("fit", help="fit cell or thermal parameters to test logs and write a cell file")
+    fitting.add_argument("kind", choices=("ocv", "pulse", "thermal"),
+                         help="ocv: slow discharge and charge logs; pulse: pulse-test logs, one per temperature; "
+                              "thermal: a heating-and-cooling log")
+    fitting.add_argument("logs", nargs="+", metavar="LOG", help="CSV logs")
+    fitting.add_argument("--out", required=True, help="cell file to write (TOML); the report goes beside it")
+    fitting.add_argument("--cell", help="a cell file to extend (capacity and OCV for pulse fits, mass for thermal)")
+    fitting.add_argument("--mapping", help="TOML file mapping the log's columns, units and sign")
+    fitting.add_argument("--column", action="append", metavar="QUANTITY=COLUMN",
+                         help="column name of a quantity (time, current, voltage, temperature, ambient, "
+                              "sink_temperature, power)")
+    fitting.add_argument("--charge-positive", action="store_true", help="the logs count charge current as positive")
+    fitting.add_argument("--rc", type=int, choices=(1, 2), default=1, help="RC pairs to fit (pulse)")
+    fitting.add_argument("--temperature", nargs="+", help="test temperature of each pulse log, if not in the logs")
+    fitting.add_argument("--arrhenius", action="store_true",
+                         help="write R0 as a table over SoC with an activation energy instead of a 2-D table")
+    fitting.add_argument("--points", type=int, default=21, help="SoC points of the OCV table (ocv)")
+    fitting.add_argument("--ambient", help="ambient temperature, if not in the log (thermal)")
+    fitting.add_argument("--quiet", action="store_true", help="print nothing")
+    fitting.set_defaults(handler=_fit)
     return parser
 
 

@@ -18,7 +18,7 @@ from typing import Any
 from .results import SimulationResult
 from .tables import SUMMARY_ROWS, format_value
 
-__all__ = ["CAUTIONS", "comparison_report", "limit_checks", "run_report", "write_report"]
+__all__ = ["CAUTIONS", "comparison_report", "fit_report", "limit_checks", "run_report", "write_report"]
 
 #: The cautions printed in every report (and in the README).
 CAUTIONS = (
@@ -287,6 +287,25 @@ def comparison_report(outcomes: Sequence[Any], raw: Mapping[str, Any] | None = N
     if outcomes:
         body += ["<h2>Run</h2>", _metadata(outcomes[0].result)]
     return _document(f"thermoelec comparison: {title}", "".join(body))
+
+
+def fit_report(outcome: Any) -> str:
+    """The report of a ``thermoelec fit`` job (a :class:`thermoelec.fit.FitOutcome`) as HTML text."""
+    rows = [[_e(name), _e(value), _e(interval)] for name, value, interval in outcome.parameters]
+    body = [
+        f"<h1>thermoelec fit {_e(outcome.kind)}</h1>",
+        "<p>Logs: " + ", ".join(f"<code>{_e(log)}</code>" for log in outcome.logs) + "</p>",
+        "<div class='caution'><strong>Caution.</strong> Fitted parameters describe the tested cell over the tested "
+        "range of SoC, temperature and current only; check them against a held-out test before relying on them, "
+        "and follow the applicable safety standards and licensed practice when testing cells.</div>",
+        "<h2>Parameters</h2>", _table(["parameter", "value", "95 % interval / note"], rows, numeric_from=9),
+    ]
+    if outcome.notes:
+        body += ["<h2>Notes</h2>", _warnings(outcome.notes)]
+    body.append("<h2>Data against model</h2>")
+    body += [_figure(fig, caption) for fig, caption in outcome.figures]
+    body += ["<h2>Cell file written</h2>", f"<pre>{_e(outcome.cell_file_text())}</pre>"]
+    return _document(f"thermoelec fit {outcome.kind}", "".join(body))
 
 
 def write_report(text: str, out_dir: str | Path) -> Path:

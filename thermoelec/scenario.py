@@ -1059,6 +1059,47 @@ def _check_profile_files(scenario: Scenario) -> None:
             read_profile_csv(scenario.base_dir / seg.file, f"profile.segment[{i + 1}].file")
 
 
+def _merge(base: dict, top: Mapping) -> dict:
+    """``top`` over ``base``, table by table (lists and values of ``top`` replace)."""
+    out = _deep_copy(base)
+    for key, value in top.items():
+        if isinstance(value, dict) and isinstance(out.get(key), dict):
+            out[key] = _merge(out[key], value)
+        else:
+            out[key] = _deep_copy(value)
+    return out
+
+
+def _with_includes(data: dict, base_dir: Path, source: str) -> tuple[dict, list[bytes]]:
+    """Resolve ``include = "file.toml"`` (or a list): the included tables are the base, the scenario's win.
+
+    Relative paths are relative to the scenario file; an included file cannot include again.
+    """
+    includes = data.pop("include", None)
+    if includes is None:
+        return data, []
+    if isinstance(includes, str):
+        includes = [includes]
+    if not isinstance(includes, list) or not all(isinstance(i, str) for i in includes):
+        raise ScenarioError(source, "include", "expected a file name or a list of file names")
+    merged: dict = {}
+    blobs = []
+    for name in includes:
+        path = base_dir / name
+        try:
+            blob = path.read_bytes()
+            included = tomllib.loads(blob.decode("utf-8"))
+        except FileNotFoundError:
+            raise ScenarioError(source, "include", f"included file {name!r} not found (looked for {path})") from None
+        except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
+            raise ScenarioError(str(path), "", f"included file: {exc}") from None
+        if "include" in included:
+            raise ScenarioError(str(path), "include", "an included file cannot include others")
+        merged = _merge(merged, included)
+        blobs.append(blob)
+    return _merge(merged, data), blobs
+
+
 def load_scenario(path: str | Path, overrides: Mapping[str, Any] | None = None) -> Scenario:
     """Read and validate a scenario file; ``overrides`` replace values by dotted path first.
 
@@ -1086,6 +1127,9 @@ def load_scenario(path: str | Path, overrides: Mapping[str, Any] | None = None) 
         raise ScenarioError(source, "", f"TOML syntax error: {exc}",
                             int(line_match.group(1)) if line_match else None) from None
     digest = hashlib.sha256(blob).hexdigest()
+    data, included = _with_includes(data, path.parent, source)
+    for extra in included:
+        digest = hashlib.sha256((digest + hashlib.sha256(extra).hexdigest()).encode()).hexdigest()
     return _validate(data, source, path.parent, text, list((overrides or {}).items()), digest)
 
 
@@ -1093,6 +1137,7 @@ def scenario_from_dict(data: Mapping[str, Any], base_dir: str | Path = ".", sour
                        overrides: Mapping[str, Any] | None = None) -> Scenario:
     """Validate scenario data given as a dict (the parsed TOML structure)."""
     raw = _deep_copy(dict(data))
+    raw, _ = _with_includes(raw, Path(base_dir), source)
     digest = hashlib.sha256(repr(sorted(raw.items(), key=lambda kv: kv[0])).encode()).hexdigest()
     return _validate(raw, source, Path(base_dir), None, list((overrides or {}).items()), digest)
 
