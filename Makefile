@@ -6,6 +6,7 @@ VENV   := .venv
 BIN    := $(VENV)/bin
 STAMP  := $(VENV)/.thermoelec-installed
 DEMO   := out/demo
+LOGS   := scenarios/logs
 
 .PHONY: all setup test test-all demo lint bench bench-quick clean
 
@@ -46,7 +47,19 @@ demo: $(STAMP)
 	@echo "== a warehouse robot shift: still air, a fan, a cold plate, and a freezer aisle with a heater"
 	@$(BIN)/thermoelec compare scenarios/robot_cooling.toml --out $(DEMO)/robot-cooling
 	@echo
-	@echo "open $(DEMO)/*/report.html in a browser for the figures and the verdicts"
+	@echo "== the demo scooter cell fitted from its (invented) lab logs: OCV, pulses, heater test"
+	@$(BIN)/thermoelec fit ocv $(LOGS)/scooter_c20_discharge.csv $(LOGS)/scooter_c20_charge.csv \
+		--out $(DEMO)/fit/scooter_cell_ocv.toml
+	@$(BIN)/thermoelec fit pulse $(LOGS)/scooter_hppc_5C.csv $(LOGS)/scooter_hppc_25C.csv \
+		$(LOGS)/scooter_hppc_40C.csv --cell $(DEMO)/fit/scooter_cell_ocv.toml --out $(DEMO)/fit/scooter_cell_pulse.toml \
+		--quiet
+	@$(BIN)/thermoelec fit thermal $(LOGS)/scooter_heater_test.csv --cell $(DEMO)/fit/scooter_cell_pulse.toml \
+		--mass "68 g" --out $(DEMO)/fit/scooter_cell.toml
+	@echo
+	@echo "== a courier e-scooter run on the fitted cell (scenarios/cells/scooter_cell.toml), cool and hot"
+	@$(BIN)/thermoelec compare scenarios/scooter_commute.toml --out $(DEMO)/scooter-compare
+	@echo
+	@echo "open $(DEMO)/*/report.html and $(DEMO)/fit/*_report.html in a browser for the figures and the verdicts"
 
 bench: $(STAMP)
 	$(BIN)/python benchmarks/bench_single_mission.py

@@ -121,6 +121,8 @@ SCENARIO_CASES = [
      "[[profile.segment]]\nfile", "profile.segment"),
     ("ambient-twice", 'ambient_temperature = "20 degC"', 'ambient_temperature = "20 degC"\nambient_profile = "a.csv"',
      "thermal.ambient_profile"),
+    ("include-missing", "format = 1", 'format = 1\ninclude = "nowhere.toml"', "include"),
+    ("include-not-a-name", "format = 1", "format = 1\ninclude = 3", "include"),
     ("stress-negative-energy", "[thermal]", '[stress]\nactivation_energy = "-3 kJ/mol"\n[thermal]',
      "stress.activation_energy"),
 ]

@@ -265,3 +265,22 @@ def test_charge_positive_logs_and_column_mapping(fitted, tmp_path):
     z = np.array(r0["soc"])
     np.testing.assert_allclose(np.ravel(r0["values"]), true_value(R0, z, 298.15), rtol=0.02)
     assert math.isfinite(float(load_cell(tmp_path / "c.toml")["rc"][0]["time_constant"].split()[0]))
+
+
+def test_demo_cell_file_is_the_fit_of_the_demo_logs(tmp_path):
+    """scenarios/cells/scooter_cell.toml is what make demo's three fits give from scenarios/logs/."""
+    from .helpers import SCENARIOS
+
+    folder = SCENARIOS / "logs"
+    assert cli.main(["fit", "ocv", str(folder / "scooter_c20_discharge.csv"), str(folder / "scooter_c20_charge.csv"),
+                     "--out", str(tmp_path / "ocv.toml"), "--quiet"]) == 0
+    assert cli.main(["fit", "pulse", *(str(folder / f"scooter_hppc_{t}C.csv") for t in (5, 25, 40)),
+                     "--cell", str(tmp_path / "ocv.toml"), "--out", str(tmp_path / "pulse.toml"), "--quiet"]) == 0
+    assert cli.main(["fit", "thermal", str(folder / "scooter_heater_test.csv"), "--cell", str(tmp_path / "pulse.toml"),
+                     "--mass", "68 g", "--out", str(tmp_path / "cell.toml"), "--quiet"]) == 0
+    refit, committed = load_cell(tmp_path / "cell.toml"), load_cell(SCENARIOS / "cells" / "scooter_cell.toml")
+    np.testing.assert_allclose(refit["r0"]["values"], committed["r0"]["values"], rtol=1e-5)
+    np.testing.assert_allclose(refit["ocv"]["voltage"], committed["ocv"]["voltage"], rtol=1e-5)
+    assert refit["specific_heat"] == committed["specific_heat"]
+    result = thermoelec.simulate_file(SCENARIOS / "scooter_commute.toml")
+    assert result.completed and result.summary["voltage_margin_min_V"] > 0

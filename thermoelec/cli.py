@@ -138,7 +138,13 @@ def _fit(args: argparse.Namespace) -> int:
         if len(args.logs) != 1:
             raise ScenarioError("fit thermal", "LOG", "give one heating-and-cooling log")
         ambient = None if args.ambient is None else kelvin(args.ambient, "--ambient")
-        outcome = fit.fit_thermal_log(args.logs[0], mapping, args.cell, ambient)
+        mass = None
+        if args.mass is not None:
+            try:
+                mass = to_si(parse_value(args.mass), "kg", "kg")
+            except ValueError as exc:
+                raise ScenarioError("--mass", args.mass, str(exc)) from None
+        outcome = fit.fit_thermal_log(args.logs[0], mapping, args.cell, ambient, mass)
     try:
         written = outcome.write(args.out)
     except OSError as exc:
@@ -195,6 +201,7 @@ def build_parser() -> argparse.ArgumentParser:
                          help="write R0 as a table over SoC with an activation energy instead of a 2-D table")
     fitting.add_argument("--points", type=int, default=21, help="SoC points of the OCV table (ocv)")
     fitting.add_argument("--ambient", help="ambient temperature, if not in the log (thermal)")
+    fitting.add_argument("--mass", help="cell mass, for the specific heat (thermal), e.g. '68 g'")
     fitting.add_argument("--quiet", action="store_true", help="print nothing")
     fitting.set_defaults(handler=_fit)
     return parser

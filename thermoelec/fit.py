@@ -240,8 +240,9 @@ def _pulse_figures(per_log, tables) -> list[tuple[Figure, str]]:
 
 
 def fit_thermal_log(path: str, mapping: LogMapping, cell_path: str | None = None,
-                    ambient: float | None = None) -> FitOutcome:
-    """Heat capacity and conductance(s) from one heating-and-cooling log."""
+                    ambient: float | None = None, mass: float | None = None) -> FitOutcome:
+    """Heat capacity and conductance(s) from one heating-and-cooling log; ``mass`` [kg] (or the cell
+    file's) turns the heat capacity into ``cell.specific_heat``."""
     log = read_log(path, mapping, ("temperature", "power"), ("ambient", "sink_temperature"), min_rows=20)
     result = fitting.fit_thermal(log, ambient=ambient)
     cell = read_cell_file(cell_path) if cell_path else None
@@ -265,12 +266,14 @@ def fit_thermal_log(path: str, mapping: LogMapping, cell_path: str | None = None
                 + (f", sink {result.sink_heat_capacity:.5g} J/K, sink-to-ambient {result.sink_conductance:.5g} W/K"
                    if two_node else "")
                 + " (conductances belong to the rig: put your pack's in its [thermal] section)"]
-    if cell is not None and cell.mass is not None:
-        outcome.tables.setdefault("cell", {})["specific_heat"] = f"{result.heat_capacity / cell.mass:.5g} J/kg/K"
-        outcome.parameters.append(("specific heat", f"{result.heat_capacity / cell.mass:.5g} J/(kg K)",
-                                   f"± {result.heat_capacity_ci / cell.mass:.2g}"))
+    mass = mass if mass is not None else (cell.mass if cell is not None else None)
+    if mass is not None:
+        outcome.tables.setdefault("cell", {})["mass"] = f"{mass:.6g} kg"
+        outcome.tables["cell"]["specific_heat"] = f"{result.heat_capacity / mass:.5g} J/kg/K"
+        outcome.parameters.append(("specific heat", f"{result.heat_capacity / mass:.5g} J/(kg K)",
+                                   f"± {result.heat_capacity_ci / mass:.2g}"))
     else:
-        outcome.notes.append("no cell mass (give --cell with cell.mass) : the specific heat is not written")
+        outcome.notes.append("no cell mass (give --mass, or --cell with cell.mass): the specific heat is not written")
     geometry = _geometry(cell)
     if geometry is not None and not two_node:
         volume, area, k = geometry
