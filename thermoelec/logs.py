@@ -17,7 +17,7 @@ from typing import Any
 
 import numpy as np
 
-from .scenario import ScenarioError, to_si
+from .scenario import ScenarioError, check_increasing, numeric_column, read_csv_frame, to_si
 
 __all__ = ["LogMapping", "Pulse", "TestLog", "find_pulses", "read_log", "read_mapping"]
 
@@ -125,17 +125,9 @@ def read_log(path: str | Path, mapping: LogMapping, required: tuple[str, ...],
         Missing file or column, a non-numeric or NaN value, time not increasing,
         a gap in the samples, or fewer than ``min_rows`` rows.
     """
-    import pandas as pd
-
     path = Path(path)
     name = str(path)
-    if not path.is_file():
-        raise ScenarioError(name, "", "log file not found")
-    try:
-        frame = pd.read_csv(path, comment="#", skipinitialspace=True)
-    except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
-        raise ScenarioError(name, "", f"not a readable CSV file: {str(exc).strip()}") from None
-    frame.columns = [str(c).strip() for c in frame.columns]
+    frame = read_csv_frame(path, "", "log")
     values: dict[str, np.ndarray] = {}
     for quantity in ("time", *required, *optional):
         column = mapping.columns[quantity]
@@ -144,23 +136,15 @@ def read_log(path: str | Path, mapping: LogMapping, required: tuple[str, ...],
                 continue
             raise ScenarioError(name, column, f"column {column!r} ({quantity}) is missing; columns: "
                                 f"{', '.join(frame.columns)}; map it with --column {quantity}=NAME or a mapping file")
-        raw = pd.to_numeric(frame[column], errors="coerce").to_numpy(dtype=float)
-        bad = np.flatnonzero(~np.isfinite(raw))
-        if bad.size:
-            row = int(bad[0])
-            raise ScenarioError(name, column, f"row {row + 1} (line {row + 2}): {frame[column].iloc[row]!r} is not "
-                                "a finite number")
+        raw = numeric_column(frame, column, name)
         factor, offset = _scale(mapping.units[quantity], QUANTITIES[quantity][2], name, column)
         values[quantity] = raw * factor + offset
     time = values["time"]
     if len(time) < min_rows:
         raise ScenarioError(name, mapping.columns["time"], f"too few points: {len(time)} rows, at least {min_rows} "
                             "needed")
+    check_increasing(time, name, mapping.columns["time"])
     steps = np.diff(time)
-    if (steps <= 0).any():
-        row = int(np.flatnonzero(steps <= 0)[0]) + 1
-        raise ScenarioError(name, mapping.columns["time"], f"time must be strictly increasing: row {row + 1} "
-                            f"(line {row + 2}) has {time[row]:g} s after {time[row - 1]:g} s")
     median = float(np.median(steps))
     if steps.max() > GAP_FACTOR * median:
         row = int(np.argmax(steps)) + 1

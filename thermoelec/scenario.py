@@ -894,18 +894,47 @@ class SeriesProfile:
     ambient: np.ndarray | None
 
 
-def read_profile_csv(path: Path, key: str) -> SeriesProfile:
-    """Read a zero-order-hold profile: ``time_s`` plus one demand column, optional ambient."""
+def read_csv_frame(path: Path, key: str, what: str):
+    """A CSV file as a pandas DataFrame with stripped column names; ``#`` starts a comment."""
     import pandas as pd
 
     name = str(path)
     if not path.is_file():
-        raise ScenarioError(name, key, "profile file not found")
+        raise ScenarioError(name, key, f"{what} file not found")
     try:
         frame = pd.read_csv(path, comment="#", skipinitialspace=True)
     except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
         raise ScenarioError(name, key, f"not a readable CSV file: {str(exc).strip()}") from None
     frame.columns = [str(c).strip() for c in frame.columns]
+    return frame
+
+
+def numeric_column(frame, column: str, name: str) -> np.ndarray:
+    """A column as finite floats; the first bad row is named (rows counted from 1, line = row + 1)."""
+    import pandas as pd
+
+    values = pd.to_numeric(frame[column], errors="coerce").to_numpy(dtype=float)
+    bad = np.flatnonzero(~np.isfinite(values))
+    if bad.size:
+        row = int(bad[0])
+        raise ScenarioError(name, column, f"row {row + 1} (line {row + 2}): {frame[column].iloc[row]!r} is not a "
+                            "finite number")
+    return values
+
+
+def check_increasing(time: np.ndarray, name: str, column: str) -> None:
+    """Raise unless ``time`` is strictly increasing, naming the first row that is not."""
+    steps = np.diff(time)
+    if (steps <= 0).any():
+        row = int(np.flatnonzero(steps <= 0)[0]) + 1
+        raise ScenarioError(name, column, f"time must be strictly increasing: row {row + 1} (line {row + 2}) "
+                            f"has {time[row]:g} s after {time[row - 1]:g} s")
+
+
+def read_profile_csv(path: Path, key: str) -> SeriesProfile:
+    """Read a zero-order-hold profile: ``time_s`` plus one demand column, optional ambient."""
+    name = str(path)
+    frame = read_csv_frame(path, key, "profile")
     if "time_s" not in frame.columns:
         raise ScenarioError(name, "time_s", f"column time_s is missing (columns: {', '.join(frame.columns)})")
     demand_columns = [c for c in frame.columns if c in _CSV_DEMAND_COLUMNS]
@@ -917,23 +946,11 @@ def read_profile_csv(path: Path, key: str) -> SeriesProfile:
         raise ScenarioError(name, unknown[0], "unknown column (valid: time_s, "
                             + ", ".join(_CSV_DEMAND_COLUMNS) + f", {_CSV_AMBIENT})")
     columns = ["time_s", demand_columns[0]] + ([_CSV_AMBIENT] if _CSV_AMBIENT in frame.columns else [])
-    arrays = {}
-    for column in columns:
-        values = pd.to_numeric(frame[column], errors="coerce").to_numpy(dtype=float)
-        bad = np.flatnonzero(~np.isfinite(values))
-        if bad.size:
-            row = int(bad[0])
-            raise ScenarioError(name, column, f"row {row + 1} (line {row + 2}): {frame[column].iloc[row]!r} is "
-                                "not a finite number")
-        arrays[column] = values
+    arrays = {column: numeric_column(frame, column, name) for column in columns}
     time = arrays["time_s"]
     if len(time) < 2:
         raise ScenarioError(name, "time_s", "a profile file needs at least two rows")
-    steps = np.diff(time)
-    if (steps <= 0).any():
-        row = int(np.flatnonzero(steps <= 0)[0]) + 1
-        raise ScenarioError(name, "time_s", f"time must be strictly increasing: row {row + 1} (line {row + 2}) "
-                            f"has {time[row]:g} s after {time[row - 1]:g} s")
+    check_increasing(time, name, "time_s")
     mode = _CSV_DEMAND_COLUMNS[demand_columns[0]]
     demand = arrays[demand_columns[0]]
     if mode in ("resistance", "voltage") and (demand <= 0).any():
@@ -949,39 +966,18 @@ def read_profile_csv(path: Path, key: str) -> SeriesProfile:
 
 def read_ambient_csv(path: Path, key: str) -> tuple[np.ndarray, np.ndarray]:
     """An ambient profile: columns ``time_s`` and ``ambient_temperature_degC``, linear between rows [s, K]."""
-    import pandas as pd
-
     name = str(path)
-    if not path.is_file():
-        raise ScenarioError(name, key, "ambient profile file not found")
-    try:
-        frame = pd.read_csv(path, comment="#", skipinitialspace=True)
-    except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
-        raise ScenarioError(name, key, f"not a readable CSV file: {str(exc).strip()}") from None
-    frame.columns = [str(c).strip() for c in frame.columns]
+    frame = read_csv_frame(path, key, "ambient profile")
     for column in ("time_s", _CSV_AMBIENT):
         if column not in frame.columns:
             raise ScenarioError(name, column, f"column {column} is missing (columns: {', '.join(frame.columns)})")
     extra = [c for c in frame.columns if c not in ("time_s", _CSV_AMBIENT)]
     if extra:
         raise ScenarioError(name, extra[0], f"unknown column (valid: time_s, {_CSV_AMBIENT})")
-    arrays = []
-    for column in ("time_s", _CSV_AMBIENT):
-        values = pd.to_numeric(frame[column], errors="coerce").to_numpy(dtype=float)
-        bad = np.flatnonzero(~np.isfinite(values))
-        if bad.size:
-            row = int(bad[0])
-            raise ScenarioError(name, column, f"row {row + 1} (line {row + 2}): {frame[column].iloc[row]!r} is "
-                                "not a finite number")
-        arrays.append(values)
-    time, ambient = arrays
+    time, ambient = (numeric_column(frame, column, name) for column in ("time_s", _CSV_AMBIENT))
     if len(time) < 2:
         raise ScenarioError(name, "time_s", "an ambient profile needs at least two rows")
-    steps = np.diff(time)
-    if (steps <= 0).any():
-        row = int(np.flatnonzero(steps <= 0)[0]) + 1
-        raise ScenarioError(name, "time_s", f"time must be strictly increasing: row {row + 1} (line {row + 2}) "
-                            f"has {time[row]:g} s after {time[row - 1]:g} s")
+    check_increasing(time, name, "time_s")
     kelvin = ambient + KELVIN_AT_0_DEGC
     if (kelvin <= 0).any():
         raise ScenarioError(name, _CSV_AMBIENT, "temperature below absolute zero")
