@@ -38,6 +38,15 @@ demo: $(STAMP)
 	@echo "== the sortie compared: hot afternoon against cold morning (-5 degC)"
 	@$(BIN)/thermoelec compare scenarios/drone_delivery.toml --out $(DEMO)/drone-compare
 	@echo
+	@echo "== the sortie swept: ambient -10..40 degC x housing convection 10..50 W/m^2/K"
+	@$(BIN)/thermoelec sweep scenarios/drone_delivery.toml --out $(DEMO)/drone-sweep
+	@echo
+	@echo "== the least housing convection that keeps the cells at or below 55 degC, per ambient"
+	@$(BIN)/thermoelec sweep scenarios/drone_delivery.toml --out $(DEMO)/drone-search \
+		--sweep "thermal.ambient_temperature=20 degC,30 degC,38 degC,45 degC" \
+		--find "cell_temperature_max_degC <= 55" --over thermal.convection.coefficient \
+		--between "5 W/m^2/K" "200 W/m^2/K"
+	@echo
 	@echo "== cargo e-bike round from a 1 Hz CSV, then a CC-CV recharge"
 	@$(BIN)/thermoelec run scenarios/ebike_route.toml --out $(DEMO)/ebike
 	@echo

@@ -160,6 +160,60 @@ def _fit(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def _sweep(args: argparse.Namespace) -> int:
+    from . import sweep
+    from .scenario import to_si
+
+    scenario = load_scenario(args.scenario, _overrides(args.set or []))
+    out = Path(args.out)
+    if args.find:
+        criterion = sweep.parse_criterion(args.find)
+        if not args.over or not args.between:
+            raise ScenarioError("--find", args.find, "give --over KEY and --between LOW HIGH")
+        bounds = []
+        for text in args.between:
+            value = parse_value(text)
+            parts = str(value).split(None, 1) if isinstance(value, str) else [value]
+            try:
+                bounds.append((float(parts[0]), parts[1] if len(parts) > 1 else ""))
+            except ValueError:
+                raise ScenarioError("--between", text, "expected a quantity such as '0.2 W/K'") from None
+        (low, unit), (high, unit_high) = bounds
+        if unit != unit_high or not low < high:
+            raise ScenarioError("--between", " ".join(args.between), "LOW < HIGH in the same unit")
+        try:
+            to_si(f"{low} {unit}".strip(), unit or "", unit or "")
+        except ValueError as exc:
+            raise ScenarioError("--between", args.between[0], str(exc)) from None
+        plan = sweep.plan_sweep(scenario, args.sweep or []) if (scenario.spec.sweep or args.sweep) else None
+        scenario.with_overrides({args.over: f"{low} {unit}".strip() if unit else low})  # the key must exist
+        found = sweep.design_search(scenario, plan, args.over, low, high, unit, criterion, args.greatest,
+                                    args.tolerance, args.workers)
+        out.mkdir(parents=True, exist_ok=True)
+        found.to_netcdf(out / "search.nc")
+        if not args.no_figures:
+            from .figures import save
+
+            save(sweep.search_chart(found), out, "search", ("png", "svg"))
+        if not args.quiet:
+            print(found.to_dataframe().to_string())
+            print(f"search results in {out}/")
+        return EXIT_OK
+    plan = sweep.plan_sweep(scenario, args.sweep or [])
+    if not args.quiet:
+        dims = " x ".join(f"{a.path} ({len(a.values)})" for a in plan.axes)
+        print(f"sweep of {scenario.name}: {plan.size} scenarios, {plan.mode} over {dims}")
+    rows = sweep.run_sweep(scenario, plan, out, args.workers, args.scheduler, args.resume, args.chunk_size,
+                           progress=not args.quiet)
+    ds = sweep.sweep_dataset(scenario, plan, rows)
+    sweep.write_sweep(ds, out, figures=not args.no_figures)
+    if not args.quiet:
+        passed = int(sweep.passes(ds).sum())
+        print(f"{passed} of {plan.size} pass; {ds.attrs['failed']} failed to solve or were invalid; "
+              f"results in {out}/sweep.nc")
+    return EXIT_OK
+
+
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser of the ``thermoelec`` command."""
     parser = argparse.ArgumentParser(prog="thermoelec", description=__doc__.splitlines()[0])
@@ -183,6 +237,23 @@ def build_parser() -> argparse.ArgumentParser:
     compare.add_argument("--quiet", action="store_true", help="print no table")
     compare.add_argument("--no-figures", action="store_true", help="write no figures and no report (faster)")
     compare.set_defaults(handler=_compare)
+    sw = sub.add_parser("sweep", help="run every combination of swept keys, or search for the least cooling")
+    sw.add_argument("scenario", help="scenario file (TOML) with a [sweep] table, or use --sweep")
+    sw.add_argument("--out", required=True, help="output folder (created if missing)")
+    sw.add_argument("--sweep", action="append", metavar="KEY=V1,V2,...", help="a swept key (replaces [sweep]'s)")
+    sw.add_argument("--set", action="append", metavar="KEY=VALUE", help="override a value in every scenario")
+    sw.add_argument("--workers", type=int, help="local worker processes (default: the number of cores)")
+    sw.add_argument("--scheduler", help="address of a dask.distributed scheduler to run the chunks on")
+    sw.add_argument("--resume", action="store_true", help="skip the chunks already finished in --out")
+    sw.add_argument("--chunk-size", type=int, help="scenarios per task")
+    sw.add_argument("--find", metavar="CRITERION", help="design search, e.g. 'cell_temperature_max_degC <= 45'")
+    sw.add_argument("--over", metavar="KEY", help="the key the search varies, e.g. thermal.sink_to_ambient")
+    sw.add_argument("--between", nargs=2, metavar=("LOW", "HIGH"), help="its range, e.g. '0.1 W/K' '10 W/K'")
+    sw.add_argument("--greatest", action="store_true", help="the greatest value meeting it (default: the least)")
+    sw.add_argument("--tolerance", type=float, default=1e-3, help="search tolerance, a fraction of the range")
+    sw.add_argument("--no-figures", action="store_true", help="write no figures")
+    sw.add_argument("--quiet", action="store_true", help="print nothing")
+    sw.set_defaults(handler=_sweep)
     fitting = sub.add_parser("fit", help="fit cell or thermal parameters to test logs and write a cell file")
     fitting.add_argument("kind", choices=("ocv", "pulse", "thermal"),
                          help="ocv: slow discharge and charge logs; pulse: pulse-test logs, one per temperature; "
