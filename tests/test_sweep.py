@@ -227,3 +227,20 @@ def test_design_search_matches_a_dense_grid(tmp_path):
         value = float(found["least_thermal.sink_to_ambient"].values[i])
         assert value == pytest.approx(crossing, abs=1e-3 * (5.0 - 0.05) + (grid[1] - grid[0]) ** 2 * 5)
         assert str(found["status"].values[i]) == "ok"
+
+
+def test_profile_scale_multiplies_current_and_power_demands():
+    import copy
+
+    data = copy.deepcopy(BASE)
+    data["profile"] = {"segment": [{"mode": "current", "value": "2 A", "duration": "60 s"},
+                                   {"mode": "power", "value": "5 W", "duration": "60 s"},
+                                   {"mode": "voltage", "value": "3.5 V", "duration": "60 s"}]}
+    plain = thermoelec.simulate(data).series
+    scaled = thermoelec.simulate(data, overrides={"profile.scale": 1.5}).series
+    t = plain["time_s"]
+    for time_s, key, factor in ((30.0, "current_A", 1.5), (90.0, "power_W", 1.5)):
+        row = int(np.flatnonzero(t == time_s)[0])
+        assert scaled[key][row] == pytest.approx(factor * plain[key][row], rel=1e-9)
+    row = int(np.flatnonzero(t == 150.0)[0])
+    assert scaled["voltage_V"][row] == pytest.approx(3.5, rel=1e-12)  # an imposed voltage is not scaled

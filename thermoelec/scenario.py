@@ -621,11 +621,13 @@ class SegmentSpec(_Section):
 
 class ProfileSpec(_Section):
     repeat: Count = 1
+    scale: Dimensionless = 1.0
     segment: list[SegmentSpec]
 
     @model_validator(mode="after")
     def _profile(self):
         _check(len(self.segment) > 0, "the profile has no segments")
+        _check(self.scale > 0, f"scale must be > 0, got {self.scale:g}", "scale")
         modes = [seg.mode for seg in self.segment]
         soaks = [i for i, mode in enumerate(modes) if mode == "soak"]
         _check(soaks == list(range(len(soaks))), "soak segments come first, before the mission's segments",
@@ -1158,6 +1160,14 @@ def _segment_from_spec(spec: SegmentSpec, origin: str, default_ambient: float | 
     return Segment(spec.mode, float(spec.value), spec.duration, **common)
 
 
+def scale_demand(segments: list[Segment], factor: float) -> list[Segment]:
+    """Current and power demands (and CC charge currents) times ``factor``; voltages, resistances, rests kept."""
+    if factor == 1.0:
+        return segments
+    return [replace(seg, value=seg.value * factor) if seg.mode in ("current", "power", "cccv") else seg
+            for seg in segments]
+
+
 def build_problem(scenario: Scenario) -> Problem:
     """Convert a validated scenario into an SI :class:`Problem` (reads the CSV profiles)."""
     spec = scenario.spec
@@ -1209,7 +1219,7 @@ def build_problem(scenario: Scenario) -> Problem:
     t_sink = spec.thermal.initial_sink_temperature or t_cell
     return Problem(
         cell=cell, pack=pack, thermal=spec.thermal.network(),
-        segments=tuple(expand_repeats(segments, spec.profile.repeat)),
+        segments=tuple(expand_repeats(scale_demand(segments, spec.profile.scale), spec.profile.repeat)),
         ambient_temperature=ambient, initial_soc=cell_spec.initial_soc,
         initial_cell_temperature=t_cell, initial_sink_temperature=t_sink,
         limits=Limits(spec.limits.cell_temperature_max, spec.limits.charge_temperature_min),
