@@ -114,7 +114,9 @@ def _mean_discharge_power(result: SimulationResult) -> float | None:
     dt = np.diff(times)
     discharging = 0.5 * (current[:-1] + current[1:]) > 0
     seconds = float(np.sum(dt[discharging]))
-    energy = result.summary["energy_discharged_Wh"] * JOULES_PER_WH
+    # the load's demand: a heater fed from the pack is added again by the cutoff run itself
+    energy = (result.summary["energy_discharged_Wh"] - result.summary.get("heater_energy_from_pack_Wh", 0.0)) \
+        * JOULES_PER_WH
     return energy / seconds if seconds > 0 and energy > 0 else None
 
 
@@ -128,9 +130,11 @@ def energy_to_cutoff(case: Scenario, mission: SimulationResult) -> SimulationRes
         return None
     from .api import simulate
 
+    # the same start as the mission: its soak segments (if any) come first
+    soak = [seg for seg in case.raw["profile"]["segment"] if seg.get("mode") == "soak"]
     overrides: dict[str, Any] = {
-        "profile": {"repeat": 1, "segment": [{"mode": "power", "value": f"{power!r} W",
-                                              "duration": CUTOFF_RUN_DURATION}]},
+        "profile": {"repeat": 1, "segment": [*soak, {"mode": "power", "value": f"{power!r} W",
+                                                     "duration": CUTOFF_RUN_DURATION}]},
     }
     if case.spec.thermal.ambient_temperature is None:  # it came from the profile file
         overrides["thermal.ambient_temperature"] = f"{mission.series['ambient_temperature_degC'][0]!r} degC"
