@@ -284,3 +284,26 @@ def test_demo_cell_file_is_the_fit_of_the_demo_logs(tmp_path):
     assert refit["specific_heat"] == committed["specific_heat"]
     result = thermoelec.simulate_file(SCENARIOS / "scooter_commute.toml")
     assert result.completed and result.summary["voltage_margin_min_V"] > 0
+
+
+def test_two_rc_pairs_are_separated(tmp_path):
+    # a fast (8 s) and a slow (150 s) pair at 25 degC; a 900 s relaxation shows the slow one. The slow pair
+    # is the less identifiable from a 30 s pulse (most of all where the OCV is steep), hence 7 % on R2.
+    cell = true_cell(rc=[{"resistance": "8 mohm", "time_constant": "8 s"},
+                         {"resistance": "12 mohm", "time_constant": "150 s"}])
+    data = {"format": 1, "scenario": {"name": "two-pair rig"}, "cell": cell,
+            "thermal": {"ambient_temperature": "25 degC", "sink_heat_capacity": "1e5 J/K", "cell_to_sink": "1e3 W/K",
+                        "sink_to_ambient": "1e3 W/K"},
+            "profile": {"segment": synthesize.hppc_segments(3.0, relax=900.0)},
+            "solver": {"rtol": 1e-8, "output_interval": "1 s"}}
+    synthesize.record(thermoelec.simulate(data), synthesize.Recorder(), np.random.default_rng(11)).to_csv(
+        tmp_path / "hppc.csv", index=False)
+    (tmp_path / "ocv.toml").write_text('[cell]\ncapacity = "3 Ah"\n[cell.ocv]\n'
+                                       f"soc = {OCV_Z.tolist()}\nvoltage = {OCV_V}\n")
+    assert cli.main(["fit", "pulse", str(tmp_path / "hppc.csv"), "--cell", str(tmp_path / "ocv.toml"), "--rc", "2",
+                     "--out", str(tmp_path / "cell.toml"), "--quiet"]) == 0
+    rc = load_cell(tmp_path / "cell.toml")["rc"]
+    np.testing.assert_allclose(np.ravel(rc[0]["resistance"]["values"]), 8e-3, rtol=0.05)
+    np.testing.assert_allclose(np.ravel(rc[1]["resistance"]["values"]), 12e-3, rtol=0.07)
+    assert float(rc[0]["time_constant"].split()[0]) == pytest.approx(8.0, rel=0.10)
+    assert float(rc[1]["time_constant"].split()[0]) == pytest.approx(150.0, rel=0.10)
