@@ -290,6 +290,9 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("thermoelec: interrupted", file=sys.stderr)
         return 130
+    except BrokenPipeError:  # output piped into head or less that closed early: not an error
+        sys.stderr.close()
+        return EXIT_OK
     except Exception as exc:
         if os.environ.get("THERMOELEC_DEBUG"):
             raise
