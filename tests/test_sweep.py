@@ -244,3 +244,19 @@ def test_profile_scale_multiplies_current_and_power_demands():
         assert scaled[key][row] == pytest.approx(factor * plain[key][row], rel=1e-9)
     row = int(np.flatnonzero(t == 150.0)[0])
     assert scaled["voltage_V"][row] == pytest.approx(3.5, rel=1e-12)  # an imposed voltage is not scaled
+
+
+def test_keep_series_writes_decimated_series_chunked_by_scenario(tmp_path):
+    path = write_scenario(tmp_path, {"profile.segment[1].value": ["2 A", "7 A"]})
+    assert cli.main(["sweep", str(path), "--out", str(tmp_path / "o"), "--quiet", "--workers", "1",
+                     "--no-figures", "--keep-series", "20 s"]) == 0
+    kept = xr.open_zarr(tmp_path / "o" / "series.zarr").load()
+    assert kept["voltage_V"].shape == (2, 61) and list(kept["time"].values[:3]) == [0.0, 20.0, 40.0]
+    solo = thermoelec.simulate(load(path), overrides={"profile.segment[1].value": "7 A"})
+    end = solo.series["time_s"][-1]
+    t = kept["time"].values
+    inside = t <= end
+    np.testing.assert_allclose(kept["voltage_V"].values[1, inside],
+                               np.interp(t[inside], solo.series["time_s"], solo.series["voltage_V"]), atol=1e-9)
+    assert solo.stop_reason != "end_of_profile" and np.isnan(kept["voltage_V"].values[1, ~inside]).all()
+    assert list(kept["profile.segment[1].value"].values) == [2.0, 7.0]

@@ -203,10 +203,20 @@ def _sweep(args: argparse.Namespace) -> int:
     if not args.quiet:
         dims = " x ".join(f"{a.path} ({len(a.values)})" for a in plan.axes)
         print(f"sweep of {scenario.name}: {plan.size} scenarios, {plan.mode} over {dims}")
+    keep = None
+    if args.keep_series is not None:
+        try:
+            keep = to_si(parse_value(args.keep_series), "s", "s")
+        except ValueError as exc:
+            raise ScenarioError("--keep-series", args.keep_series, str(exc)) from None
+        if keep <= 0:
+            raise ScenarioError("--keep-series", args.keep_series, "the interval must be > 0")
     rows = sweep.run_sweep(scenario, plan, out, args.workers, args.scheduler, args.resume, args.chunk_size,
-                           progress=not args.quiet)
+                           progress=not args.quiet, keep_interval=keep)
     ds = sweep.sweep_dataset(scenario, plan, rows)
     sweep.write_sweep(ds, out, figures=not args.no_figures)
+    if keep is not None:
+        sweep.write_series(plan, rows, out)
     if not args.quiet:
         passed = int(sweep.passes(ds).sum())
         print(f"{passed} of {plan.size} pass; {ds.attrs['failed']} failed to solve or were invalid; "
@@ -246,6 +256,8 @@ def build_parser() -> argparse.ArgumentParser:
     sw.add_argument("--scheduler", help="address of a dask.distributed scheduler to run the chunks on")
     sw.add_argument("--resume", action="store_true", help="skip the chunks already finished in --out")
     sw.add_argument("--chunk-size", type=int, help="scenarios per task")
+    sw.add_argument("--keep-series", metavar="INTERVAL", nargs="?", const="10 s",
+                    help="also keep each scenario's series, decimated to INTERVAL (default 10 s), in series.zarr")
     sw.add_argument("--find", metavar="CRITERION", help="design search, e.g. 'cell_temperature_max_degC <= 45'")
     sw.add_argument("--over", metavar="KEY", help="the key the search varies, e.g. thermal.sink_to_ambient")
     sw.add_argument("--between", nargs=2, metavar=("LOW", "HIGH"), help="its range, e.g. '0.1 W/K' '10 W/K'")

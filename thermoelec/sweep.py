@@ -150,7 +150,22 @@ def plan_sweep(scenario: Scenario, cli_items: Sequence[str] = ()) -> SweepPlan:
 # ---------------------------------------------------------------------------
 
 
-def _metrics_of(scenario: Scenario, overrides: Mapping[str, Any]) -> dict[str, Any]:
+#: Series kept per scenario with ``--keep-series`` (decimated to a uniform time grid).
+KEPT_SERIES = ("current_A", "voltage_V", "soc", "cell_temperature_degC", "sink_temperature_degC", "heat_W")
+
+
+def decimate(series: Mapping[str, np.ndarray], interval: float) -> dict[str, list[float]]:
+    """The kept series on the grid 0, interval, 2 interval, ... up to the end (linear between rows)."""
+    times = series["time_s"]
+    grid = np.arange(0.0, times[-1] + 1e-9, interval)
+    # at a jump the row after it is taken, as the series lists before-then-after
+    keep = np.concatenate([times[1:] != times[:-1], [True]])
+    return {"time_s": grid.tolist(),
+            **{k: np.interp(grid, times[keep], series[k][keep]).tolist() for k in KEPT_SERIES}}
+
+
+def _metrics_of(scenario: Scenario, overrides: Mapping[str, Any], keep_interval: float | None = None
+                ) -> dict[str, Any]:
     from .api import simulate
 
     try:
@@ -161,12 +176,15 @@ def _metrics_of(scenario: Scenario, overrides: Mapping[str, Any]) -> dict[str, A
         return {"status": "failed", "message": f"{type(exc).__name__}: {exc}"}
     row: dict[str, Any] = {k: result.summary.get(k) for k in METRICS}
     row.update(status=result.status, message=result.message, stop_reason=result.summary["stop_reason"])
+    if keep_interval is not None:
+        row["series"] = decimate(result.series, keep_interval)
     return row
 
 
-def run_chunk(scenario: Scenario, plan: SweepPlan, indices: Sequence[int]) -> list[dict[str, Any]]:
-    """Simulate the scenarios ``indices`` of a plan, in order."""
-    return [_metrics_of(scenario, plan.overrides(i)) for i in indices]
+def run_chunk(scenario: Scenario, plan: SweepPlan, indices: Sequence[int],
+              keep_interval: float | None = None) -> list[dict[str, Any]]:
+    """Simulate the scenarios ``indices`` of a plan, in order (with decimated series if ``keep_interval``)."""
+    return [_metrics_of(scenario, plan.overrides(i), keep_interval) for i in indices]
 
 
 def _write_atomic(path: Path, text: str) -> None:
@@ -205,7 +223,8 @@ def _chunks(size: int, chunk: int) -> list[list[int]]:
 
 def run_sweep(scenario: Scenario, plan: SweepPlan, out: Path, workers: int | None = None,
               scheduler: str | None = None, resume: bool = False, chunk_size: int | None = None,
-              progress: bool = True, cluster: Any = None) -> list[dict[str, Any]]:
+              progress: bool = True, cluster: Any = None, keep_interval: float | None = None
+              ) -> list[dict[str, Any]]:
     """Run every scenario of a plan, checkpointing each chunk; returns the rows in plan order.
 
     ``scheduler`` is a dask.distributed address (``cluster`` a Client or
@@ -214,7 +233,7 @@ def run_sweep(scenario: Scenario, plan: SweepPlan, out: Path, workers: int | Non
     out.mkdir(parents=True, exist_ok=True)
     chunk_dir = out / "chunks"
     chunk_dir.mkdir(exist_ok=True)
-    signature = plan.signature(scenario.digest)
+    signature = plan.signature(scenario.digest + f"/series:{keep_interval}")
     stamp = out / "sweep_plan.json"
     if stamp.exists() and resume:
         if json.loads(stamp.read_text()).get("signature") != signature:
@@ -243,33 +262,35 @@ def run_sweep(scenario: Scenario, plan: SweepPlan, out: Path, workers: int | Non
 
     if todo:
         if scheduler is not None or cluster is not None:
-            _run_dask(scenario, plan, chunks, todo, finish, scheduler, cluster)
+            _run_dask(scenario, plan, chunks, todo, finish, scheduler, cluster, keep_interval)
         elif workers == 1:
             for k in todo:
-                finish(k, run_chunk(scenario, plan, chunks[k]))
+                finish(k, run_chunk(scenario, plan, chunks[k], keep_interval))
         else:
-            _run_processes(scenario, plan, chunks, todo, finish, workers)
+            _run_processes(scenario, plan, chunks, todo, finish, workers, keep_interval)
     return [row for k in range(len(chunks)) for row in done[k]]
 
 
-def _run_processes(scenario, plan, chunks, todo, finish: Callable, workers: int) -> None:
+def _run_processes(scenario, plan, chunks, todo, finish: Callable, workers: int, keep_interval) -> None:
     import multiprocessing
     from concurrent.futures import ProcessPoolExecutor, as_completed
 
     context = multiprocessing.get_context("forkserver")
     with ProcessPoolExecutor(max_workers=workers, mp_context=context) as pool:
-        futures = {pool.submit(run_chunk, scenario, plan, chunks[k]): k for k in todo}
+        futures = {pool.submit(run_chunk, scenario, plan, chunks[k], keep_interval): k for k in todo}
         for future in as_completed(futures):
             finish(futures[future], future.result())
 
 
-def _run_dask(scenario, plan, chunks, todo, finish: Callable, scheduler: str | None, cluster: Any) -> None:
+def _run_dask(scenario, plan, chunks, todo, finish: Callable, scheduler: str | None, cluster: Any,
+              keep_interval: float | None = None) -> None:
     from distributed import Client, as_completed
 
     client = cluster if isinstance(cluster, Client) else Client(cluster if cluster is not None else scheduler)
     try:
         # a task lost with its worker is run again elsewhere (retries), so no scenario is lost
-        futures = {client.submit(run_chunk, scenario, plan, chunks[k], pure=False, retries=3): k for k in todo}
+        futures = {client.submit(run_chunk, scenario, plan, chunks[k], keep_interval, pure=False, retries=3): k
+                   for k in todo}
         for future in as_completed(futures):
             finish(futures[future], future.result())
     finally:
@@ -313,6 +334,34 @@ def _unit_of(key: str) -> str:
         if key.endswith(suffix):
             return unit
     return "1"
+
+
+def write_series(plan: SweepPlan, rows: Sequence[Mapping[str, Any]], out: Path, chunk: int = 64) -> Path:
+    """The kept series of every scenario into ``DIR/series.zarr``: dimensions ``scenario`` x ``time``,
+    chunked by scenario; a scenario that stopped early (or failed) is NaN after its end."""
+    import xarray as xr
+
+    length = max((len(r["series"]["time_s"]) for r in rows if "series" in r), default=0)
+    longest = next((r["series"]["time_s"] for r in rows if "series" in r and len(r["series"]["time_s"]) == length),
+                   [])
+    data = {}
+    for key in KEPT_SERIES:
+        block = np.full((len(rows), length), np.nan)
+        for i, row in enumerate(rows):
+            if "series" in row:
+                values = row["series"][key]
+                block[i, :len(values)] = values
+        data[key] = (("scenario", "time"), block, {"units": _unit_of(key) if key != "soc" else "1"})
+    index = {}
+    for axis in plan.axes:  # each scenario's value of each swept key, in the key's coordinate
+        lookup = dict(zip(map(str, axis.values), axis.coords, strict=True))
+        index[axis.path] = ("scenario", np.array([lookup[str(plan.overrides(i)[axis.path])]
+                                                  for i in range(plan.size)]), {"units": axis.unit})
+    ds = xr.Dataset(data, coords={"time": ("time", np.asarray(longest, float), {"units": "s"}),
+                                  "scenario": np.arange(len(rows)), **index})
+    path = out / "series.zarr"
+    ds.chunk({"scenario": chunk, "time": -1}).to_zarr(path, mode="w", zarr_format=2, consolidated=True)
+    return path
 
 
 def passes(ds) -> Any:
