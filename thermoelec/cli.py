@@ -212,7 +212,7 @@ def _sweep(args: argparse.Namespace) -> int:
         if keep <= 0:
             raise ScenarioError("--keep-series", args.keep_series, "the interval must be > 0")
     rows = sweep.run_sweep(scenario, plan, out, args.workers, args.scheduler, args.resume, args.chunk_size,
-                           progress=not args.quiet, keep_interval=keep)
+                           progress=not args.quiet, keep_interval=keep, engine=args.engine)
     ds = sweep.sweep_dataset(scenario, plan, rows)
     sweep.write_sweep(ds, out, figures=not args.no_figures)
     if keep is not None:
@@ -256,6 +256,9 @@ def build_parser() -> argparse.ArgumentParser:
     sw.add_argument("--scheduler", help="address of a dask.distributed scheduler to run the chunks on")
     sw.add_argument("--resume", action="store_true", help="skip the chunks already finished in --out")
     sw.add_argument("--chunk-size", type=int, help="scenarios per task")
+    sw.add_argument("--engine", choices=("batch", "solo"), default="batch",
+                    help="batch: the batched Runge-Kutta solver where it applies (default); solo: every scenario "
+                         "on its own back end")
     sw.add_argument("--keep-series", metavar="INTERVAL", nargs="?", const="10 s",
                     help="also keep each scenario's series, decimated to INTERVAL (default 10 s), in series.zarr")
     sw.add_argument("--find", metavar="CRITERION", help="design search, e.g. 'cell_temperature_max_degC <= 45'")

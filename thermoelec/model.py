@@ -472,6 +472,12 @@ def rhs(y, ydot, p, alg):
 def roots(y, g, p, alg, scratch):
     """Event functions ``g_k`` written into ``g``; each is positive while all is well."""
     evaluate(y, p, scratch, alg)
+    roots_from(y, g, p, alg)
+
+
+@_jit
+def roots_from(y, g, p, alg):
+    """Event functions from the algebraic outputs ``alg`` already evaluated at ``y``."""
     nrc = int(p[H_NRC])
     z = y[0]
     vcell = alg[A_CELL_VOLTAGE]

@@ -68,7 +68,22 @@ def _registry():
 
 
 def to_si(value: Any, default_unit: str, si_unit: str) -> float:
-    """A scenario quantity (bare number in ``default_unit`` or ``"value unit"``) in ``si_unit``."""
+    """A scenario quantity (bare number in ``default_unit`` or ``"value unit"``) in ``si_unit``.
+
+    Pure, so repeated conversions (a sweep validates thousands of variants of one
+    file) come from a cache.
+    """
+    if isinstance(value, bool) or not isinstance(value, (int, float, str)):
+        raise ValueError(f"expected a number or a quantity string like '1.5 {default_unit}', got {value!r}")
+    return _to_si_cached(value, type(value), default_unit, si_unit)
+
+
+@lru_cache(maxsize=65536)
+def _to_si_cached(value: Any, kind: type, default_unit: str, si_unit: str) -> float:
+    return _to_si(value, default_unit, si_unit)
+
+
+def _to_si(value: Any, default_unit: str, si_unit: str) -> float:
     if isinstance(value, bool) or not isinstance(value, (int, float, str)):
         raise ValueError(f"expected a number or a quantity string like '1.5 {default_unit}', got {value!r}")
     if isinstance(value, str):
@@ -934,7 +949,23 @@ def check_increasing(time: np.ndarray, name: str, column: str) -> None:
 
 
 def read_profile_csv(path: Path, key: str) -> SeriesProfile:
-    """Read a zero-order-hold profile: ``time_s`` plus one demand column, optional ambient."""
+    """Read a zero-order-hold profile: ``time_s`` plus one demand column, optional ambient.
+
+    Read once per file version (a sweep builds thousands of scenarios on one profile).
+    """
+    try:
+        stat = path.stat()
+    except OSError:
+        return _read_profile_csv(path, key)
+    return _read_profile_csv_cached(path, key, stat.st_mtime_ns, stat.st_size)
+
+
+@lru_cache(maxsize=32)
+def _read_profile_csv_cached(path: Path, key: str, mtime_ns: int, size: int) -> SeriesProfile:
+    return _read_profile_csv(path, key)
+
+
+def _read_profile_csv(path: Path, key: str) -> SeriesProfile:
     name = str(path)
     frame = read_csv_frame(path, key, "profile")
     if "time_s" not in frame.columns:
@@ -1160,6 +1191,21 @@ def _segment_from_spec(spec: SegmentSpec, origin: str, default_ambient: float | 
     return Segment(spec.mode, float(spec.value), spec.duration, **common)
 
 
+_SERIES_SEGMENTS: dict[int, tuple[SeriesProfile, str, tuple[Segment, ...]]] = {}
+
+
+def _series_segments(series: SeriesProfile, name: str) -> tuple[Segment, ...]:
+    """The segments of a CSV profile, built once per profile read (sweeps share them)."""
+    hit = _SERIES_SEGMENTS.get(id(series))
+    if hit is None or hit[0] is not series or hit[1] != name:
+        if len(_SERIES_SEGMENTS) >= 32:
+            _SERIES_SEGMENTS.clear()
+        hit = (series, name, tuple(segments_from_series(series.time, series.mode, series.demand, series.ambient,
+                                                        name)))
+        _SERIES_SEGMENTS[id(series)] = hit
+    return hit[2]
+
+
 def scale_demand(segments: list[Segment], factor: float) -> list[Segment]:
     """Current and power demands (and CC charge currents) times ``factor``; voltages, resistances, rests kept."""
     if factor == 1.0:
@@ -1185,7 +1231,7 @@ def build_problem(scenario: Scenario) -> Problem:
             series = read_profile_csv(scenario.base_dir / seg.file, f"{key}.file")
             if first_ambient is None and series.ambient is not None:
                 first_ambient = float(series.ambient[0])
-            segments += segments_from_series(series.time, series.mode, series.demand, series.ambient, seg.file)
+            segments += _series_segments(series, seg.file)
         elif seg.mode == "soak":
             soak.append(_segment_from_spec(seg, key, spec.thermal.ambient_temperature or first_ambient))
         else:

@@ -182,9 +182,39 @@ def _metrics_of(scenario: Scenario, overrides: Mapping[str, Any], keep_interval:
 
 
 def run_chunk(scenario: Scenario, plan: SweepPlan, indices: Sequence[int],
-              keep_interval: float | None = None) -> list[dict[str, Any]]:
-    """Simulate the scenarios ``indices`` of a plan, in order (with decimated series if ``keep_interval``)."""
-    return [_metrics_of(scenario, plan.overrides(i), keep_interval) for i in indices]
+              keep_interval: float | None = None, engine: str = "batch") -> list[dict[str, Any]]:
+    """Simulate the scenarios ``indices`` of a plan, in order (with decimated series if ``keep_interval``).
+
+    With ``engine = "batch"`` the scenarios the batched solver can take
+    (:func:`thermoelec.batch.eligible`) are solved together by it; the others,
+    any it hands back, and every scenario when series are kept, run solo on
+    their own back end (CVODE by default).
+    """
+    rows: dict[int, dict[str, Any]] = {}
+    if engine == "batch" and keep_interval is None:
+        from . import batch
+
+        groups: dict[int, list[tuple[int, Any]]] = {}
+        for i in indices:
+            try:
+                problem = scenario.with_overrides(plan.overrides(i)).problem()
+            except ScenarioError:
+                continue  # recorded by the solo path below
+            if batch.eligible(problem) is None:
+                groups.setdefault(problem.n_rc, []).append((i, problem))
+        for members in groups.values():
+            problems = [problem for _, problem in members]
+            outcome = batch.solve_batch(problems, scenario.with_overrides(plan.overrides(members[0][0]))
+                                        .solver_options())
+            for j, (i, problem) in enumerate(members):
+                if outcome.status[j] == "ok":
+                    rows[i] = batch.batch_metrics(problem, outcome, j)
+                    rows[i]["engine"] = "batch"
+    for i in indices:
+        if i not in rows:
+            rows[i] = _metrics_of(scenario, plan.overrides(i), keep_interval)
+            rows[i]["engine"] = "solo"
+    return [rows[i] for i in indices]
 
 
 def _write_atomic(path: Path, text: str) -> None:
@@ -223,8 +253,8 @@ def _chunks(size: int, chunk: int) -> list[list[int]]:
 
 def run_sweep(scenario: Scenario, plan: SweepPlan, out: Path, workers: int | None = None,
               scheduler: str | None = None, resume: bool = False, chunk_size: int | None = None,
-              progress: bool = True, cluster: Any = None, keep_interval: float | None = None
-              ) -> list[dict[str, Any]]:
+              progress: bool = True, cluster: Any = None, keep_interval: float | None = None,
+              engine: str = "batch") -> list[dict[str, Any]]:
     """Run every scenario of a plan, checkpointing each chunk; returns the rows in plan order.
 
     ``scheduler`` is a dask.distributed address (``cluster`` a Client or
@@ -233,7 +263,7 @@ def run_sweep(scenario: Scenario, plan: SweepPlan, out: Path, workers: int | Non
     out.mkdir(parents=True, exist_ok=True)
     chunk_dir = out / "chunks"
     chunk_dir.mkdir(exist_ok=True)
-    signature = plan.signature(scenario.digest + f"/series:{keep_interval}")
+    signature = plan.signature(scenario.digest + f"/series:{keep_interval}/engine:{engine}")
     stamp = out / "sweep_plan.json"
     if stamp.exists() and resume:
         if json.loads(stamp.read_text()).get("signature") != signature:
@@ -244,7 +274,7 @@ def run_sweep(scenario: Scenario, plan: SweepPlan, out: Path, workers: int | Non
             old.unlink()
         _write_atomic(stamp, json.dumps({"signature": signature, "size": plan.size}))
     workers = workers or os.cpu_count() or 1
-    chunk = chunk_size or max(1, min(64, plan.size // (4 * workers) or 1))
+    chunk = chunk_size or max(1, min(256, plan.size // (4 * workers) or 1))
     chunks = _chunks(plan.size, chunk)
     done: dict[int, list[dict[str, Any]]] = {}
     for k in range(len(chunks)):
@@ -262,35 +292,36 @@ def run_sweep(scenario: Scenario, plan: SweepPlan, out: Path, workers: int | Non
 
     if todo:
         if scheduler is not None or cluster is not None:
-            _run_dask(scenario, plan, chunks, todo, finish, scheduler, cluster, keep_interval)
+            _run_dask(scenario, plan, chunks, todo, finish, scheduler, cluster, keep_interval, engine)
         elif workers == 1:
             for k in todo:
-                finish(k, run_chunk(scenario, plan, chunks[k], keep_interval))
+                finish(k, run_chunk(scenario, plan, chunks[k], keep_interval, engine))
         else:
-            _run_processes(scenario, plan, chunks, todo, finish, workers, keep_interval)
+            _run_processes(scenario, plan, chunks, todo, finish, workers, keep_interval, engine)
     return [row for k in range(len(chunks)) for row in done[k]]
 
 
-def _run_processes(scenario, plan, chunks, todo, finish: Callable, workers: int, keep_interval) -> None:
+def _run_processes(scenario, plan, chunks, todo, finish: Callable, workers: int, keep_interval,
+                   engine: str) -> None:
     import multiprocessing
     from concurrent.futures import ProcessPoolExecutor, as_completed
 
     context = multiprocessing.get_context("forkserver")
     with ProcessPoolExecutor(max_workers=workers, mp_context=context) as pool:
-        futures = {pool.submit(run_chunk, scenario, plan, chunks[k], keep_interval): k for k in todo}
+        futures = {pool.submit(run_chunk, scenario, plan, chunks[k], keep_interval, engine): k for k in todo}
         for future in as_completed(futures):
             finish(futures[future], future.result())
 
 
 def _run_dask(scenario, plan, chunks, todo, finish: Callable, scheduler: str | None, cluster: Any,
-              keep_interval: float | None = None) -> None:
+              keep_interval: float | None = None, engine: str = "batch") -> None:
     from distributed import Client, as_completed
 
     client = cluster if isinstance(cluster, Client) else Client(cluster if cluster is not None else scheduler)
     try:
         # a task lost with its worker is run again elsewhere (retries), so no scenario is lost
-        futures = {client.submit(run_chunk, scenario, plan, chunks[k], keep_interval, pure=False, retries=3): k
-                   for k in todo}
+        futures = {client.submit(run_chunk, scenario, plan, chunks[k], keep_interval, engine, pure=False,
+                                 retries=3): k for k in todo}
         for future in as_completed(futures):
             finish(futures[future], future.result())
     finally:
@@ -319,7 +350,7 @@ def sweep_dataset(scenario: Scenario, plan: SweepPlan, rows: Sequence[Mapping[st
     for key in METRICS:
         values = np.array([np.nan if r.get(key) is None else float(r[key]) for r in rows]).reshape(shape)
         data[key] = (dims, values, {"units": _unit_of(key)})
-    for key in ("status", "message", "stop_reason"):
+    for key in ("status", "message", "stop_reason", "engine"):
         data[key] = (dims, np.array([str(r.get(key) or "") for r in rows], dtype=object).reshape(shape))
     ds = xr.Dataset(data, coords=coords)
     ds.attrs.update(thermoelec_version=__version__, scenario_file=scenario.source, scenario_sha256=scenario.digest,

@@ -1,0 +1,388 @@
+"""Batched solving for sweeps: many scenarios in one compiled loop, an embedded Runge-Kutta pair per scenario.
+
+Short segments make CVODE pay its restart (order 1, small first steps, a new
+Jacobian) at every breakpoint. An explicit one-step method pays nothing to
+restart: it keeps its step size across a breakpoint and only shortens the step
+that would cross it. So scenarios are integrated here with the Dormand-Prince
+5(4) pair (J. R. Dormand, P. J. Prince, J. Comput. Appl. Math. 6 (1980) 19),
+with per-scenario error control on the engine's own right-hand side kernel
+(``model.evaluate``, so the physics is the engine's) and the same per-state
+tolerances, each step ending at or before the next segment boundary.
+
+Events: the engine's root functions (``model.roots``) are checked after every
+step; when one turns non-positive, the crossing is located by bisection on the
+step length (each trial a fresh Dormand-Prince step from the step's start) to
+``EVENT_TIME_TOLERANCE``, and the scenario stops there. A demand that is
+infeasible at a segment start is caught by the engine's ``model.start_check``.
+A scenario whose steps collapse (a stiff fast RC pair or a tiny sink against a
+large conductance) is handed back for a solo CVODE run (status ``fallback``).
+
+Scope: segments of current, power, resistance and rest; no CC-CV, segment end
+conditions, thermostats or soak (those scenarios go to CVODE whole).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+import numba
+import numpy as np
+
+from . import model as m
+from .model import Problem
+from .solve import IMPOSED_VOLTAGE_SLACK, START_PROBE, STOP_EVENTS, SolverOptions, _event_setup, _Phase
+
+__all__ = ["BatchOutcome", "eligible", "solve_batch"]
+
+#: Event times are located to this many seconds.
+EVENT_TIME_TOLERANCE = 1e-7
+#: Steps allowed in one segment before the scenario goes to CVODE instead.
+MAX_STEPS_PER_SEGMENT = 2000
+_BATCH_MODES = {"current", "power", "resistance", "rest"}
+
+# Dormand-Prince 5(4) tableau (Hairer, Norsett & Wanner, Solving ODEs I, 2nd ed., Table II.5.2)
+_C = np.array([0.0, 1 / 5, 3 / 10, 4 / 5, 8 / 9, 1.0, 1.0])
+_A = np.array([
+    [0, 0, 0, 0, 0, 0],
+    [1 / 5, 0, 0, 0, 0, 0],
+    [3 / 40, 9 / 40, 0, 0, 0, 0],
+    [44 / 45, -56 / 15, 32 / 9, 0, 0, 0],
+    [19372 / 6561, -25360 / 2187, 64448 / 6561, -212 / 729, 0, 0],
+    [9017 / 3168, -355 / 33, 46732 / 5247, 49 / 176, -5103 / 18656, 0],
+    [35 / 384, 0, 500 / 1113, 125 / 192, -2187 / 6784, 11 / 84],
+])
+_B = np.array([35 / 384, 0, 500 / 1113, 125 / 192, -2187 / 6784, 11 / 84, 0])
+_E = _B - np.array([5179 / 57600, 0, 7571 / 16695, 393 / 640, -92097 / 339200, 187 / 2100, 1 / 40])
+
+# per-scenario running extremes and integrals written by the kernel
+X_TC_MAX, X_TC_MIN, X_TS_MAX, X_V_MIN, X_V_MAX, X_VCELL_MIN, X_VCELL_MAX = 0, 1, 2, 3, 4, 5, 6
+X_I_ABS, X_I_MAX, X_I_MIN, X_P_MAX, X_ARRHENIUS, N_EXTRA = 7, 8, 9, 10, 11, 12
+
+
+def _identity(segments: tuple) -> tuple[int, ...]:
+    """A cheap key of a segment tuple: the identities of its (shared, immutable) segments."""
+    return tuple(map(id, segments))
+
+
+def eligible(problem: Problem) -> str | None:
+    """None when the batched solver can take the problem, else the reason it cannot."""
+    th = problem.thermal
+    if problem.soak:
+        return "a soak"
+    if th.fan or th.heater or th.pump:
+        return "thermostats"
+    key = _identity(problem.segments)
+    hit = _ELIGIBLE_CACHE.get(key)
+    if hit is None or hit[0] is not problem.segments[0]:
+        if len(_ELIGIBLE_CACHE) >= 16:
+            _ELIGIBLE_CACHE.clear()
+        hit = _ELIGIBLE_CACHE[key] = (problem.segments[0], _segments_reason(problem.segments),
+                                      problem.segments)
+    return hit[1]
+
+
+_ELIGIBLE_CACHE: dict[tuple, tuple] = {}
+
+
+def _segments_reason(segments) -> str | None:
+    for seg in segments:
+        if seg.mode not in _BATCH_MODES:
+            return f"a {seg.mode} segment"
+        if any(v is not None for v in (seg.voltage_below, seg.voltage_above, seg.soc_below, seg.soc_above)):
+            return "segment end conditions"
+    return None
+
+
+@numba.njit(cache=True)
+def _dp_step(y, p, h, k, tmp, alg, out, err):
+    """One Dormand-Prince step of size h from y, with ``k[0] = f(y)`` given.
+
+    The 5th-order solution goes to ``out`` and the error estimate to ``err``. The
+    last stage is evaluated at ``out`` itself (the pair is first-same-as-last),
+    so afterwards ``k[6] = f(out)`` and ``alg`` holds the algebraic outputs at ``out``.
+    """
+    n = y.size
+    for s in range(1, 7):
+        for i in range(n):
+            acc = y[i]
+            for j in range(s):
+                acc += h * _A[s, j] * k[j, i]
+            tmp[i] = acc
+        m.evaluate(tmp, p, k[s], alg)
+    for i in range(n):
+        e = 0.0
+        for s in range(7):
+            e += h * _E[s] * k[s, i]
+        out[i] = tmp[i]
+        err[i] = e
+
+
+@numba.njit(cache=True)
+def _error_norm(y, out, err, rtol, atol):
+    total = 0.0
+    for i in range(y.size):
+        scale = atol[i] + rtol * max(abs(y[i]), abs(out[i]))
+        total += (err[i] / scale) ** 2
+    return np.sqrt(total / y.size)
+
+
+@numba.njit(cache=True)
+def _observe(y, alg, extra, tc_index, ts_index):
+    """Running extremes from the state and its algebraic outputs."""
+    tc, ts = y[tc_index], y[ts_index]
+    extra[X_TC_MAX] = max(extra[X_TC_MAX], tc)
+    extra[X_TC_MIN] = min(extra[X_TC_MIN], tc)
+    extra[X_TS_MAX] = max(extra[X_TS_MAX], ts)
+    v, vc, cur = alg[m.A_VOLTAGE], alg[m.A_CELL_VOLTAGE], alg[m.A_CURRENT]
+    extra[X_V_MIN] = min(extra[X_V_MIN], v)
+    extra[X_V_MAX] = max(extra[X_V_MAX], v)
+    extra[X_VCELL_MIN] = min(extra[X_VCELL_MIN], vc)
+    extra[X_VCELL_MAX] = max(extra[X_VCELL_MAX], vc)
+    extra[X_I_ABS] = max(extra[X_I_ABS], abs(cur))
+    extra[X_I_MAX] = max(extra[X_I_MAX], cur)
+    extra[X_I_MIN] = min(extra[X_I_MIN], cur)
+    extra[X_P_MAX] = max(extra[X_P_MAX], v * cur)
+
+
+@numba.njit(cache=True)
+def _any_fired(g, p):
+    for e in range(m.N_EVENTS):
+        if p[m.H_ACTIVE + e] != 0.0 and g[e] <= 0.0:
+            return True
+    return False
+
+
+@numba.njit(cache=True)
+def _near_zero(g, p):
+    """True when an active root function is within its tolerance of zero (then the full start check runs)."""
+    for e in range(m.N_EVENTS):
+        if p[m.H_ACTIVE + e] != 0.0 and g[e] <= 1e-6 * m.EVENT_SCALES[e]:
+            return True
+    return False
+
+
+@numba.njit(cache=True)
+def _arrhenius_rate(temperature, ea, t_ref):
+    return np.exp(-ea / 8.314462618 * (1.0 / temperature - 1.0 / t_ref))
+
+
+@numba.njit(cache=True)
+def _integrate_one(p, modes, values, durations, ambients, setups, setup_index, y, rtol, atol, ea, t_ref,
+                   extra, tc_index, ts_index):
+    """One scenario through its segments. Returns (status, event, time): status 0 end, 1 stopped, 2 fallback."""
+    n = y.size
+    k = np.empty((7, n))
+    tmp, out, err, scratch = np.empty(n), np.empty(n), np.empty(n), np.empty(n)
+    trial, g, g_ahead = np.empty(n), np.empty(m.N_EVENTS), np.empty(m.N_EVENTS)
+    alg = np.empty(m.N_ALGEBRAICS)
+    default_ambient = p[m.H_AMBIENT]
+    t = 0.0
+    h = 0.05
+    rate_prev = _arrhenius_rate(y[tc_index], ea, t_ref)
+    for seg in range(modes.size):
+        p[m.H_MODE] = modes[seg]
+        p[m.H_VALUE] = values[seg]
+        p[m.H_AMBIENT] = ambients[seg] if not np.isnan(ambients[seg]) else default_ambient
+        p[m.H_ACTIVE:m.H_THRESHOLD + m.N_EVENTS] = setups[setup_index[seg]]
+        p[m.H_TIME] = t
+        m.evaluate(y, p, k[0], alg)  # the demand changed: a new first stage
+        m.roots_from(y, g, p, alg)
+        if _near_zero(g, p):  # the engine's full check (a limit already reached, or heading there)
+            code = m.start_check(y, p, alg, scratch, g, g_ahead, START_PROBE, IMPOSED_VOLTAGE_SLACK)
+            m.evaluate(y, p, k[0], alg)
+            if code >= 0:
+                _observe(y, alg, extra, tc_index, ts_index)
+                return 1, code, t
+        _observe(y, alg, extra, tc_index, ts_index)
+        t_end = t + durations[seg]
+        steps = 0
+        while t < t_end - 1e-12 * max(1.0, t_end):
+            steps += 1
+            if steps > MAX_STEPS_PER_SEGMENT or h < 1e-9:
+                return 2, -1, t
+            h_try = min(h, t_end - t)
+            p[m.H_TIME] = t
+            _dp_step(y, p, h_try, k, tmp, alg, out, err)
+            norm = _error_norm(y, out, err, rtol, atol)
+            if norm > 1.0 or not np.isfinite(norm):
+                h = h_try * max(0.2, 0.9 * norm ** -0.2) if np.isfinite(norm) else 0.25 * h_try
+                continue
+            m.roots_from(out, g, p, alg)
+            if _any_fired(g, p):
+                low, high = 0.0, h_try  # a root lies in (low, high]
+                while high - low > EVENT_TIME_TOLERANCE:
+                    mid = 0.5 * (low + high)
+                    _dp_step(y, p, mid, k, tmp, alg, trial, err)
+                    m.roots_from(trial, g, p, alg)
+                    if _any_fired(g, p):
+                        high = mid
+                    else:
+                        low = mid
+                _dp_step(y, p, high, k, tmp, alg, trial, err)
+                m.roots_from(trial, g, p, alg)
+                event = -1
+                best = 1e300
+                for e in range(m.N_EVENTS):
+                    if p[m.H_ACTIVE + e] != 0.0 and g[e] / m.EVENT_SCALES[e] < best:
+                        best = g[e] / m.EVENT_SCALES[e]
+                        event = e
+                extra[X_ARRHENIUS] += 0.5 * (rate_prev + _arrhenius_rate(trial[tc_index], ea, t_ref)) * high
+                for i in range(n):
+                    y[i] = trial[i]
+                _observe(y, alg, extra, tc_index, ts_index)
+                return 1, event, t + high
+            rate_new = _arrhenius_rate(out[tc_index], ea, t_ref)
+            extra[X_ARRHENIUS] += 0.5 * (rate_prev + rate_new) * h_try
+            rate_prev = rate_new
+            t += h_try
+            for i in range(n):
+                y[i] = out[i]
+                k[0, i] = k[6, i]  # first same as last
+            _observe(y, alg, extra, tc_index, ts_index)
+            factor = 5.0 if norm == 0.0 else min(5.0, max(0.2, 0.9 * norm ** -0.2))
+            if h_try >= h:  # a step cut short by the boundary says nothing about the next one
+                h = h_try * factor
+            else:
+                h = max(h, h_try * factor)
+        t = t_end
+    return 0, -1, t
+
+
+@numba.njit(cache=True)
+def _integrate_many(params, modes, values, durations, ambients, setups, setup_index, y0, rtol, atol, ea, t_ref,
+                    tc_index, ts_index):
+    n_scen = params.shape[0]
+    states = y0.copy()
+    extras = np.empty((n_scen, N_EXTRA))
+    status = np.empty(n_scen, dtype=np.int64)
+    events = np.empty(n_scen, dtype=np.int64)
+    times = np.empty(n_scen)
+    for s in range(n_scen):
+        extras[s, :] = np.array([-np.inf, np.inf, -np.inf, np.inf, -np.inf, np.inf, -np.inf, 0.0, -np.inf,
+                                 np.inf, -np.inf, 0.0])
+        p = params[s].copy()
+        y = states[s]
+        st, ev, tt = _integrate_one(p, modes[s], values[s], durations[s], ambients[s], setups[s], setup_index[s],
+                                    y, rtol, atol[s], ea[s], t_ref[s], extras[s], tc_index, ts_index)
+        status[s], events[s], times[s] = st, ev, tt
+    return states, extras, status, events, times
+
+
+@dataclass
+class BatchOutcome:
+    """Per scenario: status (``ok`` / ``fallback``), stop reason, end time and state, extremes."""
+
+    status: list[str]
+    stop_reason: list[str]
+    duration: np.ndarray
+    states: np.ndarray
+    extras: np.ndarray
+
+
+def _segment_arrays(problem: Problem) -> tuple[np.ndarray, ...]:
+    """Mode, value, duration, ambient and event set-up of every segment (cached: sweeps share profiles)."""
+    cell = problem.cell
+    # what the event set-up reads besides the segments
+    key = (_identity(problem.segments), cell.voltage_min, cell.voltage_max, problem.pack.series,
+           problem.limits.cell_temperature_max)
+    hit = _SEGMENT_CACHE.get(key)
+    if hit is None:
+        if len(_SEGMENT_CACHE) >= 16:
+            _SEGMENT_CACHE.clear()
+        # the segments are kept with the arrays, so their identities stay theirs while cached
+        hit = _SEGMENT_CACHE[key] = (_build_segment_arrays(problem), problem.segments)
+    return hit[0]
+
+
+_SEGMENT_CACHE: dict[tuple, tuple] = {}
+
+
+def _build_segment_arrays(problem: Problem) -> tuple[np.ndarray, ...]:
+    kinds: dict[tuple, int] = {}
+    blocks = []
+    modes, values, durations, ambients, index = [], [], [], [], []
+    for seg in problem.segments:
+        mode = m.MODE_CURRENT if seg.mode == "rest" else m.mode_code(seg.mode)
+        value = 0.0 if seg.mode == "rest" else seg.value
+        key = (mode, value > 0.0)
+        if key not in kinds:
+            kinds[key] = len(blocks)
+            blocks.append(_event_setup(problem, seg, _Phase(mode, value, "demand")))
+        modes.append(mode)
+        values.append(value)
+        durations.append(seg.duration)
+        ambients.append(np.nan if seg.ambient_temperature is None else seg.ambient_temperature)
+        index.append(kinds[key])
+    return (np.array(modes, float), np.array(values), np.array(durations), np.array(ambients), np.array(blocks),
+            np.array(index, dtype=np.int64))
+
+
+def solve_batch(problems: list[Problem], options: SolverOptions) -> BatchOutcome:
+    """Integrate eligible problems with the same state layout (same RC count) together."""
+    n_rc = problems[0].n_rc
+    if any(p.n_rc != n_rc for p in problems):
+        raise ValueError("a batch needs one state layout: the same number of RC pairs")
+    params_list = [m.pack_parameters(p) for p in problems]
+    width = max(len(p) for p in params_list)
+    params = np.zeros((len(problems), width))
+    for i, p in enumerate(params_list):
+        params[i, :len(p)] = p
+    arrays = [_segment_arrays(p) for p in problems]
+    n_seg = max(len(a[0]) for a in arrays)
+    n_kinds = max(len(a[4]) for a in arrays)
+
+    def stack(j: int, fill: Any) -> np.ndarray:
+        shape = (len(problems), n_kinds, 2 * m.N_EVENTS) if j == 4 else (len(problems), n_seg)
+        out = np.full(shape, fill, dtype=np.int64 if j == 5 else float)
+        for i, a in enumerate(arrays):
+            if j == 4:
+                out[i, :len(a[4])] = a[4]
+            else:
+                out[i, :len(a[j])] = a[j]
+        return out
+
+    modes, values, durations, ambients = stack(0, 0.0), stack(1, 0.0), stack(2, 0.0), stack(3, np.nan)
+    setups, index = stack(4, 0.0), stack(5, 0)
+    y0 = np.array([p.initial_state() for p in problems])
+    atol = np.array([options.atol_vector(n_rc) for _ in problems])
+    ea = np.array([p.stress.activation_energy for p in problems])
+    t_ref = np.array([p.stress.reference_temperature for p in problems])
+    states, extras, status, events, times = _integrate_many(
+        params, modes, values, durations, ambients, setups, index, y0, options.rtol, atol, ea, t_ref,
+        m.cell_temperature_index(n_rc), m.sink_temperature_index(n_rc))
+    stop = [STOP_EVENTS.get(int(e), "end_of_profile") if s == 1 else "end_of_profile"
+            for s, e in zip(status, events, strict=True)]
+    names = ["fallback" if s == 2 else "ok" for s in status]
+    return BatchOutcome(names, stop, times, states, extras)
+
+
+def batch_metrics(problem: Problem, outcome: BatchOutcome, i: int) -> dict[str, Any]:
+    """The sweep metrics of scenario ``i`` of a batch (as :func:`thermoelec.sweep._metrics_of` gives them)."""
+    n_rc = problem.n_rc
+    y, x = outcome.states[i], outcome.extras[i]
+    q = y[m.quadrature_index(n_rc):]
+    y0 = problem.initial_state()
+    cell = problem.cell
+    battery_out, battery_in = q[m.Q_BATTERY_DISCHARGE], -q[m.Q_BATTERY_CHARGE]
+    load_out, load_in = q[m.Q_LOAD_DISCHARGE], -q[m.Q_LOAD_CHARGE]
+    taken = battery_out + load_in
+    wh = 3600.0
+    energy_battery = (battery_out - battery_in) / wh
+    energy_load = (load_out - load_in) / wh
+    tc0 = y0[m.cell_temperature_index(n_rc)]
+    completed = outcome.stop_reason[i] == "end_of_profile"
+    return {
+        "completed": completed, "duration_s": float(outcome.duration[i]),
+        "cell_temperature_max_degC": x[X_TC_MAX] - 273.15, "cell_temperature_rise_K": x[X_TC_MAX] - tc0,
+        "sink_temperature_max_degC": x[X_TS_MAX] - 273.15, "voltage_min_V": x[X_V_MIN],
+        "current_max_A": x[X_I_ABS], "energy_battery_Wh": energy_battery, "energy_load_Wh": energy_load,
+        "energy_dissipated_Wh": energy_battery - energy_load, "energy_discharged_Wh": load_out / wh,
+        "heat_generated_Wh": q[m.Q_HEAT] / wh, "heat_to_ambient_Wh": q[m.Q_HEAT_AMBIENT] / wh,
+        "efficiency": (load_out + battery_in) / taken if taken > 0 else None,
+        "charge_throughput_Ah": q[m.Q_THROUGHPUT] / 3600.0, "soc_end": float(y[0]),
+        "voltage_margin_min_V": x[X_VCELL_MIN] - cell.voltage_min,
+        "temperature_margin_K": problem.limits.cell_temperature_max - x[X_TC_MAX],
+        "equivalent_time_at_reference_s": x[X_ARRHENIUS],
+        "status": "ok", "message": "", "stop_reason": outcome.stop_reason[i],
+    }
