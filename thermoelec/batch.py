@@ -30,7 +30,9 @@ import numba
 import numpy as np
 
 from . import model as m
+from .cell import arrhenius_factor
 from .model import Problem
+from .results import energy_totals, round_trip_efficiency
 from .solve import IMPOSED_VOLTAGE_SLACK, START_PROBE, STOP_EVENTS, SolverOptions, _event_setup, _Phase
 
 __all__ = ["BatchOutcome", "eligible", "solve_batch"]
@@ -164,7 +166,8 @@ def _near_zero(g, p):
 
 @numba.njit(cache=True)
 def _arrhenius_rate(temperature, ea, t_ref):
-    return np.exp(-ea / 8.314462618 * (1.0 / temperature - 1.0 / t_ref))
+    """Ageing rate relative to ``t_ref``: the inverse of the resistance law's Arrhenius factor."""
+    return 1.0 / arrhenius_factor(temperature, ea, t_ref)
 
 
 @numba.njit(cache=True)
@@ -362,26 +365,15 @@ def batch_metrics(problem: Problem, outcome: BatchOutcome, i: int) -> dict[str, 
     n_rc = problem.n_rc
     y, x = outcome.states[i], outcome.extras[i]
     q = y[m.quadrature_index(n_rc):]
-    y0 = problem.initial_state()
-    cell = problem.cell
-    battery_out, battery_in = q[m.Q_BATTERY_DISCHARGE], -q[m.Q_BATTERY_CHARGE]
-    load_out, load_in = q[m.Q_LOAD_DISCHARGE], -q[m.Q_LOAD_CHARGE]
-    taken = battery_out + load_in
-    wh = 3600.0
-    energy_battery = (battery_out - battery_in) / wh
-    energy_load = (load_out - load_in) / wh
-    tc0 = y0[m.cell_temperature_index(n_rc)]
-    completed = outcome.stop_reason[i] == "end_of_profile"
+    tc0 = problem.initial_state()[m.cell_temperature_index(n_rc)]
     return {
-        "completed": completed, "duration_s": float(outcome.duration[i]),
+        "completed": outcome.stop_reason[i] == "end_of_profile", "duration_s": float(outcome.duration[i]),
         "cell_temperature_max_degC": x[X_TC_MAX] - 273.15, "cell_temperature_rise_K": x[X_TC_MAX] - tc0,
         "sink_temperature_max_degC": x[X_TS_MAX] - 273.15, "voltage_min_V": x[X_V_MIN],
-        "current_max_A": x[X_I_ABS], "energy_battery_Wh": energy_battery, "energy_load_Wh": energy_load,
-        "energy_dissipated_Wh": energy_battery - energy_load, "energy_discharged_Wh": load_out / wh,
-        "heat_generated_Wh": q[m.Q_HEAT] / wh, "heat_to_ambient_Wh": q[m.Q_HEAT_AMBIENT] / wh,
-        "efficiency": (load_out + battery_in) / taken if taken > 0 else None,
+        "current_max_A": x[X_I_ABS], **energy_totals(q), "heat_generated_Wh": q[m.Q_HEAT] / 3600.0,
+        "heat_to_ambient_Wh": q[m.Q_HEAT_AMBIENT] / 3600.0, "efficiency": round_trip_efficiency(q),
         "charge_throughput_Ah": q[m.Q_THROUGHPUT] / 3600.0, "soc_end": float(y[0]),
-        "voltage_margin_min_V": x[X_VCELL_MIN] - cell.voltage_min,
+        "voltage_margin_min_V": x[X_VCELL_MIN] - problem.cell.voltage_min,
         "temperature_margin_K": problem.limits.cell_temperature_max - x[X_TC_MAX],
         "equivalent_time_at_reference_s": x[X_ARRHENIUS],
         "status": "ok", "message": "", "stop_reason": outcome.stop_reason[i],

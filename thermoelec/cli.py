@@ -107,10 +107,20 @@ def _compare(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def _quantity_option(text: str, unit: str, option: str) -> float:
+    """A command-line quantity (``'68 g'``, ``'-10 degC'``, a bare number in ``unit``) in SI."""
+    from .scenario import to_si
+
+    si = {"degC": "K"}.get(unit, unit)
+    try:
+        return to_si(parse_value(text), unit, si)
+    except ValueError as exc:
+        raise ScenarioError(option, text, str(exc)) from None
+
+
 def _fit(args: argparse.Namespace) -> int:
     from . import fit
     from .logs import read_mapping
-    from .scenario import to_si
 
     columns = {}
     for pair in args.column or []:
@@ -120,30 +130,20 @@ def _fit(args: argparse.Namespace) -> int:
         columns[key.strip()] = value.strip()
     mapping = read_mapping(args.mapping, columns, args.charge_positive)
 
-    def kelvin(text: str, option: str) -> float:
-        try:
-            return to_si(parse_value(text), "degC", "K")
-        except ValueError as exc:
-            raise ScenarioError(option, text, str(exc)) from None
-
     if args.kind == "ocv":
         outcome = fit.fit_ocv_logs(args.logs, mapping, args.points, args.cell)
     elif args.kind == "pulse":
         if not args.cell:
             raise ScenarioError("fit pulse", "--cell", "give the cell file with the capacity and OCV "
                                 "(from thermoelec fit ocv)")
-        temps = None if not args.temperature else [kelvin(t, "--temperature") for t in args.temperature]
+        temps = None if not args.temperature else [_quantity_option(t, "degC", "--temperature")
+                                                     for t in args.temperature]
         outcome = fit.fit_pulse_logs(args.logs, mapping, args.cell, args.rc, temps, args.arrhenius)
     else:
         if len(args.logs) != 1:
             raise ScenarioError("fit thermal", "LOG", "give one heating-and-cooling log")
-        ambient = None if args.ambient is None else kelvin(args.ambient, "--ambient")
-        mass = None
-        if args.mass is not None:
-            try:
-                mass = to_si(parse_value(args.mass), "kg", "kg")
-            except ValueError as exc:
-                raise ScenarioError("--mass", args.mass, str(exc)) from None
+        ambient = None if args.ambient is None else _quantity_option(args.ambient, "degC", "--ambient")
+        mass = None if args.mass is None else _quantity_option(args.mass, "kg", "--mass")
         outcome = fit.fit_thermal_log(args.logs[0], mapping, args.cell, ambient, mass)
     try:
         written = outcome.write(args.out)
@@ -205,10 +205,7 @@ def _sweep(args: argparse.Namespace) -> int:
         print(f"sweep of {scenario.name}: {plan.size} scenarios, {plan.mode} over {dims}")
     keep = None
     if args.keep_series is not None:
-        try:
-            keep = to_si(parse_value(args.keep_series), "s", "s")
-        except ValueError as exc:
-            raise ScenarioError("--keep-series", args.keep_series, str(exc)) from None
+        keep = _quantity_option(args.keep_series, "s", "--keep-series")
         if keep <= 0:
             raise ScenarioError("--keep-series", args.keep_series, "the interval must be > 0")
     rows = sweep.run_sweep(scenario, plan, out, args.workers, args.scheduler, args.resume, args.chunk_size,

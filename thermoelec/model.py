@@ -53,7 +53,7 @@ _power_margin = cellphys.power_deliverable_margin
 _bernardi = cellphys.bernardi_heat
 _cell_rate = thermphys.cell_node_rate
 _sink_rate = thermphys.sink_node_rate
-_h_conv = thermphys.convection_coefficient
+_h_from_numbers = thermphys.coefficient_from_numbers
 _conv_numbers = thermphys.convection_numbers
 _radiation = thermphys.radiation_heat
 _effectiveness = thermphys.coolant_effectiveness
@@ -389,10 +389,13 @@ def evaluate(y, p, ydot, alg):
     # sink to air: a fixed conductance or a correlation, plus a running fan
     g_sa = p[H_GSA]
     fan_on = p[H_FAN_ON] == 1.0
-    speed = 0.0
+    reynolds = 0.0
+    rayleigh = 0.0
     if p[H_FORCED] != 0.0 or p[H_NATURAL] != 0.0:
         speed = p[H_FAN_SPEED] if fan_on and p[H_FAN_SPEED] >= 0.0 else p[H_AIR_SPEED]
-        g_sa = _h_conv(int(p[H_FORCED]), int(p[H_NATURAL]), p[H_CONV_LENGTH], speed, ts, ta) * p[H_CONV_AREA]
+        reynolds, rayleigh, k_air, pr_air = _conv_numbers(p[H_CONV_LENGTH], speed, ts, ta)
+        g_sa = _h_from_numbers(int(p[H_FORCED]), int(p[H_NATURAL]), p[H_CONV_LENGTH], speed > 0.0, ts >= ta,
+                               reynolds, rayleigh, k_air, pr_air) * p[H_CONV_AREA]
     if fan_on:
         g_sa += p[H_FAN_G]
     radiated = 0.0
@@ -453,13 +456,8 @@ def evaluate(y, p, ydot, alg):
     alg[A_RADIATION] = radiated
     alg[A_SINK_CONDUCTANCE] = g_sa
     alg[A_COOLANT_OUTLET] = outlet
-    if p[H_FORCED] != 0.0 or p[H_NATURAL] != 0.0:
-        numbers = _conv_numbers(p[H_CONV_LENGTH], speed, ts, ta)
-        alg[A_REYNOLDS] = numbers[0]
-        alg[A_RAYLEIGH] = numbers[1]
-    else:
-        alg[A_REYNOLDS] = 0.0
-        alg[A_RAYLEIGH] = 0.0
+    alg[A_REYNOLDS] = reynolds
+    alg[A_RAYLEIGH] = rayleigh
 
 
 @_jit

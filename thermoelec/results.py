@@ -283,6 +283,32 @@ def _limits(problem: Problem) -> dict[str, float]:
     }
 
 
+def energy_totals(q: np.ndarray) -> dict[str, float]:
+    """Battery and load energies [Wh] from the quadratures ``q`` (``model.Q_*``), discharge and charge apart."""
+    battery_out, battery_in = q[m.Q_BATTERY_DISCHARGE], -q[m.Q_BATTERY_CHARGE]
+    load_out, load_in = q[m.Q_LOAD_DISCHARGE], -q[m.Q_LOAD_CHARGE]
+    energy_battery_wh = float(battery_out - battery_in) / JOULES_PER_WH
+    energy_load_wh = float(load_out - load_in) / JOULES_PER_WH
+    return {
+        "energy_battery_Wh": energy_battery_wh,
+        "energy_load_Wh": energy_load_wh,
+        "energy_dissipated_Wh": energy_battery_wh - energy_load_wh,
+        "energy_discharged_Wh": float(load_out) / JOULES_PER_WH,
+        "energy_charged_Wh": float(load_in) / JOULES_PER_WH,
+        "energy_battery_discharged_Wh": float(battery_out) / JOULES_PER_WH,
+        "energy_battery_charged_Wh": float(battery_in) / JOULES_PER_WH,
+    }
+
+
+def round_trip_efficiency(q: np.ndarray) -> float | None:
+    """Energy out over energy in: delivered to the load and stored in the cells, over drawn from the
+    cells and taken from the charger; ``None`` when nothing flowed."""
+    taken = q[m.Q_BATTERY_DISCHARGE] - q[m.Q_LOAD_CHARGE]
+    if taken <= 0:
+        return None
+    return _finite_or_none((q[m.Q_LOAD_DISCHARGE] - q[m.Q_BATTERY_CHARGE]) / taken)
+
+
 def _soak_summary(problem: Problem, soak: Trajectory | None) -> dict[str, Any] | None:
     """What the soak before the mission did: its end state, stop and heater energy."""
     if soak is None:
@@ -316,14 +342,7 @@ def _summary(problem: Problem, trajectory: Trajectory, series: dict[str, np.ndar
     stored = (c_cells * (tc[-1] - tc[0]) + th.sink_heat_capacity * (ts[-1] - ts[0])
               + c_coolant * (tf[-1] - tf[0]))
 
-    battery_out, battery_in = q[m.Q_BATTERY_DISCHARGE], -q[m.Q_BATTERY_CHARGE]
-    load_out, load_in = q[m.Q_LOAD_DISCHARGE], -q[m.Q_LOAD_CHARGE]
-    energy_battery_wh = float(battery_out - battery_in) / JOULES_PER_WH
-    energy_load_wh = float(load_out - load_in) / JOULES_PER_WH
-    # energy out / energy in: delivered to the load and stored in the cells,
-    # over drawn from the cells and taken from the charger
-    taken = battery_out + load_in
-    efficiency = (load_out + battery_in) / taken if taken > 0 else None
+    efficiency = round_trip_efficiency(q)
     current = series["current_A"]
     cell_voltage = series["cell_voltage_V"]
     times = series["time_s"]
@@ -372,13 +391,7 @@ def _summary(problem: Problem, trajectory: Trajectory, series: dict[str, np.ndar
         "discharge_current_max_A": float(max(current.max(), 0.0)),
         "charge_current_max_A": float(max(-current.min(), 0.0)) + 0.0,  # no -0.0
         "power_max_W": float(series["power_W"].max()),
-        "energy_battery_Wh": energy_battery_wh,
-        "energy_load_Wh": energy_load_wh,
-        "energy_dissipated_Wh": energy_battery_wh - energy_load_wh,
-        "energy_discharged_Wh": float(load_out) / JOULES_PER_WH,
-        "energy_charged_Wh": float(load_in) / JOULES_PER_WH,
-        "energy_battery_discharged_Wh": float(battery_out) / JOULES_PER_WH,
-        "energy_battery_charged_Wh": float(battery_in) / JOULES_PER_WH,
+        **energy_totals(q),
         "heat_generated_Wh": float(q[m.Q_HEAT]) / JOULES_PER_WH,
         "heat_reversible_Wh": float(q[m.Q_REVERSIBLE]) / JOULES_PER_WH,
         "heat_to_ambient_Wh": float(q[m.Q_HEAT_AMBIENT]) / JOULES_PER_WH,
@@ -390,7 +403,7 @@ def _summary(problem: Problem, trajectory: Trajectory, series: dict[str, np.ndar
         if th.heater is not None and th.heater.from_pack else 0.0,
         "thermostat_switches": sum(1 for e in trajectory.events if e["event"].endswith("_switch")
                                    and e["event"] != "cv_switch"),
-        "efficiency": None if efficiency is None else _finite_or_none(efficiency),
+        "efficiency": efficiency,
         "charge_throughput_Ah": float(q[m.Q_THROUGHPUT]) / COULOMBS_PER_AH,
         "soc_start": float(states[0, 0]),
         "soc_end": float(states[-1, 0]),

@@ -32,6 +32,7 @@ __all__ = [
     "air_properties",
     "biot_number",
     "cell_node_rate",
+    "coefficient_from_numbers",
     "convection_coefficient",
     "convection_conductance",
     "convection_numbers",
@@ -430,24 +431,37 @@ def convection_coefficient(forced: int, natural: int, length: float, air_speed: 
     ``Nu³ = Nu_F³ + Nu_N³`` (:func:`mixed_convection_nusselt`).
     """
     reynolds, rayleigh, k, pr = convection_numbers(length, air_speed, surface_temperature, air_temperature)
+    return coefficient_from_numbers(forced, natural, length, air_speed > 0.0,
+                                    surface_temperature >= air_temperature, reynolds, rayleigh, k, pr)
+
+
+@register_jitable
+def coefficient_from_numbers(forced: int, natural: int, length: float, flowing: bool, surface_hot: bool,
+                             reynolds: float, rayleigh: float, conductivity: float, prandtl: float) -> float:
+    """``h = Nu k / L`` [W/(m² K)] from already computed Re, Ra, air conductivity [W/(m K)] and Pr.
+
+    The same correlations as :func:`convection_coefficient` (which computes the
+    numbers first); kept apart so a caller that also reports Re and Ra computes
+    them once. ``surface_hot``: the surface is at or above the air temperature.
+    """
     nu_forced = 0.0
-    if forced != 0 and air_speed > 0.0:
+    if forced != 0 and flowing:
         if forced == 1:
-            nu_forced = nusselt_cylinder_crossflow(reynolds, pr)
+            nu_forced = nusselt_cylinder_crossflow(reynolds, prandtl)
         else:
-            nu_forced = nusselt_flat_plate_forced(reynolds, pr)
+            nu_forced = nusselt_flat_plate_forced(reynolds, prandtl)
     nu_natural = 0.0
     if natural == 1:
-        nu_natural = nusselt_horizontal_cylinder_natural(rayleigh, pr)
+        nu_natural = nusselt_horizontal_cylinder_natural(rayleigh, prandtl)
     elif natural == 2:
-        nu_natural = nusselt_vertical_plate_natural(rayleigh, pr)
+        nu_natural = nusselt_vertical_plate_natural(rayleigh, prandtl)
     elif natural == 3:
-        nu_natural = nusselt_horizontal_plate_natural(rayleigh, surface_temperature >= air_temperature)
+        nu_natural = nusselt_horizontal_plate_natural(rayleigh, surface_hot)
     elif natural == 4:
-        nu_natural = nusselt_horizontal_plate_natural(rayleigh, surface_temperature < air_temperature)
+        nu_natural = nusselt_horizontal_plate_natural(rayleigh, not surface_hot)
     if nu_forced > 0.0 and nu_natural > 0.0:
-        return mixed_convection_nusselt(nu_forced, nu_natural) * k / length
-    return (nu_forced + nu_natural) * k / length
+        return mixed_convection_nusselt(nu_forced, nu_natural) * conductivity / length
+    return (nu_forced + nu_natural) * conductivity / length
 
 
 @register_jitable
