@@ -312,6 +312,15 @@ def _law_length(p, off):
 
 
 @_jit
+def _rc_pair(p, off, z, temperature):
+    """Resistance [Ω] and capacitance [F] of the RC-pair block that starts at ``off``."""
+    r = _law_value(p, off + 2, z, temperature)
+    if p[off] == 1.0:
+        return r, p[off + 1] / _law_value(p, off + 2, z, p[off + 5])  # C = tau / R(z, T_ref)
+    return r, p[off + 1]
+
+
+@_jit
 def evaluate(y, p, ydot, alg):
     """Fill ``ydot`` (state derivatives) and ``alg`` (algebraic outputs) at state ``y``.
 
@@ -372,12 +381,7 @@ def evaluate(y, p, ydot, alg):
     ydot[0] = -icell / p[H_CAPACITY]
     off = int(p[H_RC])
     for k in range(nrc):
-        kind = p[off]
-        r = _law_value(p, off + 2, z, tc)
-        if kind == 1.0:
-            cap = p[off + 1] / _law_value(p, off + 2, z, p[off + 5])  # C = tau / R(z, T_ref)
-        else:
-            cap = p[off + 1]
+        r, cap = _rc_pair(p, off, z, tc)
         ydot[1 + k] = icell / cap - y[1 + k] / (r * cap)
         off += 2 + _law_length(p, off + 2)
 
@@ -544,6 +548,116 @@ def jacobian(y, jac, p, alg, f0, f1, yy):
 
 
 @_jit
+def diagonal_newton_contraction(y, p, alg, f0, f1, yy, jac, gamma):
+    """Bound on the contraction factor of Newton's iteration when only the Jacobian's diagonal is used.
+
+    An implicit step solves ``(I - gamma J) dy = r``; iterating with the diagonal
+    ``D`` of ``J`` alone converges with the rate of ``E = (I - gamma D)^-1 gamma O``
+    (``O`` the off-diagonal part), whose spectral radius is at most its row-sum
+    norm (Ortega & Rheinboldt, *Iterative Solution of Nonlinear Equations in
+    Several Variables*, Academic Press 1970, §10.1; Hindmarsh et al., ACM TOMS 31
+    (2005) 363, §2.1 for the diagonal approximation in CVODE). Taken over the
+    dynamic states; the quadratures only receive and do not change the rate.
+    """
+    jacobian(y, jac, p, alg, f0, f1, yy)
+    ndyn = 4 + int(p[H_NRC])
+    worst = 0.0
+    for i in range(ndyn):
+        off = 0.0
+        for j in range(ndyn):
+            if j != i:
+                off += abs(jac[i, j])
+        rate = gamma * off / max(abs(1.0 - gamma * jac[i, i]), 1e-300)
+        if rate > worst:
+            worst = rate
+    return worst
+
+
+# ---- RC voltages relative to their exact zero-order-hold response --------------
+# Within a phase the current of a cell changes little, and an RC voltage then follows
+#     b_k(t) = v_inf + (v_0 - v_inf) exp(-(t - t_0) / tau_k),  v_inf = R_k I_cell(t_0),
+# the exact zero-order-hold response of the pair (Plett, *Battery Management Systems*,
+# Vol. I, Artech House 2015, §2.10). The CVODE back end integrates w_k = v_k - b_k(t)
+# instead of v_k: an exact change of variables (the idea of Lawson's integrating
+# factor, SIAM J. Numer. Anal. 4 (1967) 372), so every equation and root function is
+# unchanged, but w_k starts at zero with zero slope and stays small and smooth. After a
+# restart the integrator no longer creeps up the fast exponential from a tiny first
+# step; its step is set by the slow states. Base vector: [t_0, (v_0, v_inf, tau) per pair].
+
+
+def rc_base_size(n_rc: int) -> int:
+    """Length of the RC base vector for ``n_rc`` pairs."""
+    return 1 + 3 * n_rc
+
+
+@_jit
+def rc_base_setup(y, p, alg, scratch, t0, base):
+    """Fill ``base`` with the zero-order-hold response of each RC pair from state ``y`` at ``t0``."""
+    evaluate(y, p, scratch, alg)
+    nrc = int(p[H_NRC])
+    icell = alg[A_CURRENT] / p[H_NP]
+    z = y[0]
+    tc = y[1 + nrc]
+    base[0] = t0
+    off = int(p[H_RC])
+    for k in range(nrc):
+        r, cap = _rc_pair(p, off, z, tc)
+        tau = r * cap
+        ok = tau > 0.0 and np.isfinite(tau) and np.isfinite(icell)
+        base[1 + 3 * k] = y[1 + k]
+        base[2 + 3 * k] = r * icell if ok else y[1 + k]
+        base[3 + 3 * k] = tau if ok else 0.0
+        off += 2 + _law_length(p, off + 2)
+
+
+@_jit
+def rc_base_add(w, y, base, t, sign):
+    """``y = w + sign * b(t)`` on the RC slots, ``y = w`` elsewhere; returns nothing."""
+    for i in range(w.shape[0]):
+        y[i] = w[i]
+    s = t - base[0]
+    for k in range((base.shape[0] - 1) // 3):
+        v0, v_inf, tau = base[1 + 3 * k], base[2 + 3 * k], base[3 + 3 * k]
+        b = v0 if tau == 0.0 else v_inf + (v0 - v_inf) * np.exp(-s / tau)
+        y[1 + k] = w[1 + k] + sign * b
+
+
+@_jit
+def shift_phase_start(y0, p, alg, scratch, t0, base, w0):
+    """Set the RC base at ``(t0, y0)`` (:func:`rc_base_setup`) and write ``w0 = y0 - b(t0)``."""
+    p[H_TIME] = t0
+    rc_base_setup(y0, p, alg, scratch, t0, base)
+    rc_base_add(y0, w0, base, t0, -1.0)
+
+
+@_jit
+def shifted_rhs(t, w, wdot, p, alg, base, y):
+    """Right-hand side in the shifted variables: ``dw/dt = f(w + b(t)) - b'(t)``; sets the time in ``p``."""
+    p[H_TIME] = t
+    rc_base_add(w, y, base, t, 1.0)
+    evaluate(y, p, wdot, alg)
+    s = t - base[0]
+    for k in range((base.shape[0] - 1) // 3):
+        v0, v_inf, tau = base[1 + 3 * k], base[2 + 3 * k], base[3 + 3 * k]
+        if tau != 0.0:
+            wdot[1 + k] -= (v_inf - v0) / tau * np.exp(-s / tau)
+
+
+@_jit
+def shifted_roots(t, w, g, p, alg, scratch, base, y):
+    """Event functions at ``w + b(t)``."""
+    rc_base_add(w, y, base, t, 1.0)
+    roots(y, g, p, alg, scratch)
+
+
+@_jit
+def shifted_jacobian(t, w, jac, p, alg, f0, f1, yy, base, y):
+    """Jacobian of the shifted system: ``b`` does not depend on ``w``, so it is ``df/dy`` at ``w + b(t)``."""
+    rc_base_add(w, y, base, t, 1.0)
+    jacobian(y, jac, p, alg, f0, f1, yy)
+
+
+@_jit
 def start_check(y, p, alg, scratch, g, g_ahead, probe, slack):
     """Events already true at a phase start, and the reach of the others.
 
@@ -603,6 +717,19 @@ def beyond_reach(g, g_ahead, p, probe, duration, factor):
 
 
 @_jit
+def phase_start(y, p, alg, scratch, g, g_ahead, probe, slack, duration, factor):
+    """:func:`start_check`, then :func:`beyond_reach` over ``duration``, in one call.
+
+    Returns the event that fired (>= 0), -1 when the phase needs root finding, or
+    -2 when every root function stays beyond reach.
+    """
+    fired = start_check(y, p, alg, scratch, g, g_ahead, probe, slack)
+    if fired >= 0:
+        return fired
+    return -2 if beyond_reach(g, g_ahead, p, probe, duration, factor) else -1
+
+
+@_jit
 def all_positive(y, p, alg, scratch, g):
     """True when every active root function is positive at ``y``."""
     roots(y, g, p, alg, scratch)
@@ -639,25 +766,49 @@ class Kernels:
         self._f0 = np.empty(size)
         self._f1 = np.empty(size)
         self._yy = np.empty(size)
+        self._shifted = np.empty(size)
+        self._jac = np.empty((size, size))
+        # no shift until shift_from: tau = 0 reads b(t) = v_0 = 0
+        self.base = np.zeros(rc_base_size(int(p[H_NRC])))
         self.error: BaseException | None = None
         self.g = np.empty(N_EVENTS)
         self.g_ahead = np.empty(N_EVENTS)
         self._g_end = np.empty(N_EVENTS)
+        self.cvode_rhs = self._cvode_rhs()
 
-    # scikits.odes signatures: write into the given buffers, return 0 or a negative flag
-    def cvode_rhs(self, t: float, y: np.ndarray, ydot: np.ndarray) -> int:
-        self.p[H_TIME] = t
-        try:
-            rhs(y, ydot, self.p, self._alg)
-        except BaseException as exc:  # an exception must not cross the C boundary
-            self.error = exc
-            return -1
-        return 0
+    # scikits.odes signatures: write into the given buffers, return 0 or a negative flag.
+    # CVODE sees the shifted variables w = y - b(t) of :func:`rc_base_setup`; see
+    # :meth:`shift_from` and :meth:`unshift`.
+    def shift_from(self, t0: float, y0: np.ndarray) -> np.ndarray:
+        """Start a phase at ``(t0, y0)``: set the RC base there and return ``w0``."""
+        w0 = np.empty(self.size)
+        shift_phase_start(y0, self.p, self._alg, self._scratch, t0, self.base, w0)
+        return w0
+
+    def unshift(self, t: float, w: np.ndarray) -> np.ndarray:
+        """The state ``y = w + b(t)`` (a new array; ``w`` a float64 vector)."""
+        y = np.empty(self.size)
+        rc_base_add(w, y, self.base, t, 1.0)
+        return y
+
+    def _cvode_rhs(self):
+        """The right-hand side for CVODE, a closure over the buffers: CVODE calls it ~10^4 times a mission."""
+        p, alg, base, shifted = self.p, self._alg, self.base, self._shifted
+
+        def cvode_rhs(t: float, y: np.ndarray, ydot: np.ndarray) -> int:
+            try:
+                shifted_rhs(t, y, ydot, p, alg, base, shifted)
+            except BaseException as exc:  # an exception must not cross the C boundary
+                self.error = exc
+                return -1
+            return 0
+
+        return cvode_rhs
 
     def cvode_roots(self, t: float, y: np.ndarray, g: np.ndarray) -> int:
         self.p[H_TIME] = t
         try:
-            roots(y, g, self.p, self._alg, self._scratch)
+            shifted_roots(t, y, g, self.p, self._alg, self._scratch, self.base, self._shifted)
         except BaseException as exc:
             self.error = exc
             return -1
@@ -666,7 +817,8 @@ class Kernels:
     def cvode_jacobian(self, t: float, y: np.ndarray, fy: np.ndarray, jac: np.ndarray) -> int:
         self.p[H_TIME] = t
         try:
-            jacobian(y, jac, self.p, self._alg, self._f0, self._f1, self._yy)
+            shifted_jacobian(t, y, jac, self.p, self._alg, self._f0, self._f1, self._yy, self.base,
+                             self._shifted)
         except BaseException as exc:
             self.error = exc
             return -1
@@ -695,9 +847,17 @@ class Kernels:
         """See :func:`start_check`; fills ``self.g`` and ``self.g_ahead``."""
         return start_check(y, self.p, self._alg, self._scratch, self.g, self.g_ahead, probe, slack)
 
+    def phase_start(self, y: np.ndarray, probe: float, slack: float, duration: float, factor: float) -> int:
+        """See :func:`phase_start`; fills ``self.g`` and ``self.g_ahead``."""
+        return phase_start(y, self.p, self._alg, self._scratch, self.g, self.g_ahead, probe, slack, duration, factor)
+
     def beyond_reach(self, probe: float, duration: float, factor: float) -> bool:
         """See :func:`beyond_reach`, for the last :meth:`start_check`."""
         return beyond_reach(self.g, self.g_ahead, self.p, probe, duration, factor)
+
+    def diagonal_newton_contraction(self, y: np.ndarray, gamma: float) -> float:
+        """See :func:`diagonal_newton_contraction`."""
+        return diagonal_newton_contraction(y, self.p, self._alg, self._f0, self._f1, self._yy, self._jac, gamma)
 
     def all_positive(self, y: np.ndarray) -> bool:
         """See :func:`all_positive`."""
