@@ -190,15 +190,18 @@ def _sweep_command(path: Path, out: Path, *extra: str) -> list[str]:
 def test_resume_after_sigkill_gives_the_same_dataset(tmp_path):
     table = {"thermal.sink_to_ambient": ["0.1 W/K", "0.3 W/K", "1 W/K", "3 W/K"],
              "thermal.ambient_temperature": ["0 degC", "20 degC", "35 degC"]}
-    path = write_scenario(tmp_path, table)
+    # 20 min of 1 s segments on the solo engine: slow enough per chunk (one scenario) that
+    # the kill lands half-way, whatever the speed of the machine within a factor of ten
+    pulses = {"repeat": 600, "segment": [{"mode": "current", "value": "4 A", "duration": "1 s"},
+                                         {"mode": "current", "value": "3 A", "duration": "1 s"}]}
+    path = write_scenario(tmp_path, table, profile=pulses)
     whole, broken = tmp_path / "whole", tmp_path / "broken"
-    # solo engine: slow enough per chunk that the kill lands half-way (the batched one finishes first)
     subprocess.run(_sweep_command(path, whole, "--workers", "1", "--engine", "solo"), check=True)
     proc = subprocess.Popen(_sweep_command(path, broken, "--workers", "1", "--engine", "solo"),
                             start_new_session=True)
     deadline = time.time() + 120
     while time.time() < deadline and len(list((broken / "chunks").glob("chunk_*.json"))) < 4:
-        time.sleep(0.05)
+        time.sleep(0.01)
     os.killpg(proc.pid, signal.SIGKILL)
     proc.wait()
     finished = len(list((broken / "chunks").glob("chunk_*.json")))

@@ -623,11 +623,19 @@ def rc_base_add(w, y, base, t, sign):
 
 
 @_jit
-def shift_phase_start(y0, p, alg, scratch, t0, base, w0):
-    """Set the RC base at ``(t0, y0)`` (:func:`rc_base_setup`) and write ``w0 = y0 - b(t0)``."""
+def shift_phase_start(y0, p, alg, scratch, t0, base, w0, f0, f1, yy, jac, gamma):
+    """Start a CVODE phase at ``(t0, y0)``.
+
+    Sets the RC base there (:func:`rc_base_setup`), writes ``w0 = y0 - b(t0)`` and
+    returns :func:`diagonal_newton_contraction` for steps up to ``gamma`` (0 when
+    ``gamma`` is 0: not wanted).
+    """
     p[H_TIME] = t0
     rc_base_setup(y0, p, alg, scratch, t0, base)
     rc_base_add(y0, w0, base, t0, -1.0)
+    if gamma == 0.0:
+        return 0.0
+    return diagonal_newton_contraction(y0, p, alg, f0, f1, yy, jac, gamma)
 
 
 @_jit
@@ -779,11 +787,12 @@ class Kernels:
     # scikits.odes signatures: write into the given buffers, return 0 or a negative flag.
     # CVODE sees the shifted variables w = y - b(t) of :func:`rc_base_setup`; see
     # :meth:`shift_from` and :meth:`unshift`.
-    def shift_from(self, t0: float, y0: np.ndarray) -> np.ndarray:
-        """Start a phase at ``(t0, y0)``: set the RC base there and return ``w0``."""
+    def shift_from(self, t0: float, y0: np.ndarray, gamma: float = 0.0) -> tuple[np.ndarray, float]:
+        """Start a phase at ``(t0, y0)``: see :func:`shift_phase_start`; returns ``w0`` and the contraction."""
         w0 = np.empty(self.size)
-        shift_phase_start(y0, self.p, self._alg, self._scratch, t0, self.base, w0)
-        return w0
+        contraction = shift_phase_start(y0, self.p, self._alg, self._scratch, t0, self.base, w0, self._f0,
+                                        self._f1, self._yy, self._jac, gamma)
+        return w0, contraction
 
     def unshift(self, t: float, w: np.ndarray) -> np.ndarray:
         """The state ``y = w + b(t)`` (a new array; ``w`` a float64 vector)."""

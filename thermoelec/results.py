@@ -221,7 +221,7 @@ def build_result(problem: Problem, trajectory: Trajectory, options: SolverOption
     ns = problem.pack.series
     states = trajectory.states
     alg = np.empty((len(states), m.N_ALGEBRAICS))
-    params = np.array(trajectory.params, dtype=float)
+    params = trajectory.params
     params[:, m.H_TIME] = trajectory.times  # the ambient profile is a function of time
     m.evaluate_rows(np.ascontiguousarray(states), params, alg)
     tc = states[:, m.cell_temperature_index(n_rc)]
@@ -258,8 +258,8 @@ def build_result(problem: Problem, trajectory: Trajectory, options: SolverOption
     summary = _summary(problem, trajectory, series, states, options.output_interval)
     stats = dict(trajectory.statistics)
     stats["wall_time_s"] = trajectory.wall_time
-    codes = trajectory.params[:, m.H_MODE].astype(int)
-    demand_value = trajectory.params[:, m.H_VALUE].copy()
+    codes = params[:, m.H_MODE].astype(int)
+    demand_value = params[:, m.H_VALUE].copy()
     demand_mode = np.array(MODE_NAMES, dtype=object)[codes]
     demand_mode[(codes == m.MODE_CURRENT) & (demand_value == 0.0)] = "rest"
     return SimulationResult(series=series, summary=summary, status=trajectory.status,

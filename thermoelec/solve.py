@@ -56,6 +56,8 @@ REACH_FACTOR = 4.0
 #: tightly coupled or stiff network (a small sink on a large conductance) and long
 #: phases get the full dense Jacobian.
 DIAGONAL_CONTRACTION = 0.2
+#: Longest automatic first step after a restart [s] (``SolverOptions.first_step``).
+FIRST_STEP_MAX = 1.0
 #: Relative slack on the cell voltage limits when the terminal voltage is imposed,
 #: so that a CV set point exactly at Ns x voltage_max is not taken as a violation.
 IMPOSED_VOLTAGE_SLACK = 1e-9
@@ -87,11 +89,15 @@ class SolverOptions:
         Spacing of the reported series [s]; phase ends and events are always reported.
     max_steps : int
         Internal steps allowed per phase before the integrator gives up.
-    first_step : float or None
-        CVODE's first step after each restart [s]; None lets CVODE estimate it.
-        The estimate (Hindmarsh et al. 2005, §2.1 of the CVODE guide) costs two to
-        four extra right-hand-side calls at every restart, a third of the work on a
-        1 Hz profile. The CVODE back end integrates the RC voltages relative to
+    first_step : float or "auto"
+        CVODE's first step after each restart [s]; 0 lets CVODE estimate it, at a
+        cost of two to four extra right-hand-side calls at every restart (a third
+        of the work on a 1 Hz profile). ``"auto"``: half the median segment
+        length, at most :data:`FIRST_STEP_MAX`, so that at the default ``rtol``
+        a profile of equal short segments takes two equal steps in each and the
+        second reuses the first's Newton matrix; scaled by ``sqrt(rtol / 1e-6)``,
+        as the local error of the first (order-1) step grows with its square
+        (CVODE's own estimate scales so too). The CVODE back end integrates the RC voltages relative to
         their exact zero-order-hold response, so what is left after a restart is
         slow; a step that proves too long fails its error test and CVODE shortens
         it, so this sets cost, not accuracy. A step never passes a phase end.
@@ -113,7 +119,7 @@ class SolverOptions:
     atol_integral: float | None = None
     output_interval: float = 1.0
     max_steps: int = 50_000
-    first_step: float | None = 0.25
+    first_step: float | str = "auto"
     linear_solver: str = "auto"
     scipy_method: str = "LSODA"
 
@@ -189,7 +195,7 @@ class CvodeBackend:
         self.options = options
         self._common = dict(old_api=False, lmm_type="BDF", nonlinsolver="newton", rtol=options.rtol,
                             atol=options.atol_vector(n_rc), max_steps=options.max_steps,
-                            first_step_size=options.first_step or 0.0)
+                            first_step_size=float(options.first_step))
         # Up to four instances of the same integrator, made when first needed: with or
         # without the root functions (phases where no root function can reach zero, see
         # integrate_problem), and with the dense or the diagonal Newton matrix.
@@ -209,13 +215,6 @@ class CvodeBackend:
             solver = self._solvers[key] = ode("cvode", self.kernels.cvode_rhs, **self._common, **linear,
                                               **roots)._integrator
         return solver
-
-    def _diagonal_suffices(self, y0: np.ndarray, duration: float) -> bool:
-        """Whether the diagonal Newton matrix converges fast for every step this phase can take."""
-        choice = self.options.linear_solver
-        if choice != "auto":
-            return choice == "diagonal"
-        return self.kernels.diagonal_newton_contraction(y0, duration) <= DIAGONAL_CONTRACTION
 
     def _accumulate(self, solver) -> None:
         info = solver.get_info()
@@ -240,23 +239,24 @@ class CvodeBackend:
 
     def integrate(self, t0: float, y0: np.ndarray, t_end: float, outputs: list[float],
                   find_roots: bool = True) -> PhaseOutcome:
-        kernels = self.kernels
-        kernels.p[m.H_TIME] = t0
-        diagonal = self._diagonal_suffices(y0, t_end - t0)
-        outcome = self._integrate(t0, y0, t_end, outputs, find_roots, diagonal)
-        if outcome.status == "error" and diagonal and self.options.linear_solver == "auto":
-            outcome = self._integrate(t0, y0, t_end, outputs, find_roots, False)
+        choice = self.options.linear_solver
+        # the shift, and the contraction bound for the longest step the phase allows, in one kernel call
+        w0, contraction = self.kernels.shift_from(t0, y0, t_end - t0 if choice == "auto" else 0.0)
+        diagonal = contraction <= DIAGONAL_CONTRACTION if choice == "auto" else choice == "diagonal"
+        outcome = self._integrate(t0, w0, t_end, outputs, find_roots, diagonal)
+        if outcome.status == "error" and diagonal and choice == "auto":
+            outcome = self._integrate(t0, w0, t_end, outputs, find_roots, False)
         return outcome
 
-    def _integrate(self, t0: float, y0: np.ndarray, t_end: float, outputs: list[float],
+    def _integrate(self, t0: float, w0: np.ndarray, t_end: float, outputs: list[float],
                    find_roots: bool, diagonal: bool) -> PhaseOutcome:
+        """One phase from the shifted state ``w0`` (the base is set by :meth:`integrate`)."""
         key = (find_roots, diagonal)
         solver = self._solver(find_roots, diagonal)
         self._stats["NumPhasesWithRoots" if find_roots else "NumPhasesWithoutRoots"] += 1
         self._stats["NumPhasesDiagonal" if diagonal else "NumPhasesDense"] += 1
         kernels = self.kernels
         kernels.error = None
-        w0 = kernels.shift_from(t0, y0)
         if key in self._started:
             solver.reinit_IC(t0, w0)
         else:
@@ -350,12 +350,13 @@ class Trajectory:
 
     ``rows`` of ``(time, state, phase parameter vector)``: at a phase boundary the
     state appears twice, with the parameters of the phase before and after it,
-    so the reported series shows each jump of the demand exactly.
+    so the reported series shows each jump of the demand exactly. Each phase's
+    parameter vector is kept once (``phase_params``); ``params`` expands it per row.
     """
 
     times: np.ndarray
     states: np.ndarray
-    params: np.ndarray
+    phase_params: np.ndarray
     phase_index: np.ndarray
     stop_reason: str
     status: str  # "ok" | "failed"
@@ -365,6 +366,11 @@ class Trajectory:
     wall_time: float = 0.0
     segments_completed: int = 0
     soak: Trajectory | None = None
+
+    @property
+    def params(self) -> np.ndarray:
+        """The parameter vector of each row (a new array)."""
+        return self.phase_params[self.phase_index]
 
 
 @dataclass
@@ -478,6 +484,13 @@ def _output_times(t0: float, t_end: float, interval: float) -> list[float]:
     return [t for t in grid if t0 + eps < t < t_end - eps] + [t_end]
 
 
+def automatic_first_step(problem: Problem, rtol: float) -> float:
+    """The ``"auto"`` first step of :class:`SolverOptions` [s]."""
+    durations = [s.duration for s in problem.segments if math.isfinite(s.duration) and s.duration > 0.0]
+    typical = 0.5 * float(np.median(durations)) if durations else FIRST_STEP_MAX
+    return min(FIRST_STEP_MAX, typical) * math.sqrt(rtol / 1e-6)
+
+
 def cccv_cap(problem: Problem, segment: Segment) -> float:
     """Duration cap of a CC-CV segment without one [s]: ten full charges at its CC rate."""
     per_cell = abs(segment.value) / problem.pack.parallel
@@ -510,6 +523,8 @@ def integrate_problem(problem: Problem, options: SolverOptions, initial_state: n
         soak = integrate_problem(replace(problem, segments=problem.soak, soak=()), options, initial_state)
         initial_state = soak.states[-1].copy()
         initial_state[m.quadrature_index(problem.n_rc):] = 0.0
+    if options.first_step == "auto":
+        options = replace(options, first_step=automatic_first_step(problem, options.rtol))
     p = m.pack_parameters(problem)
     ambient_table = float(p[m.H_AMBIENT_TABLE])
     kernels = Kernels(p, m.n_states(problem.n_rc))
@@ -588,10 +603,9 @@ def integrate_problem(problem: Problem, options: SolverOptions, initial_state: n
         if ended_by_time and not math.isfinite(segment.duration):
             events.append({"time_s": t, "event": "cccv_cap", "segment": seg_index, "origin": segment.origin})
 
-    params = np.asarray(phase_params)[np.asarray(row_phase)]
     return Trajectory(
-        times=np.asarray(times), states=np.asarray(states), params=params,
-        phase_index=np.asarray(row_phase), stop_reason=stop_reason, status=status, message=message,
+        times=np.asarray(times), states=np.asarray(states), phase_params=np.asarray(phase_params),
+        phase_index=np.asarray(row_phase, dtype=np.int64), stop_reason=stop_reason, status=status, message=message,
         events=events, statistics=backend.statistics(), wall_time=_time.perf_counter() - started,
         segments_completed=segments_completed, soak=soak,
     )
