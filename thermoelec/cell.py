@@ -64,7 +64,12 @@ def bracket(grid: np.ndarray, x: float) -> tuple[int, float]:
         return 0, 0.0
     if x >= grid[n - 1]:
         return n - 2, 1.0
-    i = np.searchsorted(grid, x, side="right") - 1
+    if n <= 32:  # a scan beats bisection on the short tables of cell data (and inside compiled kernels)
+        i = 0
+        while grid[i + 1] <= x:
+            i += 1
+    else:
+        i = np.searchsorted(grid, x, side="right") - 1
     return i, (x - grid[i]) / (grid[i + 1] - grid[i])
 
 

@@ -40,10 +40,8 @@ from .cell import Cell, Pack, ResistanceLaw
 from .profile import Segment
 from .thermal import ThermalNetwork
 
-_jit = numba.njit(cache=True, nogil=True)
+_jit = numba.njit(cache=True, nogil=True, error_model="numpy")
 
-_interp1 = cellphys.interpolate_1d
-_interp2 = cellphys.interpolate_2d
 _arrhenius = cellphys.arrhenius_factor
 _ocv = cellphys.open_circuit_voltage
 _current_for_power = cellphys.current_for_power
@@ -291,14 +289,49 @@ def _thermal_header(header: np.ndarray, th: ThermalNetwork) -> None:
         header[H_HEATER_POWER], header[H_HEATER_FROM_PACK] = th.heater.power, float(th.heater.from_pack)
 
 
+# The kernels read tables in place, by offset into ``p``: a slice of ``p`` would make a
+# new array view (with its reference count) at every call, a third of the cost of
+# ``evaluate``. The interpolation rules are those of :func:`thermoelec.cell.bracket`.
+@_jit
+def _bracket_at(p, start, n, x):
+    """:func:`thermoelec.cell.bracket` on the grid ``p[start:start + n]``, read in place."""
+    if n == 1 or x <= p[start]:
+        return 0, 0.0
+    if x >= p[start + n - 1]:
+        return n - 2, 1.0
+    i = 0
+    while p[start + i + 1] <= x:
+        i += 1
+    return i, (x - p[start + i]) / (p[start + i + 1] - p[start + i])
+
+
+@_jit
+def _interp1_at(p, grid, values, n, x):
+    """:func:`thermoelec.cell.interpolate_1d` on tables at offsets ``grid`` and ``values`` of ``p``."""
+    i, w = _bracket_at(p, grid, n, x)
+    if n == 1:
+        return p[values]
+    return p[values + i] * (1.0 - w) + p[values + i + 1] * w
+
+
 @_jit
 def _law_value(p, off, z, temperature):
-    """Resistance [Ω] of the resistance-law block that starts at ``off``."""
+    """Resistance [Ω] of the resistance-law block that starts at ``off`` (bilinear, as ``cell.interpolate_2d``)."""
     nz = int(p[off])
     nt = int(p[off + 1])
     ea = p[off + 2]
     a = off + 4
-    base = _interp2(p[a:a + nz], p[a + nz:a + nz + nt], p[a + nz + nt:a + nz + nt + nz * nt], z, temperature)
+    if nz == 1 and nt == 1:
+        base = p[a + 2]
+    else:
+        i, wz = _bracket_at(p, a, nz, z)
+        j, wt = _bracket_at(p, a + nz, nt, temperature)
+        i1 = i + 1 if nz > 1 else i
+        j1 = j + 1 if nt > 1 else j
+        v = a + nz + nt
+        low = p[v + j * nz + i] * (1.0 - wz) + p[v + j * nz + i1] * wz
+        high = p[v + j1 * nz + i] * (1.0 - wz) + p[v + j1 * nz + i1] * wz
+        base = low * (1.0 - wt) + high * wt
     if ea != 0.0:
         base *= _arrhenius(temperature, ea, p[off + 3])
     return base
@@ -335,16 +368,18 @@ def evaluate(y, p, ydot, alg):
     table = int(p[H_AMBIENT_TABLE])
     if table > 0:
         nt = int(p[table])
-        ta = _interp1(p[table + 1:table + 1 + nt], p[table + 1 + nt:table + 1 + 2 * nt], p[H_TIME])
+        ta = _interp1_at(p, table + 1, table + 1 + nt, nt, p[H_TIME])
     ns = p[H_NS]
     npar = p[H_NP]
     ric = p[H_RIC]
 
     o = int(p[H_OCV])
     n = int(p[o])
-    zg = p[o + 2:o + 2 + n]
-    u_ref = _interp1(zg, p[o + 2 + n:o + 2 + 2 * n], z)
-    dudt = _interp1(zg, p[o + 2 + 2 * n:o + 2 + 3 * n], z)
+    # the OCV and entropic tables share their SoC grid: one bracket for both
+    i, w = _bracket_at(p, o + 2, n, z)
+    i1 = i + 1 if n > 1 else i
+    u_ref = p[o + 2 + n + i] * (1.0 - w) + p[o + 2 + n + i1] * w
+    dudt = p[o + 2 + 2 * n + i] * (1.0 - w) + p[o + 2 + 2 * n + i1] * w
     u = _ocv(u_ref, dudt, tc, p[o + 1])
 
     r0 = _law_value(p, int(p[H_R0]), z, tc)
