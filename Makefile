@@ -72,9 +72,14 @@ demo: $(STAMP)
 
 bench: $(STAMP)
 	$(BIN)/python benchmarks/bench_single_mission.py
+	$(BIN)/python benchmarks/bench_sweep.py
+	$(BIN)/python benchmarks/bench_sweep_scale.py
 
 bench-quick: $(STAMP)
 	$(BIN)/python benchmarks/bench_single_mission.py --quick
+	$(BIN)/python benchmarks/bench_sweep.py --quick
+	$(BIN)/python benchmarks/bench_sweep_scale.py --quick
 
 clean:
 	rm -rf $(VENV) out .pytest_cache .ruff_cache
+	find thermoelec tests benchmarks -name __pycache__ -type d -prune -exec rm -rf {} +

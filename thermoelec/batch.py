@@ -81,7 +81,7 @@ def eligible(problem: Problem) -> str | None:
     key = _identity(problem.segments)
     hit = _ELIGIBLE_CACHE.get(key)
     if hit is None or hit[0] is not problem.segments[0]:
-        if len(_ELIGIBLE_CACHE) >= 16:
+        if len(_ELIGIBLE_CACHE) >= 64:
             _ELIGIBLE_CACHE.clear()
         hit = _ELIGIBLE_CACHE[key] = (problem.segments[0], _segments_reason(problem.segments),
                                       problem.segments)
@@ -293,7 +293,7 @@ def _segment_arrays(problem: Problem) -> tuple[np.ndarray, ...]:
            problem.limits.cell_temperature_max)
     hit = _SEGMENT_CACHE.get(key)
     if hit is None:
-        if len(_SEGMENT_CACHE) >= 16:
+        if len(_SEGMENT_CACHE) >= 64:
             _SEGMENT_CACHE.clear()
         # the segments are kept with the arrays, so their identities stay theirs while cached
         hit = _SEGMENT_CACHE[key] = (_build_segment_arrays(problem), problem.segments)
