@@ -26,8 +26,10 @@ infeasible at a segment start is caught by the engine's ``model.start_check``.
 A scenario whose steps collapse (a stiff fast RC pair or a tiny sink against a
 large conductance) is handed back for a solo CVODE run (status ``fallback``).
 
-Scope: segments of current, power, resistance and rest; no CC-CV, segment end
-conditions, thermostats or soak (those scenarios go to CVODE whole).
+Scope: every segment kind (current, power, resistance, voltage, rest, CC-CV)
+with its end conditions, thermostats (fan, heater, pump) and the ambient
+profile; events act as in the engine's driver. A scenario with a soak goes to
+CVODE whole.
 """
 
 from __future__ import annotations
@@ -42,7 +44,17 @@ from . import model as m
 from .cell import arrhenius_factor
 from .model import Problem
 from .results import energy_totals, round_trip_efficiency
-from .solve import IMPOSED_VOLTAGE_SLACK, START_PROBE, STOP_EVENTS, SolverOptions, _event_setup, _Phase
+from .solve import (
+    IMPOSED_VOLTAGE_SLACK,
+    MIN_PHASE,
+    START_PROBE,
+    STOP_EVENTS,
+    SolverOptions,
+    _event_setup,
+    _phases_of,
+    _switches,
+    cccv_cap,
+)
 
 __all__ = ["BatchOutcome", "eligible", "solve_batch"]
 
@@ -50,7 +62,6 @@ __all__ = ["BatchOutcome", "eligible", "solve_batch"]
 EVENT_TIME_TOLERANCE = 1e-7
 #: Steps allowed in one segment before the scenario goes to CVODE instead.
 MAX_STEPS_PER_SEGMENT = 2000
-_BATCH_MODES = {"current", "power", "resistance", "rest"}
 
 # Bogacki-Shampine 3(2) tableau (Appl. Math. Lett. 2 (1989) 321, Eq. 4): the third-order
 # solution is the fourth stage's argument; the error is the third- minus the second-order one
@@ -73,50 +84,32 @@ def _identity(segments: tuple) -> tuple[int, ...]:
 
 def eligible(problem: Problem) -> str | None:
     """None when the batched solver can take the problem, else the reason it cannot."""
-    th = problem.thermal
     if problem.soak:
         return "a soak"
-    if th.fan or th.heater or th.pump:
-        return "thermostats"
-    key = _identity(problem.segments)
-    hit = _ELIGIBLE_CACHE.get(key)
-    if hit is None or hit[0] is not problem.segments[0]:
-        if len(_ELIGIBLE_CACHE) >= 64:
-            _ELIGIBLE_CACHE.clear()
-        hit = _ELIGIBLE_CACHE[key] = (problem.segments[0], _segments_reason(problem.segments),
-                                      problem.segments)
-    return hit[1]
-
-
-_ELIGIBLE_CACHE: dict[tuple, tuple] = {}
-
-
-def _segments_reason(segments) -> str | None:
-    for seg in segments:
-        if seg.mode not in _BATCH_MODES:
-            return f"a {seg.mode} segment"
-        if any(v is not None for v in (seg.voltage_below, seg.voltage_above, seg.soc_below, seg.soc_above)):
-            return "segment end conditions"
     return None
 
 
 @numba.njit(cache=True, error_model="numpy")
-def _rk_step(y, p, h, k, tmp, alg, out, err):
-    """One Bogacki-Shampine step of size h from y, with ``k[0] = f(y)`` given.
+def _rk_step(y, p, t, h, k, tmp, alg, out, err):
+    """One Bogacki-Shampine step of size h from y at time t, with ``k[0] = f(t, y)`` given.
 
     The third-order solution goes to ``out`` and the error estimate to ``err``.
     The last stage is evaluated at ``out`` itself (first same as last), so
     afterwards ``k[3] = f(out)`` and ``alg`` holds the algebraic outputs at ``out``.
+    Each stage writes its own time into ``p`` (the ambient profile reads it).
     """
     n = y.size
     for i in range(n):
         tmp[i] = y[i] + h * _A21 * k[0, i]
+    p[m.H_TIME] = t + 0.5 * h
     m.evaluate(tmp, p, k[1], alg)
     for i in range(n):
         tmp[i] = y[i] + h * _A32 * k[1, i]
+    p[m.H_TIME] = t + 0.75 * h
     m.evaluate(tmp, p, k[2], alg)
     for i in range(n):
         out[i] = y[i] + h * (_B1 * k[0, i] + _B2 * k[1, i] + _B3 * k[2, i])
+    p[m.H_TIME] = t + h
     m.evaluate(out, p, k[3], alg)
     for i in range(n):
         err[i] = h * (_E1 * k[0, i] + _E2 * k[1, i] + _E3 * k[2, i] + _E4 * k[3, i])
@@ -172,91 +165,162 @@ def _arrhenius_rate(temperature, ea, t_ref):
     return 1.0 / arrhenius_factor(temperature, ea, t_ref)
 
 
+#: What an event does to the phase it fires in (kernel codes).
+_ACT_STOP, _ACT_NEXT_PHASE, _ACT_END_SEGMENT, _ACT_TOGGLE = 0, 1, 2, 3
+_EVENT_ACTION = np.full(m.N_EVENTS, _ACT_END_SEGMENT, dtype=np.int64)  # cutoff and end conditions
+for _e in STOP_EVENTS:
+    _EVENT_ACTION[_e] = _ACT_STOP
+_EVENT_ACTION[m.EV_CV_SWITCH] = _ACT_NEXT_PHASE
+for _e in m.CONTROL_EVENTS:
+    _EVENT_ACTION[_e] = _ACT_TOGGLE
+#: Events a scenario may fire at one instant before it is handed to CVODE (a chattering thermostat).
+MAX_EVENTS_PER_SEGMENT = 1000
+
+
 @numba.njit(cache=True, error_model="numpy")
-def _integrate_one(p, modes, values, durations, ambients, setups, setup_index, y, rtol, atol, ea, t_ref,
-                   extra, tc_index, ts_index):
-    """One scenario through its segments. Returns (status, event, time): status 0 end, 1 stopped, 2 fallback."""
+def _fired_event(g, p):
+    """The event that fired at a located root: as ``solve._fired_at_root``, the first by priority
+    among the active root functions within ``model.ROOT_TOLERANCE`` of zero, else the nearest."""
+    for k in m.EVENT_PRIORITY:
+        if p[m.H_ACTIVE + k] != 0.0 and g[k] <= m.ROOT_TOLERANCE * m.EVENT_SCALES[k]:
+            return k
+    best, event = 1e300, -1
+    for k in range(m.N_EVENTS):
+        if p[m.H_ACTIVE + k] != 0.0 and g[k] / m.EVENT_SCALES[k] < best:
+            best, event = g[k] / m.EVENT_SCALES[k], k
+    return event
+
+
+@numba.njit(cache=True, error_model="numpy")
+def _configure(p, seg, phase, modes, values, ambients, setups, setup_index, default_ambient, default_table,
+               switches, controls):
+    """Write one phase's demand, ambient, root-function set-up and thermostat states into ``p``
+    (as ``solve._configure``)."""
+    p[m.H_MODE] = modes[seg, phase]
+    p[m.H_VALUE] = values[seg, phase]
+    own = not np.isnan(ambients[seg])  # a segment with its own ambient overrides the ambient profile
+    p[m.H_AMBIENT] = ambients[seg] if own else default_ambient
+    p[m.H_AMBIENT_TABLE] = 0.0 if own else default_table
+    p[m.H_ACTIVE:m.H_THRESHOLD + m.N_EVENTS] = setups[setup_index[seg, phase]]
+    for c in range(switches.shape[0]):
+        if switches[c, 0] != 0.0:
+            event = m.EV_FAN + c
+            p[m.CONTROL_FLAG_OF[c]] = 1.0 if controls[c] else 0.0
+            p[m.H_ACTIVE + event] = 1.0
+            p[m.H_THRESHOLD + event] = switches[c, 2] if controls[c] else switches[c, 1]
+
+
+@numba.njit(cache=True, error_model="numpy")
+def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setup_index, switches, controls, y,
+                   rtol, atol, ea, t_ref, extra, tc_index, ts_index):
+    """One scenario through its segments and their phases (a CC-CV segment has two).
+
+    Events act as in the engine's driver (``solve.integrate_problem``): a limit
+    stops the mission, the CC->CV switch starts the CV phase, a cutoff or an end
+    condition ends the segment, a thermostat toggles and the phase goes on.
+    Returns (status, event, time): status 0 end of profile, 1 stopped, 2 fallback.
+    """
     n = y.size
     k = np.empty((4, n))
-    tmp, out, err, scratch = np.empty(n), np.empty(n), np.empty(n), np.empty(n)
-    trial, g, g_ahead = np.empty(n), np.empty(m.N_EVENTS), np.empty(m.N_EVENTS)
+    tmp, out, err, trial, scratch = np.empty(n), np.empty(n), np.empty(n), np.empty(n), np.empty(n)
+    g, g_ahead = np.empty(m.N_EVENTS), np.empty(m.N_EVENTS)
     alg = np.empty(m.N_ALGEBRAICS)
     default_ambient = p[m.H_AMBIENT]
-    t = 0.0
+    default_table = p[m.H_AMBIENT_TABLE]
     h = 0.05
     rate_prev = _arrhenius_rate(y[tc_index], ea, t_ref)
-    for seg in range(modes.size):
-        p[m.H_MODE] = modes[seg]
-        p[m.H_VALUE] = values[seg]
-        p[m.H_AMBIENT] = ambients[seg] if not np.isnan(ambients[seg]) else default_ambient
-        p[m.H_ACTIVE:m.H_THRESHOLD + m.N_EVENTS] = setups[setup_index[seg]]
-        p[m.H_TIME] = t
-        m.evaluate(y, p, k[0], alg)  # the demand changed: a new first stage
-        m.roots_from(y, g, p, alg)
-        if _near_zero(g, p):  # the engine's full check (a limit already reached, or heading there)
-            code = m.start_check(y, p, alg, scratch, g, g_ahead, START_PROBE, IMPOSED_VOLTAGE_SLACK)
-            m.evaluate(y, p, k[0], alg)
-            if code >= 0:
-                _observe(y, alg, extra, tc_index, ts_index)
-                return 1, code, t
-        _observe(y, alg, extra, tc_index, ts_index)
+    t = 0.0
+    for seg in range(durations.size):
         t_end = t + durations[seg]
-        steps = 0
-        while t < t_end - 1e-12 * max(1.0, t_end):
-            steps += 1
-            if steps > MAX_STEPS_PER_SEGMENT or h < 1e-9:
-                return 2, -1, t
-            h_try = min(h, t_end - t)
+        phase = 0
+        events = 0
+        while True:
+            _configure(p, seg, phase, modes, values, ambients, setups, setup_index, default_ambient, default_table,
+                       switches, controls)
             p[m.H_TIME] = t
-            _rk_step(y, p, h_try, k, tmp, alg, out, err)
-            norm = _error_norm(y, out, err, rtol, atol)
-            if norm > 1.0 or not np.isfinite(norm):
-                h = h_try * max(0.2, 0.9 * norm ** _ORDER_EXPONENT) if np.isfinite(norm) else 0.25 * h_try
-                continue
-            m.roots_from(out, g, p, alg)
-            if _any_fired(g, p):
-                low, high = 0.0, h_try  # a root lies in (low, high]
-                while high - low > EVENT_TIME_TOLERANCE:
-                    mid = 0.5 * (low + high)
-                    _rk_step(y, p, mid, k, tmp, alg, trial, err)
-                    m.roots_from(trial, g, p, alg)
-                    if _any_fired(g, p):
-                        high = mid
-                    else:
-                        low = mid
-                _rk_step(y, p, high, k, tmp, alg, trial, err)
-                m.roots_from(trial, g, p, alg)
-                event = -1
-                best = 1e300
-                for e in range(m.N_EVENTS):
-                    if p[m.H_ACTIVE + e] != 0.0 and g[e] / m.EVENT_SCALES[e] < best:
-                        best = g[e] / m.EVENT_SCALES[e]
-                        event = e
-                extra[X_ARRHENIUS] += 0.5 * (rate_prev + _arrhenius_rate(trial[tc_index], ea, t_ref)) * high
-                for i in range(n):
-                    y[i] = trial[i]
-                _observe(y, alg, extra, tc_index, ts_index)
-                return 1, event, t + high
-            rate_new = _arrhenius_rate(out[tc_index], ea, t_ref)
-            extra[X_ARRHENIUS] += 0.5 * (rate_prev + rate_new) * h_try
-            rate_prev = rate_new
-            t += h_try
-            for i in range(n):
-                y[i] = out[i]
-                k[0, i] = k[3, i]  # first same as last
+            m.evaluate(y, p, k[0], alg)  # the demand changed: a new first stage
+            m.roots_from(y, g, p, alg)
+            code = -1
+            # the engine's full check where a limit is reached or near, and always with the
+            # terminal voltage imposed (the cell limits are checked only there)
+            if _near_zero(g, p) or p[m.H_MODE] == m.MODE_VOLTAGE:
+                code = m.start_check(y, p, alg, scratch, g, g_ahead, START_PROBE, IMPOSED_VOLTAGE_SLACK)
+                p[m.H_TIME] = t
+                m.evaluate(y, p, k[0], alg)
             _observe(y, alg, extra, tc_index, ts_index)
-            factor = 5.0 if norm == 0.0 else min(5.0, max(0.2, 0.9 * norm ** _ORDER_EXPONENT))
-            if h_try >= h:  # a step cut short by the boundary says nothing about the next one
-                h = h_try * factor
+            if code < 0:
+                if t_end - t <= MIN_PHASE:
+                    break
+                # steps to the phase end or to the first event (kept inline: a call per segment
+                # with a dozen arrays costs a fifth of the batch in reference counting)
+                steps = 0
+                while t < t_end - 1e-12 * max(1.0, t_end):
+                    steps += 1
+                    if steps > MAX_STEPS_PER_SEGMENT or h < 1e-9:
+                        return 2, -1, t
+                    h_try = min(h, t_end - t)
+                    _rk_step(y, p, t, h_try, k, tmp, alg, out, err)
+                    norm = _error_norm(y, out, err, rtol, atol)
+                    if norm > 1.0 or not np.isfinite(norm):
+                        h = h_try * max(0.2, 0.9 * norm ** _ORDER_EXPONENT) if np.isfinite(norm) else 0.25 * h_try
+                        continue
+                    m.roots_from(out, g, p, alg)
+                    if _any_fired(g, p):
+                        low, high = 0.0, h_try  # a root lies in (low, high]
+                        while high - low > EVENT_TIME_TOLERANCE:
+                            mid = 0.5 * (low + high)
+                            _rk_step(y, p, t, mid, k, tmp, alg, trial, err)
+                            m.roots_from(trial, g, p, alg)
+                            if _any_fired(g, p):
+                                high = mid
+                            else:
+                                low = mid
+                        _rk_step(y, p, t, high, k, tmp, alg, trial, err)
+                        m.roots_from(trial, g, p, alg)
+                        code = _fired_event(g, p)
+                        rate_new = _arrhenius_rate(trial[tc_index], ea, t_ref)
+                        extra[X_ARRHENIUS] += 0.5 * (rate_prev + rate_new) * high
+                        rate_prev = rate_new
+                        for i in range(n):
+                            y[i] = trial[i]
+                        _observe(y, alg, extra, tc_index, ts_index)
+                        t += high
+                        break
+                    rate_new = _arrhenius_rate(out[tc_index], ea, t_ref)
+                    extra[X_ARRHENIUS] += 0.5 * (rate_prev + rate_new) * h_try
+                    rate_prev = rate_new
+                    t += h_try
+                    for i in range(n):
+                        y[i] = out[i]
+                        k[0, i] = k[3, i]  # first same as last
+                    _observe(y, alg, extra, tc_index, ts_index)
+                    factor = 5.0 if norm == 0.0 else min(5.0, max(0.2, 0.9 * norm ** _ORDER_EXPONENT))
+                    if h_try >= h:  # a step cut short by the boundary says nothing about the next one
+                        h = h_try * factor
+                    else:
+                        h = max(h, h_try * factor)
+                if code < 0:
+                    t = t_end
+                    break
+            events += 1
+            if events > MAX_EVENTS_PER_SEGMENT:
+                return 2, -1, t
+            action = _EVENT_ACTION[code]
+            if action == _ACT_STOP:
+                return 1, code, t
+            if action == _ACT_TOGGLE:
+                controls[code - m.EV_FAN] = not controls[code - m.EV_FAN]
+            elif action == _ACT_NEXT_PHASE and phase + 1 < n_phases[seg]:
+                phase += 1
             else:
-                h = max(h, h_try * factor)
-        t = t_end
+                break  # a cutoff or an end condition ends the segment
     return 0, -1, t
 
 
 @numba.njit(cache=True, error_model="numpy")
-def _integrate_many(params, modes, values, durations, ambients, setups, setup_index, y0, rtol, atol, ea, t_ref,
-                    tc_index, ts_index):
+def _integrate_many(params, profile, n_phases, modes, values, durations, ambients, setups, setup_index, switches,
+                    controls, y0, rtol, atol, ea, t_ref, tc_index, ts_index):
+    """Every scenario of a batch; scenario ``s`` runs the segments of profile ``profile[s]``."""
     n_scen = params.shape[0]
     states = y0.copy()
     extras = np.empty((n_scen, N_EXTRA))
@@ -268,8 +332,10 @@ def _integrate_many(params, modes, values, durations, ambients, setups, setup_in
                                  np.inf, -np.inf, 0.0])
         p = params[s].copy()
         y = states[s]
-        st, ev, tt = _integrate_one(p, modes[s], values[s], durations[s], ambients[s], setups[s], setup_index[s],
-                                    y, rtol, atol[s], ea[s], t_ref[s], extras[s], tc_index, ts_index)
+        j = profile[s]
+        st, ev, tt = _integrate_one(p, n_phases[j], modes[j], values[j], durations[j], ambients[j], setups[j],
+                                    setup_index[j], switches[s], controls[s].copy(), y, rtol, atol[s], ea[s],
+                                    t_ref[s], extras[s], tc_index, ts_index)
         status[s], events[s], times[s] = st, ev, tt
     return states, extras, status, events, times
 
@@ -286,11 +352,11 @@ class BatchOutcome:
 
 
 def _segment_arrays(problem: Problem) -> tuple[np.ndarray, ...]:
-    """Mode, value, duration, ambient and event set-up of every segment (cached: sweeps share profiles)."""
+    """Phases, demands, durations, ambients and event set-ups of every segment (cached: sweeps share profiles)."""
     cell = problem.cell
-    # what the event set-up reads besides the segments
-    key = (_identity(problem.segments), cell.voltage_min, cell.voltage_max, problem.pack.series,
-           problem.limits.cell_temperature_max)
+    # what the event set-ups and the CC-CV cap read besides the segments
+    key = (_identity(problem.segments), cell.voltage_min, cell.voltage_max, cell.capacity, problem.pack.series,
+           problem.pack.parallel, problem.limits.cell_temperature_max)
     hit = _SEGMENT_CACHE.get(key)
     if hit is None:
         if len(_SEGMENT_CACHE) >= 64:
@@ -304,23 +370,41 @@ _SEGMENT_CACHE: dict[tuple, tuple] = {}
 
 
 def _build_segment_arrays(problem: Problem) -> tuple[np.ndarray, ...]:
+    """Per segment: its phase count, each phase's mode, demand and set-up index; duration; ambient."""
     kinds: dict[tuple, int] = {}
     blocks = []
-    modes, values, durations, ambients, index = [], [], [], [], []
-    for seg in problem.segments:
-        mode = m.MODE_CURRENT if seg.mode == "rest" else m.mode_code(seg.mode)
-        value = 0.0 if seg.mode == "rest" else seg.value
-        key = (mode, value > 0.0)
-        if key not in kinds:
-            kinds[key] = len(blocks)
-            blocks.append(_event_setup(problem, seg, _Phase(mode, value, "demand")))
-        modes.append(mode)
-        values.append(value)
-        durations.append(seg.duration)
-        ambients.append(np.nan if seg.ambient_temperature is None else seg.ambient_temperature)
-        index.append(kinds[key])
-    return (np.array(modes, float), np.array(values), np.array(durations), np.array(ambients), np.array(blocks),
-            np.array(index, dtype=np.int64))
+    n_seg = len(problem.segments)
+    n_phases = np.ones(n_seg, dtype=np.int64)
+    modes, values = np.zeros((n_seg, 2)), np.zeros((n_seg, 2))
+    index = np.zeros((n_seg, 2), dtype=np.int64)
+    durations, ambients = np.empty(n_seg), np.empty(n_seg)
+    for s, seg in enumerate(problem.segments):
+        phases = _phases_of(seg)
+        n_phases[s] = len(phases)
+        for j, phase in enumerate(phases):
+            # the key of solve._configure: what _event_setup reads of the segment and the phase
+            key = (phase.kind, phase.mode, phase.value > 0.0, seg.cv_voltage, seg.cutoff_current,
+                   seg.voltage_below, seg.voltage_above, seg.soc_below, seg.soc_above)
+            if key not in kinds:
+                kinds[key] = len(blocks)
+                blocks.append(_event_setup(problem, seg, phase))
+            modes[s, j], values[s, j], index[s, j] = phase.mode, phase.value, kinds[key]
+        durations[s] = seg.duration if np.isfinite(seg.duration) else cccv_cap(problem, seg)
+        ambients[s] = np.nan if seg.ambient_temperature is None else seg.ambient_temperature
+    return n_phases, modes, values, durations, ambients, np.array(blocks), index
+
+
+def _thermostats(problem: Problem) -> tuple[np.ndarray, np.ndarray]:
+    """Fan, heater and pump switches as rows ``(present, on_at, off_at)`` [-, K, K], and whether
+    each starts on (at the initial cell temperature, as the engine decides)."""
+    switches = np.zeros((len(m.CONTROL_EVENTS), 3))
+    controls = np.zeros(len(m.CONTROL_EVENTS), dtype=np.bool_)
+    t_cell = problem.initial_state()[m.cell_temperature_index(problem.n_rc)]
+    for event, switch in _switches(problem).items():
+        c = event - m.EV_FAN
+        switches[c] = (1.0, switch.on_at, switch.off_at)
+        controls[c] = switch.initially_on(t_cell)
+    return switches, controls
 
 
 def solve_batch(problems: list[Problem], options: SolverOptions) -> BatchOutcome:
@@ -333,29 +417,40 @@ def solve_batch(problems: list[Problem], options: SolverOptions) -> BatchOutcome
     params = np.zeros((len(problems), width))
     for i, p in enumerate(params_list):
         params[i, :len(p)] = p
-    arrays = [_segment_arrays(p) for p in problems]
+    # the scenarios of a sweep mostly share their profile: its arrays are stacked once
+    profiles: dict[int, int] = {}
+    arrays = []
+    which = np.empty(len(problems), dtype=np.int64)
+    for i, problem in enumerate(problems):
+        a = _segment_arrays(problem)
+        if id(a) not in profiles:
+            profiles[id(a)] = len(arrays)
+            arrays.append(a)
+        which[i] = profiles[id(a)]
     n_seg = max(len(a[0]) for a in arrays)
-    n_kinds = max(len(a[4]) for a in arrays)
+    n_kinds = max(len(a[5]) for a in arrays)
 
-    def stack(j: int, fill: Any) -> np.ndarray:
-        shape = (len(problems), n_kinds, 2 * m.N_EVENTS) if j == 4 else (len(problems), n_seg)
-        out = np.full(shape, fill, dtype=np.int64 if j == 5 else float)
+    def stack(j: int, shape: tuple, fill: Any, dtype: Any = float) -> np.ndarray:
+        out = np.full((len(arrays), *shape), fill, dtype=dtype)
         for i, a in enumerate(arrays):
-            if j == 4:
-                out[i, :len(a[4])] = a[4]
-            else:
-                out[i, :len(a[j])] = a[j]
+            out[i, :len(a[j])] = a[j]
         return out
 
-    modes, values, durations, ambients = stack(0, 0.0), stack(1, 0.0), stack(2, 0.0), stack(3, np.nan)
-    setups, index = stack(4, 0.0), stack(5, 0)
+    # padding: a one-phase segment of zero length does nothing
+    n_phases = stack(0, (n_seg,), 1, np.int64)
+    modes, values = stack(1, (n_seg, 2), 0.0), stack(2, (n_seg, 2), 0.0)
+    durations, ambients = stack(3, (n_seg,), 0.0), stack(4, (n_seg,), np.nan)
+    setups, index = stack(5, (n_kinds, 2 * m.N_EVENTS), 0.0), stack(6, (n_seg, 2), 0, np.int64)
+    thermostats = [_thermostats(p) for p in problems]
+    switches = np.array([s for s, _ in thermostats])
+    controls = np.array([c for _, c in thermostats])
     y0 = np.array([p.initial_state() for p in problems])
     atol = np.array([options.atol_vector(n_rc) for _ in problems])
     ea = np.array([p.stress.activation_energy for p in problems])
     t_ref = np.array([p.stress.reference_temperature for p in problems])
     states, extras, status, events, times = _integrate_many(
-        params, modes, values, durations, ambients, setups, index, y0, options.rtol, atol, ea, t_ref,
-        m.cell_temperature_index(n_rc), m.sink_temperature_index(n_rc))
+        params, which, n_phases, modes, values, durations, ambients, setups, index, switches, controls, y0,
+        options.rtol, atol, ea, t_ref, m.cell_temperature_index(n_rc), m.sink_temperature_index(n_rc))
     stop = [STOP_EVENTS.get(int(e), "end_of_profile") if s == 1 else "end_of_profile"
             for s, e in zip(status, events, strict=True)]
     names = ["fallback" if s == 2 else "ok" for s in status]
