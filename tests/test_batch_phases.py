@@ -6,7 +6,8 @@ different event locator), with the tolerances the sweep asks of the batch
 (the CC->CV switch, then the voltage-held phase), a discharge ended by its own
 end condition and then rest, a voltage-held segment, a thermostatic fan that
 switches on and off, a pack heater fed from the pack in the cold, a linear
-ambient profile, and stops on the voltage and temperature limits.
+ambient profile, a soak before the mission (run first, the mission starting
+from its end state), and stops on the voltage and temperature limits.
 """
 
 from __future__ import annotations
@@ -59,6 +60,10 @@ def _case(name: str) -> dict:
         th.pop("ambient_temperature")
         th["ambient_profile"] = "ambient.csv"  # written by the fixture: 5 degC rising to 35 degC in an hour
         segments = [{"mode": "current", "value": "2 A", "duration": "30 min"}, {"mode": "rest", "duration": "30 min"}]
+    elif name == "soak, then a heated mission":
+        th.update(ambient_temperature="-10 degC", initial_cell_temperature="20 degC",
+                  heater={"power": "6 W", "on_below": "2 degC", "off_above": "6 degC", "source": "pack"})
+        segments = [{"mode": "soak", "duration": "2 h"}, {"mode": "current", "value": "2 A", "duration": "30 min"}]
     elif name == "voltage cutoff":
         segments = [{"mode": "power", "value": "25 W", "duration": "2 h"}]
     elif name == "temperature limit":
@@ -72,7 +77,7 @@ def _case(name: str) -> dict:
 
 
 CASES = ("cccv", "end condition, then rest", "voltage held", "fan", "heater in the cold", "ambient profile",
-         "voltage cutoff", "temperature limit")
+         "soak, then a heated mission", "voltage cutoff", "temperature limit")
 
 
 @pytest.fixture(scope="module")
@@ -112,5 +117,7 @@ def test_the_cases_exercise_what_they_name(answers):
     assert by_name["temperature limit"].summary["stop_reason"] == "temperature_max"
     assert by_name["end condition, then rest"].summary["stop_reason"] == "end_of_profile"
     assert np.isfinite(by_name["voltage held"].summary["energy_load_Wh"])
+    soaked = by_name["soak, then a heated mission"].summary["soak"]
+    assert soaked is not None and soaked["duration_s"] == pytest.approx(7200.0)
     ambient = by_name["ambient profile"].series["ambient_temperature_degC"]
     assert ambient[0] == pytest.approx(5.0) and ambient[-1] == pytest.approx(35.0)

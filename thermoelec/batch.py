@@ -27,14 +27,13 @@ A scenario whose steps collapse (a stiff fast RC pair or a tiny sink against a
 large conductance) is handed back for a solo CVODE run (status ``fallback``).
 
 Scope: every segment kind (current, power, resistance, voltage, rest, CC-CV)
-with its end conditions, thermostats (fan, heater, pump) and the ambient
-profile; events act as in the engine's driver. A scenario with a soak goes to
-CVODE whole.
+with its end conditions, thermostats (fan, heater, pump), the ambient profile
+and soaks (run first, as in the engine's driver); events act as in the driver.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 import numba
@@ -83,9 +82,8 @@ def _identity(segments: tuple) -> tuple[int, ...]:
 
 
 def eligible(problem: Problem) -> str | None:
-    """None when the batched solver can take the problem, else the reason it cannot."""
-    if problem.soak:
-        return "a soak"
+    """None when the batched solver can take the problem, else the reason it cannot (none is left
+    today: every segment kind, thermostat and soak is batched; kept for the callers' contract)."""
     return None
 
 
@@ -349,6 +347,7 @@ class BatchOutcome:
     duration: np.ndarray
     states: np.ndarray
     extras: np.ndarray
+    initial_states: np.ndarray  # where each mission started (after its soak)
 
 
 def _segment_arrays(problem: Problem) -> tuple[np.ndarray, ...]:
@@ -394,12 +393,11 @@ def _build_segment_arrays(problem: Problem) -> tuple[np.ndarray, ...]:
     return n_phases, modes, values, durations, ambients, np.array(blocks), index
 
 
-def _thermostats(problem: Problem) -> tuple[np.ndarray, np.ndarray]:
+def _thermostats(problem: Problem, t_cell: float) -> tuple[np.ndarray, np.ndarray]:
     """Fan, heater and pump switches as rows ``(present, on_at, off_at)`` [-, K, K], and whether
-    each starts on (at the initial cell temperature, as the engine decides)."""
+    each starts on at the cell temperature ``t_cell`` [K] (as the engine decides)."""
     switches = np.zeros((len(m.CONTROL_EVENTS), 3))
     controls = np.zeros(len(m.CONTROL_EVENTS), dtype=np.bool_)
-    t_cell = problem.initial_state()[m.cell_temperature_index(problem.n_rc)]
     for event, switch in _switches(problem).items():
         c = event - m.EV_FAN
         switches[c] = (1.0, switch.on_at, switch.off_at)
@@ -408,10 +406,26 @@ def _thermostats(problem: Problem) -> tuple[np.ndarray, np.ndarray]:
 
 
 def solve_batch(problems: list[Problem], options: SolverOptions) -> BatchOutcome:
-    """Integrate eligible problems with the same state layout (same RC count) together."""
+    """Integrate problems with the same state layout (same RC count) together.
+
+    As in the engine's driver, the soak segments of a problem run first, as a
+    problem of their own (here: a batch of the soaks); its mission starts at
+    t = 0 from the state they end in, with the integrals reset.
+    """
     n_rc = problems[0].n_rc
     if any(p.n_rc != n_rc for p in problems):
         raise ValueError("a batch needs one state layout: the same number of RC pairs")
+    y0 = np.array([p.initial_state() for p in problems])
+    soaked = [i for i, p in enumerate(problems) if p.soak]
+    soak_failed = set()
+    if soaked:
+        soaks = solve_batch([replace(problems[i], segments=problems[i].soak, soak=()) for i in soaked], options)
+        for j, i in enumerate(soaked):
+            if soaks.status[j] != "ok":
+                soak_failed.add(i)
+                continue
+            y0[i] = soaks.states[j]
+            y0[i, m.quadrature_index(n_rc):] = 0.0
     params_list = [m.pack_parameters(p) for p in problems]
     width = max(len(p) for p in params_list)
     params = np.zeros((len(problems), width))
@@ -441,20 +455,20 @@ def solve_batch(problems: list[Problem], options: SolverOptions) -> BatchOutcome
     modes, values = stack(1, (n_seg, 2), 0.0), stack(2, (n_seg, 2), 0.0)
     durations, ambients = stack(3, (n_seg,), 0.0), stack(4, (n_seg,), np.nan)
     setups, index = stack(5, (n_kinds, 2 * m.N_EVENTS), 0.0), stack(6, (n_seg, 2), 0, np.int64)
-    thermostats = [_thermostats(p) for p in problems]
+    tc_index = m.cell_temperature_index(n_rc)
+    thermostats = [_thermostats(p, y0[i, tc_index]) for i, p in enumerate(problems)]
     switches = np.array([s for s, _ in thermostats])
     controls = np.array([c for _, c in thermostats])
-    y0 = np.array([p.initial_state() for p in problems])
     atol = np.array([options.atol_vector(n_rc) for _ in problems])
     ea = np.array([p.stress.activation_energy for p in problems])
     t_ref = np.array([p.stress.reference_temperature for p in problems])
     states, extras, status, events, times = _integrate_many(
         params, which, n_phases, modes, values, durations, ambients, setups, index, switches, controls, y0,
-        options.rtol, atol, ea, t_ref, m.cell_temperature_index(n_rc), m.sink_temperature_index(n_rc))
+        options.rtol, atol, ea, t_ref, tc_index, m.sink_temperature_index(n_rc))
     stop = [STOP_EVENTS.get(int(e), "end_of_profile") if s == 1 else "end_of_profile"
             for s, e in zip(status, events, strict=True)]
-    names = ["fallback" if s == 2 else "ok" for s in status]
-    return BatchOutcome(names, stop, times, states, extras)
+    names = ["fallback" if s == 2 or i in soak_failed else "ok" for i, s in enumerate(status)]
+    return BatchOutcome(names, stop, times, states, extras, y0)
 
 
 def batch_metrics(problem: Problem, outcome: BatchOutcome, i: int) -> dict[str, Any]:
@@ -462,7 +476,7 @@ def batch_metrics(problem: Problem, outcome: BatchOutcome, i: int) -> dict[str, 
     n_rc = problem.n_rc
     y, x = outcome.states[i], outcome.extras[i]
     q = y[m.quadrature_index(n_rc):]
-    tc0 = problem.initial_state()[m.cell_temperature_index(n_rc)]
+    tc0 = outcome.initial_states[i, m.cell_temperature_index(n_rc)]
     return {
         "completed": outcome.stop_reason[i] == "end_of_profile", "duration_s": float(outcome.duration[i]),
         "cell_temperature_max_degC": x[X_TC_MAX] - 273.15, "cell_temperature_rise_K": x[X_TC_MAX] - tc0,
