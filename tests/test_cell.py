@@ -106,3 +106,17 @@ def test_rc_zero_order_hold_matches_closed_form():
     r, tau, i = 0.015, 30.0, 5.0
     v = cell.rc_zero_order_hold(0.0, r, tau, i, 10.0)
     assert v == pytest.approx(r * i * (1 - np.exp(-10.0 / tau)), rel=1e-14)
+
+
+@pytest.mark.parametrize("n", [1, 2, 7, 32, 33, 500])
+def test_kernel_tables_read_in_place_match_numpy_interp(n):
+    # the kernels' in-place reads (a scan on short grids, bisection on long ones) against numpy.interp,
+    # which also holds the end values beyond the grid
+    from thermoelec import model
+
+    rng = np.random.default_rng(n)
+    grid = np.cumsum(rng.uniform(0.1, 2.0, n))
+    values = rng.normal(size=n)
+    p = np.concatenate([[9.0, 9.0], grid, values, [9.0]])
+    for x in np.concatenate([rng.uniform(grid[0] - 1.0, grid[-1] + 1.0, 200), grid]):
+        assert model._interp1_at(p, 2, 2 + n, n, x) == pytest.approx(np.interp(x, grid, values), abs=1e-12)

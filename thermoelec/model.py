@@ -299,9 +299,19 @@ def _bracket_at(p, start, n, x):
         return 0, 0.0
     if x >= p[start + n - 1]:
         return n - 2, 1.0
-    i = 0
-    while p[start + i + 1] <= x:
-        i += 1
+    if n <= 32:  # a scan on the short tables of cell data
+        i = 0
+        while p[start + i + 1] <= x:
+            i += 1
+    else:  # bisection on long ones (an ambient profile): p[start + lo] <= x < p[start + hi]
+        lo, hi = 0, n - 1
+        while hi - lo > 1:
+            mid = (lo + hi) // 2
+            if p[start + mid] <= x:
+                lo = mid
+            else:
+                hi = mid
+        i = lo
     return i, (x - p[start + i]) / (p[start + i + 1] - p[start + i])
 
 

@@ -56,6 +56,8 @@ REACH_FACTOR = 4.0
 #: tightly coupled or stiff network (a small sink on a large conductance) and long
 #: phases get the full dense Jacobian.
 DIAGONAL_CONTRACTION = 0.2
+#: Newton matrices of the CVODE back end (``SolverOptions.linear_solver``).
+LINEAR_SOLVERS = ("auto", "dense", "diagonal")
 #: Longest automatic first step after a restart [s] (``SolverOptions.first_step``).
 FIRST_STEP_MAX = 1.0
 #: Relative slack on the cell voltage limits when the terminal voltage is imposed,
@@ -97,10 +99,11 @@ class SolverOptions:
         a profile of equal short segments takes two equal steps in each and the
         second reuses the first's Newton matrix; scaled by ``sqrt(rtol / 1e-6)``,
         as the local error of the first (order-1) step grows with its square
-        (CVODE's own estimate scales so too). The CVODE back end integrates the RC voltages relative to
-        their exact zero-order-hold response, so what is left after a restart is
-        slow; a step that proves too long fails its error test and CVODE shortens
-        it, so this sets cost, not accuracy. A step never passes a phase end.
+        (CVODE's own estimate scales so too). The CVODE back end integrates the
+        RC voltages relative to their exact zero-order-hold response, so what is
+        left after a restart is slow; a step that proves too long fails its
+        error test and CVODE shortens it, so this sets cost, not accuracy. A step
+        never passes a phase end.
     linear_solver : str
         Newton matrix of the CVODE back end: ``"dense"`` (the full Jacobian),
         ``"diagonal"`` (its diagonal only: one right-hand-side call to form, no
@@ -175,7 +178,7 @@ def _float32_at_or_after(t: float) -> float:
 
 
 class CvodeBackend:
-    """CVODE (BDF, Newton, dense) through scikits.odes 2.7, restarted per phase.
+    """CVODE (BDF, Newton; dense or diagonal Newton matrix) through scikits.odes 2.7, restarted per phase.
 
     CVODE integrates the states with each RC voltage taken relative to its exact
     zero-order-hold response from the phase start (:func:`thermoelec.model.rc_base_setup`),
@@ -518,6 +521,8 @@ def integrate_problem(problem: Problem, options: SolverOptions, initial_state: n
     """
     if options.backend not in BACKENDS:
         raise ValueError(f"unknown solver backend {options.backend!r}; valid: {', '.join(BACKENDS)}")
+    if options.linear_solver not in LINEAR_SOLVERS:
+        raise ValueError(f"unknown linear solver {options.linear_solver!r}; valid: {', '.join(LINEAR_SOLVERS)}")
     soak = None
     if problem.soak:
         soak = integrate_problem(replace(problem, segments=problem.soak, soak=()), options, initial_state)
