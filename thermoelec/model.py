@@ -355,6 +355,22 @@ def _law_length(p, off):
 
 
 @_jit
+def _rc_rate(p, off, z, temperature, icell, v):
+    """``dv/dt = I/C - v/(R C)`` [V/s] of the RC-pair block at ``off``, with fewest divisions.
+
+    Given a time constant, ``C = tau / R(z, T_ref)``; when the law does not depend
+    on temperature, ``R(z, T_ref) = R`` and the rate is ``(R I - v) / tau``.
+    """
+    r = _law_value(p, off + 2, z, temperature)
+    if p[off] == 1.0:
+        if p[off + 3] == 1.0 and p[off + 4] == 0.0:  # one temperature point, no Arrhenius factor
+            return (r * icell - v) / p[off + 1]
+        r_ref = _law_value(p, off + 2, z, p[off + 5])
+        return (icell - v / r) * r_ref / p[off + 1]
+    return (icell - v / r) / p[off + 1]
+
+
+@_jit
 def _rc_pair(p, off, z, temperature):
     """Resistance [Ω] and capacitance [F] of the RC-pair block that starts at ``off``."""
     r = _law_value(p, off + 2, z, temperature)
@@ -426,8 +442,7 @@ def evaluate(y, p, ydot, alg):
     ydot[0] = -icell / p[H_CAPACITY]
     off = int(p[H_RC])
     for k in range(nrc):
-        r, cap = _rc_pair(p, off, z, tc)
-        ydot[1 + k] = icell / cap - y[1 + k] / (r * cap)
+        ydot[1 + k] = _rc_rate(p, off, z, tc, icell, y[1 + k])
         off += 2 + _law_length(p, off + 2)
 
     q_cell = _bernardi(icell, u, vcell, tc, dudt)
