@@ -76,11 +76,6 @@ X_TC_MAX, X_TC_MIN, X_TS_MAX, X_V_MIN, X_V_MAX, X_VCELL_MIN, X_VCELL_MAX = 0, 1,
 X_I_ABS, X_I_MAX, X_I_MIN, X_P_MAX, X_ARRHENIUS, N_EXTRA = 7, 8, 9, 10, 11, 12
 
 
-def _identity(segments: tuple) -> tuple[int, ...]:
-    """A cheap key of a segment tuple: the identities of its (shared, immutable) segments."""
-    return tuple(map(id, segments))
-
-
 def eligible(problem: Problem) -> str | None:
     """None when the batched solver can take the problem, else the reason it cannot (none is left
     today: every segment kind, thermostat and soak is batched; kept for the callers' contract)."""
@@ -354,13 +349,14 @@ def _segment_arrays(problem: Problem) -> tuple[np.ndarray, ...]:
     """Phases, demands, durations, ambients and event set-ups of every segment (cached: sweeps share profiles)."""
     cell = problem.cell
     # what the event set-ups and the CC-CV cap read besides the segments
-    key = (_identity(problem.segments), cell.voltage_min, cell.voltage_max, cell.capacity, problem.pack.series,
+    # the scenarios of a sweep share their segment tuple (scenario._profile_segments): it is
+    # recognised by identity, and kept with the arrays so that its identity stays its own
+    key = (id(problem.segments), cell.voltage_min, cell.voltage_max, cell.capacity, problem.pack.series,
            problem.pack.parallel, problem.limits.cell_temperature_max)
     hit = _SEGMENT_CACHE.get(key)
-    if hit is None:
+    if hit is None or hit[1] is not problem.segments:
         if len(_SEGMENT_CACHE) >= 64:
             _SEGMENT_CACHE.clear()
-        # the segments are kept with the arrays, so their identities stay theirs while cached
         hit = _SEGMENT_CACHE[key] = (_build_segment_arrays(problem), problem.segments)
     return hit[0]
 

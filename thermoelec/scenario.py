@@ -1230,28 +1230,39 @@ def scale_demand(segments: list[Segment], factor: float) -> list[Segment]:
 _SCALED: dict[tuple, tuple[list[Segment], list[Segment]]] = {}
 
 
-def build_problem(scenario: Scenario) -> Problem:
-    """Convert a validated scenario into an SI :class:`Problem` (reads the CSV profiles)."""
+def _profile_segments(scenario: Scenario, first_ambient: float | None
+                      ) -> tuple[tuple[Segment, ...], tuple[Segment, ...], float]:
+    """The mission's segments (scaled, repeated), its soak segments and the scenario's ambient [K].
+
+    Cached on what they are made of (the profile section, the CSV series read,
+    the ambient): a sweep builds a problem per scenario, and the scenarios of a
+    sweep mostly share their profile, so they share one segment tuple, which the
+    batched solver then recognises by identity.
+    """
     spec = scenario.spec
+    series = [read_profile_csv(scenario.base_dir / seg.file, f"profile.segment[{i + 1}].file")
+              if seg.file is not None else None for i, seg in enumerate(spec.profile.segment)]
+    # the ambient enters only through soak segments (they take it) and where no ambient is given
+    has_soak = any(seg.mode == "soak" for seg in spec.profile.segment)
+    given = spec.thermal.ambient_temperature
+    key = (repr(spec.profile), given if has_soak or given is None else "given", first_ambient,
+           tuple(map(id, series)))
+    hit = _PROFILE_SEGMENTS.get(key)
+    if hit is not None and all(a is b for a, b in zip(hit[0], series, strict=True)):
+        segments, soak, ambient = hit[1]
+        return segments, soak, given if given is not None else ambient
     segments: list[Segment] = []
     soak: list[Segment] = []
-    first_ambient: float | None = None
-    ambient_profile = None
-    if spec.thermal.ambient_profile is not None:
-        ambient_profile = read_ambient_csv(scenario.base_dir / spec.thermal.ambient_profile,
-                                           "thermal.ambient_profile")
-        first_ambient = float(ambient_profile[1][0])
-    for i, seg in enumerate(spec.profile.segment):
-        key = f"profile.segment[{i + 1}]"
-        if seg.file is not None:
-            series = read_profile_csv(scenario.base_dir / seg.file, f"{key}.file")
-            if first_ambient is None and series.ambient is not None:
-                first_ambient = float(series.ambient[0])
-            segments += _series_segments(series, seg.file)
+    for i, (seg, table) in enumerate(zip(spec.profile.segment, series, strict=True)):
+        key_name = f"profile.segment[{i + 1}]"
+        if table is not None:
+            if first_ambient is None and table.ambient is not None:
+                first_ambient = float(table.ambient[0])
+            segments += _series_segments(table, seg.file)
         elif seg.mode == "soak":
-            soak.append(_segment_from_spec(seg, key, spec.thermal.ambient_temperature or first_ambient))
+            soak.append(_segment_from_spec(seg, key_name, spec.thermal.ambient_temperature or first_ambient))
         else:
-            segments.append(_segment_from_spec(seg, key, None))
+            segments.append(_segment_from_spec(seg, key_name, None))
     ambient = spec.thermal.ambient_temperature
     if ambient is None:
         if first_ambient is None:
@@ -1262,6 +1273,27 @@ def build_problem(scenario: Scenario) -> Problem:
     for i, seg in enumerate(soak):
         if seg.ambient_temperature is None:
             soak[i] = replace(seg, ambient_temperature=ambient)
+    result = (tuple(expand_repeats(scale_demand(segments, spec.profile.scale), spec.profile.repeat)), tuple(soak),
+              ambient)
+    if len(_PROFILE_SEGMENTS) >= 64:
+        _PROFILE_SEGMENTS.clear()
+    _PROFILE_SEGMENTS[key] = (series, result)  # the series kept, so their identities stay theirs
+    return result
+
+
+_PROFILE_SEGMENTS: dict[tuple, tuple] = {}
+
+
+def build_problem(scenario: Scenario) -> Problem:
+    """Convert a validated scenario into an SI :class:`Problem` (reads the CSV profiles)."""
+    spec = scenario.spec
+    first_ambient: float | None = None
+    ambient_profile = None
+    if spec.thermal.ambient_profile is not None:
+        ambient_profile = read_ambient_csv(scenario.base_dir / spec.thermal.ambient_profile,
+                                           "thermal.ambient_profile")
+        first_ambient = float(ambient_profile[1][0])
+    segments, soak, ambient = _profile_segments(scenario, first_ambient)
     cell_spec = spec.cell
     ocv = cell_spec.ocv
     cell = Cell(
@@ -1281,11 +1313,11 @@ def build_problem(scenario: Scenario) -> Problem:
     t_sink = spec.thermal.initial_sink_temperature or t_cell
     return Problem(
         cell=cell, pack=pack, thermal=spec.thermal.network(),
-        segments=tuple(expand_repeats(scale_demand(segments, spec.profile.scale), spec.profile.repeat)),
+        segments=segments,
         ambient_temperature=ambient, initial_soc=cell_spec.initial_soc,
         initial_cell_temperature=t_cell, initial_sink_temperature=t_sink,
         limits=Limits(spec.limits.cell_temperature_max, spec.limits.charge_temperature_min),
         name=spec.scenario.name, stress=spec.stress.settings(),
-        ambient_profile=ambient_profile, soak=tuple(soak),
+        ambient_profile=ambient_profile, soak=soak,
     )
 
