@@ -442,12 +442,18 @@ def sweep_map(ds, metric: str):
         mesh = ax.pcolormesh(x, y, values.values, shading="nearest", cmap="inferno")
         if 0.0 < float(good.mean()) < 1.0 and len(x) > 1 and len(y) > 1:
             ax.contour(x, y, good.values, levels=[0.5], colors="cyan", linewidths=1.5)
+        # a scenario that stopped early shows its metric up to the stop: mark it, so that a cell
+        # stopped at once (a cold take-off on the voltage limit) does not read as a cool pass
+        stopped = (ds["stop_reason"].isel(sel).values != "end_of_profile")
+        if stopped.any():
+            xx, yy = np.meshgrid(x, y)
+            ax.scatter(xx[stopped], yy[stopped], marker="x", color="white", s=28, linewidths=1.2)
         fig.colorbar(mesh, ax=ax, label=f"{metric}")
         ax.set_xlabel(f"{x_dim} [{ds[x_dim].attrs.get('units', '')}]")
         ax.set_ylabel(f"{y_dim} [{ds[y_dim].attrs.get('units', '')}]")
         if facets:
             ax.set_title(f"{facets} = {ds[facets].values[i]}", fontsize=9)
-    fig.suptitle(f"{metric}; cyan: pass / fail boundary", fontsize=10)
+    fig.suptitle(f"{metric}\ncyan: pass / fail boundary; x: stopped before the end of the profile", fontsize=10)
     return fig
 
 
