@@ -1040,8 +1040,10 @@ class Scenario:
 
     def with_overrides(self, overrides: Mapping[str, Any]) -> Scenario:
         """A new scenario with values replaced by dotted path (validated again)."""
-        return _validate(_deep_copy(self.raw), self.source, self.base_dir, None, list(overrides.items()),
-                         self.digest, self.overrides)
+        # the files were checked when this scenario was loaded: again only if an override may name others
+        items = list(overrides.items())
+        return _validate(_deep_copy(self.raw), self.source, self.base_dir, None, items, self.digest, self.overrides,
+                         check_files=any(_names_files(path) for path, _ in items))
 
     def problem(self) -> Problem:
         """The SI :class:`~thermoelec.model.Problem` for the simulator (reads CSV profiles)."""
@@ -1061,7 +1063,7 @@ def _deep_copy(data: Any) -> Any:
 
 
 def _validate(data: dict, source: str, base_dir: Path, text: str | None, overrides: list[tuple[str, Any]],
-              digest: str, previous: tuple = ()) -> Scenario:
+              digest: str, previous: tuple = (), check_files: bool = True) -> Scenario:
     for path, value in overrides:
         try:
             apply_override(data, path, value)
@@ -1076,8 +1078,14 @@ def _validate(data: dict, source: str, base_dir: Path, text: str | None, overrid
         h.update(repr(overrides).encode())
         digest = h.hexdigest()
     scenario = Scenario(spec, data, source, base_dir, digest, tuple(previous) + tuple(overrides))
-    _check_profile_files(scenario)
+    if check_files:
+        _check_profile_files(scenario)
     return scenario
+
+
+def _names_files(path: str) -> bool:
+    """Whether an override at this dotted path can change which CSV files the scenario reads."""
+    return path.startswith(("profile", "thermal.ambient_profile")) or path in ("thermal", "include")
 
 
 def _check_profile_files(scenario: Scenario) -> None:
