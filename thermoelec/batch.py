@@ -21,14 +21,16 @@ each scenario within the tolerance asked (the test against solo CVODE at rtol
 Events: the engine's root functions (``model.roots``) are checked after every
 step; when one turns non-positive, the crossing is located by bisection on the
 step length (each trial a fresh Runge-Kutta step from the step's start) to
-``EVENT_TIME_TOLERANCE``, and the scenario stops there. A demand that is
-infeasible at a segment start is caught by the engine's ``model.start_check``.
+``EVENT_TIME_TOLERANCE``, and the event acts there as in the engine's driver: a
+limit stops the scenario, the CC->CV switch starts the CV phase, a cutoff or an
+end condition ends the segment, a thermostat switches. A limit already reached
+at a phase start is caught by the engine's ``model.start_check``.
 A scenario whose steps collapse (a stiff fast RC pair or a tiny sink against a
 large conductance) is handed back for a solo CVODE run (status ``fallback``).
 
 Scope: every segment kind (current, power, resistance, voltage, rest, CC-CV)
 with its end conditions, thermostats (fan, heater, pump), the ambient profile
-and soaks (run first, as in the engine's driver); events act as in the driver.
+and soaks (run first, as in the engine's driver).
 """
 
 from __future__ import annotations

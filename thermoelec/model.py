@@ -613,11 +613,12 @@ def diagonal_newton_contraction(y, p, alg, f0, f1, yy, jac, gamma):
 
     An implicit step solves ``(I - gamma J) dy = r``; iterating with the diagonal
     ``D`` of ``J`` alone converges with the rate of ``E = (I - gamma D)^-1 gamma O``
-    (``O`` the off-diagonal part), whose spectral radius is at most its row-sum
-    norm (Ortega & Rheinboldt, *Iterative Solution of Nonlinear Equations in
-    Several Variables*, Academic Press 1970, §10.1; Hindmarsh et al., ACM TOMS 31
-    (2005) 363, §2.1 for the diagonal approximation in CVODE). Taken over the
-    dynamic states; the quadratures only receive and do not change the rate.
+    (``O`` the off-diagonal part), the Jacobi splitting of ``I - gamma J``. Its
+    spectral radius is at most its row-sum norm, as for any induced norm (Horn &
+    Johnson, *Matrix Analysis*, 1985, Thm. 5.6.9; theorem number from memory).
+    The diagonal Newton matrix is CVODE's CVDIAG module (Hindmarsh et al., ACM
+    TOMS 31 (2005) 363). Taken over the dynamic states; the quadratures only
+    receive and do not change the rate.
     """
     jacobian(y, jac, p, alg, f0, f1, yy)
     ndyn = 4 + int(p[H_NRC])
@@ -636,13 +637,14 @@ def diagonal_newton_contraction(y, p, alg, f0, f1, yy, jac, gamma):
 # ---- RC voltages relative to their exact zero-order-hold response --------------
 # Within a phase the current of a cell changes little, and an RC voltage then follows
 #     b_k(t) = v_inf + (v_0 - v_inf) exp(-(t - t_0) / tau_k),  v_inf = R_k I_cell(t_0),
-# the exact zero-order-hold response of the pair (Plett, *Battery Management Systems*,
-# Vol. I, Artech House 2015, §2.10). The CVODE back end integrates w_k = v_k - b_k(t)
-# instead of v_k: an exact change of variables (the idea of Lawson's integrating
-# factor, SIAM J. Numer. Anal. 4 (1967) 372), so every equation and root function is
-# unchanged, but w_k starts at zero with zero slope and stays small and smooth. After a
-# restart the integrator no longer creeps up the fast exponential from a tiny first
-# step; its step is set by the slow states. Base vector: [t_0, (v_0, v_inf, tau) per pair].
+# the exact zero-order-hold response of the pair (the discrete-time equivalent-circuit
+# form of Plett, *Battery Management Systems*, Vol. I, Artech House 2015). The CVODE
+# back end integrates w_k = v_k - b_k(t) instead of v_k: an exact change of variables
+# (the idea of Lawson's integrating factor, SIAM J. Numer. Anal. 4 (1967) 372), so every
+# equation and root function is unchanged, but w_k starts at zero with zero slope and
+# stays small and smooth. After a restart the integrator no longer creeps up the fast
+# exponential from a tiny first step; its step is set by the slow states.
+# Base vector: [t_0, (v_0, v_inf, tau) per pair].
 
 
 def rc_base_size(n_rc: int) -> int:
