@@ -42,7 +42,7 @@ import numba
 import numpy as np
 
 from . import model as m
-from .cell import arrhenius_factor
+from .cell import arrhenius_ageing_rate
 from .model import Problem
 from .results import energy_totals, round_trip_efficiency
 from .solve import (
@@ -57,7 +57,7 @@ from .solve import (
     cccv_cap,
 )
 
-__all__ = ["BatchOutcome", "eligible", "solve_batch"]
+__all__ = ["BatchOutcome", "batch_metrics", "solve_batch"]
 
 #: Event times are located to this many seconds.
 EVENT_TIME_TOLERANCE = 1e-7
@@ -73,15 +73,10 @@ _E1, _E2, _E3, _E4 = 2 / 9 - 7 / 24, 1 / 3 - 1 / 4, 4 / 9 - 1 / 3, -1 / 8
 #: Exponent of the step-size update: the embedded (second-order) error is O(h^3).
 _ORDER_EXPONENT = -1.0 / 3.0
 
-# per-scenario running extremes and integrals written by the kernel
-X_TC_MAX, X_TC_MIN, X_TS_MAX, X_V_MIN, X_V_MAX, X_VCELL_MIN, X_VCELL_MAX = 0, 1, 2, 3, 4, 5, 6
-X_I_ABS, X_I_MAX, X_I_MIN, X_P_MAX, X_ARRHENIUS, N_EXTRA = 7, 8, 9, 10, 11, 12
-
-
-def eligible(problem: Problem) -> str | None:
-    """None when the batched solver can take the problem, else the reason it cannot (none is left
-    today: every segment kind, thermostat and soak is batched; kept for the callers' contract)."""
-    return None
+# per-scenario running extremes and integrals written by the kernel (what the sweep metrics need)
+X_TC_MAX, X_TS_MAX, X_V_MIN, X_VCELL_MIN, X_I_ABS, X_ARRHENIUS, N_EXTRA = 0, 1, 2, 3, 4, 5, 6
+#: Their values before the first observation.
+_EXTRA_START = np.array([-np.inf, -np.inf, np.inf, np.inf, 0.0, 0.0])
 
 
 @numba.njit(cache=True, error_model="numpy")
@@ -122,19 +117,11 @@ def _error_norm(y, out, err, rtol, atol):
 @numba.njit(cache=True, error_model="numpy")
 def _observe(y, alg, extra, tc_index, ts_index):
     """Running extremes from the state and its algebraic outputs."""
-    tc, ts = y[tc_index], y[ts_index]
-    extra[X_TC_MAX] = max(extra[X_TC_MAX], tc)
-    extra[X_TC_MIN] = min(extra[X_TC_MIN], tc)
-    extra[X_TS_MAX] = max(extra[X_TS_MAX], ts)
-    v, vc, cur = alg[m.A_VOLTAGE], alg[m.A_CELL_VOLTAGE], alg[m.A_CURRENT]
-    extra[X_V_MIN] = min(extra[X_V_MIN], v)
-    extra[X_V_MAX] = max(extra[X_V_MAX], v)
-    extra[X_VCELL_MIN] = min(extra[X_VCELL_MIN], vc)
-    extra[X_VCELL_MAX] = max(extra[X_VCELL_MAX], vc)
-    extra[X_I_ABS] = max(extra[X_I_ABS], abs(cur))
-    extra[X_I_MAX] = max(extra[X_I_MAX], cur)
-    extra[X_I_MIN] = min(extra[X_I_MIN], cur)
-    extra[X_P_MAX] = max(extra[X_P_MAX], v * cur)
+    extra[X_TC_MAX] = max(extra[X_TC_MAX], y[tc_index])
+    extra[X_TS_MAX] = max(extra[X_TS_MAX], y[ts_index])
+    extra[X_V_MIN] = min(extra[X_V_MIN], alg[m.A_VOLTAGE])
+    extra[X_VCELL_MIN] = min(extra[X_VCELL_MIN], alg[m.A_CELL_VOLTAGE])
+    extra[X_I_ABS] = max(extra[X_I_ABS], abs(alg[m.A_CURRENT]))
 
 
 @numba.njit(cache=True, error_model="numpy")
@@ -154,12 +141,6 @@ def _near_zero(g, p):
     return False
 
 
-@numba.njit(cache=True, error_model="numpy")
-def _arrhenius_rate(temperature, ea, t_ref):
-    """Ageing rate relative to ``t_ref``: the inverse of the resistance law's Arrhenius factor."""
-    return 1.0 / arrhenius_factor(temperature, ea, t_ref)
-
-
 #: What an event does to the phase it fires in (kernel codes).
 _ACT_STOP, _ACT_NEXT_PHASE, _ACT_END_SEGMENT, _ACT_TOGGLE = 0, 1, 2, 3
 _EVENT_ACTION = np.full(m.N_EVENTS, _ACT_END_SEGMENT, dtype=np.int64)  # cutoff and end conditions
@@ -170,20 +151,6 @@ for _e in m.CONTROL_EVENTS:
     _EVENT_ACTION[_e] = _ACT_TOGGLE
 #: Events a scenario may fire at one instant before it is handed to CVODE (a chattering thermostat).
 MAX_EVENTS_PER_SEGMENT = 1000
-
-
-@numba.njit(cache=True, error_model="numpy")
-def _fired_event(g, p):
-    """The event that fired at a located root: as ``solve._fired_at_root``, the first by priority
-    among the active root functions within ``model.ROOT_TOLERANCE`` of zero, else the nearest."""
-    for k in m.EVENT_PRIORITY:
-        if p[m.H_ACTIVE + k] != 0.0 and g[k] <= m.ROOT_TOLERANCE * m.EVENT_SCALES[k]:
-            return k
-    best, event = 1e300, -1
-    for k in range(m.N_EVENTS):
-        if p[m.H_ACTIVE + k] != 0.0 and g[k] / m.EVENT_SCALES[k] < best:
-            best, event = g[k] / m.EVENT_SCALES[k], k
-    return event
 
 
 @numba.njit(cache=True, error_model="numpy")
@@ -223,7 +190,7 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
     default_ambient = p[m.H_AMBIENT]
     default_table = p[m.H_AMBIENT_TABLE]
     h = 0.05
-    rate_prev = _arrhenius_rate(y[tc_index], ea, t_ref)
+    rate_prev = arrhenius_ageing_rate(y[tc_index], ea, t_ref)
     t = 0.0
     for seg in range(durations.size):
         t_end = t + durations[seg]
@@ -272,8 +239,8 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
                                 low = mid
                         _rk_step(y, p, t, high, k, tmp, alg, trial, err)
                         m.roots_from(trial, g, p, alg)
-                        code = _fired_event(g, p)
-                        rate_new = _arrhenius_rate(trial[tc_index], ea, t_ref)
+                        code = m.fired_event(g, p)
+                        rate_new = arrhenius_ageing_rate(trial[tc_index], ea, t_ref)
                         extra[X_ARRHENIUS] += 0.5 * (rate_prev + rate_new) * high
                         rate_prev = rate_new
                         for i in range(n):
@@ -281,7 +248,7 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
                         _observe(y, alg, extra, tc_index, ts_index)
                         t += high
                         break
-                    rate_new = _arrhenius_rate(out[tc_index], ea, t_ref)
+                    rate_new = arrhenius_ageing_rate(out[tc_index], ea, t_ref)
                     extra[X_ARRHENIUS] += 0.5 * (rate_prev + rate_new) * h_try
                     rate_prev = rate_new
                     t += h_try
@@ -323,8 +290,7 @@ def _integrate_many(params, profile, n_phases, modes, values, durations, ambient
     events = np.empty(n_scen, dtype=np.int64)
     times = np.empty(n_scen)
     for s in range(n_scen):
-        extras[s, :] = np.array([-np.inf, np.inf, -np.inf, np.inf, -np.inf, np.inf, -np.inf, 0.0, -np.inf,
-                                 np.inf, -np.inf, 0.0])
+        extras[s, :] = _EXTRA_START
         p = params[s].copy()
         y = states[s]
         j = profile[s]
@@ -350,9 +316,9 @@ class BatchOutcome:
 def _segment_arrays(problem: Problem) -> tuple[np.ndarray, ...]:
     """Phases, demands, durations, ambients and event set-ups of every segment (cached: sweeps share profiles)."""
     cell = problem.cell
-    # what the event set-ups and the CC-CV cap read besides the segments
     # the scenarios of a sweep share their segment tuple (scenario._profile_segments): it is
-    # recognised by identity, and kept with the arrays so that its identity stays its own
+    # recognised by identity, and kept with the arrays so that its identity stays its own;
+    # the rest is what the event set-ups and the CC-CV cap read besides the segments
     key = (id(problem.segments), cell.voltage_min, cell.voltage_max, cell.capacity, problem.pack.series,
            problem.pack.parallel, problem.limits.cell_temperature_max)
     hit = _SEGMENT_CACHE.get(key)
@@ -457,7 +423,7 @@ def solve_batch(problems: list[Problem], options: SolverOptions) -> BatchOutcome
     thermostats = [_thermostats(p, y0[i, tc_index]) for i, p in enumerate(problems)]
     switches = np.array([s for s, _ in thermostats])
     controls = np.array([c for _, c in thermostats])
-    atol = np.array([options.atol_vector(n_rc) for _ in problems])
+    atol = np.tile(options.atol_vector(n_rc), (len(problems), 1))
     ea = np.array([p.stress.activation_energy for p in problems])
     t_ref = np.array([p.stress.reference_temperature for p in problems])
     states, extras, status, events, times = _integrate_many(

@@ -23,6 +23,7 @@ __all__ = [
     "Pack",
     "RCPair",
     "ResistanceLaw",
+    "arrhenius_ageing_rate",
     "arrhenius_factor",
     "bernardi_heat",
     "bracket",
@@ -161,6 +162,36 @@ def arrhenius_factor(temperature: float, activation_energy: float, reference_tem
     G. L. Plett, *Battery Management Systems*, Vol. I, Artech House (2015).
     """
     return np.exp(activation_energy / GAS_CONSTANT * (1.0 / temperature - 1.0 / reference_temperature))
+
+
+@register_jitable
+def arrhenius_ageing_rate(temperature: float, activation_energy: float, reference_temperature: float) -> float:
+    """Rate of a thermally activated (ageing) process relative to its rate at ``reference_temperature``.
+
+    ``k(T) / k(T_ref) = exp(-Ea / R_gas * (1 / T - 1 / T_ref))``, the inverse of
+    :func:`arrhenius_factor`; its time integral is the time at the reference
+    temperature that ages a cell as much.
+
+    Parameters
+    ----------
+    temperature : float
+        Temperature [K], > 0.
+    activation_energy : float
+        Activation energy [J/mol].
+    reference_temperature : float
+        Temperature at which the rate is 1 [K].
+
+    Returns
+    -------
+    float
+        Relative rate [-]; > 1 above the reference temperature.
+
+    References
+    ----------
+    S. Arrhenius, Z. Phys. Chem. 4 (1889) 226; as an ageing acceleration factor
+    e.g. J. Wang et al., J. Power Sources 196 (2011) 3942.
+    """
+    return 1.0 / arrhenius_factor(temperature, activation_energy, reference_temperature)
 
 
 @register_jitable

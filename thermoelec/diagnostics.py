@@ -16,7 +16,7 @@ from typing import Any
 
 import numpy as np
 
-from .cell import Cell, ResistanceLaw, arrhenius_factor
+from .cell import Cell, ResistanceLaw, arrhenius_ageing_rate
 from .model import Problem
 from .thermal import AIR_PRANDTL, AIR_TEMPERATURE, LUMPED_BIOT_LIMIT, biot_number
 
@@ -96,7 +96,7 @@ def arrhenius_equivalent_time(times: np.ndarray, temperatures: np.ndarray, activ
     """
     if len(times) < 2:
         return 0.0
-    rate = 1.0 / arrhenius_factor(np.asarray(temperatures, dtype=float), activation_energy, reference_temperature)
+    rate = arrhenius_ageing_rate(np.asarray(temperatures, dtype=float), activation_energy, reference_temperature)
     return float(np.trapezoid(rate, times))
 
 

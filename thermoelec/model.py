@@ -800,6 +800,24 @@ def phase_start(y, p, alg, scratch, g, g_ahead, probe, slack, duration, factor):
 
 
 @_jit
+def fired_event(g, p):
+    """The event that fired at a located root, given the root-function values ``g``.
+
+    Among the active functions within :data:`ROOT_TOLERANCE` of their scale of
+    zero (or below) the first by :data:`EVENT_PRIORITY` wins; should none be that
+    close, the nearest to zero does.
+    """
+    for k in EVENT_PRIORITY:
+        if p[H_ACTIVE + k] != 0.0 and g[k] <= ROOT_TOLERANCE * EVENT_SCALES[k]:
+            return k
+    best, event = np.inf, 0
+    for k in range(N_EVENTS):
+        if p[H_ACTIVE + k] != 0.0 and g[k] / EVENT_SCALES[k] < best:
+            best, event = g[k] / EVENT_SCALES[k], k
+    return event
+
+
+@_jit
 def all_positive(y, p, alg, scratch, g):
     """True when every active root function is positive at ``y``."""
     roots(y, g, p, alg, scratch)
@@ -914,17 +932,9 @@ class Kernels:
         jacobian(np.ascontiguousarray(y, dtype=float), jac, self.p, self._alg, self._f0, self._f1, self._yy)
         return jac
 
-    def start_check(self, y: np.ndarray, probe: float, slack: float) -> int:
-        """See :func:`start_check`; fills ``self.g`` and ``self.g_ahead``."""
-        return start_check(y, self.p, self._alg, self._scratch, self.g, self.g_ahead, probe, slack)
-
     def phase_start(self, y: np.ndarray, probe: float, slack: float, duration: float, factor: float) -> int:
         """See :func:`phase_start`; fills ``self.g`` and ``self.g_ahead``."""
         return phase_start(y, self.p, self._alg, self._scratch, self.g, self.g_ahead, probe, slack, duration, factor)
-
-    def beyond_reach(self, probe: float, duration: float, factor: float) -> bool:
-        """See :func:`beyond_reach`, for the last :meth:`start_check`."""
-        return beyond_reach(self.g, self.g_ahead, self.p, probe, duration, factor)
 
     def diagonal_newton_contraction(self, y: np.ndarray, gamma: float) -> float:
         """See :func:`diagonal_newton_contraction`."""

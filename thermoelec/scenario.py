@@ -1215,27 +1215,11 @@ def _series_segments(series: SeriesProfile, name: str) -> tuple[Segment, ...]:
 
 
 def scale_demand(segments: list[Segment], factor: float) -> list[Segment]:
-    """Current and power demands (and CC charge currents) times ``factor``; voltages, resistances, rests kept.
-
-    Cached on the identities of the segments and the factor: a sweep over
-    ``profile.scale`` rebuilds each scenario's problem, and scaling a 1 Hz hour
-    anew (3 600 segments) would cost more than solving it in a batch; the shared
-    segments also let the batched solver reuse its arrays.
-    """
+    """Current and power demands (and CC charge currents) times ``factor``; voltages, resistances, rests kept."""
     if factor == 1.0:
         return segments
-    key = (tuple(map(id, segments)), factor)
-    hit = _SCALED.get(key)
-    if hit is None:
-        if len(_SCALED) >= 64:
-            _SCALED.clear()
-        scaled = [replace(seg, value=seg.value * factor) if seg.mode in ("current", "power", "cccv") else seg
-                  for seg in segments]
-        hit = _SCALED[key] = (list(segments), scaled)  # the sources kept, so their identities stay theirs
-    return list(hit[1])
-
-
-_SCALED: dict[tuple, tuple[list[Segment], list[Segment]]] = {}
+    return [replace(seg, value=seg.value * factor) if seg.mode in ("current", "power", "cccv") else seg
+            for seg in segments]
 
 
 def _profile_segments(scenario: Scenario, first_ambient: float | None

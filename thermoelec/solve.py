@@ -459,21 +459,6 @@ def _configure(p: np.ndarray, problem: Problem, segment: Segment, phase: _Phase,
         p[m.H_THRESHOLD + event] = switch.off_at if on else switch.on_at
 
 
-def _fired_at_root(g: np.ndarray, p: np.ndarray) -> int:
-    """The event that fired at a located root, given the root-function values ``g``.
-
-    Among the active functions within ``model.ROOT_TOLERANCE`` of their scale of
-    zero (or below) the first by priority wins; should none be that close, the
-    nearest to zero does.
-    """
-    active = p[m.H_ACTIVE:m.H_ACTIVE + m.N_EVENTS] != 0.0
-    scaled = np.where(active, g / np.asarray(m.EVENT_SCALES), np.inf)
-    for k in EVENT_PRIORITY:
-        if scaled[k] <= m.ROOT_TOLERANCE:
-            return k
-    return int(np.argmin(scaled))
-
-
 def _output_times(t0: float, t_end: float, interval: float) -> list[float]:
     """Global output grid points strictly inside (t0, t_end), then t_end."""
     if math.isinf(t_end):
@@ -588,7 +573,7 @@ def integrate_problem(problem: Problem, options: SolverOptions, initial_state: n
                 if outcome.status == "end":
                     ended_by_time = True
                     break
-                fired = _fired_at_root(kernels.event_values(y), p)
+                fired = m.fired_event(kernels.event_values(y), p)
             event = {"time_s": t, "event": m.EVENT_NAMES[fired], "segment": seg_index, "origin": segment.origin}
             events.append(event)
             if fired in controls:

@@ -185,10 +185,9 @@ def run_chunk(scenario: Scenario, plan: SweepPlan, indices: Sequence[int],
               keep_interval: float | None = None, engine: str = "batch") -> list[dict[str, Any]]:
     """Simulate the scenarios ``indices`` of a plan, in order (with decimated series if ``keep_interval``).
 
-    With ``engine = "batch"`` the scenarios the batched solver can take
-    (:func:`thermoelec.batch.eligible`) are solved together by it; the others,
-    any it hands back, and every scenario when series are kept, run solo on
-    their own back end (CVODE by default).
+    With ``engine = "batch"`` the scenarios are solved together by the batched
+    solver (:mod:`thermoelec.batch`); any it hands back, and every scenario when
+    series are kept, run solo on their own back end (CVODE by default).
     """
     rows: dict[int, dict[str, Any]] = {}
     if engine == "batch" and keep_interval is None:
@@ -200,8 +199,7 @@ def run_chunk(scenario: Scenario, plan: SweepPlan, indices: Sequence[int],
                 problem = scenario.with_overrides(plan.overrides(i)).problem()
             except ScenarioError:
                 continue  # recorded by the solo path below
-            if batch.eligible(problem) is None:
-                groups.setdefault(problem.n_rc, []).append((i, problem))
+            groups.setdefault(problem.n_rc, []).append((i, problem))
         for members in groups.values():
             problems = [problem for _, problem in members]
             outcome = batch.solve_batch(problems, scenario.with_overrides(plan.overrides(members[0][0]))
