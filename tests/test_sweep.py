@@ -331,3 +331,15 @@ def test_heat_map_marks_the_stopped_scenarios_and_draws_the_boundary(mixed):
                                ds["cell_temperature_max_degC"].values)
     dims = ds["cell_temperature_max_degC"].dims
     assert ax.get_xlabel().startswith(dims[1]) and ax.get_ylabel().startswith(dims[0])
+
+
+def test_a_swept_tolerance_is_each_scenarios_own(tmp_path):
+    # solver.rtol swept: each scenario is solved at its own tolerance, as its solo batch run is
+    loaded = load(write_scenario(tmp_path, {"solver.rtol": [1e-3, 1e-9]}))
+    plan = sweep.plan_sweep(loaded)
+    together = sweep.run_chunk(loaded, plan, [0, 1])
+    alone = [sweep.run_chunk(loaded, plan, [i])[0] for i in (0, 1)]
+    for a, b in zip(together, alone, strict=True):
+        assert a["engine"] == b["engine"] == "batch"
+        assert a["cell_temperature_max_degC"] == b["cell_temperature_max_degC"]
+    assert together[0]["cell_temperature_max_degC"] != together[1]["cell_temperature_max_degC"]

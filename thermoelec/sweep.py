@@ -193,17 +193,18 @@ def run_chunk(scenario: Scenario, plan: SweepPlan, indices: Sequence[int],
     if engine == "batch" and keep_interval is None:
         from . import batch
 
-        groups: dict[int, list[tuple[int, Any]]] = {}
+        # a batch shares one state layout and one set of solver settings (a swept solver.rtol
+        # makes batches of its own)
+        groups: dict[tuple, list[tuple[int, Any]]] = {}
         for i in indices:
             try:
-                problem = scenario.with_overrides(plan.overrides(i)).problem()
+                variant = scenario.with_overrides(plan.overrides(i))
+                problem = variant.problem()
             except ScenarioError:
                 continue  # recorded by the solo path below
-            groups.setdefault(problem.n_rc, []).append((i, problem))
-        for members in groups.values():
-            problems = [problem for _, problem in members]
-            outcome = batch.solve_batch(problems, scenario.with_overrides(plan.overrides(members[0][0]))
-                                        .solver_options())
+            groups.setdefault((problem.n_rc, variant.solver_options()), []).append((i, problem))
+        for (_, options), members in groups.items():
+            outcome = batch.solve_batch([problem for _, problem in members], options)
             for j, (i, problem) in enumerate(members):
                 if outcome.status[j] == "ok":
                     rows[i] = batch.batch_metrics(problem, outcome, j)
