@@ -28,8 +28,8 @@ import numpy as np
 from scipy.integrate import solve_ivp
 
 import thermoelec
-from thermoelec import model as m
-from thermoelec.solve import SolverOptions, integrate_problem
+from thermoelec.engine import model as m
+from thermoelec.engine.solve import SolverOptions, integrate_problem
 
 
 def mission_scenario(seconds: int, folder: Path) -> dict:

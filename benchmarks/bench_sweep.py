@@ -43,9 +43,9 @@ import numpy as np
 from bench_single_mission import engine_run, errors, mission_scenario, segment_loop
 
 import thermoelec
-from thermoelec import model as m
-from thermoelec import sweep
-from thermoelec.solve import SolverOptions
+from thermoelec.analysis import sweep
+from thermoelec.engine import model as m
+from thermoelec.engine.solve import SolverOptions
 
 
 @numba.njit(error_model="numpy")  # not cached: a cached caller does not see edits to model.py

@@ -55,6 +55,7 @@ def test_every_demo_summary_matches_the_snapshot(summaries):
 
 
 def test_the_comparison_sees_a_change_in_the_last_digits():
-    assert _differences("s", {"a": 1.0, "w": ["x"]}, {"a": 1.0 + 1e-10, "w": ["x"]}) == ["s.a: 1.0000000001, expected 1.0"]
+    changed = _differences("s", {"a": 1.0, "w": ["x"]}, {"a": 1.0 + 1e-10, "w": ["x"]})
+    assert changed == ["s.a: 1.0000000001, expected 1.0"]
     assert _differences("s", {"a": 0.0}, {"a": 0.0, "b": 1}) == ["s.b: new"]
     assert not _differences("s", {"a": 1.0}, {"a": 1.0 + 1e-15})

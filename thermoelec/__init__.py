@@ -1,17 +1,16 @@
 """thermoelec: thermal-electrical duty-cycle co-simulation of battery cells and packs.
 
 >>> import thermoelec
->>> scenario = thermoelec.load_scenario("scenarios/drone_hot_afternoon.toml")  # doctest: +SKIP
->>> result = thermoelec.simulate(scenario)                                     # doctest: +SKIP
->>> result.summary["cell_temperature_max_degC"]                                # doctest: +SKIP
+>>> scenario = thermoelec.load_scenario("scenarios/drone_delivery.toml")  # doctest: +SKIP
+>>> result = thermoelec.simulate(scenario)                                 # doctest: +SKIP
+>>> result.summary["cell_temperature_max_degC"]                            # doctest: +SKIP
 """
 
-__version__ = "0.1.0"
-
-from .api import simulate, simulate_file
-from .results import SimulationResult
-from .scenario import Scenario, ScenarioError, load_scenario, scenario_from_dict
-from .solve import SolverOptions
+from thermoelec.analysis.results import SimulationResult
+from thermoelec.api import simulate, simulate_file
+from thermoelec.engine.solve import SolverOptions
+from thermoelec.scenario import Scenario, ScenarioError, load_scenario, scenario_from_dict
+from thermoelec.version import __version__
 
 __all__ = [
     "Scenario",

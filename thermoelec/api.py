@@ -5,11 +5,11 @@ from __future__ import annotations
 from pathlib import Path
 from typing import Any
 
-from . import __version__
-from .model import Problem
-from .results import SimulationResult, build_result
-from .scenario import Scenario, load_scenario, scenario_from_dict
-from .solve import SolverOptions, integrate_problem
+from thermoelec.analysis.results import SimulationResult, build_result
+from thermoelec.engine.model import Problem
+from thermoelec.engine.solve import SolverOptions, integrate_problem
+from thermoelec.scenario import Scenario, load_scenario, scenario_from_dict
+from thermoelec.version import __version__
 
 __all__ = ["simulate", "simulate_file"]
 

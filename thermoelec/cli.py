@@ -12,9 +12,9 @@ import os
 import sys
 from pathlib import Path
 
-from . import __version__
-from .scenario import ScenarioError, load_scenario, parse_value
-from .tables import print_summary
+from thermoelec.output.tables import print_summary
+from thermoelec.scenario import ScenarioError, load_scenario, parse_value
+from thermoelec.version import __version__
 
 EXIT_OK, EXIT_FAILURE, EXIT_INVALID = 0, 1, 2
 
@@ -33,15 +33,15 @@ def _write_run(result, scenario, out: Path, figures: bool) -> None:
     """Results first (so a plotting problem loses nothing), then figures and the report."""
     result.write(out)
     if figures:
-        from .figures import write_figures
-        from .report import run_report, write_report
+        from thermoelec.output.figures import write_figures
+        from thermoelec.output.report import run_report, write_report
 
         pngs = {p.stem: p.read_bytes() for p in write_figures(result, out) if p.suffix == ".png"}
         write_report(run_report(result, scenario.raw, scenario.spec.scenario.description, pngs), out)
 
 
 def _run(args: argparse.Namespace) -> int:
-    from .api import simulate
+    from thermoelec.api import simulate
 
     overrides = _overrides(args.set or [])
     if args.backend:
@@ -77,7 +77,7 @@ def _cases(tokens: list[list[str]]) -> list[tuple[str, dict]]:
 
 
 def _compare(args: argparse.Namespace) -> int:
-    from .compare import case_list, format_table, run_cases, write_comparison
+    from thermoelec.analysis.compare import case_list, format_table, run_cases, write_comparison
 
     scenario = load_scenario(args.scenario, _overrides(args.set or []))
     outcomes = run_cases(scenario, case_list(scenario, _cases(args.case or [])))
@@ -85,7 +85,7 @@ def _compare(args: argparse.Namespace) -> int:
     try:
         write_comparison(outcomes, out, figures=not args.no_figures)
         if not args.no_figures:
-            from .report import comparison_report, write_report
+            from thermoelec.output.report import comparison_report, write_report
 
             write_report(comparison_report(outcomes, scenario.raw, scenario.name,
                                            scenario.spec.scenario.description), out)
@@ -109,7 +109,7 @@ def _compare(args: argparse.Namespace) -> int:
 
 def _quantity_option(text: str, unit: str, option: str) -> float:
     """A command-line quantity (``'68 g'``, ``'-10 degC'``, a bare number in ``unit``) in SI."""
-    from .scenario import to_si
+    from thermoelec.scenario import to_si
 
     si = {"degC": "K"}.get(unit, unit)
     try:
@@ -119,8 +119,8 @@ def _quantity_option(text: str, unit: str, option: str) -> float:
 
 
 def _fit(args: argparse.Namespace) -> int:
-    from . import fit
-    from .logs import read_mapping
+    from thermoelec.fit import jobs as fit
+    from thermoelec.fit.logs import read_mapping
 
     columns = {}
     for pair in args.column or []:
@@ -161,8 +161,8 @@ def _fit(args: argparse.Namespace) -> int:
 
 
 def _sweep(args: argparse.Namespace) -> int:
-    from . import sweep
-    from .scenario import to_si
+    from thermoelec.analysis import sweep
+    from thermoelec.scenario import to_si
 
     scenario = load_scenario(args.scenario, _overrides(args.set or []))
     out = Path(args.out)
@@ -192,7 +192,7 @@ def _sweep(args: argparse.Namespace) -> int:
         out.mkdir(parents=True, exist_ok=True)
         found.to_netcdf(out / "search.nc")
         if not args.no_figures:
-            from .figures import save
+            from thermoelec.output.figures import save
 
             save(sweep.search_chart(found), out, "search", ("png", "svg"))
         if not args.quiet:

@@ -13,8 +13,8 @@ from pathlib import Path
 import numpy as np
 
 import thermoelec
-from thermoelec import synthesize
-from thermoelec.cell import GAS_CONSTANT
+from thermoelec.fit import synthesize
+from thermoelec.physics.cell import GAS_CONSTANT
 
 HERE = Path(__file__).resolve().parent
 SOC = [0.05, 0.2, 0.35, 0.5, 0.65, 0.8, 0.95]

@@ -1,0 +1,1 @@
+"""Analysis: results and their metrics, diagnostics, case comparisons, sweeps and design search."""

@@ -1,0 +1,215 @@
+"""Case comparison: the same scenario under named variants (cold start, hot soak, ...).
+
+Each case is the scenario with dotted-path overrides (its ``[[case]]`` table or a
+``--case NAME KEY=VALUE ...`` on the command line). Besides the mission itself,
+each case gets a second run that answers "how much energy is there to the
+voltage cutoff in these conditions": a constant-power discharge from the same
+start, at the mission's mean discharge power, until a limit stops it.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import re
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from thermoelec.analysis.results import SimulationResult
+from thermoelec.output.tables import format_value
+from thermoelec.scenario import Scenario, ScenarioError
+
+__all__ = ["COMPARISON_ROWS", "CaseOutcome", "case_list", "comparison_table", "energy_to_cutoff", "run_cases"]
+
+JOULES_PER_WH = 3600.0
+#: Long enough that a limit, not the clock, ends the energy-to-cutoff discharge.
+CUTOFF_RUN_DURATION = "1000 h"
+
+#: Rows of the comparison table: label, key, unit.
+COMPARISON_ROWS: tuple[tuple[str, str, str], ...] = (
+    ("completed", "completed", ""),
+    ("stop reason", "stop_reason", ""),
+    ("time to stop", "duration_s", "s"),
+    ("energy delivered", "energy_discharged_Wh", "Wh"),
+    ("energy to voltage cutoff", "energy_to_cutoff_Wh", "Wh"),
+    ("  at constant power", "energy_to_cutoff_power_W", "W"),
+    ("  ended by", "energy_to_cutoff_stop", ""),
+    ("start cell temperature", "cell_temperature_start_degC", "degC"),
+    ("peak cell temperature", "cell_temperature_max_degC", "degC"),
+    ("cell temperature rise", "cell_temperature_rise_K", "K"),
+    ("minimum pack voltage", "voltage_min_V", "V"),
+    ("cell voltage margin", "voltage_margin_min_V", "V"),
+    ("efficiency", "efficiency", ""),
+    ("energy dissipated", "energy_dissipated_Wh", "Wh"),
+    ("heat generated", "heat_generated_Wh", "Wh"),
+    ("heat to ambient", "heat_to_ambient_Wh", "Wh"),
+    ("heat to coolant", "heat_to_coolant_Wh", "Wh"),
+    ("heater energy", "heater_energy_Wh", "Wh"),
+    ("thermostat switches", "thermostat_switches", ""),
+    ("final SoC", "soc_end", ""),
+    ("time above hot temperature", "time_above_hot_temperature_s", "s"),
+    ("time charging below 0 degC", "time_charging_below_0degC_s", "s"),
+    ("Arrhenius time at reference", "equivalent_time_at_reference_s", "s"),
+    ("warnings", "warning_count", ""),
+)
+
+
+@dataclass
+class CaseOutcome:
+    """One case: its overrides, the mission result and the energy-to-cutoff run."""
+
+    name: str
+    overrides: dict[str, Any]
+    result: SimulationResult
+    cutoff: SimulationResult | None
+
+    def metrics(self) -> dict[str, Any]:
+        """The summary plus the comparison's own keys."""
+        row = dict(self.result.summary)
+        row["cell_temperature_start_degC"] = float(self.result.series["cell_temperature_degC"][0])
+        row["warning_count"] = len(self.result.warnings)
+        if self.cutoff is not None:
+            row["energy_to_cutoff_Wh"] = self.cutoff.summary["energy_load_Wh"]
+            row["energy_to_cutoff_power_W"] = float(self.cutoff.series["power_W"][0])
+            row["energy_to_cutoff_stop"] = self.cutoff.summary["stop_reason"]
+        else:
+            row["energy_to_cutoff_Wh"] = row["energy_to_cutoff_power_W"] = row["energy_to_cutoff_stop"] = None
+        return row
+
+
+def slug(name: str) -> str:
+    """A folder name for a case."""
+    return re.sub(r"[^A-Za-z0-9]+", "-", name).strip("-").lower() or "case"
+
+
+def case_list(scenario: Scenario, extra: Sequence[tuple[str, Mapping[str, Any]]] = ()) -> list[tuple[str, dict]]:
+    """The scenario's ``[[case]]`` variants followed by ``extra`` ones, as ``(name, overrides)``.
+
+    Raises
+    ------
+    ScenarioError
+        When there is no case or two cases share a name.
+    """
+    cases = [(c.name, dict(c.model_extra or {})) for c in scenario.spec.case]
+    cases += [(name, dict(values)) for name, values in extra]
+    if not cases:
+        raise ScenarioError(scenario.source, "case", "nothing to compare: add [[case]] tables with a name and "
+                            "dotted keys, or give --case NAME KEY=VALUE ...")
+    names = [name for name, _ in cases]
+    for name in names:
+        if names.count(name) > 1:
+            raise ScenarioError(scenario.source, "case", f"two cases are named {name!r}; names must differ")
+    return cases
+
+
+def _mean_discharge_power(result: SimulationResult) -> float | None:
+    s = result.series
+    times, current = s["time_s"], s["current_A"]
+    if len(times) < 2:
+        return None
+    dt = np.diff(times)
+    discharging = 0.5 * (current[:-1] + current[1:]) > 0
+    seconds = float(np.sum(dt[discharging]))
+    # the load's demand: a heater fed from the pack is added again by the cutoff run itself
+    energy = (result.summary["energy_discharged_Wh"] - result.summary.get("heater_energy_from_pack_Wh", 0.0)) \
+        * JOULES_PER_WH
+    return energy / seconds if seconds > 0 and energy > 0 else None
+
+
+def energy_to_cutoff(case: Scenario, mission: SimulationResult) -> SimulationResult | None:
+    """Discharge from the case's start at the mission's mean discharge power until a limit stops it.
+
+    Returns ``None`` for a mission that never discharges.
+    """
+    power = _mean_discharge_power(mission)
+    if power is None:
+        return None
+    from thermoelec.api import simulate
+
+    # the same start as the mission: its soak segments (if any) come first
+    soak = [seg for seg in case.raw["profile"]["segment"] if seg.get("mode") == "soak"]
+    overrides: dict[str, Any] = {
+        "profile": {"repeat": 1, "segment": [*soak, {"mode": "power", "value": f"{power!r} W",
+                                                     "duration": CUTOFF_RUN_DURATION}]},
+    }
+    if case.spec.thermal.ambient_temperature is None:  # it came from the profile file
+        overrides["thermal.ambient_temperature"] = f"{mission.series['ambient_temperature_degC'][0]!r} degC"
+    return simulate(case.with_overrides(overrides))
+
+
+def run_cases(scenario: Scenario, cases: Sequence[tuple[str, Mapping[str, Any]]]) -> list[CaseOutcome]:
+    """Simulate every case (mission and energy-to-cutoff run)."""
+    from thermoelec.api import simulate
+
+    outcomes = []
+    for index, (name, overrides) in enumerate(cases, start=1):
+        try:
+            case = scenario.with_overrides(overrides)
+        except ScenarioError as exc:
+            raise ScenarioError(exc.file, f"case {index} ({name}): {exc.key}", exc.message, exc.line) from None
+        result = simulate(case)
+        result.metadata["case"] = name
+        outcomes.append(CaseOutcome(name, dict(overrides), result, energy_to_cutoff(case, result)))
+    return outcomes
+
+
+def comparison_table(outcomes: Sequence[CaseOutcome]):
+    """Side-by-side table: one row per metric (:data:`COMPARISON_ROWS`), one column per case."""
+    import pandas as pd
+
+    metrics = [o.metrics() for o in outcomes]
+    rows = []
+    for label, key, unit in COMPARISON_ROWS:
+        rows.append({"metric": label.strip(), "key": key, "unit": unit,
+                     **{o.name: m.get(key) for o, m in zip(outcomes, metrics, strict=True)}})
+    return pd.DataFrame(rows)
+
+
+def _jsonable(value: Any) -> Any:
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
+    if isinstance(value, np.generic):
+        return value.item()
+    return value
+
+
+def comparison_json(outcomes: Sequence[CaseOutcome]) -> str:
+    """Every case's overrides and metrics as JSON text."""
+    cases = []
+    for outcome in outcomes:
+        metrics = {k: _jsonable(v) for k, v in outcome.metrics().items() if k != "events"}
+        cases.append({"name": outcome.name, "overrides": outcome.overrides, "metrics": metrics})
+    return json.dumps({"cases": cases}, indent=2, allow_nan=False)
+
+
+def format_table(outcomes: Sequence[CaseOutcome]) -> str:
+    """The comparison as aligned text for the terminal."""
+    metrics = [o.metrics() for o in outcomes]
+    header = ["", *(o.name for o in outcomes)]
+    lines = [header]
+    for label, key, unit in COMPARISON_ROWS:
+        lines.append([label, *(format_value(m.get(key), unit) for m in metrics)])
+    widths = [max(len(row[i]) for row in lines) for i in range(len(header))]
+    return "\n".join("  ".join(cell.ljust(w) if i == 0 else cell.rjust(w)
+                               for i, (cell, w) in enumerate(zip(row, widths, strict=True))).rstrip()
+                     for row in lines)
+
+
+def write_comparison(outcomes: Sequence[CaseOutcome], out_dir: Path, figures: bool = True) -> list[Path]:
+    """Write ``comparison.csv``, ``comparison.json``, each case's results and (optionally) the overlays."""
+    out_dir.mkdir(parents=True, exist_ok=True)
+    written = [out_dir / "comparison.csv", out_dir / "comparison.json"]
+    comparison_table(outcomes).to_csv(written[0], index=False)
+    written[1].write_text(comparison_json(outcomes) + "\n")
+    for outcome in outcomes:
+        written += outcome.result.write(out_dir / "cases" / slug(outcome.name))
+    if figures:
+        from thermoelec.output.figures import comparison_overlay, save
+
+        written += save(comparison_overlay({o.name: o.result for o in outcomes}), out_dir, "comparison",
+                        ("png", "svg"))
+    return written

@@ -1,0 +1,420 @@
+"""Simulation results: time series, summary metrics, energy and heat accounting.
+
+Energy accounting (pack level, as areas under the voltage-charge curves):
+battery energy ``∫ Ns U I dt``, load energy ``∫ V I dt``, their difference the
+energy dissipated; the heat generated adds the reversible (entropic) heat
+``-∫ Ns I T dU/dT dt`` (Bernardi, Pawlikowski & Newman, J. Electrochem. Soc. 132
+(1985) 5). The integrals are carried as states of the integration, so they are
+as accurate as the states themselves and independent of the output interval.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from thermoelec.analysis import diagnostics
+from thermoelec.engine import model as m
+from thermoelec.engine.model import Problem
+from thermoelec.engine.solve import SolverOptions, Trajectory
+
+__all__ = ["SERIES_UNITS", "SimulationResult", "build_result"]
+
+KELVIN_AT_0_DEGC = 273.15
+JOULES_PER_WH = 3600.0
+COULOMBS_PER_AH = 3600.0
+
+#: Reported series and their units; the first ten are the output contract.
+SERIES_UNITS: dict[str, str] = {
+    "time_s": "s",
+    "current_A": "A",
+    "voltage_V": "V",
+    "power_W": "W",
+    "soc": "1",
+    "ocv_V": "V",
+    "cell_temperature_degC": "degC",
+    "sink_temperature_degC": "degC",
+    "ambient_temperature_degC": "degC",
+    "heat_W": "W",
+    "cell_voltage_V": "V",
+    "reversible_heat_W": "W",
+    "heat_to_ambient_W": "W",
+    "pack_resistance_ohm": "ohm",
+    "pack_emf_V": "V",
+    "coolant_temperature_degC": "degC",
+    "heater_power_W": "W",
+    "heat_to_coolant_W": "W",
+    "heat_radiated_W": "W",
+    "sink_to_air_conductance_W_per_K": "W/K",
+    "reynolds_number": "1",
+    "rayleigh_number": "1",
+}
+SERIES_DESCRIPTIONS: dict[str, str] = {
+    "time_s": "time since the mission start",
+    "current_A": "pack current, positive discharging",
+    "voltage_V": "pack terminal voltage",
+    "power_W": "pack power to the load, positive discharging",
+    "soc": "state of charge",
+    "ocv_V": "pack open-circuit voltage Ns*U",
+    "cell_temperature_degC": "lumped cell temperature",
+    "sink_temperature_degC": "heat-sink node temperature",
+    "ambient_temperature_degC": "ambient temperature",
+    "heat_W": "heat generated in cells and interconnect (irreversible + reversible)",
+    "cell_voltage_V": "terminal voltage of one cell",
+    "reversible_heat_W": "reversible (entropic) part of the heat",
+    "heat_to_ambient_W": "heat rejected to ambient",
+    "pack_resistance_ohm": "total series resistance Ns*R0/Np + R_ic",
+    "pack_emf_V": "source voltage behind the series resistance, Ns*(U - sum of RC voltages)",
+    "coolant_temperature_degC": "coolant temperature leaving the cold plate (the inlet without a coolant loop)",
+    "heater_power_W": "heater power on the cells",
+    "heat_to_coolant_W": "heat carried away by the coolant",
+    "heat_radiated_W": "net radiation from the sink to the surroundings (part of heat_to_ambient_W)",
+    "sink_to_air_conductance_W_per_K": "sink-to-air convective conductance h*A (with a running fan)",
+    "reynolds_number": "Reynolds number of the air flow over the sink (convection correlations only)",
+    "rayleigh_number": "Rayleigh number of free convection at the sink (convection correlations only)",
+}
+
+#: Names of the demand modes in the order of their codes in the model.
+MODE_NAMES = tuple(sorted(m.MODE_CODES, key=m.MODE_CODES.get))
+
+
+def _celsius(kelvin: np.ndarray | float) -> np.ndarray | float:
+    return kelvin - KELVIN_AT_0_DEGC
+
+
+@dataclass
+class SimulationResult:
+    """Outcome of one simulated mission.
+
+    Attributes
+    ----------
+    series : dict of str to array
+        Reported time series, keys and units in :data:`SERIES_UNITS` (the coolant
+        temperature only with a coolant loop). At a
+        discontinuity of the demand the time appears twice: before and after.
+    summary : dict
+        Summary metrics (the output contract of ``summary.json`` and more).
+    status : str
+        ``"ok"`` when the integration ran to its end or a stop event, ``"failed"``
+        when the solver gave up (the series then runs up to the failure).
+    message : str
+        Solver message for a failure, else empty.
+    statistics : dict
+        Solver counters summed over all phases, and the wall time [s].
+    events : list of dict
+        Located events (stops, CC-CV switches, segment end conditions) with times [s].
+    metadata : dict
+        Package version, scenario hash, back end and tolerances.
+    states : array
+        Raw state rows of the integration.
+    demand_mode, demand_value : arrays
+        Demand of each output row: mode name (``"rest"`` for zero current) and
+        its value in SI units (A, W, ohm or V).
+    limits : dict
+        Pack-level limits and layout for plots and reports (``voltage_min_V``,
+        ``voltage_max_V``, ``cell_temperature_max_degC``, ...).
+    """
+
+    series: dict[str, np.ndarray]
+    summary: dict[str, Any]
+    status: str
+    message: str
+    statistics: dict[str, float]
+    events: list[dict]
+    metadata: dict[str, Any] = field(default_factory=dict)
+    states: np.ndarray | None = None
+    demand_mode: np.ndarray | None = None
+    demand_value: np.ndarray | None = None
+    limits: dict[str, float] = field(default_factory=dict)
+
+    @property
+    def completed(self) -> bool:
+        """True when the whole profile ran without a stop."""
+        return bool(self.summary["completed"])
+
+    @property
+    def stop_reason(self) -> str:
+        """Why the run ended (``end_of_profile`` or a limit)."""
+        return str(self.summary["stop_reason"])
+
+    @property
+    def warnings(self) -> list[str]:
+        """Warnings raised while simulating."""
+        return list(self.summary["warnings"])
+
+    def to_dataframe(self):
+        """The time series as a pandas DataFrame (columns with units in their names)."""
+        import pandas as pd
+
+        return pd.DataFrame({k: self.series[k] for k in SERIES_UNITS if k in self.series})
+
+    def to_dataset(self):
+        """The time series as an xarray Dataset with ``units`` attributes and run metadata.
+
+        The dimension ``time`` holds the output times [s]; a time repeats at each
+        jump of the demand (values just before and just after).
+        """
+        import xarray as xr
+
+        data = {k: ("time", self.series[k], {"units": SERIES_UNITS[k], "long_name": SERIES_DESCRIPTIONS[k]})
+                for k in SERIES_UNITS if k != "time_s" and k in self.series}
+        ds = xr.Dataset(data, coords={"time": ("time", self.series["time_s"],
+                                                {"units": "s", "long_name": SERIES_DESCRIPTIONS["time_s"]})})
+        attrs: dict[str, Any] = {}
+        for key, value in self.metadata.items():
+            attrs[key] = value if isinstance(value, (int, float, str)) else json.dumps(value)
+        for key, value in self.statistics.items():
+            attrs[f"solver_{key}"] = float(value)
+        attrs["status"] = self.status
+        attrs["stop_reason"] = self.stop_reason
+        attrs["completed"] = int(self.completed)
+        attrs["summary_json"] = json.dumps(self.summary)
+        ds.attrs.update(attrs)
+        return ds
+
+    def plot_dashboard(self):
+        """The mission dashboard as a matplotlib Figure (see :mod:`thermoelec.output.figures`)."""
+        from thermoelec.output.figures import dashboard
+
+        return dashboard(self)
+
+    def plot_energy(self):
+        """The energy chart (voltage against charge, energies shaded) as a matplotlib Figure."""
+        from thermoelec.output.figures import energy_chart
+
+        return energy_chart(self)
+
+    def plot_operating_region(self):
+        """The operating-region chart (power and dissipation against current) as a matplotlib Figure."""
+        from thermoelec.output.figures import operating_region
+
+        return operating_region(self)
+
+    def summary_json(self) -> str:
+        """The summary as JSON text."""
+        return json.dumps(self.summary, indent=2, allow_nan=False)
+
+    def write(self, out_dir: str | Path) -> list[Path]:
+        """Write ``summary.json``, ``timeseries.csv`` and ``timeseries.nc`` into ``out_dir``."""
+        out = Path(out_dir)
+        out.mkdir(parents=True, exist_ok=True)
+        written = [out / "summary.json", out / "timeseries.csv", out / "timeseries.nc"]
+        written[0].write_text(self.summary_json() + "\n")
+        self.to_dataframe().to_csv(written[1], index=False, float_format="%.9g")
+        self.to_dataset().to_netcdf(written[2])
+        return written
+
+
+def _finite_or_none(x: float) -> float | None:
+    return float(x) if math.isfinite(x) else None
+
+
+def build_result(problem: Problem, trajectory: Trajectory, options: SolverOptions,
+                 metadata: dict[str, Any] | None = None) -> SimulationResult:
+    """Series and summary metrics from a raw trajectory."""
+    n_rc = problem.n_rc
+    ns = problem.pack.series
+    states = trajectory.states
+    alg = np.empty((len(states), m.N_ALGEBRAICS))
+    params = trajectory.params
+    params[:, m.H_TIME] = trajectory.times  # the ambient profile is a function of time
+    m.evaluate_rows(np.ascontiguousarray(states), params, alg)
+    tc = states[:, m.cell_temperature_index(n_rc)]
+    ts = states[:, m.sink_temperature_index(n_rc)]
+    ambient = alg[:, m.A_AMBIENT]
+    current = alg[:, m.A_CURRENT]
+    voltage = alg[:, m.A_VOLTAGE]
+    series = {
+        "time_s": trajectory.times,
+        "current_A": current,
+        "voltage_V": voltage,
+        "power_W": voltage * current,
+        "soc": states[:, 0],
+        "ocv_V": ns * alg[:, m.A_OCV],
+        "cell_temperature_degC": _celsius(tc),
+        "sink_temperature_degC": _celsius(ts),
+        "ambient_temperature_degC": _celsius(ambient),
+        "heat_W": alg[:, m.A_HEAT],
+        "cell_voltage_V": alg[:, m.A_CELL_VOLTAGE],
+        "reversible_heat_W": alg[:, m.A_REVERSIBLE],
+        "heat_to_ambient_W": alg[:, m.A_HEAT_AMBIENT],
+        "pack_resistance_ohm": alg[:, m.A_RESISTANCE],
+        "pack_emf_V": alg[:, m.A_EMF],
+        "heater_power_W": alg[:, m.A_HEATER],
+        "heat_to_coolant_W": alg[:, m.A_COOLANT],
+        "heat_radiated_W": alg[:, m.A_RADIATION],
+        "sink_to_air_conductance_W_per_K": alg[:, m.A_SINK_CONDUCTANCE],
+    }
+    if problem.thermal.coolant is not None:
+        series["coolant_temperature_degC"] = _celsius(alg[:, m.A_COOLANT_OUTLET])
+    if problem.thermal.convection is not None:
+        series["reynolds_number"] = alg[:, m.A_REYNOLDS]
+        series["rayleigh_number"] = alg[:, m.A_RAYLEIGH]
+    summary = _summary(problem, trajectory, series, states, options.output_interval)
+    stats = dict(trajectory.statistics)
+    stats["wall_time_s"] = trajectory.wall_time
+    codes = params[:, m.H_MODE].astype(int)
+    demand_value = params[:, m.H_VALUE].copy()
+    demand_mode = np.array(MODE_NAMES, dtype=object)[codes]
+    demand_mode[(codes == m.MODE_CURRENT) & (demand_value == 0.0)] = "rest"
+    return SimulationResult(series=series, summary=summary, status=trajectory.status,
+                            message=trajectory.message, statistics=stats, events=trajectory.events,
+                            metadata=dict(metadata or {}), states=states, demand_mode=demand_mode,
+                            demand_value=demand_value, limits=_limits(problem))
+
+
+def _limits(problem: Problem) -> dict[str, float]:
+    ns, cell = problem.pack.series, problem.cell
+    return {
+        "voltage_min_V": ns * cell.voltage_min,
+        "voltage_max_V": ns * cell.voltage_max,
+        "cell_voltage_min_V": cell.voltage_min,
+        "cell_voltage_max_V": cell.voltage_max,
+        "cell_temperature_max_degC": float(_celsius(problem.limits.cell_temperature_max)),
+        "charge_temperature_min_degC": float(_celsius(problem.limits.charge_temperature_min)),
+        "series": ns,
+        "parallel": problem.pack.parallel,
+        "capacity_Ah": cell.capacity / COULOMBS_PER_AH,
+    }
+
+
+def energy_totals(q: np.ndarray) -> dict[str, float]:
+    """Battery and load energies [Wh] from the quadratures ``q`` (``model.Q_*``), discharge and charge apart."""
+    battery_out, battery_in = q[m.Q_BATTERY_DISCHARGE], -q[m.Q_BATTERY_CHARGE]
+    load_out, load_in = q[m.Q_LOAD_DISCHARGE], -q[m.Q_LOAD_CHARGE]
+    energy_battery_wh = float(battery_out - battery_in) / JOULES_PER_WH
+    energy_load_wh = float(load_out - load_in) / JOULES_PER_WH
+    return {
+        "energy_battery_Wh": energy_battery_wh,
+        "energy_load_Wh": energy_load_wh,
+        "energy_dissipated_Wh": energy_battery_wh - energy_load_wh,
+        "energy_discharged_Wh": float(load_out) / JOULES_PER_WH,
+        "energy_charged_Wh": float(load_in) / JOULES_PER_WH,
+        "energy_battery_discharged_Wh": float(battery_out) / JOULES_PER_WH,
+        "energy_battery_charged_Wh": float(battery_in) / JOULES_PER_WH,
+    }
+
+
+def round_trip_efficiency(q: np.ndarray) -> float | None:
+    """Energy out over energy in: delivered to the load and stored in the cells, over drawn from the
+    cells and taken from the charger; ``None`` when nothing flowed."""
+    taken = q[m.Q_BATTERY_DISCHARGE] - q[m.Q_LOAD_CHARGE]
+    if taken <= 0:
+        return None
+    return _finite_or_none((q[m.Q_LOAD_DISCHARGE] - q[m.Q_BATTERY_CHARGE]) / taken)
+
+
+def _soak_summary(problem: Problem, soak: Trajectory | None) -> dict[str, Any] | None:
+    """What the soak before the mission did: its end state, stop and heater energy."""
+    if soak is None:
+        return None
+    n_rc = problem.n_rc
+    end = soak.states[-1]
+    return {
+        "duration_s": float(soak.times[-1]),
+        "stop_reason": soak.stop_reason,
+        "status": soak.status,
+        "cell_temperature_end_degC": float(_celsius(end[m.cell_temperature_index(n_rc)])),
+        "sink_temperature_end_degC": float(_celsius(end[m.sink_temperature_index(n_rc)])),
+        "soc_end": float(end[0]),
+        "heater_energy_Wh": float(end[m.quadrature_index(n_rc) + m.Q_HEATER]) / JOULES_PER_WH,
+        "events": [{"time_s": float(e["time_s"]), "event": e["event"], **({"state": e["state"]} if "state" in e
+                                                                         else {})} for e in soak.events],
+    }
+
+
+def _summary(problem: Problem, trajectory: Trajectory, series: dict[str, np.ndarray],
+             states: np.ndarray, output_interval: float) -> dict[str, Any]:
+    n_rc = problem.n_rc
+    q = states[-1, m.quadrature_index(n_rc):]
+    th = problem.thermal
+    pk = problem.pack
+    cell = problem.cell
+    c_cells = pk.series * pk.parallel * cell.mass * cell.specific_heat
+    tc, ts = states[:, m.cell_temperature_index(n_rc)], states[:, m.sink_temperature_index(n_rc)]
+    tf = states[:, m.coolant_temperature_index(n_rc)]
+    c_coolant = th.coolant.heat_capacity if th.coolant is not None else 0.0
+    stored = (c_cells * (tc[-1] - tc[0]) + th.sink_heat_capacity * (ts[-1] - ts[0])
+              + c_coolant * (tf[-1] - tf[0]))
+
+    efficiency = round_trip_efficiency(q)
+    current = series["current_A"]
+    cell_voltage = series["cell_voltage_V"]
+    times = series["time_s"]
+
+    warnings: list[str] = []
+    if trajectory.status == "failed":
+        warnings.append(f"solver failure at t = {times[-1]:.6g} s: {trajectory.message}; "
+                        "the results cover the mission up to that time only")
+    t_charge_min = problem.limits.charge_temperature_min
+    cold_charge = (current < 0) & (tc < t_charge_min)
+    charging = 0.5 * (current[:-1] + current[1:]) < 0.0
+    cold_time = diagnostics.time_above(times, -tc, -t_charge_min, charging)
+    if cold_charge.any():
+        warnings.append(
+            f"charging below charge_temperature_min ({_celsius(t_charge_min):.1f} degC) for {cold_time:.0f} s, "
+            f"coldest {float(_celsius(tc[cold_charge].min())):.1f} degC: risk of lithium plating; "
+            "follow the cell maker's charge temperature window")
+    for ev in trajectory.events:
+        if ev["event"] == "cccv_cap":
+            warnings.append(f"CC-CV segment {ev['origin']} reached its duration cap at t = {ev['time_s']:.0f} s "
+                            "without falling below its cutoff current")
+    warnings += diagnostics.table_range_warnings(cell, states[:, 0], tc)
+    biot, biot_warnings = diagnostics.biot_check(problem)
+    warnings += biot_warnings
+    warnings += diagnostics.plausibility_warnings(cell)
+    warnings += diagnostics.resolution_warnings(problem, output_interval)
+    warnings += diagnostics.correlation_warnings(problem, series)
+
+    summary: dict[str, Any] = {
+        "scenario": problem.name,
+        "completed": trajectory.status == "ok" and trajectory.stop_reason == "end_of_profile",
+        "stop_reason": trajectory.stop_reason,
+        "duration_s": float(times[-1]),
+        "cell_temperature_max_degC": float(_celsius(tc.max())),
+        "cell_temperature_min_degC": float(_celsius(tc.min())),
+        "cell_temperature_rise_K": float(tc.max() - tc[0]),
+        "sink_temperature_max_degC": float(_celsius(ts.max())),
+        "voltage_min_V": float(series["voltage_V"].min()),
+        "voltage_max_V": float(series["voltage_V"].max()),
+        "cell_voltage_min_V": float(cell_voltage.min()),
+        "cell_voltage_max_V": float(cell_voltage.max()),
+        "voltage_margin_min_V": float(cell_voltage.min() - cell.voltage_min),
+        "voltage_margin_max_V": float(cell.voltage_max - cell_voltage.max()),
+        "temperature_margin_K": float(problem.limits.cell_temperature_max - tc.max()),
+        "current_max_A": float(np.abs(current).max()),
+        "discharge_current_max_A": float(max(current.max(), 0.0)),
+        "charge_current_max_A": float(max(-current.min(), 0.0)) + 0.0,  # no -0.0
+        "power_max_W": float(series["power_W"].max()),
+        **energy_totals(q),
+        "heat_generated_Wh": float(q[m.Q_HEAT]) / JOULES_PER_WH,
+        "heat_reversible_Wh": float(q[m.Q_REVERSIBLE]) / JOULES_PER_WH,
+        "heat_to_ambient_Wh": float(q[m.Q_HEAT_AMBIENT]) / JOULES_PER_WH,
+        "heat_stored_Wh": float(stored) / JOULES_PER_WH,
+        "heat_to_coolant_Wh": float(q[m.Q_COOLANT]) / JOULES_PER_WH,
+        "heat_radiated_Wh": float(q[m.Q_RADIATION]) / JOULES_PER_WH,
+        "heater_energy_Wh": float(q[m.Q_HEATER]) / JOULES_PER_WH,
+        "heater_energy_from_pack_Wh": float(q[m.Q_HEATER]) / JOULES_PER_WH
+        if th.heater is not None and th.heater.from_pack else 0.0,
+        "thermostat_switches": sum(1 for e in trajectory.events if e["event"].endswith("_switch")
+                                   and e["event"] != "cv_switch"),
+        "efficiency": efficiency,
+        "charge_throughput_Ah": float(q[m.Q_THROUGHPUT]) / COULOMBS_PER_AH,
+        "soc_start": float(states[0, 0]),
+        "soc_end": float(states[-1, 0]),
+        "time_charging_below_limit_s": float(cold_time),
+        **diagnostics.stress_indicators(problem, times, current, tc),
+        "biot_number": biot,
+        "segments_completed": trajectory.segments_completed,
+        "segments_total": len(problem.segments),
+        "events": [{"time_s": float(e["time_s"]), "event": e["event"], "origin": e["origin"],
+                    **({"state": e["state"]} if "state" in e else {})} for e in trajectory.events],
+        "soak": _soak_summary(problem, trajectory.soak),
+        "warnings": warnings,
+    }
+    return summary

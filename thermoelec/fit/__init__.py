@@ -1,0 +1,1 @@
+"""Fitting cells from test logs: logs, fits, cell files, synthetic logs."""

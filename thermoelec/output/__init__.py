@@ -1,0 +1,1 @@
+"""Output: figures, the HTML report and terminal tables (the only layer that draws)."""

@@ -1,0 +1,315 @@
+"""The HTML report: one self-contained file for a design review.
+
+Figures are embedded as base64 PNG, the style sheet is inline, and nothing is
+fetched from the network, so the file can be mailed or archived as it is.
+"""
+
+from __future__ import annotations
+
+import base64
+import datetime as _dt
+import html
+import io
+import json
+from collections.abc import Iterable, Mapping, Sequence
+from pathlib import Path
+from typing import Any
+
+from thermoelec.analysis.results import SimulationResult
+from thermoelec.output.tables import SUMMARY_ROWS, format_value
+
+__all__ = ["CAUTIONS", "comparison_report", "fit_report", "limit_checks", "run_report", "write_report"]
+
+#: The cautions printed in every report (and in the README).
+CAUTIONS = (
+    "The results are engineering estimates from a lumped equivalent-circuit and thermal model; they are only as "
+    "good as the parameters, which must be validated with tests of the actual cells and pack.",
+    "Thermal runaway: a lumped cell temperature hides hot spots and cell-to-cell spread; it says nothing about "
+    "internal shorts, abuse or propagation. Keep real margins to the cell maker's limits.",
+    "Charging in the cold risks lithium plating, which can lead to internal shorts later: follow the cell "
+    "maker's charge temperature and current window.",
+    "This tool does not certify anything. Defer to the applicable safety standards, local codes and licensed "
+    "engineering practice for design approval, transport and installation.",
+)
+
+_STYLE = """
+body{font-family:system-ui,-apple-system,'Segoe UI',sans-serif;margin:2em auto;max-width:1100px;color:#222;
+line-height:1.4;padding:0 1em}
+h1{font-size:1.6em;margin-bottom:.2em} h2{border-bottom:1px solid #ccc;padding-bottom:.2em;margin-top:1.6em}
+table{border-collapse:collapse;margin:.6em 0;font-size:.92em} th,td{border:1px solid #ccc;padding:.25em .6em}
+th{background:#f3f3f3;text-align:left} td.num{text-align:right;font-variant-numeric:tabular-nums}
+.pass{color:#0a6b2d;font-weight:600} .fail{color:#b00020;font-weight:600}
+.verdict{display:inline-block;padding:.3em .9em;border-radius:4px;color:#fff;font-weight:700;font-size:1.2em}
+.verdict.pass{background:#0a6b2d;color:#fff} .verdict.fail{background:#b00020;color:#fff}
+.caution{background:#fff7e0;border-left:4px solid #e0a000;padding:.6em 1em;margin:1em 0}
+.warn{background:#fdecea;border-left:4px solid #b00020;padding:.4em 1em}
+figure{margin:1em 0} figure img{max-width:100%;border:1px solid #ddd} figcaption{color:#555;font-size:.9em}
+code{background:#f3f3f3;padding:0 .2em}
+"""
+
+
+def _e(value: Any) -> str:
+    return html.escape(str(value))
+
+
+# ---------------------------------------------------------------------------
+# Pass/fail against each limit
+# ---------------------------------------------------------------------------
+
+
+def limit_checks(summary: Mapping[str, Any], limits: Mapping[str, float]) -> list[dict[str, Any]]:
+    """One row per limit: the limit, the worst value of the mission, the margin, pass or fail.
+
+    A limit that stopped the run fails even at zero margin: the mission did not
+    get through.
+    """
+    stop = summary["stop_reason"]
+    rows = [
+        {"check": "cell voltage >= voltage_min", "limit": limits["cell_voltage_min_V"],
+         "worst": summary["cell_voltage_min_V"], "margin": summary["voltage_margin_min_V"], "unit": "V",
+         "passed": stop != "voltage_min" and summary["voltage_margin_min_V"] >= -1e-9},
+        {"check": "cell voltage <= voltage_max", "limit": limits["cell_voltage_max_V"],
+         "worst": summary["cell_voltage_max_V"], "margin": summary["voltage_margin_max_V"], "unit": "V",
+         "passed": stop != "voltage_max" and summary["voltage_margin_max_V"] >= -1e-9},
+        {"check": "cell temperature <= cell_temperature_max", "limit": limits["cell_temperature_max_degC"],
+         "worst": summary["cell_temperature_max_degC"], "margin": summary["temperature_margin_K"], "unit": "degC",
+         "passed": stop != "temperature_max" and summary["temperature_margin_K"] > 0},
+        {"check": "demanded power deliverable (E^2 >= 4 R P)", "limit": None, "worst": summary["power_max_W"],
+         "margin": None, "unit": "W", "passed": stop != "power_limit"},
+        {"check": "SoC within 0..1", "limit": None, "worst": summary["soc_end"], "margin": None, "unit": "",
+         "passed": stop != "soc_limit"},
+        {"check": "no charging below charge_temperature_min", "limit": limits["charge_temperature_min_degC"],
+         "worst": summary["time_charging_below_limit_s"], "margin": None, "unit": "s below",
+         "passed": summary["time_charging_below_limit_s"] == 0},
+        {"check": "whole profile completed", "limit": None, "worst": summary["stop_reason"], "margin": None,
+         "unit": "", "passed": bool(summary["completed"])},
+    ]
+    return rows
+
+
+def verdict(summary: Mapping[str, Any], limits: Mapping[str, float]) -> bool:
+    """True when every limit check passes."""
+    return all(row["passed"] for row in limit_checks(summary, limits))
+
+
+# ---------------------------------------------------------------------------
+# HTML pieces
+# ---------------------------------------------------------------------------
+
+
+def _table(header: Sequence[str], rows: Iterable[Sequence[str]], numeric_from: int = 1) -> str:
+    head = "".join(f"<th>{_e(h)}</th>" for h in header)
+    body = []
+    for row in rows:
+        cells = "".join(f"<td class='num'>{c}</td>" if i >= numeric_from else f"<td>{c}</td>"
+                        for i, c in enumerate(row))
+        body.append(f"<tr>{cells}</tr>")
+    return f"<table><thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>"
+
+
+def _pass_cell(passed: bool) -> str:
+    return "<span class='pass'>pass</span>" if passed else "<span class='fail'>FAIL</span>"
+
+
+def _checks_table(summary: Mapping[str, Any], limits: Mapping[str, float]) -> str:
+    rows = []
+    for row in limit_checks(summary, limits):
+        unit = row["unit"]
+        rows.append([_e(row["check"]), _e(format_value(row["limit"], unit if unit != "s below" else "degC")),
+                     _e(format_value(row["worst"], unit)), _e(format_value(row["margin"],
+                                                                           "K" if unit == "degC" else unit)),
+                     _pass_cell(row["passed"])])
+    return _table(["limit", "value", "worst in mission", "margin", "result"], rows)
+
+
+def _summary_table(summary: Mapping[str, Any]) -> str:
+    rows = [[_e(label), _e(format_value(summary.get(key), unit))] for label, key, unit in SUMMARY_ROWS]
+    return _table(["metric", "value"], rows)
+
+
+def _warnings(warnings: Sequence[str]) -> str:
+    if not warnings:
+        return "<p>No warnings.</p>"
+    return "<div class='warn'><ul>" + "".join(f"<li>{_e(w)}</li>" for w in warnings) + "</ul></div>"
+
+
+def _cautions() -> str:
+    return "<div class='caution'><strong>Cautions.</strong><ul>" + \
+        "".join(f"<li>{_e(c)}</li>" for c in CAUTIONS) + "</ul></div>"
+
+
+def _png_base64(fig_or_png: Any) -> str:
+    if isinstance(fig_or_png, bytes):
+        return base64.b64encode(fig_or_png).decode("ascii")
+    buffer = io.BytesIO()
+    fig_or_png.savefig(buffer, format="png", dpi=100)
+    return base64.b64encode(buffer.getvalue()).decode("ascii")
+
+
+def _figure(fig_or_png: Any, caption: str) -> str:
+    """An embedded figure from a matplotlib Figure or the bytes of a PNG file."""
+    return (f"<figure><img alt='{_e(caption)}' src='data:image/png;base64,{_png_base64(fig_or_png)}'>"
+            f"<figcaption>{_e(caption)}</figcaption></figure>")
+
+
+def _flatten(data: Any, prefix: str = "") -> list[tuple[str, Any]]:
+    if isinstance(data, dict):
+        out = []
+        for key, value in data.items():
+            out += _flatten(value, f"{prefix}.{key}" if prefix else str(key))
+        return out
+    if isinstance(data, list) and data and all(isinstance(v, dict) for v in data):
+        out = []
+        for i, value in enumerate(data, start=1):
+            out += _flatten(value, f"{prefix}[{i}]")
+        return out
+    return [(prefix, data)]
+
+
+def _parameters(raw: Mapping[str, Any] | None) -> str:
+    if not raw:
+        return "<p>(parameters not available: the run was given an SI problem, not a scenario)</p>"
+    rows = [[f"<code>{_e(k)}</code>", _e(json.dumps(v) if not isinstance(v, str) else v)]
+            for k, v in _flatten({k: v for k, v in raw.items() if k != "case"})]
+    return _table(["key", "value"], rows, numeric_from=9)
+
+
+def _metadata(result: SimulationResult) -> str:
+    rows = [[_e(k), _e(v if isinstance(v, str) else json.dumps(v))] for k, v in result.metadata.items()]
+    rows += [[_e(f"solver {k}"), _e(format_value(float(v)))] for k, v in result.statistics.items()]
+    rows.append(["report generated", _e(_dt.datetime.now(_dt.UTC).strftime("%Y-%m-%d %H:%M:%S UTC"))])
+    return _table(["item", "value"], rows, numeric_from=9)
+
+
+def _document(title: str, body: str) -> str:
+    return ("<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'>"
+            f"<title>{_e(title)}</title><style>{_STYLE}</style></head><body>{body}</body></html>\n")
+
+
+def _verdict_badge(passed: bool) -> str:
+    return ("<span class='verdict pass'>PASS</span>" if passed else "<span class='verdict fail'>FAIL</span>")
+
+
+# ---------------------------------------------------------------------------
+# Reports
+# ---------------------------------------------------------------------------
+
+
+def run_report(result: SimulationResult, raw: Mapping[str, Any] | None = None, description: str = "",
+               pngs: Mapping[str, bytes] | None = None) -> str:
+    """The report of one run as HTML text.
+
+    ``pngs`` maps figure names of :data:`thermoelec.output.figures.FIGURE_NAMES` to PNG
+    files already written, so they are embedded instead of drawn again.
+    """
+    from thermoelec.output import figures
+
+    pngs = pngs or {}
+    drawn = {"dashboard": figures.dashboard, "energy": figures.energy_chart,
+             "operating_region": figures.operating_region}
+
+    def figure(name: str):
+        return pngs[name] if name in pngs else drawn[name](result)
+
+    summary = result.summary
+    passed = verdict(summary, result.limits)
+    stress = [(label, key, unit) for label, key, unit in (
+        ("time above the hot temperature", "time_above_hot_temperature_s", "s"),
+        ("hot temperature", "hot_temperature_degC", "degC"),
+        ("time above the temperature limit", "time_above_temperature_limit_s", "s"),
+        ("time charging below 0 degC", "time_charging_below_0degC_s", "s"),
+        ("time charging below 10 degC", "time_charging_below_10degC_s", "s"),
+        ("peak C-rate, discharge", "c_rate_discharge_max", ""),
+        ("peak C-rate, charge", "c_rate_charge_max", ""),
+        ("Arrhenius-equivalent time at the reference", "equivalent_time_at_reference_s", "s"),
+        ("reference temperature", "ageing_reference_temperature_degC", "degC"),
+        ("activation energy", "ageing_activation_energy_kJ_per_mol", "kJ/mol"),
+        ("acceleration factor (equivalent time / duration)", "ageing_acceleration_factor", ""),
+        ("Biot number of a cell", "biot_number", ""),
+    )]
+    body = [
+        f"<h1>{_e(summary.get('scenario', 'thermoelec run'))}</h1>",
+        f"<p>{_e(description)}</p>" if description else "",
+        f"<p>{_verdict_badge(passed)} &nbsp; stop reason <code>{_e(summary['stop_reason'])}</code> after "
+        f"{summary['duration_s']:.0f} s; status {_e(result.status)}"
+        + (f": {_e(result.message)}" if result.message else "") + "</p>",
+        _cautions(),
+        "<h2>Limits</h2>", _checks_table(summary, result.limits),
+        "<h2>Warnings</h2>", _warnings(result.warnings),
+        "<h2>Summary</h2>", _summary_table(summary),
+        "<h2>Stress indicators</h2>",
+        _table(["indicator", "value"], [[_e(label), _e(format_value(summary.get(key), unit))]
+                                       for label, key, unit in stress]),
+        "<h2>Figures</h2>",
+        _figure(figure("dashboard"), "Mission dashboard: demand, current, voltage with limits, SoC, "
+                "temperatures with the limit, heat; stops and mode switches marked."),
+        _figure(figure("energy"), "Energy chart: voltage against charge moved; the areas are the "
+                "battery, load and dissipated energies."),
+        _figure(figure("operating_region"), "Operating region: load power and dissipation against current "
+                "at the start, the coldest instant and the end, with the mission's operating points."),
+        "<h2>Parameters</h2>", _parameters(raw),
+        "<h2>Run</h2>", _metadata(result),
+    ]
+    return _document(f"thermoelec: {summary.get('scenario', '')}", "".join(body))
+
+
+def comparison_report(outcomes: Sequence[Any], raw: Mapping[str, Any] | None = None, title: str = "",
+                      description: str = "") -> str:
+    """The report of a case comparison as HTML text (``outcomes`` of :func:`thermoelec.analysis.compare.run_cases`)."""
+    from thermoelec.analysis.compare import COMPARISON_ROWS
+    from thermoelec.output import figures
+
+    metrics = [o.metrics() for o in outcomes]
+    names = [o.name for o in outcomes]
+    rows = [[_e(label.strip()), *(_e(format_value(m.get(key), unit)) for m in metrics)]
+            for label, key, unit in COMPARISON_ROWS]
+    verdicts = [[_e("limits"), *(_verdict_badge(verdict(o.result.summary, o.result.limits)) for o in outcomes)]]
+    body = [
+        f"<h1>{_e(title or 'case comparison')}</h1>",
+        f"<p>{_e(description)}</p>" if description else "",
+        _cautions(),
+        "<h2>Comparison</h2>", _table(["", *names], verdicts + rows),
+        "<p>Energy to voltage cutoff: a discharge from the same start at the mission's mean discharge power "
+        "until a limit stops it (the row below says which).</p>",
+        _figure(figures.comparison_overlay({o.name: o.result for o in outcomes}),
+                "Voltage, cell temperature and SoC of every case."),
+    ]
+    for outcome in outcomes:
+        result = outcome.result
+        overrides = ", ".join(f"{k} = {v}" for k, v in outcome.overrides.items()) or "no changes"
+        body += [
+            f"<h2>Case: {_e(outcome.name)}</h2>", f"<p>Overrides: <code>{_e(overrides)}</code></p>",
+            _checks_table(result.summary, result.limits), "<h3>Warnings</h3>", _warnings(result.warnings),
+            _figure(figures.dashboard(result), f"Mission dashboard, {outcome.name}."),
+            _figure(figures.energy_chart(result), f"Energy chart, {outcome.name}."),
+        ]
+    body += ["<h2>Parameters of the base scenario</h2>", _parameters(raw)]
+    if outcomes:
+        body += ["<h2>Run</h2>", _metadata(outcomes[0].result)]
+    return _document(f"thermoelec comparison: {title}", "".join(body))
+
+
+def fit_report(outcome: Any) -> str:
+    """The report of a ``thermoelec fit`` job (a :class:`thermoelec.fit.jobs.FitOutcome`) as HTML text."""
+    rows = [[_e(name), _e(value), _e(interval)] for name, value, interval in outcome.parameters]
+    body = [
+        f"<h1>thermoelec fit {_e(outcome.kind)}</h1>",
+        "<p>Logs: " + ", ".join(f"<code>{_e(log)}</code>" for log in outcome.logs) + "</p>",
+        "<div class='caution'><strong>Caution.</strong> Fitted parameters describe the tested cell over the tested "
+        "range of SoC, temperature and current only; check them against a held-out test before relying on them, "
+        "and follow the applicable safety standards and licensed practice when testing cells.</div>",
+        "<h2>Parameters</h2>", _table(["parameter", "value", "95 % interval / note"], rows, numeric_from=9),
+    ]
+    if outcome.notes:
+        body += ["<h2>Notes</h2>", _warnings(outcome.notes)]
+    body.append("<h2>Data against model</h2>")
+    body += [_figure(fig, caption) for fig, caption in outcome.figures]
+    body += ["<h2>Cell file written</h2>", f"<pre>{_e(outcome.cell_file_text())}</pre>"]
+    return _document(f"thermoelec fit {outcome.kind}", "".join(body))
+
+
+def write_report(text: str, out_dir: str | Path) -> Path:
+    """Write ``report.html`` into ``out_dir``."""
+    path = Path(out_dir) / "report.html"
+    path.write_text(text, encoding="utf-8")
+    return path
