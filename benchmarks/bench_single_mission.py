@@ -28,8 +28,12 @@ import numpy as np
 from scipy.integrate import solve_ivp
 
 import thermoelec
+from thermoelec.engine import layout as L
 from thermoelec.engine import model as m
-from thermoelec.engine.solve import SolverOptions, integrate_problem
+from thermoelec.engine.driver import integrate_problem
+from thermoelec.engine.options import SolverOptions
+from thermoelec.engine.problem import pack_parameters
+from thermoelec.physics.loads import LOAD_MODES
 
 
 def mission_scenario(seconds: int, folder: Path) -> dict:
@@ -63,15 +67,15 @@ def mission_scenario(seconds: int, folder: Path) -> dict:
 
 def segment_loop(problem, method: str, rtol: float, atol: np.ndarray) -> tuple[float, np.ndarray]:
     """What a user writes: solve_ivp restarted at every segment on the same equations."""
-    p = m.pack_parameters(problem)
-    kernels = m.Kernels(p, m.n_states(problem.n_rc))
+    p = pack_parameters(problem)
+    kernels = m.Kernels(p, L.n_states(problem.n_rc))
     y = problem.initial_state()
     ends = np.empty((len(problem.segments), y.size))
     t = 0.0
     started = time.perf_counter()
     for k, seg in enumerate(problem.segments):
-        p[m.H_MODE] = m.mode_code(seg.mode)
-        p[m.H_VALUE] = seg.value
+        p[L.H_MODE] = LOAD_MODES[seg.mode].code
+        p[L.H_VALUE] = seg.value
         sol = solve_ivp(kernels.scipy_rhs, (t, t + seg.duration), y, method=method, rtol=rtol, atol=atol)
         y = sol.y[:, -1]
         t += seg.duration
@@ -96,15 +100,15 @@ def errors(ends: np.ndarray, reference: np.ndarray, problem, kernels_p) -> tuple
     """Max |dTc| [K] and max |dV| [V] over all segment ends."""
     n_rc = problem.n_rc
     d_tc = np.abs(ends[:, 1 + n_rc] - reference[:, 1 + n_rc]).max()
-    alg_a = np.empty((len(ends), m.N_ALGEBRAICS))
+    alg_a = np.empty((len(ends), L.N_ALGEBRAICS))
     alg_b = np.empty_like(alg_a)
     params = np.repeat(kernels_p[None, :], len(ends), axis=0)
     for k, seg in enumerate(problem.segments):
-        params[k, m.H_MODE] = m.mode_code(seg.mode)
-        params[k, m.H_VALUE] = seg.value
+        params[k, L.H_MODE] = LOAD_MODES[seg.mode].code
+        params[k, L.H_VALUE] = seg.value
     m.evaluate_rows(np.ascontiguousarray(ends), params, alg_a)
     m.evaluate_rows(np.ascontiguousarray(reference), params, alg_b)
-    return float(d_tc), float(np.abs(alg_a[:, m.A_VOLTAGE] - alg_b[:, m.A_VOLTAGE]).max())
+    return float(d_tc), float(np.abs(alg_a[:, L.A_VOLTAGE] - alg_b[:, L.A_VOLTAGE]).max())
 
 
 def best_alternating(repeats: int, *jobs) -> list[float]:
@@ -125,7 +129,7 @@ def main() -> None:
     repeats = 1 if args.quick else args.repeats
     with tempfile.TemporaryDirectory() as folder:
         problem = thermoelec.scenario_from_dict(mission_scenario(seconds, Path(folder))).problem()
-    p = m.pack_parameters(problem)
+    p = pack_parameters(problem)
     engine_run(problem, 1e-6)  # compile / load the jitted kernels once, outside the timings
     print(f"mission: {len(problem.segments)} power segments of 1 s, 1 RC pair, 2-D R0 table, entropic heat")
 

@@ -44,8 +44,10 @@ from bench_single_mission import engine_run, errors, mission_scenario, segment_l
 
 import thermoelec
 from thermoelec.analysis import sweep
+from thermoelec.engine import layout as L
 from thermoelec.engine import model as m
-from thermoelec.engine.solve import SolverOptions
+from thermoelec.engine.options import SolverOptions
+from thermoelec.engine.problem import pack_parameters
 
 
 @numba.njit(error_model="numpy")  # not cached: a cached caller does not see edits to model.py
@@ -53,15 +55,15 @@ def rk4_batch(params, powers, y0, substeps):
     """Classical RK4, ``substeps`` fixed steps per 1 s power segment, every scenario of the batch."""
     n_scen, n = y0.shape
     ends = np.empty((n_scen, powers.size, n))
-    alg = np.empty(m.N_ALGEBRAICS)
+    alg = np.empty(L.N_ALGEBRAICS)
     k1, k2, k3, k4, tmp = np.empty(n), np.empty(n), np.empty(n), np.empty(n), np.empty(n)
     h = 1.0 / substeps
     for s in range(n_scen):
         p = params[s].copy()
         y = y0[s].copy()
         for seg in range(powers.size):
-            p[m.H_MODE] = 1.0
-            p[m.H_VALUE] = powers[seg]
+            p[L.H_MODE] = 1.0
+            p[L.H_VALUE] = powers[seg]
             for _ in range(substeps):
                 m.evaluate(y, p, k1, alg)
                 for i in range(n):
@@ -146,10 +148,10 @@ def main() -> None:
 
     first = problems[0]
     _, reference = segment_loop(first, "DOP853", 1e-12, SolverOptions(rtol=1e-12).atol_vector(first.n_rc))
-    p0 = m.pack_parameters(first)
+    p0 = pack_parameters(first)
     e_batch = (e_tc, e_v)
     powers = np.array([s.value for s in first.segments])
-    params = np.array([m.pack_parameters(p) for p in problems])
+    params = np.array([pack_parameters(p) for p in problems])
     y0 = np.array([p.initial_state() for p in problems])
     substeps = 1
     while True:

@@ -39,7 +39,7 @@ import psutil
 from bench_single_mission import mission_scenario, segment_loop
 
 import thermoelec
-from thermoelec.engine.solve import SolverOptions
+from thermoelec.engine.options import SolverOptions
 
 THERMOELEC = [sys.executable, "-m", "thermoelec.cli"]
 

@@ -8,7 +8,7 @@
 
 from thermoelec.analysis.results import SimulationResult
 from thermoelec.api import simulate, simulate_file
-from thermoelec.engine.solve import SolverOptions
+from thermoelec.engine.options import SolverOptions
 from thermoelec.scenario import Scenario, ScenarioError, load_scenario, scenario_from_dict
 from thermoelec.version import __version__
 

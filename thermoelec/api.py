@@ -6,8 +6,9 @@ from pathlib import Path
 from typing import Any
 
 from thermoelec.analysis.results import SimulationResult, build_result
-from thermoelec.engine.model import Problem
-from thermoelec.engine.solve import SolverOptions, integrate_problem
+from thermoelec.engine.driver import integrate_problem
+from thermoelec.engine.options import SolverOptions
+from thermoelec.engine.problem import Problem
 from thermoelec.scenario import Scenario, load_scenario, scenario_from_dict
 from thermoelec.version import __version__
 

@@ -16,6 +16,7 @@ import numpy as np
 import pytest
 
 import thermoelec
+from thermoelec.analysis.metrics import batch_metrics
 from thermoelec.engine import batch
 
 from ..helpers import scenario
@@ -95,7 +96,7 @@ def answers(tmp_path_factory):
 def test_batched_phase_kinds_equal_tight_solo_runs(answers, k):
     problems, outcome, solo = answers
     assert outcome.status[k] == "ok"
-    got = batch.batch_metrics(problems[k], outcome, k)
+    got = batch_metrics(problems[k], outcome, k)
     expected = solo[k].summary
     assert got["stop_reason"] == expected["stop_reason"]
     for key, tol in TOLERANCES.items():

@@ -14,8 +14,13 @@ import numpy as np
 import pytest
 
 import thermoelec
+from thermoelec.engine import layout as L
 from thermoelec.engine import model as m
-from thermoelec.engine.solve import DIAGONAL_CONTRACTION, SolverOptions, integrate_problem
+from thermoelec.engine.backends import DIAGONAL_CONTRACTION
+from thermoelec.engine.driver import integrate_problem
+from thermoelec.engine.options import SolverOptions
+from thermoelec.engine.problem import pack_parameters
+from thermoelec.physics.loads import MODE_CURRENT
 
 from ..helpers import scenario
 
@@ -31,8 +36,8 @@ def _two_node(**thermal):
 @pytest.mark.parametrize("gamma", [0.1, 1.0, 30.0, 1e4])
 def test_contraction_bound_of_the_two_node_network(gamma):
     problem = _two_node()
-    p = m.pack_parameters(problem)
-    kernels = m.Kernels(p, m.n_states(problem.n_rc))
+    p = pack_parameters(problem)
+    kernels = m.Kernels(p, L.n_states(problem.n_rc))
     y = problem.initial_state()
     c_cell = 0.070 * 900.0  # mass x specific heat of the one cell of the helper [J/K]
     c_sink, g_cs, g_sa, g_ca = 200.0, 0.5, 0.5, 0.2
@@ -47,9 +52,9 @@ def test_the_rc_shift_is_an_exact_change_of_variables():
     data = scenario(cell={**scenario()["cell"], "rc": [{"resistance": "10 mohm", "time_constant": "20 s"}]},
                     segments=[{"mode": "current", "value": "5 A", "duration": "60 s"}])
     problem = thermoelec.scenario_from_dict(data).problem()
-    p = m.pack_parameters(problem)
-    p[m.H_MODE], p[m.H_VALUE] = m.MODE_CURRENT, 5.0
-    kernels = m.Kernels(p, m.n_states(problem.n_rc))
+    p = pack_parameters(problem)
+    p[L.H_MODE], p[L.H_VALUE] = MODE_CURRENT, 5.0
+    kernels = m.Kernels(p, L.n_states(problem.n_rc))
     y0 = problem.initial_state()
     y0[1] = 0.02
     w0, _ = kernels.shift_from(3.0, y0)
@@ -86,7 +91,7 @@ def test_diagonal_newton_on_a_one_hertz_profile_agrees_with_lsoda():
     reference = integrate_problem(problem, SolverOptions(backend="scipy", rtol=1e-10))
     assert fast.status == reference.status == "ok"
     np.testing.assert_array_equal(fast.times, reference.times)
-    tc = m.cell_temperature_index(problem.n_rc)
+    tc = L.cell_temperature_index(problem.n_rc)
     np.testing.assert_allclose(fast.states[:, tc], reference.states[:, tc], atol=1e-6)
     np.testing.assert_allclose(fast.states[:, 0], reference.states[:, 0], atol=1e-9)
     np.testing.assert_allclose(fast.states[:, 1], reference.states[:, 1], atol=1e-8)
@@ -96,8 +101,8 @@ def test_a_stiff_network_falls_back_to_the_dense_newton_matrix():
     # a 0.5 J/K sink on 200 W/K: the sink follows the cell within milliseconds
     data = _one_hertz_power(120, sink_heat_capacity="0.5 J/K", cell_to_sink="200 W/K")
     problem = thermoelec.scenario_from_dict(data).problem()
-    p = m.pack_parameters(problem)
-    assert m.Kernels(p, m.n_states(problem.n_rc)).diagonal_newton_contraction(
+    p = pack_parameters(problem)
+    assert m.Kernels(p, L.n_states(problem.n_rc)).diagonal_newton_contraction(
         problem.initial_state(), 1.0) > DIAGONAL_CONTRACTION
     auto = integrate_problem(problem, SolverOptions(rtol=1e-8))
     dense = integrate_problem(problem, SolverOptions(rtol=1e-8, linear_solver="dense"))

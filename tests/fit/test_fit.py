@@ -90,7 +90,7 @@ def load_cell(path) -> dict:
 
 def true_value(table: list[list[float]], z: np.ndarray, temperature: float) -> np.ndarray:
     """The synthesizing table, bilinear and held at its edges, as the engine reads it."""
-    from thermoelec.physics.cell import interpolate_2d
+    from thermoelec.physics.tables import interpolate_2d
 
     values = np.asarray(table).ravel()
     return np.array([interpolate_2d(SOC, TEMPS + 273.15, values, float(zz), temperature) for zz in z])

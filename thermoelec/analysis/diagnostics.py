@@ -16,7 +16,7 @@ from typing import Any
 
 import numpy as np
 
-from thermoelec.engine.model import Problem
+from thermoelec.engine.problem import Problem
 from thermoelec.physics.cell import Cell, ResistanceLaw, arrhenius_ageing_rate
 from thermoelec.physics.thermal import AIR_PRANDTL, AIR_TEMPERATURE, LUMPED_BIOT_LIMIT, biot_number
 

@@ -11,7 +11,6 @@ as accurate as the states themselves and independent of the output interval.
 from __future__ import annotations
 
 import json
-import math
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -19,9 +18,12 @@ from typing import Any
 import numpy as np
 
 from thermoelec.analysis import diagnostics
-from thermoelec.engine import model as m
-from thermoelec.engine.model import Problem
-from thermoelec.engine.solve import SolverOptions, Trajectory
+from thermoelec.analysis.metrics import energy_totals, round_trip_efficiency
+from thermoelec.engine import layout as L
+from thermoelec.engine.driver import Trajectory
+from thermoelec.engine.options import SolverOptions
+from thermoelec.engine.problem import Problem
+from thermoelec.physics.loads import LOAD_MODES, MODE_CURRENT
 
 __all__ = ["SERIES_UNITS", "SimulationResult", "build_result"]
 
@@ -79,8 +81,8 @@ SERIES_DESCRIPTIONS: dict[str, str] = {
     "rayleigh_number": "Rayleigh number of free convection at the sink (convection correlations only)",
 }
 
-#: Names of the demand modes in the order of their codes in the model.
-MODE_NAMES = tuple(sorted(m.MODE_CODES, key=m.MODE_CODES.get))
+#: Names of the load modes in the order of their codes in the engine.
+MODE_NAMES = tuple(sorted(LOAD_MODES, key=lambda name: LOAD_MODES[name].code))
 
 
 def _celsius(kelvin: np.ndarray | float) -> np.ndarray | float:
@@ -210,58 +212,51 @@ class SimulationResult:
         return written
 
 
-def _finite_or_none(x: float) -> float | None:
-    return float(x) if math.isfinite(x) else None
-
-
 def build_result(problem: Problem, trajectory: Trajectory, options: SolverOptions,
                  metadata: dict[str, Any] | None = None) -> SimulationResult:
     """Series and summary metrics from a raw trajectory."""
     n_rc = problem.n_rc
     ns = problem.pack.series
     states = trajectory.states
-    alg = np.empty((len(states), m.N_ALGEBRAICS))
-    params = trajectory.params
-    params[:, m.H_TIME] = trajectory.times  # the ambient profile is a function of time
-    m.evaluate_rows(np.ascontiguousarray(states), params, alg)
-    tc = states[:, m.cell_temperature_index(n_rc)]
-    ts = states[:, m.sink_temperature_index(n_rc)]
-    ambient = alg[:, m.A_AMBIENT]
-    current = alg[:, m.A_CURRENT]
-    voltage = alg[:, m.A_VOLTAGE]
+    alg = trajectory.algebraics()
+    tc = states[:, L.cell_temperature_index(n_rc)]
+    ts = states[:, L.sink_temperature_index(n_rc)]
+    ambient = alg[:, L.A_AMBIENT]
+    current = alg[:, L.A_CURRENT]
+    voltage = alg[:, L.A_VOLTAGE]
     series = {
         "time_s": trajectory.times,
         "current_A": current,
         "voltage_V": voltage,
         "power_W": voltage * current,
         "soc": states[:, 0],
-        "ocv_V": ns * alg[:, m.A_OCV],
+        "ocv_V": ns * alg[:, L.A_OCV],
         "cell_temperature_degC": _celsius(tc),
         "sink_temperature_degC": _celsius(ts),
         "ambient_temperature_degC": _celsius(ambient),
-        "heat_W": alg[:, m.A_HEAT],
-        "cell_voltage_V": alg[:, m.A_CELL_VOLTAGE],
-        "reversible_heat_W": alg[:, m.A_REVERSIBLE],
-        "heat_to_ambient_W": alg[:, m.A_HEAT_AMBIENT],
-        "pack_resistance_ohm": alg[:, m.A_RESISTANCE],
-        "pack_emf_V": alg[:, m.A_EMF],
-        "heater_power_W": alg[:, m.A_HEATER],
-        "heat_to_coolant_W": alg[:, m.A_COOLANT],
-        "heat_radiated_W": alg[:, m.A_RADIATION],
-        "sink_to_air_conductance_W_per_K": alg[:, m.A_SINK_CONDUCTANCE],
+        "heat_W": alg[:, L.A_HEAT],
+        "cell_voltage_V": alg[:, L.A_CELL_VOLTAGE],
+        "reversible_heat_W": alg[:, L.A_REVERSIBLE],
+        "heat_to_ambient_W": alg[:, L.A_HEAT_AMBIENT],
+        "pack_resistance_ohm": alg[:, L.A_RESISTANCE],
+        "pack_emf_V": alg[:, L.A_EMF],
+        "heater_power_W": alg[:, L.A_HEATER],
+        "heat_to_coolant_W": alg[:, L.A_COOLANT],
+        "heat_radiated_W": alg[:, L.A_RADIATION],
+        "sink_to_air_conductance_W_per_K": alg[:, L.A_SINK_CONDUCTANCE],
     }
     if problem.thermal.coolant is not None:
-        series["coolant_temperature_degC"] = _celsius(alg[:, m.A_COOLANT_OUTLET])
+        series["coolant_temperature_degC"] = _celsius(alg[:, L.A_COOLANT_OUTLET])
     if problem.thermal.convection is not None:
-        series["reynolds_number"] = alg[:, m.A_REYNOLDS]
-        series["rayleigh_number"] = alg[:, m.A_RAYLEIGH]
+        series["reynolds_number"] = alg[:, L.A_REYNOLDS]
+        series["rayleigh_number"] = alg[:, L.A_RAYLEIGH]
     summary = _summary(problem, trajectory, series, states, options.output_interval)
     stats = dict(trajectory.statistics)
     stats["wall_time_s"] = trajectory.wall_time
-    codes = params[:, m.H_MODE].astype(int)
-    demand_value = params[:, m.H_VALUE].copy()
+    codes = trajectory.demand_modes
+    demand_value = trajectory.demand_values
     demand_mode = np.array(MODE_NAMES, dtype=object)[codes]
-    demand_mode[(codes == m.MODE_CURRENT) & (demand_value == 0.0)] = "rest"
+    demand_mode[(codes == MODE_CURRENT) & (demand_value == 0.0)] = "rest"
     return SimulationResult(series=series, summary=summary, status=trajectory.status,
                             message=trajectory.message, statistics=stats, events=trajectory.events,
                             metadata=dict(metadata or {}), states=states, demand_mode=demand_mode,
@@ -283,32 +278,6 @@ def _limits(problem: Problem) -> dict[str, float]:
     }
 
 
-def energy_totals(q: np.ndarray) -> dict[str, float]:
-    """Battery and load energies [Wh] from the quadratures ``q`` (``model.Q_*``), discharge and charge apart."""
-    battery_out, battery_in = q[m.Q_BATTERY_DISCHARGE], -q[m.Q_BATTERY_CHARGE]
-    load_out, load_in = q[m.Q_LOAD_DISCHARGE], -q[m.Q_LOAD_CHARGE]
-    energy_battery_wh = float(battery_out - battery_in) / JOULES_PER_WH
-    energy_load_wh = float(load_out - load_in) / JOULES_PER_WH
-    return {
-        "energy_battery_Wh": energy_battery_wh,
-        "energy_load_Wh": energy_load_wh,
-        "energy_dissipated_Wh": energy_battery_wh - energy_load_wh,
-        "energy_discharged_Wh": float(load_out) / JOULES_PER_WH,
-        "energy_charged_Wh": float(load_in) / JOULES_PER_WH,
-        "energy_battery_discharged_Wh": float(battery_out) / JOULES_PER_WH,
-        "energy_battery_charged_Wh": float(battery_in) / JOULES_PER_WH,
-    }
-
-
-def round_trip_efficiency(q: np.ndarray) -> float | None:
-    """Energy out over energy in: delivered to the load and stored in the cells, over drawn from the
-    cells and taken from the charger; ``None`` when nothing flowed."""
-    taken = q[m.Q_BATTERY_DISCHARGE] - q[m.Q_LOAD_CHARGE]
-    if taken <= 0:
-        return None
-    return _finite_or_none((q[m.Q_LOAD_DISCHARGE] - q[m.Q_BATTERY_CHARGE]) / taken)
-
-
 def _soak_summary(problem: Problem, soak: Trajectory | None) -> dict[str, Any] | None:
     """What the soak before the mission did: its end state, stop and heater energy."""
     if soak is None:
@@ -319,10 +288,10 @@ def _soak_summary(problem: Problem, soak: Trajectory | None) -> dict[str, Any] |
         "duration_s": float(soak.times[-1]),
         "stop_reason": soak.stop_reason,
         "status": soak.status,
-        "cell_temperature_end_degC": float(_celsius(end[m.cell_temperature_index(n_rc)])),
-        "sink_temperature_end_degC": float(_celsius(end[m.sink_temperature_index(n_rc)])),
+        "cell_temperature_end_degC": float(_celsius(end[L.cell_temperature_index(n_rc)])),
+        "sink_temperature_end_degC": float(_celsius(end[L.sink_temperature_index(n_rc)])),
         "soc_end": float(end[0]),
-        "heater_energy_Wh": float(end[m.quadrature_index(n_rc) + m.Q_HEATER]) / JOULES_PER_WH,
+        "heater_energy_Wh": float(end[L.quadrature_index(n_rc) + L.Q_HEATER]) / JOULES_PER_WH,
         "events": [{"time_s": float(e["time_s"]), "event": e["event"], **({"state": e["state"]} if "state" in e
                                                                          else {})} for e in soak.events],
     }
@@ -331,13 +300,13 @@ def _soak_summary(problem: Problem, soak: Trajectory | None) -> dict[str, Any] |
 def _summary(problem: Problem, trajectory: Trajectory, series: dict[str, np.ndarray],
              states: np.ndarray, output_interval: float) -> dict[str, Any]:
     n_rc = problem.n_rc
-    q = states[-1, m.quadrature_index(n_rc):]
+    q = states[-1, L.quadrature_index(n_rc):]
     th = problem.thermal
     pk = problem.pack
     cell = problem.cell
     c_cells = pk.series * pk.parallel * cell.mass * cell.specific_heat
-    tc, ts = states[:, m.cell_temperature_index(n_rc)], states[:, m.sink_temperature_index(n_rc)]
-    tf = states[:, m.coolant_temperature_index(n_rc)]
+    tc, ts = states[:, L.cell_temperature_index(n_rc)], states[:, L.sink_temperature_index(n_rc)]
+    tf = states[:, L.coolant_temperature_index(n_rc)]
     c_coolant = th.coolant.heat_capacity if th.coolant is not None else 0.0
     stored = (c_cells * (tc[-1] - tc[0]) + th.sink_heat_capacity * (ts[-1] - ts[0])
               + c_coolant * (tf[-1] - tf[0]))
@@ -392,19 +361,19 @@ def _summary(problem: Problem, trajectory: Trajectory, series: dict[str, np.ndar
         "charge_current_max_A": float(max(-current.min(), 0.0)) + 0.0,  # no -0.0
         "power_max_W": float(series["power_W"].max()),
         **energy_totals(q),
-        "heat_generated_Wh": float(q[m.Q_HEAT]) / JOULES_PER_WH,
-        "heat_reversible_Wh": float(q[m.Q_REVERSIBLE]) / JOULES_PER_WH,
-        "heat_to_ambient_Wh": float(q[m.Q_HEAT_AMBIENT]) / JOULES_PER_WH,
+        "heat_generated_Wh": float(q[L.Q_HEAT]) / JOULES_PER_WH,
+        "heat_reversible_Wh": float(q[L.Q_REVERSIBLE]) / JOULES_PER_WH,
+        "heat_to_ambient_Wh": float(q[L.Q_HEAT_AMBIENT]) / JOULES_PER_WH,
         "heat_stored_Wh": float(stored) / JOULES_PER_WH,
-        "heat_to_coolant_Wh": float(q[m.Q_COOLANT]) / JOULES_PER_WH,
-        "heat_radiated_Wh": float(q[m.Q_RADIATION]) / JOULES_PER_WH,
-        "heater_energy_Wh": float(q[m.Q_HEATER]) / JOULES_PER_WH,
-        "heater_energy_from_pack_Wh": float(q[m.Q_HEATER]) / JOULES_PER_WH
+        "heat_to_coolant_Wh": float(q[L.Q_COOLANT]) / JOULES_PER_WH,
+        "heat_radiated_Wh": float(q[L.Q_RADIATION]) / JOULES_PER_WH,
+        "heater_energy_Wh": float(q[L.Q_HEATER]) / JOULES_PER_WH,
+        "heater_energy_from_pack_Wh": float(q[L.Q_HEATER]) / JOULES_PER_WH
         if th.heater is not None and th.heater.from_pack else 0.0,
         "thermostat_switches": sum(1 for e in trajectory.events if e["event"].endswith("_switch")
                                    and e["event"] != "cv_switch"),
         "efficiency": efficiency,
-        "charge_throughput_Ah": float(q[m.Q_THROUGHPUT]) / COULOMBS_PER_AH,
+        "charge_throughput_Ah": float(q[L.Q_THROUGHPUT]) / COULOMBS_PER_AH,
         "soc_start": float(states[0, 0]),
         "soc_end": float(states[-1, 0]),
         "time_charging_below_limit_s": float(cold_time),

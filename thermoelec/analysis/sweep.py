@@ -27,18 +27,12 @@ from typing import Any
 
 import numpy as np
 
+from thermoelec.analysis.metrics import METRICS
 from thermoelec.scenario import Scenario, ScenarioError, parse_value
 
 __all__ = ["METRICS", "Criterion", "SweepAxis", "SweepPlan", "design_search", "parse_criterion", "plan_sweep",
            "run_sweep", "sweep_dataset"]
 
-#: Summary metrics kept per scenario (the numeric keys of the output contract and a few more).
-METRICS: tuple[str, ...] = (
-    "completed", "duration_s", "cell_temperature_max_degC", "cell_temperature_rise_K", "sink_temperature_max_degC",
-    "voltage_min_V", "current_max_A", "energy_battery_Wh", "energy_load_Wh", "energy_dissipated_Wh",
-    "energy_discharged_Wh", "heat_generated_Wh", "heat_to_ambient_Wh", "efficiency", "charge_throughput_Ah",
-    "soc_end", "voltage_margin_min_V", "temperature_margin_K", "equivalent_time_at_reference_s",
-)
 _QUANTITY = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
 
 
@@ -191,6 +185,7 @@ def run_chunk(scenario: Scenario, plan: SweepPlan, indices: Sequence[int],
     """
     rows: dict[int, dict[str, Any]] = {}
     if engine == "batch" and keep_interval is None:
+        from thermoelec.analysis.metrics import batch_metrics
         from thermoelec.engine import batch
 
         # a batch shares one state layout and one set of solver settings (a swept solver.rtol
@@ -207,7 +202,7 @@ def run_chunk(scenario: Scenario, plan: SweepPlan, indices: Sequence[int],
             outcome = batch.solve_batch([problem for _, problem in members], options)
             for j, (i, problem) in enumerate(members):
                 if outcome.status[j] == "ok":
-                    rows[i] = batch.batch_metrics(problem, outcome, j)
+                    rows[i] = batch_metrics(problem, outcome, j)
                     rows[i]["engine"] = "batch"
     for i in indices:
         if i not in rows:

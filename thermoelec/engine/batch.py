@@ -35,29 +35,42 @@ and soaks (run first, as in the engine's driver).
 
 from __future__ import annotations
 
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 from typing import Any
 
 import numba
 import numpy as np
 
-from thermoelec.analysis.results import energy_totals, round_trip_efficiency
+from thermoelec.engine import layout as L
 from thermoelec.engine import model as m
-from thermoelec.engine.model import Problem
-from thermoelec.engine.solve import (
+from thermoelec.engine.events import (
+    ACTION_NEXT_PHASE,
+    ACTION_STOP,
+    ACTION_TOGGLE,
+    EV_FAN,
+    EVENT_ACTION,
+    EVENT_SCALES,
+    N_EVENTS,
+    STOP_EVENTS,
+)
+from thermoelec.engine.mission import (
     IMPOSED_VOLTAGE_SLACK,
     MIN_PHASE,
     START_PROBE,
-    STOP_EVENTS,
-    SolverOptions,
-    _event_setup,
-    _phases_of,
-    _switches,
-    cccv_cap,
+    MissionPlan,
+    configure_phase,
+    initial_controls,
+    plan_mission,
+    soak_problem,
+    start_after_soak,
+    thermostat_switches,
 )
+from thermoelec.engine.options import SolverOptions
+from thermoelec.engine.problem import Problem, pack_parameters
 from thermoelec.physics.cell import arrhenius_ageing_rate
+from thermoelec.physics.loads import MODE_VOLTAGE
 
-__all__ = ["BatchOutcome", "batch_metrics", "solve_batch"]
+__all__ = ["EXTREMES", "BatchOutcome", "solve_batch"]
 
 #: Event times are located to this many seconds.
 EVENT_TIME_TOLERANCE = 1e-7
@@ -75,6 +88,10 @@ _ORDER_EXPONENT = -1.0 / 3.0
 
 # per-scenario running extremes and integrals written by the kernel (what the sweep metrics need)
 X_TC_MAX, X_TS_MAX, X_V_MIN, X_VCELL_MIN, X_I_ABS, X_ARRHENIUS, N_EXTRA = 0, 1, 2, 3, 4, 5, 6
+#: The names of the extremes, by index: highest cell and sink temperature [K], lowest pack and cell
+#: voltage [V], largest current magnitude [A], Arrhenius-weighted time at the reference temperature [s].
+EXTREMES = ("cell_temperature_max", "sink_temperature_max", "voltage_min", "cell_voltage_min", "current_abs_max",
+            "equivalent_time_at_reference")
 #: Their values before the first observation.
 _EXTRA_START = np.array([-np.inf, -np.inf, np.inf, np.inf, 0.0, 0.0])
 
@@ -91,15 +108,15 @@ def _rk_step(y, p, t, h, k, tmp, alg, out, err):
     n = y.size
     for i in range(n):
         tmp[i] = y[i] + h * _A21 * k[0, i]
-    p[m.H_TIME] = t + 0.5 * h
+    p[L.H_TIME] = t + 0.5 * h
     m.evaluate(tmp, p, k[1], alg)
     for i in range(n):
         tmp[i] = y[i] + h * _A32 * k[1, i]
-    p[m.H_TIME] = t + 0.75 * h
+    p[L.H_TIME] = t + 0.75 * h
     m.evaluate(tmp, p, k[2], alg)
     for i in range(n):
         out[i] = y[i] + h * (_B1 * k[0, i] + _B2 * k[1, i] + _B3 * k[2, i])
-    p[m.H_TIME] = t + h
+    p[L.H_TIME] = t + h
     m.evaluate(out, p, k[3], alg)
     for i in range(n):
         err[i] = h * (_E1 * k[0, i] + _E2 * k[1, i] + _E3 * k[2, i] + _E4 * k[3, i])
@@ -119,15 +136,15 @@ def _observe(y, alg, extra, tc_index, ts_index):
     """Running extremes from the state and its algebraic outputs."""
     extra[X_TC_MAX] = max(extra[X_TC_MAX], y[tc_index])
     extra[X_TS_MAX] = max(extra[X_TS_MAX], y[ts_index])
-    extra[X_V_MIN] = min(extra[X_V_MIN], alg[m.A_VOLTAGE])
-    extra[X_VCELL_MIN] = min(extra[X_VCELL_MIN], alg[m.A_CELL_VOLTAGE])
-    extra[X_I_ABS] = max(extra[X_I_ABS], abs(alg[m.A_CURRENT]))
+    extra[X_V_MIN] = min(extra[X_V_MIN], alg[L.A_VOLTAGE])
+    extra[X_VCELL_MIN] = min(extra[X_VCELL_MIN], alg[L.A_CELL_VOLTAGE])
+    extra[X_I_ABS] = max(extra[X_I_ABS], abs(alg[L.A_CURRENT]))
 
 
 @numba.njit(cache=True, error_model="numpy")
 def _any_fired(g, p):
-    for e in range(m.N_EVENTS):
-        if p[m.H_ACTIVE + e] != 0.0 and g[e] <= 0.0:
+    for e in range(N_EVENTS):
+        if p[L.H_ACTIVE + e] != 0.0 and g[e] <= 0.0:
             return True
     return False
 
@@ -135,41 +152,14 @@ def _any_fired(g, p):
 @numba.njit(cache=True, error_model="numpy")
 def _near_zero(g, p):
     """True when an active root function is within its tolerance of zero (then the full start check runs)."""
-    for e in range(m.N_EVENTS):
-        if p[m.H_ACTIVE + e] != 0.0 and g[e] <= 1e-6 * m.EVENT_SCALES[e]:
+    for e in range(N_EVENTS):
+        if p[L.H_ACTIVE + e] != 0.0 and g[e] <= 1e-6 * EVENT_SCALES[e]:
             return True
     return False
 
 
-#: What an event does to the phase it fires in (kernel codes).
-_ACT_STOP, _ACT_NEXT_PHASE, _ACT_END_SEGMENT, _ACT_TOGGLE = 0, 1, 2, 3
-_EVENT_ACTION = np.full(m.N_EVENTS, _ACT_END_SEGMENT, dtype=np.int64)  # cutoff and end conditions
-for _e in STOP_EVENTS:
-    _EVENT_ACTION[_e] = _ACT_STOP
-_EVENT_ACTION[m.EV_CV_SWITCH] = _ACT_NEXT_PHASE
-for _e in m.CONTROL_EVENTS:
-    _EVENT_ACTION[_e] = _ACT_TOGGLE
 #: Events a scenario may fire at one instant before it is handed to CVODE (a chattering thermostat).
 MAX_EVENTS_PER_SEGMENT = 1000
-
-
-@numba.njit(cache=True, error_model="numpy")
-def _configure(p, seg, phase, modes, values, ambients, setups, setup_index, default_ambient, default_table,
-               switches, controls):
-    """Write one phase's demand, ambient, root-function set-up and thermostat states into ``p``
-    (as ``solve._configure``)."""
-    p[m.H_MODE] = modes[seg, phase]
-    p[m.H_VALUE] = values[seg, phase]
-    own = not np.isnan(ambients[seg])  # a segment with its own ambient overrides the ambient profile
-    p[m.H_AMBIENT] = ambients[seg] if own else default_ambient
-    p[m.H_AMBIENT_TABLE] = 0.0 if own else default_table
-    p[m.H_ACTIVE:m.H_THRESHOLD + m.N_EVENTS] = setups[setup_index[seg, phase]]
-    for c in range(switches.shape[0]):
-        if switches[c, 0] != 0.0:
-            event = m.EV_FAN + c
-            p[m.CONTROL_FLAG_OF[c]] = 1.0 if controls[c] else 0.0
-            p[m.H_ACTIVE + event] = 1.0
-            p[m.H_THRESHOLD + event] = switches[c, 2] if controls[c] else switches[c, 1]
 
 
 @numba.njit(cache=True, error_model="numpy")
@@ -185,10 +175,10 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
     n = y.size
     k = np.empty((4, n))
     tmp, out, err, trial, scratch = np.empty(n), np.empty(n), np.empty(n), np.empty(n), np.empty(n)
-    g, g_ahead = np.empty(m.N_EVENTS), np.empty(m.N_EVENTS)
-    alg = np.empty(m.N_ALGEBRAICS)
-    default_ambient = p[m.H_AMBIENT]
-    default_table = p[m.H_AMBIENT_TABLE]
+    g, g_ahead = np.empty(N_EVENTS), np.empty(N_EVENTS)
+    alg = np.empty(L.N_ALGEBRAICS)
+    default_ambient = p[L.H_AMBIENT]
+    default_table = p[L.H_AMBIENT_TABLE]
     h = 0.05
     rate_prev = arrhenius_ageing_rate(y[tc_index], ea, t_ref)
     t = 0.0
@@ -197,17 +187,17 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
         phase = 0
         events = 0
         while True:
-            _configure(p, seg, phase, modes, values, ambients, setups, setup_index, default_ambient, default_table,
-                       switches, controls)
-            p[m.H_TIME] = t
+            configure_phase(p, seg, phase, modes, values, ambients, setups, setup_index, default_ambient,
+                            default_table, switches, controls)
+            p[L.H_TIME] = t
             m.evaluate(y, p, k[0], alg)  # the demand changed: a new first stage
             m.roots_from(y, g, p, alg)
             code = -1
             # the engine's full check where a limit is reached or near, and always with the
             # terminal voltage imposed (the cell limits are checked only there)
-            if _near_zero(g, p) or p[m.H_MODE] == m.MODE_VOLTAGE:
+            if _near_zero(g, p) or p[L.H_MODE] == MODE_VOLTAGE:
                 code = m.start_check(y, p, alg, scratch, g, g_ahead, START_PROBE, IMPOSED_VOLTAGE_SLACK)
-                p[m.H_TIME] = t
+                p[L.H_TIME] = t
                 m.evaluate(y, p, k[0], alg)
             _observe(y, alg, extra, tc_index, ts_index)
             if code < 0:
@@ -267,12 +257,12 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
             events += 1
             if events > MAX_EVENTS_PER_SEGMENT:
                 return 2, -1, t
-            action = _EVENT_ACTION[code]
-            if action == _ACT_STOP:
+            action = EVENT_ACTION[code]
+            if action == ACTION_STOP:
                 return 1, code, t
-            if action == _ACT_TOGGLE:
-                controls[code - m.EV_FAN] = not controls[code - m.EV_FAN]
-            elif action == _ACT_NEXT_PHASE and phase + 1 < n_phases[seg]:
+            if action == ACTION_TOGGLE:
+                controls[code - EV_FAN] = not controls[code - EV_FAN]
+            elif action == ACTION_NEXT_PHASE and phase + 1 < n_phases[seg]:
                 phase += 1
             else:
                 break  # a cutoff or an end condition ends the segment
@@ -313,60 +303,46 @@ class BatchOutcome:
     initial_states: np.ndarray  # where each mission started (after its soak)
 
 
-def _segment_arrays(problem: Problem) -> tuple[np.ndarray, ...]:
-    """Phases, demands, durations, ambients and event set-ups of every segment (cached: sweeps share profiles)."""
-    cell = problem.cell
-    # the scenarios of a sweep share their segment tuple (scenario._profile_segments): it is
-    # recognised by identity, and kept with the arrays so that its identity stays its own;
-    # the rest is what the event set-ups and the CC-CV cap read besides the segments
-    key = (id(problem.segments), cell.voltage_min, cell.voltage_max, cell.capacity, problem.pack.series,
-           problem.pack.parallel, problem.limits.cell_temperature_max)
-    hit = _SEGMENT_CACHE.get(key)
-    if hit is None or hit[1] is not problem.segments:
-        if len(_SEGMENT_CACHE) >= 64:
-            _SEGMENT_CACHE.clear()
-        hit = _SEGMENT_CACHE[key] = (_build_segment_arrays(problem), problem.segments)
-    return hit[0]
+def _plans(problems: list[Problem]) -> tuple[list[MissionPlan], np.ndarray]:
+    """The distinct mission plans of a batch, and which one each problem walks.
+
+    The scenarios of a sweep mostly share one profile (one segment tuple, from the
+    scenario family's cache): a plan is made once per segment tuple and the limits
+    its set-ups read besides the segments (:func:`thermoelec.engine.mission.event_setup`, the CC-CV cap).
+    """
+    plans: list[MissionPlan] = []
+    seen: list[tuple[tuple, tuple]] = []
+    which = np.empty(len(problems), dtype=np.int64)
+    for i, problem in enumerate(problems):
+        cell = problem.cell
+        limits = (cell.voltage_min, cell.voltage_max, cell.capacity, problem.pack.series, problem.pack.parallel,
+                  problem.limits.cell_temperature_max)
+        for j, (segments, known) in enumerate(seen):
+            if segments is problem.segments and known == limits:
+                which[i] = j
+                break
+        else:
+            which[i] = len(plans)
+            seen.append((problem.segments, limits))
+            plans.append(plan_mission(problem))
+    return plans, which
 
 
-_SEGMENT_CACHE: dict[tuple, tuple] = {}
+def _stack(plans: list[MissionPlan]) -> tuple[np.ndarray, ...]:
+    """The plans' arrays stacked along a first axis, padded: a one-phase segment of zero length does nothing."""
+    n_seg = max(plan.n_segments for plan in plans)
+    n_kinds = max(len(plan.setups) for plan in plans)
 
+    def stack(name: str, shape: tuple, fill: Any, dtype: Any = float) -> np.ndarray:
+        out = np.full((len(plans), *shape), fill, dtype=dtype)
+        for i, plan in enumerate(plans):
+            values = getattr(plan, name)
+            out[i, :len(values)] = values
+        return out
 
-def _build_segment_arrays(problem: Problem) -> tuple[np.ndarray, ...]:
-    """Per segment: its phase count, each phase's mode, demand and set-up index; duration; ambient."""
-    kinds: dict[tuple, int] = {}
-    blocks = []
-    n_seg = len(problem.segments)
-    n_phases = np.ones(n_seg, dtype=np.int64)
-    modes, values = np.zeros((n_seg, 2)), np.zeros((n_seg, 2))
-    index = np.zeros((n_seg, 2), dtype=np.int64)
-    durations, ambients = np.empty(n_seg), np.empty(n_seg)
-    for s, seg in enumerate(problem.segments):
-        phases = _phases_of(seg)
-        n_phases[s] = len(phases)
-        for j, phase in enumerate(phases):
-            # the key of solve._configure: what _event_setup reads of the segment and the phase
-            key = (phase.kind, phase.mode, phase.value > 0.0, seg.cv_voltage, seg.cutoff_current,
-                   seg.voltage_below, seg.voltage_above, seg.soc_below, seg.soc_above)
-            if key not in kinds:
-                kinds[key] = len(blocks)
-                blocks.append(_event_setup(problem, seg, phase))
-            modes[s, j], values[s, j], index[s, j] = phase.mode, phase.value, kinds[key]
-        durations[s] = seg.duration if np.isfinite(seg.duration) else cccv_cap(problem, seg)
-        ambients[s] = np.nan if seg.ambient_temperature is None else seg.ambient_temperature
-    return n_phases, modes, values, durations, ambients, np.array(blocks), index
-
-
-def _thermostats(problem: Problem, t_cell: float) -> tuple[np.ndarray, np.ndarray]:
-    """Fan, heater and pump switches as rows ``(present, on_at, off_at)`` [-, K, K], and whether
-    each starts on at the cell temperature ``t_cell`` [K] (as the engine decides)."""
-    switches = np.zeros((len(m.CONTROL_EVENTS), 3))
-    controls = np.zeros(len(m.CONTROL_EVENTS), dtype=np.bool_)
-    for event, switch in _switches(problem).items():
-        c = event - m.EV_FAN
-        switches[c] = (1.0, switch.on_at, switch.off_at)
-        controls[c] = switch.initially_on(t_cell)
-    return switches, controls
+    return (stack("n_phases", (n_seg,), 1, np.int64), stack("modes", (n_seg, 2), 0.0),
+            stack("values", (n_seg, 2), 0.0), stack("durations", (n_seg,), 0.0), stack("ambients", (n_seg,), np.nan),
+            stack("setups", (n_kinds, 2 * N_EVENTS), 0.0), stack("setup_index", (n_seg, 2), 0, np.int64))
 
 
 def solve_batch(problems: list[Problem], options: SolverOptions) -> BatchOutcome:
@@ -375,6 +351,19 @@ def solve_batch(problems: list[Problem], options: SolverOptions) -> BatchOutcome
     As in the engine's driver, the soak segments of a problem run first, as a
     problem of their own (here: a batch of the soaks); its mission starts at
     t = 0 from the state they end in, with the integrals reset.
+
+    Parameters
+    ----------
+    problems : list of Problem
+        Scenarios with one state layout.
+    options : SolverOptions
+        Tolerances (one set for the batch).
+
+    Returns
+    -------
+    BatchOutcome
+        Per scenario: ``ok`` or ``fallback`` (to be run on CVODE), stop reason,
+        end time and state, and the running extremes of :data:`EXTREMES`.
     """
     n_rc = problems[0].n_rc
     if any(p.n_rc != n_rc for p in problems):
@@ -383,73 +372,28 @@ def solve_batch(problems: list[Problem], options: SolverOptions) -> BatchOutcome
     soaked = [i for i, p in enumerate(problems) if p.soak]
     soak_failed = set()
     if soaked:
-        soaks = solve_batch([replace(problems[i], segments=problems[i].soak, soak=()) for i in soaked], options)
+        soaks = solve_batch([soak_problem(problems[i]) for i in soaked], options)
         for j, i in enumerate(soaked):
             if soaks.status[j] != "ok":
                 soak_failed.add(i)
                 continue
-            y0[i] = soaks.states[j]
-            y0[i, m.quadrature_index(n_rc):] = 0.0
-    params_list = [m.pack_parameters(p) for p in problems]
-    width = max(len(p) for p in params_list)
-    params = np.zeros((len(problems), width))
+            y0[i] = start_after_soak(soaks.states[j], n_rc)
+    params_list = [pack_parameters(p) for p in problems]
+    params = np.zeros((len(problems), max(len(p) for p in params_list)))
     for i, p in enumerate(params_list):
         params[i, :len(p)] = p
-    # the scenarios of a sweep mostly share their profile: its arrays are stacked once
-    profiles: dict[int, int] = {}
-    arrays = []
-    which = np.empty(len(problems), dtype=np.int64)
-    for i, problem in enumerate(problems):
-        a = _segment_arrays(problem)
-        if id(a) not in profiles:
-            profiles[id(a)] = len(arrays)
-            arrays.append(a)
-        which[i] = profiles[id(a)]
-    n_seg = max(len(a[0]) for a in arrays)
-    n_kinds = max(len(a[5]) for a in arrays)
-
-    def stack(j: int, shape: tuple, fill: Any, dtype: Any = float) -> np.ndarray:
-        out = np.full((len(arrays), *shape), fill, dtype=dtype)
-        for i, a in enumerate(arrays):
-            out[i, :len(a[j])] = a[j]
-        return out
-
-    # padding: a one-phase segment of zero length does nothing
-    n_phases = stack(0, (n_seg,), 1, np.int64)
-    modes, values = stack(1, (n_seg, 2), 0.0), stack(2, (n_seg, 2), 0.0)
-    durations, ambients = stack(3, (n_seg,), 0.0), stack(4, (n_seg,), np.nan)
-    setups, index = stack(5, (n_kinds, 2 * m.N_EVENTS), 0.0), stack(6, (n_seg, 2), 0, np.int64)
-    tc_index = m.cell_temperature_index(n_rc)
-    thermostats = [_thermostats(p, y0[i, tc_index]) for i, p in enumerate(problems)]
-    switches = np.array([s for s, _ in thermostats])
-    controls = np.array([c for _, c in thermostats])
+    plans, which = _plans(problems)
+    n_phases, modes, values, durations, ambients, setups, index = _stack(plans)
+    tc_index = L.cell_temperature_index(n_rc)
+    switches = np.array([thermostat_switches(p) for p in problems])
+    controls = np.array([initial_controls(s, y0[i, tc_index]) for i, s in enumerate(switches)])
     atol = np.tile(options.atol_vector(n_rc), (len(problems), 1))
     ea = np.array([p.stress.activation_energy for p in problems])
     t_ref = np.array([p.stress.reference_temperature for p in problems])
     states, extras, status, events, times = _integrate_many(
         params, which, n_phases, modes, values, durations, ambients, setups, index, switches, controls, y0,
-        options.rtol, atol, ea, t_ref, tc_index, m.sink_temperature_index(n_rc))
+        options.rtol, atol, ea, t_ref, tc_index, L.sink_temperature_index(n_rc))
     stop = [STOP_EVENTS.get(int(e), "end_of_profile") if s == 1 else "end_of_profile"
             for s, e in zip(status, events, strict=True)]
     names = ["fallback" if s == 2 or i in soak_failed else "ok" for i, s in enumerate(status)]
     return BatchOutcome(names, stop, times, states, extras, y0)
-
-
-def batch_metrics(problem: Problem, outcome: BatchOutcome, i: int) -> dict[str, Any]:
-    """The sweep metrics of scenario ``i`` of a batch (as :func:`thermoelec.analysis.sweep._metrics_of` gives them)."""
-    n_rc = problem.n_rc
-    y, x = outcome.states[i], outcome.extras[i]
-    q = y[m.quadrature_index(n_rc):]
-    tc0 = outcome.initial_states[i, m.cell_temperature_index(n_rc)]
-    return {
-        "completed": outcome.stop_reason[i] == "end_of_profile", "duration_s": float(outcome.duration[i]),
-        "cell_temperature_max_degC": x[X_TC_MAX] - 273.15, "cell_temperature_rise_K": x[X_TC_MAX] - tc0,
-        "sink_temperature_max_degC": x[X_TS_MAX] - 273.15, "voltage_min_V": x[X_V_MIN],
-        "current_max_A": x[X_I_ABS], **energy_totals(q), "heat_generated_Wh": q[m.Q_HEAT] / 3600.0,
-        "heat_to_ambient_Wh": q[m.Q_HEAT_AMBIENT] / 3600.0, "efficiency": round_trip_efficiency(q),
-        "charge_throughput_Ah": q[m.Q_THROUGHPUT] / 3600.0, "soc_end": float(y[0]),
-        "voltage_margin_min_V": x[X_VCELL_MIN] - problem.cell.voltage_min,
-        "temperature_margin_K": problem.limits.cell_temperature_max - x[X_TC_MAX],
-        "equivalent_time_at_reference_s": x[X_ARRHENIUS],
-        "status": "ok", "message": "", "stop_reason": outcome.stop_reason[i],
-    }

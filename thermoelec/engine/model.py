@@ -1,53 +1,145 @@
-"""The coupled electro-thermal right-hand side, its Jacobian and event functions.
-
-States (SI units), for one scenario::
-
-    y[0]                 z      state of charge [-]
-    y[1 : 1+n]           v_k    RC-pair voltages of one cell [V]
-    y[1+n]               Tc     lumped cell temperature [K]
-    y[2+n]               Ts     heat-sink node temperature [K]
-    y[3+n]               Tf     coolant node temperature [K] (constant without a coolant mass)
-    y[4+n : 4+n+11]      running integrals (quadratures), see ``Q_*`` below
+"""The coupled electro-thermal right-hand side, its Jacobian and event functions (numba kernels).
 
 Equations (see DESIGN notes): Thevenin cell ``V = U - sum v_k - I R0`` with
 ``U(z, T) = U_ref(z) + (T - T_ref) dU/dT(z)``; pack ``Ns x Np`` with
 ``E = Ns (U - sum v_k)``, ``R_tot = Ns R0 / Np + R_ic``; the pack current is
-closed-form for each load mode; Bernardi heat; two lumped thermal nodes and an
-optional coolant node; convection from correlations, radiation, thermostatic
-fan, heater and pump (their on/off states are phase parameters, switched at
-located events).
+closed-form for each load mode (:func:`thermoelec.physics.loads.pack_current`);
+Bernardi heat; two lumped thermal nodes and an optional coolant node;
+convection from correlations, radiation, thermostatic fan, heater and pump
+(their on/off states are phase parameters, switched at located events).
 
 The quadratures integrate battery and load energy, heat generated, heat rejected
 to ambient and charge throughput with the same integrator as the states. BDF is
 a linear method, so the linear invariant ``heat generated = heat stored + heat
 to ambient`` is kept to the Newton tolerance, not only to the error tolerance.
 
-All kernels read their parameters from one flat float64 vector built by
-:func:`pack_parameters`, because a numba call with one array argument costs a
-fraction of one with twenty: the right-hand side is called ~10^5 times a mission.
+Every kernel reads the flat parameter vector of :mod:`thermoelec.engine.layout`
+(states, quadratures, algebraic outputs and parameter slots are declared there).
+This module knows no integrator and no mission: the drivers call it.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
-
 import numba
 import numpy as np
 
-from thermoelec.engine.profile import Segment
+from thermoelec.engine.events import (
+    EV_CV_CUTOFF,
+    EV_CV_SWITCH,
+    EV_END_SOC_ABOVE,
+    EV_END_SOC_BELOW,
+    EV_END_VOLTAGE_ABOVE,
+    EV_END_VOLTAGE_BELOW,
+    EV_FAN,
+    EV_HEATER,
+    EV_POWER,
+    EV_SOC_EMPTY,
+    EV_SOC_FULL,
+    EV_TEMPERATURE,
+    EV_VOLTAGE_MAX,
+    EV_VOLTAGE_MIN,
+    EVENT_PRIORITY,
+    EVENT_RANK,
+    EVENT_SCALES,
+    N_EVENTS,
+    ROOT_TOLERANCE,
+)
+from thermoelec.engine.layout import (
+    A_AMBIENT,
+    A_CELL_VOLTAGE,
+    A_COOLANT,
+    A_COOLANT_OUTLET,
+    A_CURRENT,
+    A_EMF,
+    A_ENTROPIC,
+    A_HEAT,
+    A_HEAT_AMBIENT,
+    A_HEATER,
+    A_OCV,
+    A_POWER_MARGIN,
+    A_R0,
+    A_RADIATION,
+    A_RAYLEIGH,
+    A_RESISTANCE,
+    A_REVERSIBLE,
+    A_REYNOLDS,
+    A_SINK_CONDUCTANCE,
+    A_VOLTAGE,
+    CONTROL_FLAG_OF,
+    H_ACTIVE,
+    H_AIR_SPEED,
+    H_AMBIENT,
+    H_AMBIENT_TABLE,
+    H_CAPACITY,
+    H_CCELL,
+    H_CONV_AREA,
+    H_CONV_LENGTH,
+    H_COOL_C,
+    H_COOL_G,
+    H_COOL_INLET,
+    H_COOL_MCP,
+    H_COOL_UA,
+    H_CSINK,
+    H_EMISSIVITY,
+    H_FAN_G,
+    H_FAN_ON,
+    H_FAN_SPEED,
+    H_FORCED,
+    H_GCA,
+    H_GCS,
+    H_GSA,
+    H_HEATER_FROM_PACK,
+    H_HEATER_ON,
+    H_HEATER_POWER,
+    H_MODE,
+    H_NATURAL,
+    H_NP,
+    H_NRC,
+    H_NS,
+    H_OCV,
+    H_PUMP_ON,
+    H_R0,
+    H_RAD_AREA,
+    H_RC,
+    H_RIC,
+    H_SURROUNDINGS,
+    H_THRESHOLD,
+    H_TIME,
+    H_VALUE,
+    LAW_EA,
+    LAW_NT,
+    LAW_REFERENCE,
+    N_ALGEBRAICS,
+    OCV_REFERENCE,
+    Q_BATTERY_CHARGE,
+    Q_BATTERY_DISCHARGE,
+    Q_COOLANT,
+    Q_HEAT,
+    Q_HEAT_AMBIENT,
+    Q_HEATER,
+    Q_LOAD_CHARGE,
+    Q_LOAD_DISCHARGE,
+    Q_RADIATION,
+    Q_REVERSIBLE,
+    Q_THROUGHPUT,
+    RC_KIND,
+    RC_LAW,
+    RC_VALUE,
+    ambient_at,
+    law_value,
+    ocv_at,
+    rc_length,
+)
 from thermoelec.physics import cell as cellphys
 from thermoelec.physics import thermal as thermphys
-from thermoelec.physics.cell import Cell, Pack, ResistanceLaw
-from thermoelec.physics.thermal import ThermalNetwork
+from thermoelec.physics.loads import MODE_POWER, MODE_VOLTAGE, pack_current, power_deliverable_margin
+
+__all__ = ["Kernels", "evaluate", "evaluate_rows", "roots", "trajectory_algebraics"]
 
 _jit = numba.njit(cache=True, nogil=True, error_model="numpy")
 
-_arrhenius = cellphys.arrhenius_factor
 _ocv = cellphys.open_circuit_voltage
-_current_for_power = cellphys.current_for_power
-_current_for_resistance = cellphys.current_for_resistance
-_current_for_voltage = cellphys.current_for_voltage
-_power_margin = cellphys.power_deliverable_margin
+_power_margin = power_deliverable_margin
 _bernardi = cellphys.bernardi_heat
 _cell_rate = thermphys.cell_node_rate
 _sink_rate = thermphys.sink_node_rate
@@ -55,303 +147,6 @@ _h_from_numbers = thermphys.coefficient_from_numbers
 _conv_numbers = thermphys.convection_numbers
 _radiation = thermphys.radiation_heat
 _effectiveness = thermphys.coolant_effectiveness
-_aux_voltage = cellphys.terminal_voltage_with_auxiliary_load
-
-# ---- load modes of a phase (a segment is one or two phases) -------------------
-MODE_CURRENT, MODE_POWER, MODE_RESISTANCE, MODE_VOLTAGE = 0, 1, 2, 3
-MODE_CODES = {"current": MODE_CURRENT, "power": MODE_POWER, "resistance": MODE_RESISTANCE,
-              "voltage": MODE_VOLTAGE}
-
-# ---- events: root functions g_k, positive while all is well --------------------
-EV_VOLTAGE_MIN, EV_VOLTAGE_MAX, EV_POWER, EV_TEMPERATURE = 0, 1, 2, 3
-EV_SOC_EMPTY, EV_SOC_FULL, EV_CV_SWITCH, EV_CV_CUTOFF = 4, 5, 6, 7
-EV_END_VOLTAGE_BELOW, EV_END_VOLTAGE_ABOVE, EV_END_SOC_BELOW, EV_END_SOC_ABOVE = 8, 9, 10, 11
-EV_FAN, EV_HEATER, EV_PUMP = 12, 13, 14
-N_EVENTS = 15
-EVENT_NAMES = ("voltage_min", "voltage_max", "power_limit", "temperature_max", "soc_empty", "soc_full",
-               "cv_switch", "cv_cutoff", "end_voltage_below", "end_voltage_above", "end_soc_below",
-               "end_soc_above", "fan_switch", "heater_switch", "pump_switch")
-#: Scale of each root function, to compare how close to zero they are
-#: [V, V, V², K, -, -, V, A, V, V, -, -, K, K, K].
-EVENT_SCALES = (1.0, 1.0, 100.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0, 1.0)
-#: A root function within this many of its scales of zero (or below) counts as fired.
-ROOT_TOLERANCE = 1e-9
-#: Which event wins when several fire at once (lower rank first): the stops, then switches and ends,
-#: then the thermostats (a thermostat event does not end anything; it toggles and the phase goes on).
-EVENT_PRIORITY = (2, 0, 1, 3, 4, 5, 6, 7, 8, 9, 10, 11, 12, 13, 14)
-EVENT_RANK = tuple(EVENT_PRIORITY.index(k) for k in range(N_EVENTS))
-#: Thermostat events and the header flag each one toggles (filled in below the header).
-CONTROL_EVENTS = (EV_FAN, EV_HEATER, EV_PUMP)
-
-# ---- quadratures (offsets after the dynamic states) ----------------------------
-Q_BATTERY_DISCHARGE = 0  # ∫ Ns U I+ dt  [J]
-Q_BATTERY_CHARGE = 1     # ∫ Ns U I- dt  [J] (negative)
-Q_LOAD_DISCHARGE = 2     # ∫ V I+ dt     [J]
-Q_LOAD_CHARGE = 3        # ∫ V I- dt     [J] (negative)
-Q_HEAT = 4               # ∫ heat generated (cells + interconnect) dt [J]
-Q_REVERSIBLE = 5         # ∫ reversible (entropic) heat dt [J]
-Q_HEAT_AMBIENT = 6       # ∫ heat rejected to ambient dt [J]
-Q_THROUGHPUT = 7         # ∫ |I| dt      [C]
-Q_HEATER = 8             # ∫ heater power dt [J]
-Q_COOLANT = 9            # ∫ heat carried away by the coolant dt [J]
-Q_RADIATION = 10         # ∫ radiation from the sink dt [J] (part of Q_HEAT_AMBIENT)
-N_QUADRATURES = 11
-
-# ---- algebraic outputs ---------------------------------------------------------
-A_CURRENT, A_VOLTAGE, A_CELL_VOLTAGE, A_OCV, A_EMF, A_RESISTANCE = 0, 1, 2, 3, 4, 5
-A_HEAT, A_REVERSIBLE, A_HEAT_AMBIENT, A_ENTROPIC, A_R0, A_POWER_MARGIN = 6, 7, 8, 9, 10, 11
-A_AMBIENT, A_HEATER, A_COOLANT, A_RADIATION, A_SINK_CONDUCTANCE, A_COOLANT_OUTLET = 12, 13, 14, 15, 16, 17
-A_REYNOLDS, A_RAYLEIGH = 18, 19
-N_ALGEBRAICS = 20
-ALGEBRAIC_NAMES = ("current", "voltage", "cell_voltage", "ocv", "emf", "resistance", "heat",
-                   "reversible_heat", "heat_to_ambient", "entropic", "r0", "power_margin", "ambient",
-                   "heater", "coolant", "radiation", "sink_conductance", "coolant_outlet", "reynolds", "rayleigh")
-
-# ---- header of the flat parameter vector ---------------------------------------
-H_MODE, H_VALUE, H_AMBIENT = 0, 1, 2
-H_NS, H_NP, H_RIC, H_CAPACITY = 3, 4, 5, 6
-H_CCELL, H_CSINK, H_GCS, H_GSA, H_GCA = 7, 8, 9, 10, 11
-H_NRC, H_OCV, H_R0, H_RC = 12, 13, 14, 15
-H_TIME = 16                        # current time [s], written by the callers (time-dependent ambient)
-H_AMBIENT_TABLE = 17               # offset of the ambient profile block, 0 for none
-H_FORCED, H_NATURAL, H_CONV_LENGTH, H_CONV_AREA, H_AIR_SPEED = 18, 19, 20, 21, 22
-H_FAN_ON, H_FAN_SPEED, H_FAN_G = 23, 24, 25     # fan speed < 0: the fan leaves the air speed alone
-H_EMISSIVITY, H_RAD_AREA, H_SURROUNDINGS = 26, 27, 28  # surroundings 0: ambient
-H_COOL_MCP, H_COOL_UA, H_COOL_G, H_COOL_C, H_COOL_INLET, H_PUMP_ON = 29, 30, 31, 32, 33, 34
-H_HEATER_ON, H_HEATER_POWER, H_HEATER_FROM_PACK = 35, 36, 37
-CONTROL_FLAGS = {EV_FAN: H_FAN_ON, EV_HEATER: H_HEATER_ON, EV_PUMP: H_PUMP_ON}
-CONTROL_FLAG_OF = (H_FAN_ON, H_HEATER_ON, H_PUMP_ON)  # by event - EV_FAN, for the kernels
-H_ACTIVE = 38                      # N_EVENTS activity flags
-H_THRESHOLD = H_ACTIVE + N_EVENTS  # N_EVENTS thresholds
-HEADER = H_THRESHOLD + N_EVENTS
-
-
-def n_states(n_rc: int) -> int:
-    """Number of states for ``n_rc`` RC pairs (dynamic states plus quadratures)."""
-    return 4 + n_rc + N_QUADRATURES
-
-
-def n_dynamic(n_rc: int) -> int:
-    """Number of dynamic (non-quadrature) states."""
-    return 4 + n_rc
-
-
-def cell_temperature_index(n_rc: int) -> int:
-    """Index of the cell temperature in the state vector."""
-    return 1 + n_rc
-
-
-def sink_temperature_index(n_rc: int) -> int:
-    """Index of the sink temperature in the state vector."""
-    return 2 + n_rc
-
-
-def coolant_temperature_index(n_rc: int) -> int:
-    """Index of the coolant node temperature in the state vector."""
-    return 3 + n_rc
-
-
-def quadrature_index(n_rc: int) -> int:
-    """Index of the first quadrature in the state vector."""
-    return 4 + n_rc
-
-
-@dataclass(frozen=True)
-class Limits:
-    """Operating limits [V per cell, K]."""
-
-    cell_temperature_max: float = 333.15
-    charge_temperature_min: float = 273.15
-
-
-@dataclass(frozen=True)
-class StressSettings:
-    """How ageing stress is weighed in the report.
-
-    ``activation_energy`` [J/mol] and ``reference_temperature`` [K] set the
-    Arrhenius weighting of time (an hour at T counts as
-    ``exp(-Ea/R (1/T - 1/T_ref))`` hours at T_ref); ``hot_temperature`` [K] is the
-    threshold of the reported "time above" indicator. The default activation
-    energy, 31.5 kJ/mol, is close to the calendar/cycle capacity-fade value
-    reported by J. Wang et al., J. Power Sources 196 (2011) 3942 for
-    graphite/LiFePO4 cells (from memory); give the value of your own chemistry.
-    """
-
-    activation_energy: float = 31_500.0
-    reference_temperature: float = 298.15
-    hot_temperature: float = 318.15
-
-
-@dataclass(frozen=True)
-class Problem:
-    """Everything needed to simulate one scenario, in SI units."""
-
-    cell: Cell
-    pack: Pack
-    thermal: ThermalNetwork
-    segments: tuple[Segment, ...]
-    ambient_temperature: float
-    initial_soc: float
-    initial_cell_temperature: float
-    initial_sink_temperature: float
-    limits: Limits = field(default_factory=Limits)
-    name: str = ""
-    stress: StressSettings = field(default_factory=StressSettings)
-    initial_coolant_temperature: float | None = None
-    ambient_profile: tuple[np.ndarray, np.ndarray] | None = None
-    soak: tuple[Segment, ...] = ()
-
-    @property
-    def n_rc(self) -> int:
-        """Number of RC pairs."""
-        return len(self.cell.rc)
-
-    def initial_state(self) -> np.ndarray:
-        """State vector at t = 0: RC pairs relaxed, integrals zero."""
-        y = np.zeros(n_states(self.n_rc))
-        y[0] = self.initial_soc
-        y[cell_temperature_index(self.n_rc)] = self.initial_cell_temperature
-        y[sink_temperature_index(self.n_rc)] = self.initial_sink_temperature
-        coolant = self.thermal.coolant
-        if self.initial_coolant_temperature is not None:
-            y[coolant_temperature_index(self.n_rc)] = self.initial_coolant_temperature
-        elif coolant is not None:
-            y[coolant_temperature_index(self.n_rc)] = coolant.inlet_temperature
-        else:
-            y[coolant_temperature_index(self.n_rc)] = self.initial_sink_temperature
-        return y
-
-    def ambient_at(self, time: float) -> float:
-        """Ambient temperature [K] at ``time`` [s] from the ambient profile (else the constant)."""
-        if self.ambient_profile is None:
-            return self.ambient_temperature
-        return float(np.interp(time, *self.ambient_profile))
-
-
-def _law_block(law: ResistanceLaw) -> list[float]:
-    nz, nt = len(law.soc), len(law.temperature)
-    return [nz, nt, law.activation_energy, law.reference_temperature,
-            *law.soc, *law.temperature, *np.asarray(law.values, float).ravel()]
-
-
-def pack_parameters(problem: Problem) -> np.ndarray:
-    """The flat parameter vector read by the kernels (phase fields left at zero)."""
-    c, pk, th = problem.cell, problem.pack, problem.thermal
-    header = np.zeros(HEADER)
-    header[H_NS], header[H_NP], header[H_RIC] = pk.series, pk.parallel, pk.interconnect_resistance
-    header[H_CAPACITY] = c.capacity
-    header[H_CCELL] = pk.series * pk.parallel * c.mass * c.specific_heat
-    header[H_CSINK], header[H_GCS] = th.sink_heat_capacity, th.cell_to_sink
-    header[H_GSA], header[H_GCA] = th.sink_to_ambient, th.cell_to_ambient
-    header[H_NRC] = len(c.rc)
-    header[H_AMBIENT] = problem.ambient_temperature
-    _thermal_header(header, th)
-    body: list[float] = []
-    header[H_OCV] = HEADER + len(body)
-    body += [len(c.ocv_soc), c.ocv_reference_temperature, *c.ocv_soc, *c.ocv_voltage, *c.ocv_entropic]
-    header[H_R0] = HEADER + len(body)
-    body += _law_block(c.r0)
-    header[H_RC] = HEADER + len(body)
-    for pair in c.rc:
-        if pair.time_constant is not None:
-            body += [1.0, pair.time_constant]
-        else:
-            body += [0.0, float(pair.capacitance)]
-        body += _law_block(pair.resistance)
-    if problem.ambient_profile is not None:
-        times, values = problem.ambient_profile
-        header[H_AMBIENT_TABLE] = HEADER + len(body)
-        body += [len(times), *times, *values]
-    return np.concatenate([header, np.asarray(body, float)])
-
-
-def _thermal_header(header: np.ndarray, th: ThermalNetwork) -> None:
-    """Cooling options into the header; thermostat flags start off (the driver sets them)."""
-    conv = th.convection
-    if conv is not None:
-        header[H_FORCED] = thermphys.FORCED_CORRELATIONS.get(conv.forced or "", 0)
-        header[H_NATURAL] = thermphys.NATURAL_CORRELATIONS.get(conv.natural or "", 0)
-        header[H_CONV_LENGTH], header[H_CONV_AREA], header[H_AIR_SPEED] = conv.length, conv.area, conv.air_speed
-    header[H_FAN_SPEED] = -1.0
-    if th.fan is not None:
-        header[H_FAN_SPEED] = -1.0 if th.fan.air_speed is None else th.fan.air_speed
-        header[H_FAN_G] = th.fan.conductance
-    if th.radiation is not None:
-        header[H_EMISSIVITY], header[H_RAD_AREA] = th.radiation.emissivity, th.radiation.area
-        header[H_SURROUNDINGS] = th.radiation.surroundings_temperature or 0.0
-    if th.coolant is not None:
-        cool = th.coolant
-        header[H_COOL_MCP], header[H_COOL_UA], header[H_COOL_G] = (cool.capacity_rate, cool.plate_conductance,
-                                                                    cool.conductance)
-        header[H_COOL_C], header[H_COOL_INLET] = cool.heat_capacity, cool.inlet_temperature
-    header[H_PUMP_ON] = 1.0
-    if th.heater is not None:
-        header[H_HEATER_POWER], header[H_HEATER_FROM_PACK] = th.heater.power, float(th.heater.from_pack)
-
-
-# The kernels read tables in place, by offset into ``p``: a slice of ``p`` would make a
-# new array view (with its reference count) at every call, a third of the cost of
-# ``evaluate``. The interpolation rules are those of :func:`thermoelec.physics.cell.bracket`.
-@_jit
-def _bracket_at(p, start, n, x):
-    """:func:`thermoelec.physics.cell.bracket` on the grid ``p[start:start + n]``, read in place."""
-    if n == 1 or x <= p[start]:
-        return 0, 0.0
-    if x >= p[start + n - 1]:
-        return n - 2, 1.0
-    if n <= 32:  # a scan on the short tables of cell data
-        i = 0
-        while p[start + i + 1] <= x:
-            i += 1
-    else:  # bisection on long ones (an ambient profile): p[start + lo] <= x < p[start + hi]
-        lo, hi = 0, n - 1
-        while hi - lo > 1:
-            mid = (lo + hi) // 2
-            if p[start + mid] <= x:
-                lo = mid
-            else:
-                hi = mid
-        i = lo
-    return i, (x - p[start + i]) / (p[start + i + 1] - p[start + i])
-
-
-@_jit
-def _interp1_at(p, grid, values, n, x):
-    """:func:`thermoelec.physics.cell.interpolate_1d` on tables at offsets ``grid`` and ``values`` of ``p``."""
-    i, w = _bracket_at(p, grid, n, x)
-    if n == 1:
-        return p[values]
-    return p[values + i] * (1.0 - w) + p[values + i + 1] * w
-
-
-@_jit
-def _law_value(p, off, z, temperature):
-    """Resistance [Ω] of the resistance-law block that starts at ``off`` (bilinear, as ``cell.interpolate_2d``)."""
-    nz = int(p[off])
-    nt = int(p[off + 1])
-    ea = p[off + 2]
-    a = off + 4
-    if nz == 1 and nt == 1:
-        base = p[a + 2]
-    else:
-        i, wz = _bracket_at(p, a, nz, z)
-        j, wt = _bracket_at(p, a + nz, nt, temperature)
-        i1 = i + 1 if nz > 1 else i
-        j1 = j + 1 if nt > 1 else j
-        v = a + nz + nt
-        low = p[v + j * nz + i] * (1.0 - wz) + p[v + j * nz + i1] * wz
-        high = p[v + j1 * nz + i] * (1.0 - wz) + p[v + j1 * nz + i1] * wz
-        base = low * (1.0 - wt) + high * wt
-    if ea != 0.0:
-        base *= _arrhenius(temperature, ea, p[off + 3])
-    return base
-
-
-@_jit
-def _law_length(p, off):
-    nz = int(p[off])
-    nt = int(p[off + 1])
-    return 4 + nz + nt + nz * nt
 
 
 @_jit
@@ -361,22 +156,24 @@ def _rc_rate(p, off, z, temperature, icell, v):
     Given a time constant, ``C = tau / R(z, T_ref)``; when the law does not depend
     on temperature, ``R(z, T_ref) = R`` and the rate is ``(R I - v) / tau``.
     """
-    r = _law_value(p, off + 2, z, temperature)
-    if p[off] == 1.0:
-        if p[off + 3] == 1.0 and p[off + 4] == 0.0:  # one temperature point, no Arrhenius factor
-            return (r * icell - v) / p[off + 1]
-        r_ref = _law_value(p, off + 2, z, p[off + 5])
-        return (icell - v / r) * r_ref / p[off + 1]
-    return (icell - v / r) / p[off + 1]
+    law = off + RC_LAW
+    r = law_value(p, law, z, temperature)
+    if p[off + RC_KIND] == 1.0:
+        if p[law + LAW_NT] == 1.0 and p[law + LAW_EA] == 0.0:  # one temperature point, no Arrhenius factor
+            return (r * icell - v) / p[off + RC_VALUE]
+        r_ref = law_value(p, law, z, p[law + LAW_REFERENCE])
+        return (icell - v / r) * r_ref / p[off + RC_VALUE]
+    return (icell - v / r) / p[off + RC_VALUE]
 
 
 @_jit
 def _rc_pair(p, off, z, temperature):
     """Resistance [Ω] and capacitance [F] of the RC-pair block that starts at ``off``."""
-    r = _law_value(p, off + 2, z, temperature)
-    if p[off] == 1.0:
-        return r, p[off + 1] / _law_value(p, off + 2, z, p[off + 5])  # C = tau / R(z, T_ref)
-    return r, p[off + 1]
+    law = off + RC_LAW
+    r = law_value(p, law, z, temperature)
+    if p[off + RC_KIND] == 1.0:
+        return r, p[off + RC_VALUE] / law_value(p, law, z, p[law + LAW_REFERENCE])  # C = tau / R(z, T_ref)
+    return r, p[off + RC_VALUE]
 
 
 @_jit
@@ -393,22 +190,16 @@ def evaluate(y, p, ydot, alg):
     ta = p[H_AMBIENT]
     table = int(p[H_AMBIENT_TABLE])
     if table > 0:
-        nt = int(p[table])
-        ta = _interp1_at(p, table + 1, table + 1 + nt, nt, p[H_TIME])
+        ta = ambient_at(p, table, p[H_TIME])
     ns = p[H_NS]
     npar = p[H_NP]
     ric = p[H_RIC]
 
     o = int(p[H_OCV])
-    n = int(p[o])
-    # the OCV and entropic tables share their SoC grid: one bracket for both
-    i, w = _bracket_at(p, o + 2, n, z)
-    i1 = i + 1 if n > 1 else i
-    u_ref = p[o + 2 + n + i] * (1.0 - w) + p[o + 2 + n + i1] * w
-    dudt = p[o + 2 + 2 * n + i] * (1.0 - w) + p[o + 2 + 2 * n + i1] * w
-    u = _ocv(u_ref, dudt, tc, p[o + 1])
+    u_ref, dudt = ocv_at(p, o, z)
+    u = _ocv(u_ref, dudt, tc, p[o + OCV_REFERENCE])
 
-    r0 = _law_value(p, int(p[H_R0]), z, tc)
+    r0 = law_value(p, int(p[H_R0]), z, tc)
     vsum = 0.0
     for k in range(nrc):
         vsum += y[1 + k]
@@ -421,19 +212,7 @@ def evaluate(y, p, ydot, alg):
     # a heater fed from the pack is a constant-power load on its terminals (in voltage
     # mode the charger holding the terminals feeds it, so the cells do not see it)
     aux = heater if p[H_HEATER_FROM_PACK] == 1.0 else 0.0
-    if mode == MODE_CURRENT:
-        current = value
-        if aux > 0.0:
-            current = value + aux / _aux_voltage(1.0, emf - rtot * value, rtot, aux)
-    elif mode == MODE_POWER:
-        current = _current_for_power(emf, rtot, value + aux)
-    elif mode == MODE_RESISTANCE:
-        current = _current_for_resistance(emf, rtot, value)
-        if aux > 0.0:
-            v_aux = _aux_voltage(1.0 + rtot / value, emf, rtot, aux)
-            current = v_aux / value + aux / v_aux
-    else:
-        current = _current_for_voltage(emf, rtot, value)
+    current = pack_current(mode, value, emf, rtot, aux)
 
     icell = current / npar
     vcell = u - vsum - icell * r0
@@ -443,7 +222,7 @@ def evaluate(y, p, ydot, alg):
     off = int(p[H_RC])
     for k in range(nrc):
         ydot[1 + k] = _rc_rate(p, off, z, tc, icell, y[1 + k])
-        off += 2 + _law_length(p, off + 2)
+        off += rc_length(p, off)
 
     q_cell = _bernardi(icell, u, vcell, tc, dudt)
     heat_cells = ns * npar * q_cell
@@ -669,7 +448,7 @@ def rc_base_setup(y, p, alg, scratch, t0, base):
         base[1 + 3 * k] = y[1 + k]
         base[2 + 3 * k] = r * icell if ok else y[1 + k]
         base[3 + 3 * k] = tau if ok else 0.0
-        off += 2 + _law_length(p, off + 2)
+        off += rc_length(p, off)
 
 
 @_jit
@@ -945,21 +724,28 @@ class Kernels:
         return all_positive(y, self.p, self._alg, self._scratch, self._g_end)
 
 
-def mode_code(mode: str) -> int:
-    """Kernel code of a demand mode name."""
-    return MODE_CODES[mode]
+def trajectory_algebraics(times: np.ndarray, states: np.ndarray, phase_params: np.ndarray,
+                          phase_index: np.ndarray) -> np.ndarray:
+    """Algebraic outputs (:data:`thermoelec.engine.layout.ALGEBRAICS`) of every row of a trajectory.
 
+    Parameters
+    ----------
+    times : array, shape (n,)
+        Row times [s] (an ambient profile is a function of time).
+    states : array, shape (n, n_states)
+        State rows (SI units).
+    phase_params : array, shape (n_phases, len(p))
+        The parameter vector of each phase.
+    phase_index : array of int, shape (n,)
+        The phase of each row.
 
-__all__ = [
-    "ALGEBRAIC_NAMES",
-    "EVENT_NAMES",
-    "Kernels",
-    "Limits",
-    "Problem",
-    "StressSettings",
-    "cell_temperature_index",
-    "evaluate",
-    "evaluate_rows",
-    "n_states",
-    "pack_parameters",
-]
+    Returns
+    -------
+    array, shape (n, N_ALGEBRAICS)
+        Current [A], voltages [V], heats [W], ... in the declared order.
+    """
+    params = phase_params[phase_index]
+    params[:, H_TIME] = times
+    algebraics = np.empty((len(states), N_ALGEBRAICS))
+    evaluate_rows(np.ascontiguousarray(states), params, algebraics)
+    return algebraics

@@ -16,7 +16,7 @@ import numpy as np
 from matplotlib.figure import Figure
 
 from thermoelec.analysis.results import SimulationResult
-from thermoelec.physics.cell import maximum_power, voltage_limited_power
+from thermoelec.physics.loads import maximum_power, voltage_limited_power
 
 __all__ = [
     "FIGURE_NAMES",

@@ -18,7 +18,7 @@ import numpy as np
 from numba.extending import register_jitable
 from scipy.constants import Stefan_Boltzmann as STEFAN_BOLTZMANN  # [W/(m² K⁴)], CODATA
 
-from thermoelec.physics.cell import interpolate_1d as _interp
+from thermoelec.physics.tables import interpolate_1d as _interp
 
 __all__ = [
     "LUMPED_BIOT_LIMIT",

@@ -24,9 +24,10 @@ from typing import Annotated, Any, Literal
 import numpy as np
 from pydantic import BaseModel, BeforeValidator, ConfigDict, ValidationError, model_validator
 
-from thermoelec.engine.model import Limits, Problem, StressSettings
+from thermoelec.engine.backends import BACKENDS
+from thermoelec.engine.options import SolverOptions
+from thermoelec.engine.problem import Limits, Problem, StressSettings
 from thermoelec.engine.profile import Segment, expand_repeats, segments_from_series
-from thermoelec.engine.solve import BACKENDS, SolverOptions
 from thermoelec.physics.cell import Cell, CellGeometry, Pack, RCPair, ResistanceLaw
 from thermoelec.physics.thermal import (
     Convection,

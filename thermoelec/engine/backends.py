@@ -1,0 +1,243 @@
+"""Solver back ends: one smooth phase at a time, stopping at a root (registry :data:`BACKENDS`).
+
+``cvode``
+    SUNDIALS CVODE, BDF with Newton iteration and a dense or diagonal Newton
+    matrix, through scikits.odes (Hindmarsh et al., ACM TOMS 31 (2005) 363).
+``scipy``
+    ``scipy.integrate.solve_ivp`` (LSODA by default) with its event location.
+
+A back end knows the integrator and nothing of missions: the driver
+(:mod:`thermoelec.engine.driver`) hands it one phase at a time.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Protocol
+
+import numpy as np
+
+from thermoelec.engine.events import N_EVENTS
+from thermoelec.engine.layout import H_ACTIVE
+from thermoelec.engine.model import Kernels
+from thermoelec.engine.options import SolverOptions
+
+__all__ = ["BACKENDS", "DIAGONAL_CONTRACTION", "Backend", "CvodeBackend", "PhaseOutcome", "ScipyBackend"]
+
+#: The CVODE back end solves a phase's implicit steps with the diagonal of the Jacobian
+#: alone when Newton's iteration with it contracts at least this fast for the longest
+#: step the phase allows (:func:`thermoelec.engine.model.diagonal_newton_contraction`); a
+#: tightly coupled or stiff network (a small sink on a large conductance) and long
+#: phases get the full dense Jacobian.
+DIAGONAL_CONTRACTION = 0.2
+
+
+@dataclass
+class PhaseOutcome:
+    """What a back end returns for one phase."""
+
+    times: list[float]
+    states: list[np.ndarray]
+    status: str  # "end" | "root" | "error"
+    message: str = ""
+
+
+class Backend(Protocol):
+    """A solver back end: integrates one smooth phase, stopping at a root."""
+
+    name: str
+
+    def integrate(self, t0: float, y0: np.ndarray, t_end: float, outputs: list[float],
+                  find_roots: bool = True) -> PhaseOutcome:
+        """Integrate from ``t0`` to ``t_end``; report at ``outputs`` (ending with ``t_end``).
+
+        With ``find_roots`` false the caller has shown that no root function can
+        reach zero in the phase, and the back end may skip root finding.
+        """
+        ...
+
+    def statistics(self) -> dict[str, float]:
+        """Solver counters summed over all phases."""
+        ...
+
+
+def _float32_at_or_after(t: float) -> float:
+    """The smallest float32 value >= t (see :class:`CvodeBackend`)."""
+    t = float(t)
+    if t.is_integer() and abs(t) <= 2.0**24:  # the common case, exact in float32
+        return t
+    f = np.float32(t)
+    if float(f) < t:
+        f = np.nextafter(f, np.float32(np.inf))
+    return float(f)
+
+
+class CvodeBackend:
+    """CVODE (BDF, Newton; dense or diagonal Newton matrix) through scikits.odes 2.7, restarted per phase.
+
+    CVODE integrates the states with each RC voltage taken relative to its exact
+    zero-order-hold response from the phase start (:func:`thermoelec.engine.model.rc_base_setup`),
+    an exact change of variables: the states handed back are the usual ones.
+
+    scikits.odes stores the stop time in single precision, so ``tstop`` is set to
+    the first float32 at or after the phase end and the state at the exact end
+    is taken from CVODE's interpolant (``step(t_end)`` in normal mode); the step
+    can overshoot the end by at most one float32 ulp with the phase's own
+    right-hand side, which the interpolant does not see.
+    """
+
+    name = "cvode"
+
+    def __init__(self, kernels: Kernels, options: SolverOptions, n_rc: int):
+        self.kernels = kernels
+        self.options = options
+        self._common = dict(old_api=False, lmm_type="BDF", nonlinsolver="newton", rtol=options.rtol,
+                            atol=options.atol_vector(n_rc), max_steps=options.max_steps,
+                            first_step_size=float(options.first_step))
+        # Up to four instances of the same integrator, made when first needed: with or
+        # without the root functions (phases where no root function can reach zero, see
+        # integrate_problem), and with the dense or the diagonal Newton matrix.
+        self._solvers: dict[tuple[bool, bool], object] = {}
+        self._started: set[tuple[bool, bool]] = set()
+        self._stats: dict[str, float] = {"NumPhasesWithRoots": 0, "NumPhasesWithoutRoots": 0,
+                                         "NumPhasesDiagonal": 0, "NumPhasesDense": 0}
+
+    def _solver(self, find_roots: bool, diagonal: bool):
+        key = (find_roots, diagonal)
+        solver = self._solvers.get(key)
+        if solver is None:
+            from scikits.odes import ode  # imported here: scipy runs need no SUNDIALS
+
+            linear = {"linsolver": "diag"} if diagonal else {"linsolver": "dense", "jacfn": self.kernels.cvode_jacobian}
+            roots = {"rootfn": self.kernels.cvode_roots, "nr_rootfns": N_EVENTS} if find_roots else {}
+            solver = self._solvers[key] = ode("cvode", self.kernels.cvode_rhs, **self._common, **linear,
+                                              **roots)._integrator
+        return solver
+
+    def _accumulate(self, solver) -> None:
+        info = solver.get_info()
+        stats = self._stats
+        for key in ("NumSteps", "NumRhsEvals", "NumLinSolvSetups", "NumErrTestFails"):
+            stats[key] = stats.get(key, 0) + info[key]
+
+    def statistics(self) -> dict[str, float]:
+        return dict(self._stats)
+
+    @staticmethod
+    def _failure(out, t0: float, times: list[float], states: list[np.ndarray], kernels: Kernels) -> PhaseOutcome:
+        """A failed step: keep the last state CVODE reached (``out.errors``), name the time."""
+        reached = getattr(out, "errors", None)
+        t_fail = getattr(reached, "t", None)
+        y_fail = getattr(reached, "y", None)
+        if t_fail is not None and y_fail is not None and float(t_fail) > (times[-1] if times else t0):
+            times.append(float(t_fail))
+            states.append(kernels.unshift(times[-1], y_fail))
+        where = f" at t = {float(t_fail):.6g} s" if t_fail is not None else ""
+        return PhaseOutcome(times, states, "error", f"CVODE: {out.message}{where}")
+
+    def integrate(self, t0: float, y0: np.ndarray, t_end: float, outputs: list[float],
+                  find_roots: bool = True) -> PhaseOutcome:
+        choice = self.options.linear_solver
+        # the shift, and the contraction bound for the longest step the phase allows, in one kernel call
+        w0, contraction = self.kernels.shift_from(t0, y0, t_end - t0 if choice == "auto" else 0.0)
+        diagonal = contraction <= DIAGONAL_CONTRACTION if choice == "auto" else choice == "diagonal"
+        outcome = self._integrate(t0, w0, t_end, outputs, find_roots, diagonal)
+        if outcome.status == "error" and diagonal and choice == "auto":
+            outcome = self._integrate(t0, w0, t_end, outputs, find_roots, False)
+        return outcome
+
+    def _integrate(self, t0: float, w0: np.ndarray, t_end: float, outputs: list[float],
+                   find_roots: bool, diagonal: bool) -> PhaseOutcome:
+        """One phase from the shifted state ``w0`` (the base is set by :meth:`integrate`)."""
+        key = (find_roots, diagonal)
+        solver = self._solver(find_roots, diagonal)
+        self._stats["NumPhasesWithRoots" if find_roots else "NumPhasesWithoutRoots"] += 1
+        self._stats["NumPhasesDiagonal" if diagonal else "NumPhasesDense"] += 1
+        kernels = self.kernels
+        kernels.error = None
+        if key in self._started:
+            solver.reinit_IC(t0, w0)
+        else:
+            solver.init_step(t0, w0)
+            self._started.add(key)
+        solver.set_options(tstop=_float32_at_or_after(t_end))
+        times: list[float] = []
+        states: list[np.ndarray] = []
+        try:
+            for tout in outputs:
+                try:
+                    out = solver.step(float(tout))
+                except Exception as exc:  # scikits.odes raises for some failures instead of flagging
+                    return PhaseOutcome(times, states, "error", f"CVODE: {exc}")
+                flag = int(out.flag)
+                if self.kernels.error is not None:
+                    return PhaseOutcome(times, states, "error", f"right-hand side failed: {self.kernels.error!r}")
+                if flag == 2:  # root found; out.roots keeps every root since init, values is this one
+                    times.append(float(out.values.t))
+                    states.append(kernels.unshift(times[-1], out.values.y))
+                    return PhaseOutcome(times, states, "root")
+                if flag < 0:
+                    return self._failure(out, t0, times, states, kernels)
+                times.append(float(tout))
+                states.append(kernels.unshift(times[-1], out.values.y))
+        finally:
+            self._accumulate(solver)
+        return PhaseOutcome(times, states, "end")
+
+
+class ScipyBackend:
+    """``scipy.integrate.solve_ivp`` restarted per phase, events as terminal functions."""
+
+    name = "scipy"
+
+    def __init__(self, kernels: Kernels, options: SolverOptions, n_rc: int):
+        self.kernels = kernels
+        self.options = options
+        self.atol = options.atol_vector(n_rc)
+        self._stats = {"NumRhsEvals": 0, "NumJacEvals": 0, "NumLUDecomps": 0, "NumPhases": 0}
+        self._events = [self._event(k) for k in range(N_EVENTS)]
+
+    def _event(self, k: int):
+        kernels = self.kernels
+
+        def event(t: float, y: np.ndarray) -> float:
+            return kernels.event_values(y)[k]
+
+        event.terminal = True
+        event.direction = -1
+        return event
+
+    def statistics(self) -> dict[str, float]:
+        return dict(self._stats)
+
+    def integrate(self, t0: float, y0: np.ndarray, t_end: float, outputs: list[float],
+                  find_roots: bool = True) -> PhaseOutcome:
+        from scipy.integrate import solve_ivp
+
+        p = self.kernels.p
+        active = [self._events[k] for k in range(N_EVENTS) if p[H_ACTIVE + k] != 0.0]
+        implicit = self.options.scipy_method in ("BDF", "Radau", "LSODA")
+        sol = solve_ivp(
+            self.kernels.scipy_rhs, (t0, t_end), y0, method=self.options.scipy_method, t_eval=outputs,
+            events=active or None, rtol=self.options.rtol, atol=self.atol,
+            jac=self.kernels.scipy_jacobian if implicit else None,
+        )
+        self._stats["NumRhsEvals"] += sol.nfev
+        self._stats["NumJacEvals"] += sol.njev
+        self._stats["NumLUDecomps"] += sol.nlu
+        self._stats["NumPhases"] += 1
+        times = [float(t) for t in sol.t]
+        states = [np.array(sol.y[:, i]) for i in range(sol.y.shape[1])]
+        if sol.status == -1:
+            return PhaseOutcome(times, states, "error", f"solve_ivp: {sol.message}")
+        if sol.status == 1:
+            hits = [(ev[0], ye[0]) for ev, ye in zip(sol.t_events, sol.y_events, strict=False) if len(ev)]
+            t_root, y_root = min(hits, key=lambda h: h[0])
+            keep = [i for i, t in enumerate(times) if t < t_root]
+            return PhaseOutcome([times[i] for i in keep] + [float(t_root)],
+                                [states[i] for i in keep] + [np.array(y_root)], "root")
+        return PhaseOutcome(times, states, "end")
+
+
+BACKENDS: dict[str, type] = {"cvode": CvodeBackend, "scipy": ScipyBackend}
+

@@ -1,0 +1,113 @@
+"""The events of a mission: the root functions the integrators locate, and what each one does.
+
+Every limit, switch and end condition is a root function ``g_k`` of the state,
+positive while all is well (:func:`thermoelec.engine.model.roots_from` computes
+them); the integrator locates where one reaches zero. :data:`EVENTS` is the one
+list of them: its order gives the kernel codes (``EV_*``), and each entry says
+how close to zero counts as fired (its scale), which event wins when several
+fire at once (its priority) and what the mission does then (its action). Both
+drivers (:mod:`thermoelec.engine.driver` for CVODE, :mod:`thermoelec.engine.batch`
+for sweeps) act on :data:`EVENT_ACTION`; reports and figures take the names and
+the stop reasons from here.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+__all__ = ["ACTION_END_SEGMENT", "ACTION_NEXT_PHASE", "ACTION_STOP", "ACTION_TOGGLE", "CONTROL_EVENTS", "EVENTS",
+           "EVENT_ACTION", "EVENT_NAMES", "EVENT_PRIORITY", "EVENT_RANK", "EVENT_SCALES", "N_EVENTS",
+           "ROOT_TOLERANCE", "STOP_EVENTS", "STOP_REASONS", "Event"]
+
+#: What an event does to the phase it fires in (kernel codes).
+ACTION_STOP, ACTION_NEXT_PHASE, ACTION_END_SEGMENT, ACTION_TOGGLE = 0, 1, 2, 3
+
+
+@dataclass(frozen=True)
+class Event:
+    """One root function of the engine.
+
+    Attributes
+    ----------
+    name : str
+        Its name in the ``events`` of a summary.
+    scale : float
+        Typical size of the root function (V, V², K, -, A), to compare how close to zero functions are.
+    action : int
+        ``ACTION_STOP`` ends the mission, ``ACTION_NEXT_PHASE`` starts the segment's next phase
+        (CC -> CV), ``ACTION_END_SEGMENT`` ends the segment, ``ACTION_TOGGLE`` switches a
+        thermostat and the phase goes on.
+    stop_reason : str or None
+        The ``stop_reason`` a stop reports.
+    description : str
+        When the root function reaches zero.
+    """
+
+    name: str
+    scale: float
+    action: int
+    stop_reason: str | None
+    description: str
+
+
+#: The root functions in kernel-code order.
+EVENTS: tuple[Event, ...] = (
+    Event("voltage_min", 1.0, ACTION_STOP, "voltage_min", "a cell's terminal voltage falls to voltage_min [V]"),
+    Event("voltage_max", 1.0, ACTION_STOP, "voltage_max", "a cell's terminal voltage rises to voltage_max [V]"),
+    Event("power_limit", 100.0, ACTION_STOP, "power_limit",
+          "the power demand reaches the maximum-power point E²/(4R) (E² - 4 R P = 0) [V²]"),
+    Event("temperature_max", 1.0, ACTION_STOP, "temperature_max",
+          "the cell temperature rises to cell_temperature_max [K]"),
+    Event("soc_empty", 1.0, ACTION_STOP, "soc_limit", "the state of charge falls to 0 [-]"),
+    Event("soc_full", 1.0, ACTION_STOP, "soc_limit", "the state of charge rises to 1 [-]"),
+    Event("cv_switch", 1.0, ACTION_NEXT_PHASE, None, "a CC-CV charge reaches its CV voltage [V]"),
+    Event("cv_cutoff", 1.0, ACTION_END_SEGMENT, None, "a CV phase's current falls to its cutoff [A]"),
+    Event("end_voltage_below", 1.0, ACTION_END_SEGMENT, None,
+          "the pack voltage falls to a segment's voltage_below [V]"),
+    Event("end_voltage_above", 1.0, ACTION_END_SEGMENT, None,
+          "the pack voltage rises to a segment's voltage_above [V]"),
+    Event("end_soc_below", 1.0, ACTION_END_SEGMENT, None, "the SoC falls to a segment's soc_below [-]"),
+    Event("end_soc_above", 1.0, ACTION_END_SEGMENT, None, "the SoC rises to a segment's soc_above [-]"),
+    Event("fan_switch", 1.0, ACTION_TOGGLE, None, "the cell temperature reaches the fan's next threshold [K]"),
+    Event("heater_switch", 1.0, ACTION_TOGGLE, None, "the cell temperature reaches the heater's next threshold [K]"),
+    Event("pump_switch", 1.0, ACTION_TOGGLE, None, "the cell temperature reaches the pump's next threshold [K]"),
+)
+N_EVENTS = len(EVENTS)
+_CODE = {event.name: code for code, event in enumerate(EVENTS)}
+
+EV_VOLTAGE_MIN = _CODE["voltage_min"]
+EV_VOLTAGE_MAX = _CODE["voltage_max"]
+EV_POWER = _CODE["power_limit"]
+EV_TEMPERATURE = _CODE["temperature_max"]
+EV_SOC_EMPTY = _CODE["soc_empty"]
+EV_SOC_FULL = _CODE["soc_full"]
+EV_CV_SWITCH = _CODE["cv_switch"]
+EV_CV_CUTOFF = _CODE["cv_cutoff"]
+EV_END_VOLTAGE_BELOW = _CODE["end_voltage_below"]
+EV_END_VOLTAGE_ABOVE = _CODE["end_voltage_above"]
+EV_END_SOC_BELOW = _CODE["end_soc_below"]
+EV_END_SOC_ABOVE = _CODE["end_soc_above"]
+EV_FAN = _CODE["fan_switch"]
+EV_HEATER = _CODE["heater_switch"]
+EV_PUMP = _CODE["pump_switch"]
+
+EVENT_NAMES: tuple[str, ...] = tuple(event.name for event in EVENTS)
+EVENT_SCALES: tuple[float, ...] = tuple(event.scale for event in EVENTS)
+#: What each event does, by code (read by both drivers' kernels).
+EVENT_ACTION = np.array([event.action for event in EVENTS], dtype=np.int64)
+#: Thermostat events in the order of their switches (fan, heater, pump).
+CONTROL_EVENTS: tuple[int, ...] = tuple(code for code, event in enumerate(EVENTS) if event.action == ACTION_TOGGLE)
+#: Stop events and the stop reason each reports.
+STOP_EVENTS: dict[int, str] = {code: event.stop_reason for code, event in enumerate(EVENTS)
+                               if event.action == ACTION_STOP and event.stop_reason is not None}
+#: Every stop reason a mission can end with: the profile ran out, a stop event, or the solver failed.
+STOP_REASONS: tuple[str, ...] = ("end_of_profile", *dict.fromkeys(STOP_EVENTS.values()), "solver_error")
+#: A root function within this many of its scales of zero (or below) counts as fired.
+ROOT_TOLERANCE = 1e-9
+#: Which event wins when several fire at once (first wins): the power limit (no solution past it),
+#: the other stops, then switches and ends, then the thermostats (which end nothing).
+EVENT_PRIORITY: tuple[int, ...] = (EV_POWER, *(k for k in range(N_EVENTS) if k != EV_POWER))
+#: Each event's place in :data:`EVENT_PRIORITY`, by code.
+EVENT_RANK: tuple[int, ...] = tuple(EVENT_PRIORITY.index(k) for k in range(N_EVENTS))

@@ -1,0 +1,344 @@
+"""The layouts of the engine's vectors, declared once: states, quadratures, algebraic outputs, parameters.
+
+The kernels of :mod:`thermoelec.engine.model` read one flat float64 parameter
+vector ``p`` (a numba call with one array argument costs a fraction of one with
+twenty, and the right-hand side runs ~10^5 times a mission). Its layout is
+declared here, in order, and every index constant is generated from the
+declaration (no hand-numbered slot): a header of scalar slots, then blocks (the
+OCV table, resistance laws, RC pairs, the ambient profile) whose offsets the
+header holds. :func:`describe` prints a vector by name. The block formats have
+their writers (``*_block``) and their in-place readers (jitted, used by the
+kernels) side by side, so a format is defined in one place.
+
+State vector of one scenario (SI units)::
+
+    y[0]                   z      state of charge [-]
+    y[1 : 1 + n_rc]        v_k    RC-pair voltages of one cell [V]
+    y[1 + n_rc]            Tc     lumped cell temperature [K]
+    y[2 + n_rc]            Ts     heat-sink node temperature [K]
+    y[3 + n_rc]            Tf     coolant node temperature [K] (constant without a coolant mass)
+    y[4 + n_rc : ...]      the running integrals of :data:`QUADRATURES`
+
+This module imports nothing of the engine but the event registry (and physics'
+table readers); it must not import the problem, the kernels or the drivers.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numba
+import numpy as np
+
+from thermoelec.engine.events import CONTROL_EVENTS, EVENT_NAMES, N_EVENTS
+from thermoelec.physics.cell import arrhenius_factor
+from thermoelec.physics.tables import bilinear_at, bracket_at
+
+__all__ = ["ALGEBRAICS", "ALGEBRAIC_NAMES", "HEADER_SLOTS", "QUADRATURES", "Slot", "cell_temperature_index",
+           "coolant_temperature_index", "describe", "law_block", "n_dynamic", "n_states", "quadrature_index",
+           "sink_temperature_index"]
+
+_jit = numba.njit(cache=True, nogil=True, error_model="numpy")
+
+
+@dataclass(frozen=True)
+class Slot:
+    """One named entry of a vector layout: its index, size, unit and meaning."""
+
+    name: str
+    index: int
+    size: int
+    unit: str
+    description: str
+
+
+class _Declaration:
+    """An ordered declaration of slots: each call takes the next index."""
+
+    def __init__(self) -> None:
+        self.slots: list[Slot] = []
+
+    @property
+    def size(self) -> int:
+        return sum(slot.size for slot in self.slots)
+
+    def slot(self, name: str, unit: str, description: str, size: int = 1) -> int:
+        index = self.size
+        self.slots.append(Slot(name, index, size, unit, description))
+        return index
+
+
+# ---- states ---------------------------------------------------------------------------------
+
+def n_dynamic(n_rc: int) -> int:
+    """Number of dynamic (non-quadrature) states for ``n_rc`` RC pairs [-]."""
+    return 4 + n_rc
+
+
+def n_states(n_rc: int) -> int:
+    """Number of states for ``n_rc`` RC pairs: dynamic states plus quadratures [-]."""
+    return n_dynamic(n_rc) + N_QUADRATURES
+
+
+def cell_temperature_index(n_rc: int) -> int:
+    """Index of the cell temperature in the state vector [-]."""
+    return 1 + n_rc
+
+
+def sink_temperature_index(n_rc: int) -> int:
+    """Index of the sink temperature in the state vector [-]."""
+    return 2 + n_rc
+
+
+def coolant_temperature_index(n_rc: int) -> int:
+    """Index of the coolant node temperature in the state vector [-]."""
+    return 3 + n_rc
+
+
+def quadrature_index(n_rc: int) -> int:
+    """Index of the first quadrature in the state vector [-]."""
+    return 4 + n_rc
+
+
+# ---- quadratures: running integrals, offsets after the dynamic states ----------------------------
+# Integrated with the same integrator as the states, so they are as accurate as the
+# states and independent of the output interval.
+_quadratures = _Declaration()
+Q_BATTERY_DISCHARGE = _quadratures.slot("battery_discharge", "J", "∫ Ns U I dt while discharging (I > 0)")
+Q_BATTERY_CHARGE = _quadratures.slot("battery_charge", "J", "∫ Ns U I dt while charging (negative)")
+Q_LOAD_DISCHARGE = _quadratures.slot("load_discharge", "J", "∫ V I dt while discharging")
+Q_LOAD_CHARGE = _quadratures.slot("load_charge", "J", "∫ V I dt while charging (negative)")
+Q_HEAT = _quadratures.slot("heat", "J", "∫ heat generated in cells and interconnect dt")
+Q_REVERSIBLE = _quadratures.slot("reversible_heat", "J", "∫ reversible (entropic) heat dt")
+Q_HEAT_AMBIENT = _quadratures.slot("heat_to_ambient", "J", "∫ heat rejected to ambient dt (radiation included)")
+Q_THROUGHPUT = _quadratures.slot("throughput", "C", "∫ |I| dt")
+Q_HEATER = _quadratures.slot("heater", "J", "∫ heater power dt")
+Q_COOLANT = _quadratures.slot("heat_to_coolant", "J", "∫ heat carried away by the coolant dt")
+Q_RADIATION = _quadratures.slot("radiation", "J", "∫ net radiation from the sink dt (part of heat_to_ambient)")
+N_QUADRATURES = _quadratures.size
+QUADRATURES: tuple[Slot, ...] = tuple(_quadratures.slots)
+
+# ---- algebraic outputs of one right-hand-side evaluation ------------------------------------------
+_algebraics = _Declaration()
+A_CURRENT = _algebraics.slot("current", "A", "pack current, > 0 discharging")
+A_VOLTAGE = _algebraics.slot("voltage", "V", "pack terminal voltage")
+A_CELL_VOLTAGE = _algebraics.slot("cell_voltage", "V", "terminal voltage of one cell")
+A_OCV = _algebraics.slot("ocv", "V", "open-circuit voltage of one cell")
+A_EMF = _algebraics.slot("emf", "V", "pack source voltage behind the series resistance, Ns (U - sum v_k)")
+A_RESISTANCE = _algebraics.slot("resistance", "ohm", "pack series resistance Ns R0 / Np + R_ic")
+A_HEAT = _algebraics.slot("heat", "W", "heat generated in cells and interconnect")
+A_REVERSIBLE = _algebraics.slot("reversible_heat", "W", "reversible (entropic) part of the heat")
+A_HEAT_AMBIENT = _algebraics.slot("heat_to_ambient", "W", "heat rejected to ambient")
+A_ENTROPIC = _algebraics.slot("entropic", "V/K", "entropic coefficient dU/dT")
+A_R0 = _algebraics.slot("r0", "ohm", "series resistance of one cell")
+A_POWER_MARGIN = _algebraics.slot("power_margin", "V^2", "E² - 4 R P in a power phase (1 otherwise)")
+A_AMBIENT = _algebraics.slot("ambient", "K", "ambient temperature")
+A_HEATER = _algebraics.slot("heater", "W", "heater power on the cells")
+A_COOLANT = _algebraics.slot("coolant", "W", "heat carried away by the coolant")
+A_RADIATION = _algebraics.slot("radiation", "W", "net radiation from the sink")
+A_SINK_CONDUCTANCE = _algebraics.slot("sink_conductance", "W/K", "sink-to-air convective conductance")
+A_COOLANT_OUTLET = _algebraics.slot("coolant_outlet", "K", "coolant temperature leaving the plate")
+A_REYNOLDS = _algebraics.slot("reynolds", "1", "Reynolds number of the air flow over the sink")
+A_RAYLEIGH = _algebraics.slot("rayleigh", "1", "Rayleigh number of free convection at the sink")
+N_ALGEBRAICS = _algebraics.size
+ALGEBRAICS: tuple[Slot, ...] = tuple(_algebraics.slots)
+ALGEBRAIC_NAMES: tuple[str, ...] = tuple(slot.name for slot in ALGEBRAICS)
+
+# ---- header of the parameter vector --------------------------------------------------------------
+_header = _Declaration()
+# the phase: written at every phase start (mission.configure_phase)
+H_MODE = _header.slot("mode", "-", "load-mode code of the phase (physics.loads.LOAD_MODES)")
+H_VALUE = _header.slot("value", "A|W|ohm|V", "demand of the phase, in its mode's unit")
+H_AMBIENT = _header.slot("ambient", "K", "ambient temperature of the phase (without an ambient profile)")
+# the pack
+H_NS = _header.slot("series", "-", "cells in series")
+H_NP = _header.slot("parallel", "-", "cells in parallel")
+H_RIC = _header.slot("interconnect_resistance", "ohm", "interconnect resistance (heats the sink)")
+H_CAPACITY = _header.slot("capacity", "C", "capacity of one cell")
+H_CCELL = _header.slot("cell_heat_capacity", "J/K", "heat capacity of all cells, Ns Np m c_p")
+H_CSINK = _header.slot("sink_heat_capacity", "J/K", "heat capacity of the sink node")
+H_GCS = _header.slot("cell_to_sink", "W/K", "conductance cells to sink")
+H_GSA = _header.slot("sink_to_ambient", "W/K", "fixed conductance sink to ambient (0 with correlations)")
+H_GCA = _header.slot("cell_to_ambient", "W/K", "conductance cells to ambient")
+H_NRC = _header.slot("n_rc", "-", "number of RC pairs")
+H_OCV = _header.slot("ocv_block", "-", "offset of the OCV block")
+H_R0 = _header.slot("r0_block", "-", "offset of the R0 resistance-law block")
+H_RC = _header.slot("rc_block", "-", "offset of the first RC-pair block")
+H_TIME = _header.slot("time", "s", "current time, written by every caller (an ambient profile reads it)")
+H_AMBIENT_TABLE = _header.slot("ambient_table", "-", "offset of the ambient-profile block, 0 for none (or off)")
+# cooling
+H_FORCED = _header.slot("forced_correlation", "-", "kernel code of the forced-convection correlation, 0 none")
+H_NATURAL = _header.slot("natural_correlation", "-", "kernel code of the natural-convection correlation, 0 none")
+H_CONV_LENGTH = _header.slot("convection_length", "m", "characteristic length of the correlations")
+H_CONV_AREA = _header.slot("convection_area", "m^2", "wetted area of the sink")
+H_AIR_SPEED = _header.slot("air_speed", "m/s", "air speed over the sink (fan off)")
+H_FAN_ON = _header.slot("fan_on", "-", "1 while the fan runs")
+H_FAN_SPEED = _header.slot("fan_speed", "m/s", "air speed with the fan on; < 0: the fan leaves it alone")
+H_FAN_G = _header.slot("fan_conductance", "W/K", "conductance the fan adds, sink to air")
+H_EMISSIVITY = _header.slot("emissivity", "-", "emissivity of the sink surface, 0 for no radiation")
+H_RAD_AREA = _header.slot("radiation_area", "m^2", "radiating area of the sink")
+H_SURROUNDINGS = _header.slot("surroundings", "K", "temperature of the surroundings, 0: the ambient")
+H_COOL_MCP = _header.slot("coolant_capacity_rate", "W/K", "coolant flow times its specific heat")
+H_COOL_UA = _header.slot("plate_conductance", "W/K", "UA of the cold plate")
+H_COOL_G = _header.slot("coolant_conductance", "W/K", "given conductance sink to coolant inlet")
+H_COOL_C = _header.slot("coolant_heat_capacity", "J/K", "heat capacity of the coolant in the plate, 0: massless")
+H_COOL_INLET = _header.slot("coolant_inlet", "K", "coolant inlet temperature, 0 without a coolant")
+H_PUMP_ON = _header.slot("pump_on", "-", "1 while the coolant flows")
+H_HEATER_ON = _header.slot("heater_on", "-", "1 while the heater runs")
+H_HEATER_POWER = _header.slot("heater_power", "W", "heater power")
+H_HEATER_FROM_PACK = _header.slot("heater_from_pack", "-", "1 when the pack feeds the heater")
+# root functions of the phase (events.EVENTS order)
+H_ACTIVE = _header.slot("active", "-", "root-function activity flags", N_EVENTS)
+H_THRESHOLD = _header.slot("threshold", "V|K|A|-", "root-function thresholds", N_EVENTS)
+HEADER = _header.size
+HEADER_SLOTS: tuple[Slot, ...] = tuple(_header.slots)
+#: The header flag each thermostat switches, in the order of ``events.CONTROL_EVENTS``.
+CONTROL_FLAG_OF = (H_FAN_ON, H_HEATER_ON, H_PUMP_ON)
+if len(CONTROL_FLAG_OF) != len(CONTROL_EVENTS) or CONTROL_EVENTS != tuple(range(CONTROL_EVENTS[0],
+                                                                                 CONTROL_EVENTS[0] + 3)):
+    raise ImportError("the thermostat events must be fan, heater, pump, one after the other")
+
+# ---- blocks after the header: formats, writers and in-place readers ------------------------------
+# OCV block: [n, T_ref, soc[n], voltage[n], entropic[n]]
+OCV_N, OCV_REFERENCE, OCV_SOC = 0, 1, 2
+# resistance-law block: [nz, nt, Ea, T_ref, soc[nz], temperature[nt], values[nt * nz]] (row per temperature)
+LAW_NZ, LAW_NT, LAW_EA, LAW_REFERENCE, LAW_SOC = 0, 1, 2, 3, 4
+# RC-pair block: [kind (1: time constant given, 0: capacitance), tau [s] or C [F], resistance-law block]
+RC_KIND, RC_VALUE, RC_LAW = 0, 1, 2
+# ambient-profile block: [n, time[n], ambient[n]] [s, K], linear in time
+AMBIENT_N, AMBIENT_TIME = 0, 1
+
+
+def ocv_block(soc, voltage, entropic, reference_temperature: float) -> list[float]:
+    """The OCV block of a cell: SoC grid [-], OCV [V] and dU/dT [V/K] at ``reference_temperature`` [K]."""
+    return [len(soc), reference_temperature, *soc, *voltage, *entropic]
+
+
+def law_block(law) -> list[float]:
+    """The block of a :class:`~thermoelec.physics.cell.ResistanceLaw` (table [Ω], Ea [J/mol], T_ref [K])."""
+    nz, nt = len(law.soc), len(law.temperature)
+    return [nz, nt, law.activation_energy, law.reference_temperature,
+            *law.soc, *law.temperature, *np.asarray(law.values, float).ravel()]
+
+
+def rc_block(pair) -> list[float]:
+    """The block of an :class:`~thermoelec.physics.cell.RCPair`: its kind, tau [s] or C [F], its law."""
+    head = [1.0, pair.time_constant] if pair.time_constant is not None else [0.0, float(pair.capacitance)]
+    return head + law_block(pair.resistance)
+
+
+def ambient_block(times, values) -> list[float]:
+    """The block of an ambient profile: times [s] and temperatures [K]."""
+    return [len(times), *times, *values]
+
+
+@_jit
+def ocv_at(p, off, z):
+    """OCV at the reference temperature [V] and entropic coefficient [V/K] at SoC ``z`` [-], block at ``off``.
+
+    The two tables share their SoC grid, so one bracket serves both.
+    """
+    n = int(p[off + OCV_N])
+    i, w = bracket_at(p, off + OCV_SOC, n, z)
+    i1 = i + 1 if n > 1 else i
+    voltage = off + OCV_SOC + n
+    entropic = voltage + n
+    return (p[voltage + i] * (1.0 - w) + p[voltage + i1] * w,
+            p[entropic + i] * (1.0 - w) + p[entropic + i1] * w)
+
+
+@_jit
+def law_base(p, off, z, temperature):
+    """The table value [Ω] of the resistance-law block at ``off``, before its Arrhenius factor."""
+    nz = int(p[off + LAW_NZ])
+    nt = int(p[off + LAW_NT])
+    grid = off + LAW_SOC
+    if nz == 1 and nt == 1:
+        return p[grid + 2]
+    return bilinear_at(p, grid, p, grid + nz, p, grid + nz + nt, nz, nt, z, temperature)
+
+
+@_jit
+def law_value(p, off, z, temperature):
+    """Resistance [Ω] of the resistance-law block at ``off`` at SoC ``z`` [-] and ``temperature`` [K].
+
+    The bilinear table times the Arrhenius factor
+    :func:`thermoelec.physics.cell.arrhenius_factor` when the block has an activation energy.
+    """
+    base = law_base(p, off, z, temperature)
+    if p[off + LAW_EA] != 0.0:
+        base *= arrhenius_factor(temperature, p[off + LAW_EA], p[off + LAW_REFERENCE])
+    return base
+
+
+@_jit
+def law_length(p, off):
+    """Length of the resistance-law block at ``off`` [-]."""
+    nz = int(p[off + LAW_NZ])
+    nt = int(p[off + LAW_NT])
+    return LAW_SOC + nz + nt + nz * nt
+
+
+@_jit
+def rc_length(p, off):
+    """Length of the RC-pair block at ``off`` [-]."""
+    return RC_LAW + law_length(p, off + RC_LAW)
+
+
+@_jit
+def ambient_at(p, off, t):
+    """Ambient temperature [K] at time ``t`` [s] from the ambient-profile block at ``off``."""
+    n = int(p[off + AMBIENT_N])
+    i, w = bracket_at(p, off + AMBIENT_TIME, n, t)
+    values = off + AMBIENT_TIME + n
+    if n == 1:
+        return p[values]
+    return p[values + i] * (1.0 - w) + p[values + i + 1] * w
+
+
+def _law_text(p: np.ndarray, off: int) -> str:
+    nz, nt = int(p[off + LAW_NZ]), int(p[off + LAW_NT])
+    grid = off + LAW_SOC
+    values = p[grid + nz + nt: grid + nz + nt + nz * nt].reshape(nt, nz)
+    return (f"{nz} x {nt} table [ohm] over soc {p[grid:grid + nz].tolist()} and temperature "
+            f"{p[grid + nz:grid + nz + nt].tolist()} K: {values.tolist()}; Ea {p[off + LAW_EA]:g} J/mol, "
+            f"T_ref {p[off + LAW_REFERENCE]:g} K")
+
+
+def describe(p: np.ndarray) -> str:
+    """A parameter vector as text, slot by slot with units, then its blocks decoded (for debugging).
+
+    Parameters
+    ----------
+    p : array of float
+        A vector built by :func:`thermoelec.engine.problem.pack_parameters`.
+
+    Returns
+    -------
+    str
+        One line per header slot (``index name = value unit  description``), the
+        root functions by event name, and the OCV, R0, RC and ambient blocks.
+    """
+    lines = []
+    for slot in HEADER_SLOTS:
+        if slot.size == 1:
+            lines.append(f"{slot.index:3d} {slot.name:<24} = {p[slot.index]:<14.8g} [{slot.unit}]  {slot.description}")
+    lines.append("root functions (active, threshold):")
+    for k, name in enumerate(EVENT_NAMES):
+        lines.append(f"    {name:<20} {int(p[H_ACTIVE + k])}  {p[H_THRESHOLD + k]:.8g}")
+    o = int(p[H_OCV])
+    n = int(p[o + OCV_N])
+    soc = o + OCV_SOC
+    lines.append(f"ocv block at {o}: T_ref {p[o + OCV_REFERENCE]:g} K, soc {p[soc:soc + n].tolist()}, "
+                 f"voltage {p[soc + n:soc + 2 * n].tolist()} V, entropic {p[soc + 2 * n:soc + 3 * n].tolist()} V/K")
+    lines.append(f"r0 block at {int(p[H_R0])}: {_law_text(p, int(p[H_R0]))}")
+    off = int(p[H_RC])
+    for k in range(int(p[H_NRC])):
+        kind = "time constant [s]" if p[off + RC_KIND] == 1.0 else "capacitance [F]"
+        lines.append(f"rc pair {k + 1} at {off}: {kind} {p[off + RC_VALUE]:g}; {_law_text(p, off + RC_LAW)}")
+        off += int(rc_length(p, off))
+    table = int(p[H_AMBIENT_TABLE])
+    if table:
+        n = int(p[table + AMBIENT_N])
+        lines.append(f"ambient profile at {table}: {n} points over {p[table + 1]:g}..{p[table + n]:g} s")
+    return "\n".join(lines)

@@ -1,0 +1,312 @@
+"""The mission, once: a problem's segments as a table of phases that both drivers walk.
+
+A mission is a list of segments; a segment is one phase, or two for CC-CV (a
+constant-current phase, then a constant-voltage phase). Each phase boundary is
+a discontinuity of the right-hand side, so the drivers stop exactly there and
+restart. :func:`plan_mission` turns a :class:`~thermoelec.engine.problem.Problem`
+into a :class:`MissionPlan`: per segment its phases (load mode, demand, the set-up
+of the root functions), its duration and ambient. What an event does is the
+action of :data:`thermoelec.engine.events.EVENT_ACTION`; :func:`configure_phase`
+writes a phase into the parameter vector. The CVODE driver
+(:mod:`thermoelec.engine.driver`) and the batched solver (:mod:`thermoelec.engine.batch`)
+both walk the same plan with the same writer, so a mission means the same
+thing to both. Soaks (:func:`soak_problem`) run first, as their own problem;
+the mission then starts at t = 0 from their end state with the integrals reset
+(:func:`start_after_soak`). Thermostats start on when the cell temperature is
+already past their on threshold (:func:`initial_controls`).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, replace
+
+import numba
+import numpy as np
+
+from thermoelec.engine.events import (
+    CONTROL_EVENTS,
+    EV_CV_CUTOFF,
+    EV_CV_SWITCH,
+    EV_END_SOC_ABOVE,
+    EV_END_SOC_BELOW,
+    EV_END_VOLTAGE_ABOVE,
+    EV_END_VOLTAGE_BELOW,
+    EV_FAN,
+    EV_HEATER,
+    EV_POWER,
+    EV_PUMP,
+    EV_SOC_EMPTY,
+    EV_SOC_FULL,
+    EV_TEMPERATURE,
+    EV_VOLTAGE_MAX,
+    EV_VOLTAGE_MIN,
+    N_EVENTS,
+)
+from thermoelec.engine.layout import (
+    CONTROL_FLAG_OF,
+    H_ACTIVE,
+    H_AMBIENT,
+    H_AMBIENT_TABLE,
+    H_MODE,
+    H_THRESHOLD,
+    H_VALUE,
+    quadrature_index,
+)
+from thermoelec.engine.problem import Problem
+from thermoelec.engine.profile import Segment
+from thermoelec.physics.loads import LOAD_MODES, MODE_CURRENT, MODE_VOLTAGE
+
+__all__ = ["IMPOSED_VOLTAGE_SLACK", "MIN_PHASE", "START_PROBE", "MissionPlan", "cccv_cap", "configure_phase",
+           "initial_controls", "plan_mission", "soak_problem", "start_after_soak", "thermostat_switches"]
+
+_jit = numba.njit(cache=True, nogil=True, error_model="numpy")
+
+#: A phase shorter than this is skipped [s] (a root that lands on a segment end).
+MIN_PHASE = 1e-12
+#: Time ahead [s] at which a root function's direction is probed at a phase start.
+START_PROBE = 1e-3
+#: Relative slack on the cell voltage limits when the terminal voltage is imposed,
+#: so that a CV set point exactly at Ns x voltage_max is not taken as a violation.
+IMPOSED_VOLTAGE_SLACK = 1e-9
+#: Phase kinds: a segment's demand, the CC and the CV phase of a CC-CV charge.
+KIND_DEMAND, KIND_CC, KIND_CV = 0, 1, 2
+#: Phases a segment can have (CC-CV has two).
+MAX_PHASES = 2
+
+_BY_CODE = {mode.code: mode for mode in LOAD_MODES.values()}
+
+
+@dataclass(frozen=True)
+class MissionPlan:
+    """A mission's segments as phases, in arrays both drivers read (``n`` segments).
+
+    Attributes
+    ----------
+    n_phases : int array, shape (n,)
+        Phases of each segment: 1, or 2 for CC-CV.
+    modes : float array, shape (n, 2)
+        Load-mode code of each phase (:data:`thermoelec.physics.loads.LOAD_MODES`).
+    values : float array, shape (n, 2)
+        Demand of each phase in its mode's unit [A, W, Ω, V].
+    setups : float array, shape (k, 2 N_EVENTS)
+        The distinct root-function set-ups: activity flags, then thresholds [V, K, A, -].
+    setup_index : int array, shape (n, 2)
+        The set-up of each phase.
+    durations : float array, shape (n,)
+        Segment lengths [s] (a CC-CV charge without a duration: :func:`cccv_cap`).
+    ambients : float array, shape (n,)
+        A segment's own ambient [K] (a CSV row, a soak), NaN for the mission's.
+    capped : bool array, shape (n,)
+        The duration is the CC-CV cap, not the scenario's.
+    origins : tuple of str
+        Where each segment came from, for events and messages.
+    """
+
+    n_phases: np.ndarray
+    modes: np.ndarray
+    values: np.ndarray
+    setups: np.ndarray
+    setup_index: np.ndarray
+    durations: np.ndarray
+    ambients: np.ndarray
+    capped: np.ndarray
+    origins: tuple[str, ...]
+
+    @property
+    def n_segments(self) -> int:
+        """Number of segments [-]."""
+        return len(self.durations)
+
+
+def _phases_of(segment: Segment) -> list[tuple[int, float, int]]:
+    """``(mode code, demand, kind)`` of each phase of a segment."""
+    if segment.mode == "cccv":
+        return [(MODE_CURRENT, segment.value, KIND_CC), (MODE_VOLTAGE, segment.cv_voltage, KIND_CV)]
+    if segment.mode == "rest":
+        return [(MODE_CURRENT, 0.0, KIND_DEMAND)]
+    return [(LOAD_MODES[segment.mode].code, segment.value, KIND_DEMAND)]
+
+
+def event_setup(problem: Problem, segment: Segment, mode: int, value: float, kind: int) -> np.ndarray:
+    """Activity flags and thresholds of the root functions in one phase.
+
+    Parameters
+    ----------
+    problem : Problem
+        Limits and layout of the pack.
+    segment : Segment
+        The segment the phase belongs to (end conditions, CC-CV set points).
+    mode : int
+        Load-mode code of the phase.
+    value : float
+        Its demand [A, W, Ω or V].
+    kind : int
+        ``KIND_DEMAND``, ``KIND_CC`` or ``KIND_CV``.
+
+    Returns
+    -------
+    array, shape (2 N_EVENTS,)
+        Flags (1 active), then thresholds [V, K, A, -], in :data:`~thermoelec.engine.events.EVENTS` order.
+    """
+    cell, ns = problem.cell, problem.pack.series
+    active = np.zeros(N_EVENTS)
+    thresholds = np.zeros(N_EVENTS)
+    load = _BY_CODE[mode]
+    # With the terminal voltage imposed, the cell voltage is (V + I R_ic) / Ns: it
+    # stays on the safe side of V / Ns in the direction of the current, so the
+    # voltage limits are checked once at the phase start (model.start_check).
+    active[EV_VOLTAGE_MIN] = not load.imposes_voltage
+    active[EV_VOLTAGE_MAX] = not load.imposes_voltage
+    if kind == KIND_CC and segment.cv_voltage <= ns * cell.voltage_max:
+        active[EV_VOLTAGE_MAX] = False  # the CV switch comes first (at or before the cell limit)
+    thresholds[EV_VOLTAGE_MIN], thresholds[EV_VOLTAGE_MAX] = cell.voltage_min, cell.voltage_max
+    active[EV_POWER] = load.power_limited and value > 0.0
+    active[EV_TEMPERATURE] = True
+    thresholds[EV_TEMPERATURE] = problem.limits.cell_temperature_max
+    active[EV_SOC_EMPTY] = active[EV_SOC_FULL] = True
+    thresholds[EV_SOC_EMPTY], thresholds[EV_SOC_FULL] = 0.0, 1.0
+    if kind == KIND_CC:
+        active[EV_CV_SWITCH] = True
+        thresholds[EV_CV_SWITCH] = segment.cv_voltage
+    if kind == KIND_CV:
+        active[EV_CV_CUTOFF] = True
+        thresholds[EV_CV_CUTOFF] = segment.cutoff_current
+    for event, threshold in ((EV_END_VOLTAGE_BELOW, segment.voltage_below),
+                             (EV_END_VOLTAGE_ABOVE, segment.voltage_above),
+                             (EV_END_SOC_BELOW, segment.soc_below),
+                             (EV_END_SOC_ABOVE, segment.soc_above)):
+        if threshold is not None:
+            active[event] = True
+            thresholds[event] = threshold
+    return np.concatenate([active, thresholds])
+
+
+def cccv_cap(problem: Problem, segment: Segment) -> float:
+    """Duration cap of a CC-CV segment without one [s]: ten full charges at its CC rate."""
+    per_cell = abs(segment.value) / problem.pack.parallel
+    return 10.0 * problem.cell.capacity / max(per_cell, 1e-12)
+
+
+def plan_mission(problem: Problem) -> MissionPlan:
+    """The phases of every segment of ``problem.segments``, with their root-function set-ups.
+
+    Parameters
+    ----------
+    problem : Problem
+        The SI problem (its segments, limits and pack layout).
+
+    Returns
+    -------
+    MissionPlan
+        Identical set-ups are stored once (a 1 Hz profile has thousands of phases and a handful of set-ups).
+    """
+    kinds: dict[tuple, int] = {}
+    blocks = []
+    n_seg = len(problem.segments)
+    n_phases = np.ones(n_seg, dtype=np.int64)
+    modes, values = np.zeros((n_seg, MAX_PHASES)), np.zeros((n_seg, MAX_PHASES))
+    index = np.zeros((n_seg, MAX_PHASES), dtype=np.int64)
+    durations, ambients = np.empty(n_seg), np.empty(n_seg)
+    capped = np.zeros(n_seg, dtype=np.bool_)
+    for s, seg in enumerate(problem.segments):
+        phases = _phases_of(seg)
+        n_phases[s] = len(phases)
+        for j, (mode, value, kind) in enumerate(phases):
+            # what event_setup reads of the segment and the phase
+            key = (kind, mode, value > 0.0, seg.cv_voltage, seg.cutoff_current, seg.voltage_below,
+                   seg.voltage_above, seg.soc_below, seg.soc_above)
+            if key not in kinds:
+                kinds[key] = len(blocks)
+                blocks.append(event_setup(problem, seg, mode, value, kind))
+            modes[s, j], values[s, j], index[s, j] = mode, value, kinds[key]
+        capped[s] = not math.isfinite(seg.duration)
+        durations[s] = cccv_cap(problem, seg) if capped[s] else seg.duration
+        ambients[s] = np.nan if seg.ambient_temperature is None else seg.ambient_temperature
+    return MissionPlan(n_phases, modes, values, np.array(blocks).reshape(len(blocks), 2 * N_EVENTS), index,
+                       durations, ambients, capped, tuple(seg.origin for seg in problem.segments))
+
+
+def thermostat_switches(problem: Problem) -> np.ndarray:
+    """The fan, heater and pump thermostats as rows ``(present, on_at, off_at)`` [-, K, K].
+
+    Rows follow :data:`thermoelec.engine.events.CONTROL_EVENTS`; an absent one is all zeros.
+    """
+    th = problem.thermal
+    found = {EV_FAN: th.fan.switch if th.fan else None, EV_HEATER: th.heater.switch if th.heater else None,
+             EV_PUMP: th.pump}
+    rows = np.zeros((len(CONTROL_EVENTS), 3))
+    for c, event in enumerate(CONTROL_EVENTS):
+        switch = found[event]
+        if switch is not None:
+            rows[c] = (1.0, switch.on_at, switch.off_at)
+    return rows
+
+
+def initial_controls(switches: np.ndarray, cell_temperature: float) -> np.ndarray:
+    """Whether each thermostat starts on: already past its on threshold at ``cell_temperature`` [K].
+
+    A heating switch (``on_at < off_at``) is on at or below its on threshold, a
+    cooling one at or above it (:meth:`thermoelec.physics.thermal.Switch.initially_on`).
+    """
+    on = np.zeros(len(switches), dtype=np.bool_)
+    for c, (present, on_at, off_at) in enumerate(switches):
+        if present:
+            on[c] = cell_temperature <= on_at if on_at < off_at else cell_temperature >= on_at
+    return on
+
+
+@_jit
+def configure_phase(p, seg, phase, modes, values, ambients, setups, setup_index, default_ambient, default_table,
+                    switches, controls):
+    """Write one phase into the parameter vector ``p``: demand, ambient, root functions, thermostats.
+
+    The one writer of the per-phase slots, for both drivers. A segment with its
+    own ambient (a CSV row, a soak) holds it and switches the ambient profile
+    off; the others take ``default_ambient`` [K] and the profile block at
+    ``default_table`` (0: none). A present thermostat's root function waits for
+    its off threshold while it is on, for its on threshold while it is off.
+
+    Parameters
+    ----------
+    p : float array
+        The parameter vector (:mod:`thermoelec.engine.layout`), written in place.
+    seg, phase : int
+        The segment and its phase (0, or 1 for the CV phase of a CC-CV charge).
+    modes, values, ambients, setups, setup_index : arrays
+        The arrays of a :class:`MissionPlan`.
+    default_ambient : float
+        The mission's ambient [K].
+    default_table : float
+        Offset of the ambient-profile block in ``p``, 0 for none.
+    switches : float array, shape (3, 3)
+        :func:`thermostat_switches`.
+    controls : bool array, shape (3,)
+        Which thermostats are on.
+    """
+    p[H_MODE] = modes[seg, phase]
+    p[H_VALUE] = values[seg, phase]
+    own = not np.isnan(ambients[seg])
+    p[H_AMBIENT] = ambients[seg] if own else default_ambient
+    p[H_AMBIENT_TABLE] = 0.0 if own else default_table
+    p[H_ACTIVE:H_THRESHOLD + N_EVENTS] = setups[setup_index[seg, phase]]
+    for c in range(switches.shape[0]):
+        if switches[c, 0] != 0.0:
+            event = EV_FAN + c
+            p[CONTROL_FLAG_OF[c]] = 1.0 if controls[c] else 0.0
+            p[H_ACTIVE + event] = 1.0
+            p[H_THRESHOLD + event] = switches[c, 2] if controls[c] else switches[c, 1]
+
+
+def soak_problem(problem: Problem) -> Problem | None:
+    """The soak segments of ``problem`` as a problem of their own (None without a soak)."""
+    if not problem.soak:
+        return None
+    return replace(problem, segments=problem.soak, soak=())
+
+
+def start_after_soak(state: np.ndarray, n_rc: int) -> np.ndarray:
+    """The mission's initial state from a soak's end state: the same states, the integrals reset."""
+    start = np.array(state, dtype=float)
+    start[quadrature_index(n_rc):] = 0.0
+    return start

@@ -1,0 +1,153 @@
+"""The problem the engine solves: one scenario in SI units, and its parameter vector.
+
+:class:`Problem` is what the scenario layer builds and both drivers integrate;
+:func:`pack_parameters` writes it into the flat vector the kernels read (its
+layout is declared in :mod:`thermoelec.engine.layout`).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from thermoelec.engine import layout as L
+from thermoelec.engine.profile import Segment
+from thermoelec.physics import thermal as thermphys
+from thermoelec.physics.cell import Cell, Pack
+from thermoelec.physics.thermal import ThermalNetwork
+
+__all__ = ["Limits", "Problem", "StressSettings", "pack_parameters"]
+
+
+@dataclass(frozen=True)
+class Limits:
+    """Operating limits [V per cell, K]."""
+
+    cell_temperature_max: float = 333.15
+    charge_temperature_min: float = 273.15
+
+
+@dataclass(frozen=True)
+class StressSettings:
+    """How ageing stress is weighed in the report.
+
+    ``activation_energy`` [J/mol] and ``reference_temperature`` [K] set the
+    Arrhenius weighting of time (an hour at T counts as
+    ``exp(-Ea/R (1/T - 1/T_ref))`` hours at T_ref); ``hot_temperature`` [K] is the
+    threshold of the reported "time above" indicator. The default activation
+    energy, 31.5 kJ/mol, is close to the calendar/cycle capacity-fade value
+    reported by J. Wang et al., J. Power Sources 196 (2011) 3942 for
+    graphite/LiFePO4 cells (from memory); give the value of your own chemistry.
+    """
+
+    activation_energy: float = 31_500.0
+    reference_temperature: float = 298.15
+    hot_temperature: float = 318.15
+
+
+@dataclass(frozen=True)
+class Problem:
+    """Everything needed to simulate one scenario, in SI units."""
+
+    cell: Cell
+    pack: Pack
+    thermal: ThermalNetwork
+    segments: tuple[Segment, ...]
+    ambient_temperature: float
+    initial_soc: float
+    initial_cell_temperature: float
+    initial_sink_temperature: float
+    limits: Limits = field(default_factory=Limits)
+    name: str = ""
+    stress: StressSettings = field(default_factory=StressSettings)
+    initial_coolant_temperature: float | None = None
+    ambient_profile: tuple[np.ndarray, np.ndarray] | None = None
+    soak: tuple[Segment, ...] = ()
+
+    @property
+    def n_rc(self) -> int:
+        """Number of RC pairs."""
+        return len(self.cell.rc)
+
+    def initial_state(self) -> np.ndarray:
+        """State vector at t = 0: RC pairs relaxed, integrals zero."""
+        y = np.zeros(L.n_states(self.n_rc))
+        y[0] = self.initial_soc
+        y[L.cell_temperature_index(self.n_rc)] = self.initial_cell_temperature
+        y[L.sink_temperature_index(self.n_rc)] = self.initial_sink_temperature
+        coolant = self.thermal.coolant
+        if self.initial_coolant_temperature is not None:
+            y[L.coolant_temperature_index(self.n_rc)] = self.initial_coolant_temperature
+        elif coolant is not None:
+            y[L.coolant_temperature_index(self.n_rc)] = coolant.inlet_temperature
+        else:
+            y[L.coolant_temperature_index(self.n_rc)] = self.initial_sink_temperature
+        return y
+
+    def ambient_at(self, time: float) -> float:
+        """Ambient temperature [K] at ``time`` [s] from the ambient profile (else the constant)."""
+        if self.ambient_profile is None:
+            return self.ambient_temperature
+        return float(np.interp(time, *self.ambient_profile))
+
+
+def pack_parameters(problem: Problem) -> np.ndarray:
+    """The flat parameter vector of :mod:`thermoelec.engine.layout`, the phase slots left at zero.
+
+    Parameters
+    ----------
+    problem : Problem
+        The SI problem.
+
+    Returns
+    -------
+    array of float
+        Header then blocks; :func:`thermoelec.engine.layout.describe` prints it by name.
+    """
+    c, pk, th = problem.cell, problem.pack, problem.thermal
+    header = np.zeros(L.HEADER)
+    header[L.H_NS], header[L.H_NP], header[L.H_RIC] = pk.series, pk.parallel, pk.interconnect_resistance
+    header[L.H_CAPACITY] = c.capacity
+    header[L.H_CCELL] = pk.series * pk.parallel * c.mass * c.specific_heat
+    header[L.H_CSINK], header[L.H_GCS] = th.sink_heat_capacity, th.cell_to_sink
+    header[L.H_GSA], header[L.H_GCA] = th.sink_to_ambient, th.cell_to_ambient
+    header[L.H_NRC] = len(c.rc)
+    header[L.H_AMBIENT] = problem.ambient_temperature
+    _thermal_header(header, th)
+    body: list[float] = []
+    header[L.H_OCV] = L.HEADER + len(body)
+    body += L.ocv_block(c.ocv_soc, c.ocv_voltage, c.ocv_entropic, c.ocv_reference_temperature)
+    header[L.H_R0] = L.HEADER + len(body)
+    body += L.law_block(c.r0)
+    header[L.H_RC] = L.HEADER + len(body)
+    for pair in c.rc:
+        body += L.rc_block(pair)
+    if problem.ambient_profile is not None:
+        header[L.H_AMBIENT_TABLE] = L.HEADER + len(body)
+        body += L.ambient_block(*problem.ambient_profile)
+    return np.concatenate([header, np.asarray(body, float)])
+
+
+def _thermal_header(header: np.ndarray, th: ThermalNetwork) -> None:
+    """Cooling options into the header; thermostat flags start off (the driver sets them)."""
+    conv = th.convection
+    if conv is not None:
+        header[L.H_FORCED] = thermphys.FORCED_CORRELATIONS.get(conv.forced or "", 0)
+        header[L.H_NATURAL] = thermphys.NATURAL_CORRELATIONS.get(conv.natural or "", 0)
+        header[L.H_CONV_LENGTH], header[L.H_CONV_AREA], header[L.H_AIR_SPEED] = conv.length, conv.area, conv.air_speed
+    header[L.H_FAN_SPEED] = -1.0
+    if th.fan is not None:
+        header[L.H_FAN_SPEED] = -1.0 if th.fan.air_speed is None else th.fan.air_speed
+        header[L.H_FAN_G] = th.fan.conductance
+    if th.radiation is not None:
+        header[L.H_EMISSIVITY], header[L.H_RAD_AREA] = th.radiation.emissivity, th.radiation.area
+        header[L.H_SURROUNDINGS] = th.radiation.surroundings_temperature or 0.0
+    if th.coolant is not None:
+        cool = th.coolant
+        header[L.H_COOL_MCP], header[L.H_COOL_UA], header[L.H_COOL_G] = (cool.capacity_rate, cool.plate_conductance,
+                                                                    cool.conductance)
+        header[L.H_COOL_C], header[L.H_COOL_INLET] = cool.heat_capacity, cool.inlet_temperature
+    header[L.H_PUMP_ON] = 1.0
+    if th.heater is not None:
+        header[L.H_HEATER_POWER], header[L.H_HEATER_FROM_PACK] = th.heater.power, float(th.heater.from_pack)

@@ -1,0 +1,336 @@
+"""Load modes: how a demand on the pack terminals sets the pack current, and the registry of modes.
+
+A phase of a mission holds one demand on the pack: a current, a power, a load
+resistance or a terminal voltage. Behind the terminals the pack is a source
+``E`` (the open-circuit voltage behind the RC pairs) in series with ``R``; each
+mode's current is closed-form in ``E`` and ``R`` (circuit theory, common
+practice; see the functions below), which the engine evaluates at every
+right-hand-side call (:func:`pack_current`).
+
+:data:`LOAD_MODES` is the one list of modes: the scenario schema, the CSV
+column names, the engine's mode codes, the event set-up and the figure labels
+all derive from it. Adding a mode means a pure function here, an entry in
+:data:`LOAD_MODES` and a branch in :func:`pack_current` (plus its tests).
+
+Sign convention: a current ``I > 0`` discharges; a power ``P > 0`` flows to the load.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from numba.extending import register_jitable
+
+__all__ = [
+    "COMPOSITE_MODES",
+    "LOAD_MODES",
+    "SEGMENT_MODES",
+    "LoadMode",
+    "current_for_power",
+    "current_for_resistance",
+    "current_for_voltage",
+    "maximum_power",
+    "pack_current",
+    "power_deliverable_margin",
+    "terminal_voltage_with_auxiliary_load",
+    "voltage_limited_power",
+]
+
+
+@dataclass(frozen=True)
+class LoadMode:
+    """One way a demand is put on the pack terminals.
+
+    Attributes
+    ----------
+    name : str
+        The mode's name in scenario files and outputs (``mode = "power"``).
+    code : int
+        Its code in the engine's kernels (:func:`pack_current`).
+    unit : str
+        Unit of the demand value (pack level, SI).
+    label : str
+        Words for figures and tables.
+    positive : bool
+        The demand must be > 0 (a load resistance, a terminal voltage).
+    power_limited : bool
+        A demand can exceed what the pack can deliver (the maximum-power point),
+        which then stops the mission (event ``power_limit``) instead of giving no solution.
+    imposes_voltage : bool
+        The mode holds the terminal voltage, so the cell voltage limits are checked
+        at the phase start instead of by root functions.
+    """
+
+    name: str
+    code: int
+    unit: str
+    label: str
+    positive: bool = False
+    power_limited: bool = False
+    imposes_voltage: bool = False
+
+    @property
+    def csv_column(self) -> str:
+        """The column of a profile CSV that holds this demand (``power_W``)."""
+        return f"{self.name}_{self.unit}"
+
+
+#: The load modes by name, in the order of their codes.
+LOAD_MODES: dict[str, LoadMode] = {mode.name: mode for mode in (
+    LoadMode("current", 0, "A", "current"),
+    LoadMode("power", 1, "W", "power", power_limited=True),
+    LoadMode("resistance", 2, "ohm", "load resistance", positive=True),
+    LoadMode("voltage", 3, "V", "terminal voltage", positive=True, imposes_voltage=True),
+)}
+#: Segment modes made of load-mode phases: a rest is zero current, a CC-CV charge a current
+#: then a voltage phase, a soak a rest before the mission at its own ambient.
+COMPOSITE_MODES: dict[str, str] = {
+    "rest": "no current",
+    "cccv": "CC-CV charge: constant current to the voltage limit, then constant voltage to the cutoff current",
+    "soak": "rest before the mission, at its own ambient",
+}
+#: Every segment mode of the scenario format.
+SEGMENT_MODES: tuple[str, ...] = (*LOAD_MODES, *COMPOSITE_MODES)
+
+MODE_CURRENT = LOAD_MODES["current"].code
+MODE_POWER = LOAD_MODES["power"].code
+MODE_RESISTANCE = LOAD_MODES["resistance"].code
+MODE_VOLTAGE = LOAD_MODES["voltage"].code
+
+@register_jitable
+def current_for_power(emf: float, resistance: float, power: float) -> float:
+    """Current that delivers ``power`` to the load from a source ``emf`` behind ``resistance``.
+
+    Solves ``R I^2 - E I + P = 0`` for the lower root (the stable, efficient
+    branch) in the cancellation-free form ``I = 2P / (E + sqrt(E^2 - 4 R P))``,
+    which also serves regeneration (``P < 0``). Where ``P > E^2 / (4R)`` no real
+    solution exists; the discriminant is clamped at zero here and the caller
+    must stop on :func:`power_deliverable_margin` instead.
+
+    Parameters
+    ----------
+    emf : float
+        Source voltage behind the resistance [V], > 0.
+    resistance : float
+        Total series resistance [Ω], > 0.
+    power : float
+        Power to the load [W]; negative charges.
+
+    Returns
+    -------
+    float
+        Current [A], > 0 for discharge.
+
+    References
+    ----------
+    Circuit theory (common practice); the cancellation-free root as in
+    W. H. Press et al., *Numerical Recipes*, 3rd ed., §5.6.
+    """
+    discriminant = emf * emf - 4.0 * resistance * power
+    if discriminant < 0.0:
+        discriminant = 0.0
+    return 2.0 * power / (emf + np.sqrt(discriminant))
+
+
+@register_jitable
+def power_deliverable_margin(emf: float, resistance: float, power: float) -> float:
+    """``E^2 - 4 R P``: positive while the power can be delivered [V²].
+
+    Parameters
+    ----------
+    emf : float
+        Source voltage behind the resistance [V].
+    resistance : float
+        Total series resistance [Ω].
+    power : float
+        Power demanded by the load [W].
+
+    Returns
+    -------
+    float
+        The discriminant of the constant-power equation [V²]; it crosses zero at
+        the maximum-power point (half the short-circuit current).
+    """
+    return emf * emf - 4.0 * resistance * power
+
+
+@register_jitable
+def current_for_resistance(emf: float, resistance: float, load_resistance: float) -> float:
+    """Current into a resistive load: ``I = E / (R + R_load)``.
+
+    Parameters
+    ----------
+    emf : float
+        Source voltage [V].
+    resistance : float
+        Internal series resistance [Ω].
+    load_resistance : float
+        Load resistance [Ω], > 0.
+
+    Returns
+    -------
+    float
+        Current [A].
+    """
+    return emf / (resistance + load_resistance)
+
+
+@register_jitable
+def current_for_voltage(emf: float, resistance: float, terminal_voltage: float) -> float:
+    """Current that holds the terminal voltage: ``I = (E - V) / R``.
+
+    Parameters
+    ----------
+    emf : float
+        Source voltage [V].
+    resistance : float
+        Internal series resistance [Ω], > 0.
+    terminal_voltage : float
+        Imposed terminal voltage [V].
+
+    Returns
+    -------
+    float
+        Current [A]; negative (charging) when ``V > E``.
+    """
+    return (emf - terminal_voltage) / resistance
+
+
+@register_jitable
+def maximum_power(emf: float, resistance: float) -> float:
+    """Maximum power transferable to a load: ``E^2 / (4 R)`` at ``I = E / (2R)`` [W].
+
+    Parameters
+    ----------
+    emf : float
+        Source voltage [V].
+    resistance : float
+        Series resistance [Ω], > 0.
+
+    Returns
+    -------
+    float
+        Power [W]; at this point load and internal losses are equal (50 % efficiency).
+
+    References
+    ----------
+    Maximum power transfer theorem (M. H. Jacobi, 1840); common practice.
+    """
+    return emf * emf / (4.0 * resistance)
+
+
+@register_jitable
+def voltage_limited_power(emf: float, resistance: float, voltage_min: float) -> float:
+    """Power at the minimum terminal voltage: ``V_min (E - V_min) / R`` [W].
+
+    Valid for ``V_min >= E / 2``; below that the maximum power point is reached first.
+
+    Parameters
+    ----------
+    emf : float
+        Source voltage [V].
+    resistance : float
+        Series resistance [Ω].
+    voltage_min : float
+        Lowest allowed terminal voltage [V].
+
+    Returns
+    -------
+    float
+        Power [W].
+    """
+    return voltage_min * (emf - voltage_min) / resistance
+
+
+@register_jitable
+def terminal_voltage_with_auxiliary_load(conductance_factor: float, source: float, resistance: float,
+                                         auxiliary_power: float) -> float:
+    """Terminal voltage when a constant-power auxiliary load shares the terminals.
+
+    The terminal voltage solves ``a V² - b V + R P_aux = 0``: the higher root
+    ``V = (b + sqrt(b² - 4 a R P_aux)) / (2a)``, the one that tends to the
+    no-auxiliary voltage ``b / a`` as ``P_aux -> 0``. For a current demand
+    ``I_d``: ``a = 1``, ``b = E - R I_d``; for a load resistance ``R_L``:
+    ``a = 1 + R / R_L``, ``b = E``. Past the point where no solution exists
+    (discriminant < 0) the maximum-power voltage ``b / (2a)`` is returned.
+
+    Parameters
+    ----------
+    conductance_factor : float
+        ``a`` [-], >= 1.
+    source : float
+        ``b`` [V].
+    resistance : float
+        Series resistance ``R`` [Ω].
+    auxiliary_power : float
+        ``P_aux`` [W], >= 0.
+
+    Returns
+    -------
+    float
+        Terminal voltage [V].
+
+    References
+    ----------
+    Kirchhoff's laws with a constant-power load (circuit theory, common practice);
+    derived here.
+    """
+    disc = source * source - 4.0 * conductance_factor * resistance * auxiliary_power
+    if disc < 0.0:
+        disc = 0.0
+    return (source + np.sqrt(disc)) / (2.0 * conductance_factor)
+
+
+@register_jitable
+def pack_current(mode: int, value: float, emf: float, resistance: float, auxiliary_power: float) -> float:
+    """Pack current [A] for a demand, from the source ``emf`` behind ``resistance``.
+
+    A constant-power auxiliary load on the terminals (a heater fed from the
+    pack) adds its current; with an imposed terminal voltage the source holding
+    the terminals feeds the auxiliary load, so the cells do not see it.
+
+    Parameters
+    ----------
+    mode : int
+        Code of a :data:`LOAD_MODES` entry.
+    value : float
+        The demand in the mode's unit: current [A], power [W], load resistance [Ω]
+        or terminal voltage [V].
+    emf : float
+        Source voltage behind the pack resistance [V].
+    resistance : float
+        Pack series resistance [Ω], > 0.
+    auxiliary_power : float
+        Power of an auxiliary load on the terminals [W], >= 0.
+
+    Returns
+    -------
+    float
+        Pack current [A], > 0 discharging.
+
+    References
+    ----------
+    Kirchhoff's laws (circuit theory, common practice); the closed forms are the
+    functions of this module.
+
+    Examples
+    --------
+    A 20 W load on 3.7 V behind 50 mΩ (the lower root of ``R I² - E I + P = 0``):
+
+    >>> round(float(pack_current(MODE_POWER, 20.0, 3.7, 0.05, 0.0)), 6)
+    5.871235
+    """
+    if mode == MODE_CURRENT:
+        if auxiliary_power > 0.0:
+            return value + auxiliary_power / terminal_voltage_with_auxiliary_load(
+                1.0, emf - resistance * value, resistance, auxiliary_power)
+        return value
+    if mode == MODE_POWER:
+        return current_for_power(emf, resistance, value + auxiliary_power)
+    if mode == MODE_RESISTANCE:
+        if auxiliary_power > 0.0:
+            v_aux = terminal_voltage_with_auxiliary_load(1.0 + resistance / value, emf, resistance, auxiliary_power)
+            return v_aux / value + auxiliary_power / v_aux
+        return current_for_resistance(emf, resistance, value)
+    return current_for_voltage(emf, resistance, value)
