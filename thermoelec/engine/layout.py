@@ -38,7 +38,9 @@ __all__ = ["ALGEBRAICS", "ALGEBRAIC_NAMES", "HEADER_SLOTS", "QUADRATURES", "Slot
            "coolant_temperature_index", "describe", "law_block", "n_dynamic", "n_states", "quadrature_index",
            "sink_temperature_index"]
 
-_jit = numba.njit(cache=True, nogil=True, error_model="numpy")
+# The block readers are inlined into the kernels that call them (a call between compiled
+# functions is not inlined by numba, and a right-hand side reads six blocks).
+_jit = numba.njit(cache=True, nogil=True, error_model="numpy", inline="always")
 
 
 @dataclass(frozen=True)
