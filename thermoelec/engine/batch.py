@@ -165,12 +165,15 @@ MAX_EVENTS_PER_SEGMENT = 1000
 @numba.njit(cache=True, error_model="numpy")
 def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setup_index, switches, controls, y,
                    rtol, atol, ea, t_ref, extra, tc_index, ts_index):
-    """One scenario through its segments and their phases (a CC-CV segment has two).
+    """One scenario through the segments of its mission plan and their phases (a CC-CV segment has two).
 
-    Events act as in the engine's driver (``solve.integrate_problem``): a limit
-    stops the mission, the CC->CV switch starts the CV phase, a cutoff or an end
-    condition ends the segment, a thermostat toggles and the phase goes on.
-    Returns (status, event, time): status 0 end of profile, 1 stopped, 2 fallback.
+    Events act by :data:`thermoelec.engine.events.EVENT_ACTION`, as in the CVODE
+    driver: a limit stops the mission, the CC->CV switch starts the CV phase, a
+    cutoff or an end condition ends the segment, a thermostat toggles and the
+    phase goes on. Returns (status, event, time): status 0 end of profile, 1
+    stopped, 2 fallback. About 100 lines in one compiled loop, on purpose: the
+    step loop runs once per segment of every scenario, and as a separate
+    function taking a dozen arrays its calls cost a fifth of the batch.
     """
     n = y.size
     k = np.empty((4, n))
