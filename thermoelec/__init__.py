@@ -9,7 +9,8 @@
 from thermoelec.analysis.results import SimulationResult
 from thermoelec.api import simulate, simulate_file
 from thermoelec.engine.options import SolverOptions
-from thermoelec.scenario import Scenario, ScenarioError, load_scenario, scenario_from_dict
+from thermoelec.inputs import ScenarioError
+from thermoelec.scenario import Scenario, load_scenario, scenario_from_dict
 from thermoelec.version import __version__
 
 __all__ = [

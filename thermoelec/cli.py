@@ -12,8 +12,9 @@ import os
 import sys
 from pathlib import Path
 
+from thermoelec.inputs import ScenarioError, to_si
 from thermoelec.output.tables import print_summary
-from thermoelec.scenario import ScenarioError, load_scenario, parse_value
+from thermoelec.scenario import load_scenario, parse_value
 from thermoelec.version import __version__
 
 EXIT_OK, EXIT_FAILURE, EXIT_INVALID = 0, 1, 2
@@ -109,8 +110,6 @@ def _compare(args: argparse.Namespace) -> int:
 
 def _quantity_option(text: str, unit: str, option: str) -> float:
     """A command-line quantity (``'68 g'``, ``'-10 degC'``, a bare number in ``unit``) in SI."""
-    from thermoelec.scenario import to_si
-
     si = {"degC": "K"}.get(unit, unit)
     try:
         return to_si(parse_value(text), unit, si)
@@ -162,8 +161,6 @@ def _fit(args: argparse.Namespace) -> int:
 
 def _sweep(args: argparse.Namespace) -> int:
     from thermoelec.analysis import sweep
-    from thermoelec.scenario import to_si
-
     scenario = load_scenario(args.scenario, _overrides(args.set or []))
     out = Path(args.out)
     if args.find:

@@ -298,25 +298,6 @@ def test_keep_series_writes_decimated_series_chunked_by_scenario(tmp_path):
     assert list(kept["profile.segment[1].value"].values) == [2.0, 7.0]
 
 
-def load_dict(data: dict) -> thermoelec.Scenario:
-    return thermoelec.scenario_from_dict(data)
-
-
-def test_scenarios_of_a_sweep_share_their_segments_unless_the_profile_differs():
-    # the batched solver recognises a profile by the identity of its segment tuple: it must be shared
-    # exactly when the segments are the same (a soak takes the ambient, so then the ambient counts)
-    base = load_dict(BASE)
-    warm, hot = (base.with_overrides({"thermal.ambient_temperature": t}).problem() for t in ("20 degC", "30 degC"))
-    assert warm.segments is hot.segments
-    other = base.with_overrides({"profile.segment[1].value": "5 A"}).problem()
-    assert other.segments is not warm.segments and other.segments[0].value == 5.0
-    soaked = dict(BASE, profile={"segment": [{"mode": "soak", "duration": "10 min"}, *BASE["profile"]["segment"]]})
-    cold, mild = (load_dict(soaked).with_overrides({"thermal.ambient_temperature": t}).problem()
-                  for t in ("-10 degC", "10 degC"))
-    assert cold.soak[0].ambient_temperature == pytest.approx(263.15)
-    assert mild.soak[0].ambient_temperature == pytest.approx(283.15)
-
-
 def test_heat_map_marks_the_stopped_scenarios_and_draws_the_boundary(mixed):
     from matplotlib.collections import PathCollection
 

@@ -15,7 +15,7 @@ from typing import Any
 
 import numpy as np
 
-from thermoelec.scenario import ScenarioError, to_si
+from thermoelec.inputs import ScenarioError, to_si
 
 __all__ = ["CellData", "dump_toml", "read_cell_file"]
 

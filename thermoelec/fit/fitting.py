@@ -28,13 +28,12 @@ from scipy.linalg import expm
 from scipy.optimize import least_squares
 
 from thermoelec.fit.logs import Pulse, TestLog, find_pulses
+from thermoelec.inputs import ScenarioError
 from thermoelec.physics.cell import GAS_CONSTANT
-from thermoelec.scenario import ScenarioError
 
 __all__ = ["ArrheniusFit", "OcvFit", "PulseFit", "ThermalFit", "fit_arrhenius", "fit_ocv", "fit_pulse_log",
            "fit_thermal", "tabulate_pulses"]
 
-KELVIN_AT_0_DEGC = 273.15
 Z95 = 1.959963984540054  # two-sided 95 % quantile of the normal distribution
 
 

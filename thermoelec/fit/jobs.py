@@ -20,15 +20,15 @@ from typing import Any
 
 import numpy as np
 from matplotlib.figure import Figure
+from scipy.constants import zero_Celsius as KELVIN_AT_0_DEGC  # [K]
 
 from thermoelec.fit import fitting
 from thermoelec.fit.cellfile import CellData, dump_toml, read_cell_file
 from thermoelec.fit.logs import LogMapping, read_log
+from thermoelec.inputs import ScenarioError, to_si
 from thermoelec.physics.thermal import biot_number
 
 __all__ = ["FitOutcome", "fit_ocv_logs", "fit_pulse_logs", "fit_thermal_log"]
-
-KELVIN_AT_0_DEGC = 273.15
 
 
 class FitOutcome:
@@ -94,8 +94,6 @@ def _base_tables(cell: CellData | None) -> dict[str, Any]:
 def fit_ocv_logs(paths: Sequence[str], mapping: LogMapping, points: int = 21,
                  cell_path: str | None = None) -> FitOutcome:
     """OCV and capacity from a slow discharge log and a slow charge log (in that order)."""
-    from thermoelec.scenario import ScenarioError
-
     if len(paths) != 2:
         raise ScenarioError("fit ocv", "LOG", "give two logs: the slow discharge, then the slow charge")
     discharge, charge = (read_log(p, mapping, ("current", "voltage"), ("temperature",), min_rows=50) for p in paths)
@@ -150,8 +148,6 @@ def fit_ocv_logs(paths: Sequence[str], mapping: LogMapping, points: int = 21,
 def fit_pulse_logs(paths: Sequence[str], mapping: LogMapping, cell_path: str, n_rc: int = 1,
                    temperatures: Sequence[float] | None = None, arrhenius: bool = False) -> FitOutcome:
     """R0 and RC pairs over SoC and temperature from pulse-test logs (one per temperature)."""
-    from thermoelec.scenario import ScenarioError
-
     cell = read_cell_file(cell_path)
     cell.require("capacity", "ocv_soc", "ocv_voltage")
     if temperatures is not None and len(temperatures) != len(paths):
@@ -304,7 +300,6 @@ def _geometry(cell: CellData | None) -> tuple[float, float, float] | None:
     if cell is None:
         return None
     from thermoelec.physics.cell import CellGeometry
-    from thermoelec.scenario import to_si
 
     raw = cell.raw.get("cell", {})
     keys = ("diameter", "length", "thickness", "width", "height")

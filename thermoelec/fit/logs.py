@@ -4,7 +4,7 @@ Cyclers name their columns differently and some log charge as positive; a
 small mapping (command-line options or a TOML file) says which column is what,
 in which unit, and which sign means discharge. Inside, every log is SI with
 current > 0 discharging, like the rest of thermoelec. Every problem is a
-:class:`~thermoelec.scenario.ScenarioError` naming the file and the column.
+:class:`~thermoelec.inputs.ScenarioError` naming the file and the column.
 """
 
 from __future__ import annotations
@@ -17,7 +17,7 @@ from typing import Any
 
 import numpy as np
 
-from thermoelec.scenario import ScenarioError, check_increasing, numeric_column, read_csv_frame, to_si
+from thermoelec.inputs import ScenarioError, check_increasing, numeric_column, read_csv_frame, to_si
 
 __all__ = ["LogMapping", "Pulse", "TestLog", "find_pulses", "read_log", "read_mapping"]
 

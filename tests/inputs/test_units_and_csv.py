@@ -1,0 +1,96 @@
+"""Input helpers: quantities to SI, CSV columns, times; the layer's imports.
+
+Sources: the SI definitions (SI Brochure, 9th ed.: 0 degC = 273.15 K, §2.3.1;
+the prefixes milli and kilo, §3; 1 h = 3600 s, Table 8) and the rows of the
+CSV files written here.
+"""
+
+from __future__ import annotations
+
+import ast
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from thermoelec.inputs import ScenarioError, check_increasing, numeric_column, read_csv_frame, to_si
+
+PACKAGE = Path(__file__).resolve().parents[2] / "thermoelec"
+
+
+@pytest.mark.parametrize(("value", "default", "si", "expected"), [
+    ("-40 degC", "degC", "K", 233.15),  # SI Brochure §2.3.1: T/K = t/degC + 273.15
+    (25, "degC", "K", 298.15),
+    ("2.5 Ah", "Ah", "C", 9000.0),  # 1 A h = 3600 C
+    ("25 mohm", "ohm", "ohm", 0.025),
+    ("1.5 kW", "W", "W", 1500.0),
+    ("10 min", "s", "s", 600.0),
+    ("0.5", "", "", 0.5),
+])
+def test_quantities_in_si(value, default, si, expected):
+    assert to_si(value, default, si) == pytest.approx(expected, rel=1e-12)
+
+
+@pytest.mark.parametrize(("value", "message"), [
+    (True, "expected a number"),
+    ([1.0], "expected a number"),
+    ("2.5 V", "wrong dimension"),
+    ("2.5 Ahh", "unknown unit"),
+    ("lots", "is not a quantity"),
+    (float("nan"), "not a finite number"),
+])
+def test_bad_quantities_say_why(value, message):
+    with pytest.raises(ValueError, match=message):
+        to_si(value, "Ah", "C")
+
+
+def test_a_scenario_error_names_file_key_and_line():
+    assert str(ScenarioError("s.toml", "cell.mass", "must be > 0", 7)) == "s.toml, line 7: cell.mass: must be > 0"
+    assert str(ScenarioError("s.toml", "", "scenario file not found")) == "s.toml: scenario file not found"
+
+
+def test_csv_columns_are_stripped_and_bad_rows_named(tmp_path):
+    path = tmp_path / "log.csv"
+    path.write_text("# a comment line\n time_s , current_A\n0, 1.0\n1, 2.5\n2, oops\n")
+    frame = read_csv_frame(path, "log", "log")
+    assert list(frame.columns) == ["time_s", "current_A"]
+    np.testing.assert_array_equal(numeric_column(frame, "time_s", str(path)), [0.0, 1.0, 2.0])
+    with pytest.raises(ScenarioError, match=r"log\.csv: current_A: row 3 \(line 4\): 'oops' is not a finite number"):
+        numeric_column(frame, "current_A", str(path))
+    with pytest.raises(ScenarioError, match="log file not found"):
+        read_csv_frame(tmp_path / "none.csv", "log", "log")
+
+
+def test_times_must_increase():
+    check_increasing(np.array([0.0, 1.0, 5.0]), "f.csv", "time_s")
+    with pytest.raises(ScenarioError, match=r"time_s: time must be strictly increasing: row 3 \(line 4\) has 1 s "
+                                            "after 1 s"):
+        check_increasing(np.array([0.0, 1.0, 1.0]), "f.csv", "time_s")
+
+
+def test_numeric_column_reads_what_pandas_reads():
+    # pandas as the reference reader of the numbers
+    frame = pd.DataFrame({"v": ["1e-3", " 2.5", "-7"]})
+    np.testing.assert_array_equal(numeric_column(frame, "v", "f"), [1e-3, 2.5, -7.0])
+
+
+def _thermoelec_imports(folder: Path) -> set[str]:
+    """Every thermoelec module the files of a folder import, lazy imports included."""
+    found = set()
+    for path in folder.glob("*.py"):
+        for node in ast.walk(ast.parse(path.read_text())):
+            names = [node.module] if isinstance(node, ast.ImportFrom) and node.module else \
+                [a.name for a in node.names] if isinstance(node, ast.Import) else []
+            found.update(n for n in names if n.startswith("thermoelec"))
+    return found
+
+
+@pytest.mark.parametrize(("layer", "allowed"), [
+    ("inputs", ("thermoelec.inputs", "thermoelec.physics")),
+    ("scenario", ("thermoelec.inputs", "thermoelec.physics", "thermoelec.engine", "thermoelec.scenario")),
+])
+def test_the_layer_imports_nothing_above_it(layer, allowed):
+    # the project's layering rule: a module imports from its own layer or below
+    above = {name for name in _thermoelec_imports(PACKAGE / layer) if not name.startswith(allowed)}
+    assert not above, above

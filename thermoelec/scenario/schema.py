@@ -1,0 +1,663 @@
+"""The scenario schema (format 1): pydantic models of every table, their quantity types and checks.
+
+Owns the sections (``[cell]``, ``[thermal]``, ``[[profile.segment]]`` ...) with
+their keys, the annotated quantity types that convert a value to SI as it is
+validated, and :class:`KeyedError` with the small ``_check`` helpers a
+section's validator raises it with (naming the key at fault). After validation
+every value is SI (K, s, A, V, Ω, W, J, C).
+
+Imports from :mod:`thermoelec.inputs`, :mod:`thermoelec.engine` (back ends,
+solver options, stress settings), :mod:`thermoelec.physics` and, for the CSV
+column names, :mod:`thermoelec.scenario.series`; never from the other scenario
+modules (they build on this one) nor from the layers above.
+"""
+
+from __future__ import annotations
+
+import itertools
+from typing import Annotated, Any, Literal
+
+import numpy as np
+from pydantic import BaseModel, BeforeValidator, ConfigDict, model_validator
+from scipy.constants import zero_Celsius
+
+from thermoelec.engine.backends import BACKENDS
+from thermoelec.engine.options import SolverOptions
+from thermoelec.engine.problem import StressSettings
+from thermoelec.inputs.units import to_si
+from thermoelec.physics.cell import CellGeometry, RCPair, ResistanceLaw
+from thermoelec.physics.loads import LOAD_MODES, SEGMENT_MODES
+from thermoelec.physics.thermal import (
+    Convection,
+    Coolant,
+    Fan,
+    Heater,
+    Radiation,
+    Switch,
+    ThermalNetwork,
+    convection_conductance,
+)
+from thermoelec.scenario.series import AMBIENT_COLUMN
+
+__all__ = ["FORMAT_VERSION", "KeyedError", "ScenarioSpec", "SegmentSpec"]
+
+#: The scenario format this schema reads (the file's ``format`` key).
+FORMAT_VERSION = 1
+#: Default reference temperature of the cell's tables and laws: 25 degC (common practice) [K].
+REFERENCE_TEMPERATURE = zero_Celsius + 25.0
+
+
+# ---------------------------------------------------------------------------
+# Quantity types: a value in a default unit or with its own, converted to SI
+# ---------------------------------------------------------------------------
+
+
+def _quantity(default_unit: str, si_unit: str | None = None):
+    si = si_unit or default_unit
+    return BeforeValidator(lambda v: to_si(v, default_unit, si))
+
+
+def _quantity_list(default_unit: str, si_unit: str | None = None):
+    si = si_unit or default_unit
+
+    def convert(v: Any) -> list[float]:
+        if not isinstance(v, list):
+            raise ValueError(f"expected a list of quantities in {default_unit}, got {v!r}")
+        if not v:
+            raise ValueError("the list is empty")
+        out = []
+        for i, item in enumerate(v):
+            try:
+                out.append(to_si(item, default_unit, si))
+            except ValueError as exc:
+                raise ValueError(f"item {i + 1}: {exc}") from None
+        return out
+
+    return BeforeValidator(convert)
+
+
+def _quantity_table(default_unit: str):
+    def convert(v: Any) -> list[list[float]]:
+        if not isinstance(v, list) or not v:
+            raise ValueError(f"expected a list of rows of values in {default_unit}")
+        rows = v if isinstance(v[0], list) else [v]
+        out = []
+        for r, row in enumerate(rows):
+            if not isinstance(row, list):
+                raise ValueError(f"row {r + 1} is not a list")
+            try:
+                out.append([to_si(x, default_unit, default_unit) for x in row])
+            except ValueError as exc:
+                raise ValueError(f"row {r + 1}: {exc}") from None
+        return out
+
+    return BeforeValidator(convert)
+
+
+def _positive_int(v: Any) -> int:
+    if isinstance(v, bool) or not isinstance(v, int) or v < 1:
+        raise ValueError(f"expected a whole number >= 1, got {v!r}")
+    return v
+
+
+Soc = Annotated[float, _quantity("", "")]
+Voltage = Annotated[float, _quantity("V")]
+Current = Annotated[float, _quantity("A")]
+Power = Annotated[float, _quantity("W")]
+Resistance = Annotated[float, _quantity("ohm")]
+Capacity = Annotated[float, _quantity("Ah", "C")]
+Mass = Annotated[float, _quantity("kg")]
+SpecificHeat = Annotated[float, _quantity("J/kg/K")]
+Temperature = Annotated[float, _quantity("degC", "K")]
+HeatCapacity = Annotated[float, _quantity("J/K")]
+Conductance = Annotated[float, _quantity("W/K")]
+Coefficient = Annotated[float, _quantity("W/m^2/K")]
+Area = Annotated[float, _quantity("m^2")]
+Energy = Annotated[float, _quantity("J/mol")]
+Length = Annotated[float, _quantity("m")]
+Speed = Annotated[float, _quantity("m/s")]
+MassFlow = Annotated[float, _quantity("kg/s")]
+Conductivity = Annotated[float, _quantity("W/m/K")]
+Capacitance = Annotated[float, _quantity("F")]
+Duration = Annotated[float, _quantity("s")]
+Dimensionless = Annotated[float, _quantity("", "")]
+SocList = Annotated[list[float], _quantity_list("", "")]
+VoltageList = Annotated[list[float], _quantity_list("V")]
+EntropicList = Annotated[list[float], _quantity_list("V/K")]
+TemperatureList = Annotated[list[float], _quantity_list("degC", "K")]
+ResistanceTable = Annotated[list[list[float]], _quantity_table("ohm")]
+Count = Annotated[int, BeforeValidator(_positive_int)]
+
+
+class KeyedError(ValueError):
+    """A validation error that knows which key of its section is at fault."""
+
+    def __init__(self, key: str | None, message: str):
+        super().__init__(message)
+        self.key = key
+
+
+def _check(condition: bool, message: str, key: str | None = None) -> None:
+    """Raise ``message`` as a :class:`KeyedError` naming ``key`` unless ``condition`` holds."""
+    if not condition:
+        raise KeyedError(key, message)
+
+
+def _increasing(values: list[float], what: str) -> None:
+    _check(all(b > a for a, b in itertools.pairwise(values)),
+           f"{what} must be strictly increasing", what)
+
+
+def _positive(value: float | None, what: str, allow_zero: bool = False) -> None:
+    if value is None:
+        return
+    if allow_zero:
+        _check(value >= 0.0, f"{what} must be >= 0", what)
+    else:
+        _check(value > 0.0, f"{what} must be > 0", what)
+
+
+# ---------------------------------------------------------------------------
+# Sections (pydantic), SI values after validation
+# ---------------------------------------------------------------------------
+
+
+class _Section(BaseModel):
+    model_config = ConfigDict(extra="forbid", frozen=True)
+
+
+class ScenarioInfo(_Section):
+    name: str
+    description: str = ""
+
+
+class OcvSpec(_Section):
+    soc: SocList
+    voltage: VoltageList
+    entropic: EntropicList | None = None
+    reference_temperature: Temperature = REFERENCE_TEMPERATURE
+
+    @model_validator(mode="after")
+    def _table(self):
+        _increasing(self.soc, "soc")
+        _check(self.soc[0] >= 0.0 and self.soc[-1] <= 1.0, "soc values must lie within 0..1", "soc")
+        _check(self.soc[0] == 0.0 and self.soc[-1] == 1.0,
+               f"soc must cover 0 and 1 (got {self.soc[0]:g}..{self.soc[-1]:g})", "soc")
+        _check(len(self.voltage) == len(self.soc),
+               f"voltage has {len(self.voltage)} values but soc has {len(self.soc)}", "voltage")
+        _check(all(v > 0 for v in self.voltage), "voltage values must be > 0", "voltage")
+        if self.entropic is not None:
+            _check(len(self.entropic) == len(self.soc),
+                   f"entropic has {len(self.entropic)} values but soc has {len(self.soc)}", "entropic")
+        return self
+
+
+class ResistanceSpec(_Section):
+    """One of: ``value``; ``soc`` + ``values``; ``soc`` + ``temperature`` + ``values`` (rows per temperature)."""
+
+    value: Resistance | None = None
+    soc: SocList | None = None
+    temperature: TemperatureList | None = None
+    values: ResistanceTable | None = None
+    activation_energy: Energy | None = None
+    reference_temperature: Temperature = REFERENCE_TEMPERATURE
+
+    @model_validator(mode="after")
+    def _form(self):
+        if self.value is not None:
+            _check(self.soc is None and self.values is None and self.temperature is None,
+                   "give either value, or soc and values (and temperature), not both")
+            _positive(self.value, "value")
+        else:
+            _check(self.soc is not None and self.values is not None,
+                   "give value (a constant), or soc and values (a table)")
+            _increasing(self.soc, "soc")
+            rows = self.values
+            if self.temperature is None:
+                _check(len(rows) == 1, "values has several rows: give temperature, one per row")
+            else:
+                _increasing(self.temperature, "temperature")
+                _check(len(rows) == len(self.temperature),
+                       f"values has {len(rows)} rows but temperature has {len(self.temperature)} values")
+                _check(self.activation_energy is None,
+                       "activation_energy goes with a constant or a table over SoC, not a 2-D table")
+            for r, row in enumerate(rows):
+                _check(len(row) == len(self.soc), f"values row {r + 1} has {len(row)} values but soc has "
+                                                  f"{len(self.soc)}")
+                _check(all(x > 0 for x in row), f"values row {r + 1}: resistances must be > 0")
+        if self.activation_energy is not None:
+            _check(self.activation_energy >= 0, "activation_energy must be >= 0")
+        return self
+
+    def law(self) -> ResistanceLaw:
+        ea = self.activation_energy or 0.0
+        if self.value is not None:
+            return ResistanceLaw.constant(self.value, ea, self.reference_temperature)
+        temps = self.temperature or [self.reference_temperature]
+        return ResistanceLaw(np.array(self.soc), np.array(temps), np.array(self.values), ea,
+                             self.reference_temperature)
+
+
+class RCSpec(_Section):
+    resistance: Resistance | ResistanceSpec
+    capacitance: Capacitance | None = None
+    time_constant: Duration | None = None
+    activation_energy: Energy | None = None
+    reference_temperature: Temperature = REFERENCE_TEMPERATURE
+
+    @model_validator(mode="before")
+    @classmethod
+    def _resistance_form(cls, data: Any) -> Any:
+        if isinstance(data, dict) and isinstance(data.get("resistance"), dict):
+            data = dict(data)
+            inner = dict(data["resistance"])
+            for key in ("activation_energy", "reference_temperature"):
+                if key in data and key not in inner:
+                    inner[key] = data[key]
+            data["resistance"] = inner
+        return data
+
+    @model_validator(mode="after")
+    def _pair(self):
+        _check((self.capacitance is None) != (self.time_constant is None),
+               "give exactly one of capacitance and time_constant")
+        _positive(self.capacitance, "capacitance")
+        _positive(self.time_constant, "time_constant")
+        if isinstance(self.resistance, float):
+            _positive(self.resistance, "resistance")
+        return self
+
+    def pair(self) -> RCPair:
+        if isinstance(self.resistance, ResistanceSpec):
+            law = self.resistance.law()
+        else:
+            law = ResistanceLaw.constant(self.resistance, self.activation_energy or 0.0, self.reference_temperature)
+        return RCPair(law, capacitance=self.capacitance, time_constant=self.time_constant)
+
+
+class CellSpec(_Section):
+    capacity: Capacity
+    voltage_max: Voltage
+    voltage_min: Voltage
+    mass: Mass
+    specific_heat: SpecificHeat
+    initial_soc: Soc = 1.0
+    ocv: OcvSpec
+    r0: ResistanceSpec
+    rc: list[RCSpec] = []
+    diameter: Length | None = None
+    length: Length | None = None
+    thickness: Length | None = None
+    width: Length | None = None
+    height: Length | None = None
+    thermal_conductivity: Conductivity | None = None
+
+    @model_validator(mode="after")
+    def _cell(self):
+        for key in ("capacity", "voltage_max", "voltage_min", "mass", "specific_heat", *_GEOMETRY_KEYS,
+                    "thermal_conductivity"):
+            _positive(getattr(self, key), key)
+        cylinder = [k for k in ("diameter", "length") if getattr(self, k) is not None]
+        prism = [k for k in ("thickness", "width", "height") if getattr(self, k) is not None]
+        _check(not (cylinder and prism), "give diameter and length (cylindrical) or thickness, width and height "
+               "(prismatic), not both", (cylinder + prism)[0] if cylinder or prism else None)
+        if cylinder:
+            _check(len(cylinder) == 2, "a cylindrical cell needs both diameter and length",
+                   "length" if "length" not in cylinder else "diameter")
+        if prism:
+            missing = [k for k in ("thickness", "width", "height") if k not in prism]
+            _check(not missing, f"a prismatic cell needs thickness, width and height ({', '.join(missing)} missing)",
+                   missing[0] if missing else None)
+        if self.thermal_conductivity is not None:
+            _check(bool(cylinder or prism), "thermal_conductivity needs the cell geometry: diameter and length, "
+                   "or thickness, width and height", "thermal_conductivity")
+        _check(self.voltage_min < self.voltage_max,
+               f"voltage_min ({self.voltage_min:g} V) must be below voltage_max ({self.voltage_max:g} V)",
+               "voltage_min")
+        _check(0.0 <= self.initial_soc <= 1.0, f"initial_soc must lie within 0..1, got {self.initial_soc:g}",
+               "initial_soc")
+        return self
+
+
+    def geometry(self) -> CellGeometry | None:
+        if self.thermal_conductivity is None:
+            return None
+        return CellGeometry(self.thermal_conductivity, **{k: getattr(self, k) for k in _GEOMETRY_KEYS})
+
+
+_GEOMETRY_KEYS = ("diameter", "length", "thickness", "width", "height")
+
+
+class PackSpec(_Section):
+    series: Count = 1
+    parallel: Count = 1
+    interconnect_resistance: Resistance = 0.0
+
+    @model_validator(mode="after")
+    def _pack(self):
+        _positive(self.interconnect_resistance, "interconnect_resistance", allow_zero=True)
+        return self
+
+
+class ConvectionSpec(_Section):
+    """A given coefficient, or correlations from geometry and air speed."""
+
+    area: Area
+    coefficient: Coefficient | None = None
+    forced: Literal["cylinder_crossflow", "flat_plate"] | None = None
+    natural: Literal["horizontal_cylinder", "vertical_plate", "horizontal_plate_up",
+                     "horizontal_plate_down"] | None = None
+    length: Length | None = None
+    air_speed: Speed = 0.0
+
+    @model_validator(mode="after")
+    def _convection(self):
+        _positive(self.area, "area", allow_zero=True)
+        if self.coefficient is not None:
+            _positive(self.coefficient, "coefficient", allow_zero=True)
+            _check(self.forced is None and self.natural is None and self.length is None,
+                   "give coefficient, or forced / natural correlations with a length, not both", "coefficient")
+            _check(self.air_speed == 0.0, "air_speed goes with a forced correlation, not a coefficient",
+                   "air_speed")
+            return self
+        _check(self.forced is not None or self.natural is not None,
+               "give coefficient, or a forced and / or natural correlation (with length)", "coefficient")
+        _check(self.length is not None, "a correlation needs length (diameter, plate length or height)", "length")
+        _positive(self.length, "length")
+        _positive(self.air_speed, "air_speed", allow_zero=True)
+        _check(self.forced is not None or self.air_speed == 0.0, "air_speed needs a forced correlation",
+               "air_speed")
+        return self
+
+    def model(self) -> Convection | None:
+        if self.coefficient is not None:
+            return None
+        return Convection(self.area, float(self.length), self.forced, self.natural, self.air_speed)
+
+
+class RadiationSpec(_Section):
+    emissivity: Dimensionless
+    area: Area
+    surroundings_temperature: Temperature | None = None
+
+    @model_validator(mode="after")
+    def _radiation(self):
+        _check(0.0 < self.emissivity <= 1.0, f"emissivity must lie within 0..1, got {self.emissivity:g}",
+               "emissivity")
+        _positive(self.area, "area")
+        return self
+
+
+class CoolantSpec(_Section):
+    """A cold plate on the sink: a coolant flow through a plate of conductance UA, or a given conductance."""
+
+    inlet_temperature: Temperature
+    flow_rate: MassFlow | None = None
+    specific_heat: SpecificHeat = 4179.0  # water near 300 K (Incropera et al., 6th ed., Table A.6, from memory)
+    plate_conductance: Conductance | None = None
+    conductance: Conductance | None = None
+    heat_capacity: HeatCapacity = 0.0
+
+    @model_validator(mode="after")
+    def _coolant(self):
+        flow = self.flow_rate is not None
+        _check(flow != (self.conductance is not None),
+               "give flow_rate and plate_conductance (a coolant flow), or conductance (to the inlet), not both",
+               "conductance" if flow else "flow_rate")
+        if flow:
+            _positive(self.flow_rate, "flow_rate")
+            _check(self.plate_conductance is not None, "a coolant flow needs plate_conductance (UA of the plate)",
+                   "plate_conductance")
+            _positive(self.plate_conductance, "plate_conductance")
+        else:
+            _positive(self.conductance, "conductance", allow_zero=True)
+            _check(self.heat_capacity == 0.0, "heat_capacity needs a coolant flow (flow_rate)", "heat_capacity")
+        _positive(self.specific_heat, "specific_heat")
+        _positive(self.heat_capacity, "heat_capacity", allow_zero=True)
+        return self
+
+    def model(self) -> Coolant:
+        rate = (self.flow_rate or 0.0) * self.specific_heat
+        return Coolant(self.inlet_temperature, rate, self.plate_conductance or 0.0, self.conductance or 0.0,
+                       self.heat_capacity)
+
+
+class CoolingSwitchSpec(_Section):
+    on_above: Temperature
+    off_below: Temperature
+
+    @model_validator(mode="after")
+    def _switch(self):
+        _check(self.off_below < self.on_above, "off_below must be below on_above (the hysteresis band)",
+               "off_below")
+        return self
+
+    def switch(self) -> Switch:
+        return Switch(self.on_above, self.off_below)
+
+
+class FanSpec(CoolingSwitchSpec):
+    air_speed: Speed | None = None
+    conductance: Conductance = 0.0
+
+    @model_validator(mode="after")
+    def _fan(self):
+        _check(self.air_speed is not None or self.conductance > 0.0,
+               "a fan needs air_speed (with a forced convection correlation) or conductance", "air_speed")
+        _positive(self.air_speed, "air_speed", allow_zero=True)
+        _positive(self.conductance, "conductance", allow_zero=True)
+        return self
+
+
+class HeaterSpec(_Section):
+    power: Power
+    on_below: Temperature
+    off_above: Temperature
+    source: Literal["pack", "external"] = "external"
+
+    @model_validator(mode="after")
+    def _heater(self):
+        _positive(self.power, "power")
+        _check(self.on_below < self.off_above, "on_below must be below off_above (the hysteresis band)",
+               "on_below")
+        return self
+
+
+class ThermalSpec(_Section):
+    ambient_temperature: Temperature | None = None
+    initial_cell_temperature: Temperature | None = None
+    initial_sink_temperature: Temperature | None = None
+    sink_heat_capacity: HeatCapacity
+    cell_to_sink: Conductance
+    sink_to_ambient: Conductance | None = None
+    convection: ConvectionSpec | None = None
+    cell_to_ambient: Conductance = 0.0
+    ambient_profile: str | None = None
+    radiation: RadiationSpec | None = None
+    coolant: CoolantSpec | None = None
+    fan: FanSpec | None = None
+    heater: HeaterSpec | None = None
+    pump: CoolingSwitchSpec | None = None
+
+    @model_validator(mode="after")
+    def _thermal(self):
+        _positive(self.sink_heat_capacity, "sink_heat_capacity")
+        for key in ("cell_to_sink", "sink_to_ambient", "cell_to_ambient"):
+            _positive(getattr(self, key), key, allow_zero=True)
+        _check((self.sink_to_ambient is None) != (self.convection is None),
+               "give exactly one of sink_to_ambient and [thermal.convection]")
+        for key in ("ambient_temperature", "initial_cell_temperature", "initial_sink_temperature"):
+            value = getattr(self, key)
+            _check(value is None or value > 0, f"{key} is below absolute zero")
+        _check(self.ambient_profile is None or self.ambient_temperature is None,
+               "give ambient_temperature or ambient_profile, not both", "ambient_profile")
+        _check(self.pump is None or self.coolant is not None, "a pump needs [thermal.coolant]", "pump")
+        if self.fan is not None and self.fan.air_speed is not None:
+            _check(self.convection is not None and self.convection.forced is not None,
+                   "a fan's air_speed needs [thermal.convection] with a forced correlation (or give its "
+                   "conductance instead)", "fan")
+        return self
+
+    def network(self) -> ThermalNetwork:
+        convection = self.convection.model() if self.convection is not None else None
+        if self.convection is None:
+            g_sa = self.sink_to_ambient
+        elif convection is None:
+            g_sa = convection_conductance(self.convection.coefficient, self.convection.area)
+        else:
+            g_sa = 0.0
+        fan = None if self.fan is None else Fan(self.fan.switch(), self.fan.air_speed, self.fan.conductance)
+        heater = None if self.heater is None else Heater(Switch(self.heater.on_below, self.heater.off_above),
+                                                         self.heater.power, self.heater.source == "pack")
+        radiation = None if self.radiation is None else Radiation(
+            self.radiation.emissivity, self.radiation.area, self.radiation.surroundings_temperature)
+        return ThermalNetwork(self.sink_heat_capacity, self.cell_to_sink, g_sa, self.cell_to_ambient,
+                              convection=convection, radiation=radiation,
+                              coolant=None if self.coolant is None else self.coolant.model(),
+                              fan=fan, heater=heater, pump=None if self.pump is None else self.pump.switch())
+
+
+class SegmentSpec(_Section):
+    mode: Literal[SEGMENT_MODES] | None = None  # the load modes and the composite ones (physics.loads)
+    value: Any = None
+    duration: Duration | None = None
+    voltage_below: Voltage | None = None
+    voltage_above: Voltage | None = None
+    soc_below: Soc | None = None
+    soc_above: Soc | None = None
+    current: Current | None = None
+    voltage: Voltage | None = None
+    cutoff_current: Current | None = None
+    file: str | None = None
+    ambient_temperature: Temperature | None = None
+
+    @model_validator(mode="after")
+    def _segment(self):
+        _positive(self.duration, "duration")
+        _check(self.ambient_temperature is None or self.ambient_temperature > 0,
+               "ambient_temperature is below absolute zero", "ambient_temperature")
+        if self.file is not None:
+            _check(self.mode is None and self.value is None and self.duration is None,
+                   "a file segment takes its mode, values and times from the file: drop mode, value and duration")
+            _check(not self.file.strip() == "", "file is empty")
+            _check(self.ambient_temperature is None, "a file segment takes its ambient from the file's "
+                   f"{AMBIENT_COLUMN} column", "ambient_temperature")
+            return self
+        _check(self.mode is not None, f"give mode ({', '.join(SEGMENT_MODES)}) or file")
+        if self.mode == "cccv":
+            _check(self.value is None, "a cccv segment takes current, voltage and cutoff_current, not value")
+            _check(self.current is not None and self.voltage is not None and self.cutoff_current is not None,
+                   "a cccv segment needs current, voltage and cutoff_current")
+            _check(self.current < 0, f"current is the charge current and must be negative, got {self.current:g} A",
+                   "current")
+            _positive(self.voltage, "voltage")
+            _positive(self.cutoff_current, "cutoff_current")
+            _check(self.cutoff_current < abs(self.current),
+                   "cutoff_current must be smaller than the charge current")
+            return self
+        for key in ("current", "voltage", "cutoff_current"):
+            _check(getattr(self, key) is None, f"{key} belongs to a cccv segment; use value for mode {self.mode}")
+        _check(self.duration is not None, f"a {self.mode} segment needs a duration", "duration")
+        if self.mode not in LOAD_MODES:  # rest, soak: no demand
+            _check(self.value is None, f"a {self.mode} segment takes no value")
+            if self.mode == "soak":
+                for key in ("voltage_below", "voltage_above", "soc_below", "soc_above"):
+                    _check(getattr(self, key) is None, "a soak segment takes no end conditions", key)
+            return self
+        _check(self.value is not None, f"a {self.mode} segment needs a value", "value")
+        load = LOAD_MODES[self.mode]
+        try:
+            value = to_si(self.value, load.unit, load.unit)
+        except ValueError as exc:
+            raise KeyedError("value", str(exc)) from None
+        if load.positive:
+            _positive(value, "value")
+        object.__setattr__(self, "value", value)
+        return self
+
+
+class ProfileSpec(_Section):
+    repeat: Count = 1
+    scale: Dimensionless = 1.0
+    segment: list[SegmentSpec]
+
+    @model_validator(mode="after")
+    def _profile(self):
+        _check(len(self.segment) > 0, "the profile has no segments")
+        _check(self.scale > 0, f"scale must be > 0, got {self.scale:g}", "scale")
+        modes = [seg.mode for seg in self.segment]
+        soaks = [i for i, mode in enumerate(modes) if mode == "soak"]
+        _check(soaks == list(range(len(soaks))), "soak segments come first, before the mission's segments",
+               "segment")
+        _check(len(soaks) < len(modes), "the profile has only soak segments: add the mission", "segment")
+        return self
+
+
+class LimitsSpec(_Section):
+    cell_temperature_max: Temperature = zero_Celsius + 60.0  # 60 degC, common practice for Li-ion cells
+    charge_temperature_min: Temperature = zero_Celsius  # no charging below 0 degC (lithium plating; common practice)
+
+
+class StressSpec(_Section):
+    activation_energy: Energy = StressSettings.activation_energy
+    reference_temperature: Temperature = StressSettings.reference_temperature
+    hot_temperature: Temperature = StressSettings.hot_temperature
+
+    @model_validator(mode="after")
+    def _stress(self):
+        _positive(self.activation_energy, "activation_energy", allow_zero=True)
+        for key in ("reference_temperature", "hot_temperature"):
+            _check(getattr(self, key) > 0, f"{key} is below absolute zero", key)
+        return self
+
+    def settings(self) -> StressSettings:
+        return StressSettings(self.activation_energy, self.reference_temperature, self.hot_temperature)
+
+
+class SolverSpec(_Section):
+    backend: str = "cvode"
+    rtol: Dimensionless = 1e-6
+    output_interval: Duration = 1.0
+    atol_soc: Dimensionless | None = None
+    atol_voltage: Voltage | None = None
+    atol_temperature: Annotated[float, _quantity("K")] | None = None
+    max_steps: Count = 50_000
+    scipy_method: Literal["LSODA", "BDF", "Radau", "RK45", "DOP853", "RK23"] = "LSODA"
+
+    @model_validator(mode="after")
+    def _solver(self):
+        _check(self.backend in BACKENDS, f"unknown backend {self.backend!r}; valid: {', '.join(BACKENDS)}",
+               "backend")
+        _check(0 < self.rtol < 0.1, f"rtol must lie within 0..0.1, got {self.rtol:g}", "rtol")
+        _positive(self.output_interval, "output_interval")
+        for key in ("atol_soc", "atol_voltage", "atol_temperature"):
+            _positive(getattr(self, key), key)
+        return self
+
+    def options(self) -> SolverOptions:
+        extra = {k: getattr(self, k) for k in ("atol_soc", "atol_voltage", "atol_temperature")
+                 if getattr(self, k) is not None}
+        return SolverOptions(backend=self.backend, rtol=self.rtol, output_interval=self.output_interval,
+                             max_steps=self.max_steps, scipy_method=self.scipy_method, **extra)
+
+
+class CaseSpec(BaseModel):
+    """A named variant for the compare command: dotted keys to values."""
+
+    model_config = ConfigDict(extra="allow", frozen=True)
+    name: str
+
+
+class ScenarioSpec(_Section):
+    format: Literal[FORMAT_VERSION]
+    scenario: ScenarioInfo
+    cell: CellSpec
+    pack: PackSpec = PackSpec()
+    thermal: ThermalSpec
+    profile: ProfileSpec
+    limits: LimitsSpec = LimitsSpec()
+    solver: SolverSpec = SolverSpec()
+    stress: StressSpec = StressSpec()
+    sweep: dict[str, Any] = {}
+    case: list[CaseSpec] = []
+
