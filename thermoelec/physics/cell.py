@@ -14,12 +14,11 @@ from dataclasses import dataclass, field
 
 import numpy as np
 from numba.extending import register_jitable
-from scipy.constants import R as GAS_CONSTANT  # [J/(mol K)], CODATA
 
+from thermoelec.physics.constants import GAS_CONSTANT
 from thermoelec.physics.tables import interpolate_1d, interpolate_2d
 
 __all__ = [
-    "GAS_CONSTANT",
     "Cell",
     "CellGeometry",
     "Pack",
