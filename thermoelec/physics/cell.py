@@ -15,10 +15,11 @@ from dataclasses import dataclass, field
 import numpy as np
 from numba.extending import register_jitable
 
-from thermoelec.physics.constants import GAS_CONSTANT
+from thermoelec.physics.constants import GAS_CONSTANT, ZERO_CELSIUS
 from thermoelec.physics.tables import interpolate_1d, interpolate_2d
 
 __all__ = [
+    "REFERENCE_TEMPERATURE",
     "Cell",
     "CellGeometry",
     "Pack",
@@ -30,6 +31,10 @@ __all__ = [
     "open_circuit_voltage",
     "rc_zero_order_hold",
 ]
+
+
+#: 25 °C, the reference temperature of cell data where none is given (common practice) [K].
+REFERENCE_TEMPERATURE = ZERO_CELSIUS + 25.0
 
 
 @register_jitable
@@ -232,10 +237,11 @@ class ResistanceLaw:
     temperature: np.ndarray
     values: np.ndarray
     activation_energy: float = 0.0
-    reference_temperature: float = 298.15
+    reference_temperature: float = REFERENCE_TEMPERATURE
 
     @classmethod
-    def constant(cls, value: float, activation_energy: float = 0.0, reference_temperature: float = 298.15):
+    def constant(cls, value: float, activation_energy: float = 0.0,
+                 reference_temperature: float = REFERENCE_TEMPERATURE):
         """A constant resistance [Ω], optionally Arrhenius in temperature."""
         return cls(np.array([0.0]), np.array([reference_temperature]), np.array([[value]]),
                    activation_energy, reference_temperature)
