@@ -74,10 +74,6 @@ def test_arrhenius_factor_table(ea_kj, factors):
     np.testing.assert_allclose(got, factors, rtol=2e-6)
 
 
-def test_gas_constant_is_codata():
-    assert cell.GAS_CONSTANT == pytest.approx(8.314462618, rel=1e-10)
-
-
 def test_interpolation_is_linear_and_clamped():
     grid = np.array([0.0, 0.5, 1.0])
     values = np.array([3.0, 3.6, 4.2])

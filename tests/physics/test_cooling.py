@@ -1,12 +1,9 @@
 """Cooling options: correlations, radiation, coolant loop, thermostats, ambient profiles, soak.
 
 Sources:
-- worked values of the project's validation notes §3 (Churchill-Bernstein and
-  Churchill-Chu at Incropera Table A.4 air, 300 K, D = 21 mm);
-- the general-purpose library ``ht`` (Caleb Bell, PyPI) for every Nusselt
-  correlation, called by its named functions (the dispatcher of ht 1.2.0 picks
-  another correlation for 'Churchill-Bernstein');
-- CoolProp (PyPI) for the air property table;
+- the radiation coefficient of the project's validation notes §3 (Incropera Eq. 1.9);
+- the general-purpose library ``ht`` (Caleb Bell, PyPI) for the Nusselt number
+  of the independent cooling solution, called by its named function;
 - ``scipy.integrate.solve_ivp`` on the same nonlinear equations written here;
 - lumped-capacitance closed forms (Incropera et al., 6th ed., §5.3) derived here.
 """
@@ -19,86 +16,14 @@ import pytest
 from scipy.constants import Stefan_Boltzmann
 from scipy.integrate import solve_ivp
 
-from thermoelec.physics import thermal
+from thermoelec.physics import correlations, thermal
+from thermoelec.physics.constants import STANDARD_GRAVITY, ZERO_CELSIUS
 
 from ..helpers import cell_section, scenario, simulate
 
-KELVIN = 273.15
-AIR_300K = {"nu": 15.89e-6, "k": 26.3e-3, "pr": 0.707}  # Incropera Table A.4 (validation notes §3)
-
-
 # ---------------------------------------------------------------------------
-# Correlations
+# Radiation (the correlations are in test_correlations.py)
 # ---------------------------------------------------------------------------
-
-@pytest.mark.parametrize("speed, reynolds, nusselt, h", [
-    (0.5, 660.793, 12.9894, 16.2677), (1.0, 1321.59, 18.4182, 23.0666),
-    (2.0, 2643.17, 26.2983, 32.9355), (5.0, 6607.93, 42.7044, 53.4821)])
-def test_churchill_bernstein_worked_values(speed, reynolds, nusselt, h):
-    # validation notes §3: D = 21 mm, Table A.4 air at 300 K; tabulated to 6 digits
-    re = speed * 0.021 / AIR_300K["nu"]
-    assert re == pytest.approx(reynolds, rel=5e-6)  # six significant digits
-    assert thermal.nusselt_cylinder_crossflow(re, AIR_300K["pr"]) == pytest.approx(nusselt, rel=1e-5)
-    assert thermal.convection_coefficient(1, 0, 0.021, speed, 300.0, 300.0) == pytest.approx(h, rel=1e-5)
-    assert thermal.nusselt_cylinder_crossflow(re, 0.707) == pytest.approx(
-        ht.Nu_cylinder_Churchill_Bernstein(re, 0.707), rel=1e-12)
-
-
-def test_churchill_chu_horizontal_cylinder_worked_value():
-    # validation notes §3: D = 21 mm, Ts = 310 K, T_inf = 290 K, beta = 1/300, g = 9.8
-    gr = 9.8 * (1 / 300) * 20 * 0.021**3 / AIR_300K["nu"] ** 2
-    assert gr == pytest.approx(23963.2, rel=1e-5)
-    ra = gr * AIR_300K["pr"]
-    nu = thermal.nusselt_horizontal_cylinder_natural(ra, AIR_300K["pr"])
-    assert nu == pytest.approx(4.96248, rel=1e-5)
-    assert nu * AIR_300K["k"] / 0.021 == pytest.approx(6.21492, rel=1e-5)
-    assert nu == pytest.approx(ht.Nu_horizontal_cylinder_Churchill_Chu(AIR_300K["pr"], gr), rel=1e-12)
-    # the full chain at standard gravity against ht with the same properties
-    gr_std = thermal.GRAVITY / 300 * 20 * 0.021**3 / AIR_300K["nu"] ** 2
-    h = thermal.convection_coefficient(0, 1, 0.021, 0.0, 310.0, 290.0)
-    assert h == pytest.approx(ht.Nu_horizontal_cylinder_Churchill_Chu(0.707, gr_std) * 0.0263 / 0.021, rel=1e-6)
-
-
-def test_published_anchors_quoted_by_ht():
-    # Incropera Examples 7.3 and 9.2 as quoted in ht's docstrings (validation notes §3)
-    assert thermal.nusselt_cylinder_crossflow(6071, 0.7) == pytest.approx(40.63709, rel=1e-6)
-    assert thermal.nusselt_horizontal_cylinder_natural(0.69 * 2.63e9, 0.69) == pytest.approx(139.1349, rel=1e-6)
-
-
-@pytest.mark.parametrize("pr, gr", [(0.707, 1e3), (0.71, 3.3e6), (0.69, 2.6e9), (0.7, 1e12)])
-def test_free_convection_plates_against_ht(pr, gr):
-    ra = pr * gr
-    assert thermal.nusselt_vertical_plate_natural(ra, pr) == pytest.approx(ht.Nu_vertical_plate_Churchill(pr, gr),
-                                                                           rel=1e-12)
-    for buoyant in (True, False):
-        if not buoyant and ra > 1e10:
-            continue  # beyond the range of the facing-down form (1e5..1e10), where ht switches form
-        assert thermal.nusselt_horizontal_plate_natural(ra, buoyant) == pytest.approx(
-            ht.Nu_horizontal_plate_McAdams(pr, gr, buoyancy=buoyant), rel=1e-12)
-
-
-@pytest.mark.parametrize("re", [1e2, 1e4, 4.9e5])
-def test_laminar_flat_plate_against_ht(re):
-    assert thermal.nusselt_flat_plate_forced(re, 0.707) == pytest.approx(
-        ht.Nu_horizontal_plate_laminar_Baehr(re, 0.707), rel=1e-12)
-
-
-def test_mixed_flat_plate_worked_value():
-    # Incropera Eq. 7.38 at Re = 1e6, Pr = 0.7: (0.037 * 1e6^0.8 - 871) * 0.7^(1/3), evaluated by hand
-    expected = (0.037 * 63095.7344 - 871.0) * 0.887904
-    assert thermal.nusselt_flat_plate_forced(1e6, 0.7) == pytest.approx(expected, rel=1e-6)
-
-
-def test_air_table_against_coolprop():
-    coolprop = pytest.importorskip("CoolProp.CoolProp")
-    for t in (250.0, 275.0, 300.0, 325.0, 350.0, 400.0):
-        nu, k, pr = thermal.air_properties(t)
-        rho = coolprop.PropsSI("D", "T", t, "P", 101325, "Air")
-        # two property sources differ by about 1 % (validation notes §3): the table's precision
-        assert nu == pytest.approx(coolprop.PropsSI("V", "T", t, "P", 101325, "Air") / rho, rel=0.02)
-        assert k == pytest.approx(coolprop.PropsSI("L", "T", t, "P", 101325, "Air"), rel=0.02)
-        assert pr == pytest.approx(coolprop.PropsSI("Prandtl", "T", t, "P", 101325, "Air"), rel=0.02)
-
 
 def test_radiation_coefficient_worked_value():
     # validation notes §3: h_rad = eps sigma (Ts + Tsur)(Ts^2 + Tsur^2) = 5.5177 W/m^2/K at 0.9, 310/290 K
@@ -129,10 +54,10 @@ def test_cooling_down_matches_an_independent_nonlinear_solution():
     def h_natural(ts):
         # Churchill-Chu vertical plate from ht, Table A.4 air by linear interpolation at the film temperature
         film = 0.5 * (ts + ta)
-        nu = np.interp(film, thermal.AIR_TEMPERATURE, thermal.AIR_KINEMATIC_VISCOSITY)
-        k = np.interp(film, thermal.AIR_TEMPERATURE, thermal.AIR_CONDUCTIVITY)
-        pr = np.interp(film, thermal.AIR_TEMPERATURE, thermal.AIR_PRANDTL)
-        gr = 9.80665 / film * abs(ts - ta) * 0.15**3 / nu**2
+        nu = np.interp(film, correlations.AIR_TEMPERATURE, correlations.AIR_KINEMATIC_VISCOSITY)
+        k = np.interp(film, correlations.AIR_TEMPERATURE, correlations.AIR_CONDUCTIVITY)
+        pr = np.interp(film, correlations.AIR_TEMPERATURE, correlations.AIR_PRANDTL)
+        gr = STANDARD_GRAVITY / film * abs(ts - ta) * 0.15**3 / nu**2
         return ht.Nu_vertical_plate_Churchill(pr, gr) * k / 0.15
 
     def rates(t, y):
@@ -144,8 +69,8 @@ def test_cooling_down_matches_an_independent_nonlinear_solution():
     times = result.series["time_s"]
     ref = solve_ivp(rates, (0, times[-1]), [333.15, 328.15], method="DOP853", rtol=1e-12, atol=1e-12,
                     t_eval=times)
-    np.testing.assert_allclose(result.series["cell_temperature_degC"] + KELVIN, ref.y[0], atol=1e-3)
-    np.testing.assert_allclose(result.series["sink_temperature_degC"] + KELVIN, ref.y[1], atol=1e-3)
+    np.testing.assert_allclose(result.series["cell_temperature_degC"] + ZERO_CELSIUS, ref.y[0], atol=1e-3)
+    np.testing.assert_allclose(result.series["sink_temperature_degC"] + ZERO_CELSIUS, ref.y[1], atol=1e-3)
     assert result.summary["heat_radiated_Wh"] > 0
 
 
@@ -286,10 +211,10 @@ def test_correlation_outside_its_range_is_named(length, expected):
           "initial_sink_temperature": "40 degC", "sink_heat_capacity": "300 J/K", "cell_to_sink": "2 W/K",
           "convection": {"natural": "horizontal_plate_up", "length": length, "area": "0.05 m^2"}}
     result = simulate(scenario(thermal=th, segments=[{"mode": "rest", "duration": "10 min"}]))
-    found = [w for w in result.warnings if "horizontal plate buoyant correlation" in w]
+    found = [w for w in result.warnings if "horizontal_plate_up correlation" in w]
     assert len(found) == expected
     if expected:
-        assert "1e+04 <= Ra <= 1e+11" in found[0]
+        assert "McAdams, hot surface facing up" in found[0] and "1e+04 <= Ra <= 1e+11" in found[0]
     assert result.series["rayleigh_number"].max() > 0
 
 
@@ -322,5 +247,5 @@ def test_cooling_keys_take_dotted_path_overrides():
     still = thermoelec.simulate(loaded, overrides={"profile.repeat": 1})
     breeze = thermoelec.simulate(loaded, overrides={"profile.repeat": 1, "thermal.convection.air_speed": "2 m/s"})
     assert breeze.summary["cell_temperature_max_degC"] < still.summary["cell_temperature_max_degC"]
-    assert breeze.series["reynolds_number"].max() == pytest.approx(2.0 * 0.30 / thermal.air_properties(
-        0.5 * (breeze.series["sink_temperature_degC"][-1] + 32.0) + KELVIN)[0], rel=0.05)
+    assert breeze.series["reynolds_number"].max() == pytest.approx(2.0 * 0.30 / correlations.air_properties(
+        0.5 * (breeze.series["sink_temperature_degC"][-1] + 32.0) + ZERO_CELSIUS)[0], rel=0.05)

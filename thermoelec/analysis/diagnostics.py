@@ -10,7 +10,6 @@ thermal conductivity 0.2-30 W/(m K) (radial to axial).
 
 from __future__ import annotations
 
-import math
 from collections.abc import Iterator
 from typing import Any
 
@@ -18,7 +17,9 @@ import numpy as np
 
 from thermoelec.engine.problem import Problem
 from thermoelec.physics.cell import Cell, ResistanceLaw, arrhenius_ageing_rate
-from thermoelec.physics.thermal import AIR_PRANDTL, AIR_TEMPERATURE, LUMPED_BIOT_LIMIT, biot_number
+from thermoelec.physics.constants import COULOMBS_PER_AH, ZERO_CELSIUS
+from thermoelec.physics.correlations import AIR_PRANDTL, AIR_TEMPERATURE, CORRELATIONS, Correlation, ValidityRange
+from thermoelec.physics.thermal import LUMPED_BIOT_LIMIT, biot_number
 
 __all__ = [
     "PLAUSIBLE_RANGES",
@@ -32,9 +33,6 @@ __all__ = [
     "time_above",
 ]
 
-KELVIN_AT_0_DEGC = 273.15
-COULOMBS_PER_AH = 3600.0
-
 #: Plausible ranges (common practice for Li-ion cells, from memory), SI units.
 PLAUSIBLE_RANGES: dict[str, tuple[float, float, str]] = {
     "specific_heat": (800.0, 1100.0, "J/kg/K"),
@@ -44,11 +42,11 @@ PLAUSIBLE_RANGES: dict[str, tuple[float, float, str]] = {
 }
 
 #: Charging-temperature thresholds of the stress indicators (common practice) [K].
-CHARGE_STRESS_TEMPERATURES = {"0degC": 273.15, "10degC": 283.15}
+CHARGE_STRESS_TEMPERATURES = {"0degC": ZERO_CELSIUS, "10degC": ZERO_CELSIUS + 10.0}
 
 
 def _degc(kelvin: float) -> float:
-    return float(kelvin) - KELVIN_AT_0_DEGC
+    return float(kelvin) - ZERO_CELSIUS
 
 
 # ---------------------------------------------------------------------------
@@ -245,42 +243,35 @@ def resolution_warnings(problem: Problem, output_interval: float) -> list[str]:
     return []
 
 
-#: Validity ranges of the convection correlations (Incropera et al., 6th ed., from memory):
-#: the quantity checked, its range, and where the range is stated.
-CORRELATION_RANGES: dict[str, tuple[str, float, float, str]] = {
-    "cylinder_crossflow": ("Re Pr", 0.2, math.inf, "Churchill-Bernstein, Eq. 7.54"),
-    "flat_plate": ("Re", 0.0, 1e8, "flat plate, Eqs. 7.30 and 7.38"),
-    "horizontal_cylinder": ("Ra", 0.0, 1e12, "Churchill-Chu, Eq. 9.34"),
-    "horizontal_plate_buoyant": ("Ra", 1e4, 1e11, "McAdams, Eqs. 9.30-9.31"),
-    "horizontal_plate_other": ("Ra", 1e5, 1e10, "McAdams, Eq. 9.32"),
-}
 #: Below this sink-to-air difference [K] free convection carries next to nothing, so its range is not checked.
 FREE_CONVECTION_MIN_DIFFERENCE = 0.5
 
 
-def _range_warning(name: str, values: np.ndarray) -> list[str]:
-    label, low, high, source = CORRELATION_RANGES[name]
-    if values.size == 0:
+def _range_warning(entry: Correlation, rng: ValidityRange, values: np.ndarray) -> list[str]:
+    if values.size == 0 or rng.contains(values):
         return []
-    lo, hi = float(values.min()), float(values.max())
-    if lo >= low and hi <= high:
-        return []
-    return [f"the {name.replace('_', ' ')} correlation ({source}) is valid for {low:.3g} <= {label} <= {high:.3g}, "
-            f"but the run reached {label} = {lo:.3g}..{hi:.3g}: its coefficient is extrapolated there"]
+    where = f"{entry.method}, {rng.form}" if rng.form else entry.method
+    return [f"the {entry.name} correlation ({where}) is valid for {rng.describe()}, but the run reached "
+            f"{rng.quantity} = {float(values.min()):.3g}..{float(values.max()):.3g}: its coefficient is "
+            "extrapolated there"]
 
 
 def correlation_warnings(problem: Problem, series: dict[str, np.ndarray]) -> list[str]:
     """Warn where a convection correlation was used outside its validity range, or air properties were held.
 
-    Free-convection ranges are checked only where the sink and the air differ by
-    more than :data:`FREE_CONVECTION_MIN_DIFFERENCE`.
+    The ranges (in Re, Re Pr, Ra or Pr) are those of the correlation's
+    entry in :data:`thermoelec.physics.correlations.CORRELATIONS`, each checked
+    over the output rows where it applies: a forced correlation while the air
+    moves, a natural one where the sink and the air differ by more than
+    :data:`FREE_CONVECTION_MIN_DIFFERENCE`, and a range of one surface side
+    (hot or cold) only where the sink is on that side.
     """
     conv = problem.thermal.convection
     if conv is None:
         return []
     warnings: list[str] = []
-    ts = series["sink_temperature_degC"] + KELVIN_AT_0_DEGC
-    ta = series["ambient_temperature_degC"] + KELVIN_AT_0_DEGC
+    ts = series["sink_temperature_degC"] + ZERO_CELSIUS
+    ta = series["ambient_temperature_degC"] + ZERO_CELSIUS
     film = 0.5 * (ts + ta)
     if film.min() < AIR_TEMPERATURE[0] or film.max() > AIR_TEMPERATURE[-1]:
         warnings.append(f"air film temperature {_degc(film.min()):.1f}..{_degc(film.max()):.1f} degC leaves the "
@@ -288,17 +279,14 @@ def correlation_warnings(problem: Problem, series: dict[str, np.ndarray]) -> lis
                         "degC): properties held at its edge")
     reynolds, rayleigh = series["reynolds_number"], series["rayleigh_number"]
     pr = np.interp(film, AIR_TEMPERATURE, AIR_PRANDTL)
-    flowing = reynolds > 0
-    if conv.forced == "cylinder_crossflow":
-        warnings += _range_warning("cylinder_crossflow", (reynolds * pr)[flowing])
-    elif conv.forced == "flat_plate":
-        warnings += _range_warning("flat_plate", reynolds[flowing])
-    free = np.abs(ts - ta) > FREE_CONVECTION_MIN_DIFFERENCE
-    if conv.natural == "horizontal_cylinder":
-        warnings += _range_warning("horizontal_cylinder", rayleigh[free])
-    elif conv.natural in ("horizontal_plate_up", "horizontal_plate_down"):
-        hot = ts > ta
-        buoyant = hot if conv.natural == "horizontal_plate_up" else ~hot
-        warnings += _range_warning("horizontal_plate_buoyant", rayleigh[free & buoyant])
-        warnings += _range_warning("horizontal_plate_other", rayleigh[free & ~buoyant])
+    hot = ts > ta
+    used = {"forced": reynolds > 0, "natural": np.abs(ts - ta) > FREE_CONVECTION_MIN_DIFFERENCE}
+    for name in (conv.forced, conv.natural):
+        if name is None:
+            continue
+        entry = CORRELATIONS[name]
+        rows = used[entry.kind]
+        for rng in entry.validity:
+            where = rows & rng.applies(hot)
+            warnings += _range_warning(entry, rng, rng.value(reynolds, rayleigh, pr)[where])
     return warnings

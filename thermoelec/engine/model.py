@@ -131,6 +131,7 @@ from thermoelec.engine.layout import (
     rc_length,
 )
 from thermoelec.physics import cell as cellphys
+from thermoelec.physics import correlations
 from thermoelec.physics import thermal as thermphys
 from thermoelec.physics.loads import MODE_POWER, MODE_VOLTAGE, pack_current, power_deliverable_margin
 
@@ -146,8 +147,8 @@ _power_margin = power_deliverable_margin
 _bernardi = cellphys.bernardi_heat
 _cell_rate = thermphys.cell_node_rate
 _sink_rate = thermphys.sink_node_rate
-_h_from_numbers = thermphys.coefficient_from_numbers
-_conv_numbers = thermphys.convection_numbers
+_h_from_numbers = correlations.coefficient_from_numbers
+_conv_numbers = correlations.convection_numbers
 _radiation = thermphys.radiation_heat
 _effectiveness = thermphys.coolant_effectiveness
 

@@ -13,7 +13,7 @@ import numpy as np
 
 from thermoelec.engine import layout as L
 from thermoelec.engine.profile import Segment
-from thermoelec.physics import thermal as thermphys
+from thermoelec.physics import correlations
 from thermoelec.physics.cell import Cell, Pack
 from thermoelec.physics.thermal import ThermalNetwork
 
@@ -133,8 +133,8 @@ def _thermal_header(header: np.ndarray, th: ThermalNetwork) -> None:
     """Cooling options into the header; thermostat flags start off (the driver sets them)."""
     conv = th.convection
     if conv is not None:
-        header[L.H_FORCED] = thermphys.FORCED_CORRELATIONS.get(conv.forced or "", 0)
-        header[L.H_NATURAL] = thermphys.NATURAL_CORRELATIONS.get(conv.natural or "", 0)
+        header[L.H_FORCED] = correlations.FORCED_CORRELATIONS.get(conv.forced or "", 0)
+        header[L.H_NATURAL] = correlations.NATURAL_CORRELATIONS.get(conv.natural or "", 0)
         header[L.H_CONV_LENGTH], header[L.H_CONV_AREA], header[L.H_AIR_SPEED] = conv.length, conv.area, conv.air_speed
     header[L.H_FAN_SPEED] = -1.0
     if th.fan is not None:

@@ -293,7 +293,7 @@ def pack_current(mode: int, value: float, emf: float, resistance: float, auxilia
     Parameters
     ----------
     mode : int
-        Code of a :data:`LOAD_MODES` entry.
+        Code of a :data:`LOAD_MODES` entry [-].
     value : float
         The demand in the mode's unit: current [A], power [W], load resistance [Ω]
         or terminal voltage [V].

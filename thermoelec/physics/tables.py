@@ -42,7 +42,7 @@ def bracket_at(grid: np.ndarray, start: int, n: int, x: float) -> tuple[int, flo
     Returns
     -------
     index : int
-        ``i`` with ``grid[start + i] <= x <= grid[start + i + 1]`` (0 for a one-point grid).
+        ``i`` with ``grid[start + i] <= x <= grid[start + i + 1]`` (0 for a one-point grid) [-].
     weight : float
         Linear weight of break point ``i + 1``, in 0..1 [-]; beyond the end points
         the value is held (weight 0 or 1).
@@ -75,7 +75,28 @@ def bracket_at(grid: np.ndarray, start: int, n: int, x: float) -> tuple[int, flo
 
 @register_jitable
 def bracket(grid: np.ndarray, x: float) -> tuple[int, float]:
-    """:func:`bracket_at` over a whole grid array [unit of ``grid``]; returns ``(index, weight)``."""
+    """Index and weight of ``x`` in a whole sorted grid, clamped at the ends (:func:`bracket_at`).
+
+    Parameters
+    ----------
+    grid : array of float
+        Strictly increasing break points [any unit].
+    x : float
+        Query point [unit of ``grid``].
+
+    Returns
+    -------
+    index : int
+        ``i`` with ``grid[i] <= x <= grid[i + 1]`` [-].
+    weight : float
+        Linear weight of break point ``i + 1``, in 0..1 [-].
+
+    Examples
+    --------
+    >>> index, weight = bracket(np.array([0.0, 1.0, 3.0]), 2.0)
+    >>> index, float(weight)
+    (1, 0.5)
+    """
     return bracket_at(grid, 0, grid.shape[0], x)
 
 
