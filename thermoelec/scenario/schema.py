@@ -26,6 +26,7 @@ from thermoelec.engine.options import SolverOptions
 from thermoelec.engine.problem import StressSettings
 from thermoelec.inputs.units import to_si
 from thermoelec.physics.cell import CellGeometry, RCPair, ResistanceLaw
+from thermoelec.physics.correlations import FORCED_CORRELATION_NAMES, NATURAL_CORRELATION_NAMES
 from thermoelec.physics.loads import LOAD_MODES, SEGMENT_MODES
 from thermoelec.physics.thermal import (
     Convection,
@@ -344,9 +345,8 @@ class ConvectionSpec(_Section):
 
     area: Area
     coefficient: Coefficient | None = None
-    forced: Literal["cylinder_crossflow", "flat_plate"] | None = None
-    natural: Literal["horizontal_cylinder", "vertical_plate", "horizontal_plate_up",
-                     "horizontal_plate_down"] | None = None
+    forced: Literal[FORCED_CORRELATION_NAMES] | None = None  # physics.correlations.CORRELATIONS
+    natural: Literal[NATURAL_CORRELATION_NAMES] | None = None
     length: Length | None = None
     air_speed: Speed = 0.0
 
