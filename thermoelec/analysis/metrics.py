@@ -158,7 +158,7 @@ def mission_metrics(problem: Problem, start: np.ndarray, end: np.ndarray, extrem
     Returns
     -------
     dict
-        Every key of :data:`METRICS`, the energy parts and ``stop_reason``; temperatures
+        Every key of :data:`METRICS` (in its order, the energy parts among them); temperatures
         [degC], differences [K], voltages [V], currents [A], energies [Wh], charge [Ah], times [s].
 
     Notes
@@ -171,14 +171,11 @@ def mission_metrics(problem: Problem, start: np.ndarray, end: np.ndarray, extrem
     cell_temperature_start = start[L.cell_temperature_index(problem.n_rc)]
     return {
         "completed": status == "ok" and stop_reason == "end_of_profile",
-        "stop_reason": stop_reason,
         "duration_s": float(duration),
         "cell_temperature_max_degC": float(extremes.cell_temperature_max - ZERO_CELSIUS),
         "cell_temperature_rise_K": float(extremes.cell_temperature_max - cell_temperature_start),
         "sink_temperature_max_degC": float(extremes.sink_temperature_max - ZERO_CELSIUS),
         "voltage_min_V": float(extremes.voltage_min),
-        "voltage_margin_min_V": float(extremes.cell_voltage_min - problem.cell.voltage_min),
-        "temperature_margin_K": float(problem.limits.cell_temperature_max - extremes.cell_temperature_max),
         "current_max_A": float(extremes.current_abs_max),
         **energy_totals(q),
         "heat_generated_Wh": float(q[L.Q_HEAT]) / JOULES_PER_WH,
@@ -186,6 +183,8 @@ def mission_metrics(problem: Problem, start: np.ndarray, end: np.ndarray, extrem
         "efficiency": round_trip_efficiency(q),
         "charge_throughput_Ah": float(q[L.Q_THROUGHPUT]) / COULOMBS_PER_AH,
         "soc_end": float(end[0]),
+        "voltage_margin_min_V": float(extremes.cell_voltage_min - problem.cell.voltage_min),
+        "temperature_margin_K": float(problem.limits.cell_temperature_max - extremes.cell_temperature_max),
         "equivalent_time_at_reference_s": float(extremes.equivalent_time_at_reference),
     }
 
@@ -205,11 +204,11 @@ def batch_metrics(problem: Problem, outcome: BatchOutcome, i: int) -> dict[str, 
     Returns
     -------
     dict
-        :func:`mission_metrics` plus ``status`` (``"ok"``) and ``message``. The
+        :func:`mission_metrics` plus ``status`` (``"ok"``), ``message`` and ``stop_reason``. The
         Arrhenius-equivalent time is the kernel's trapezoid over accepted steps, not
         over output rows as in the solo summary.
     """
     row = mission_metrics(problem, outcome.initial_states[i], outcome.states[i],
                           Extremes.from_batch(outcome.extras[i]), outcome.duration[i], outcome.stop_reason[i])
-    row.update(status="ok", message="")
+    row.update(status="ok", message="", stop_reason=outcome.stop_reason[i])
     return row

@@ -312,7 +312,7 @@ def _summary(problem: Problem, trajectory: Trajectory, series: dict[str, np.ndar
         + diagnostics.correlation_warnings(problem, series)
     return {
         "scenario": problem.name,
-        **_extremes_summary(problem, shared, series, tc),
+        **_extremes_summary(problem, trajectory, shared, series, tc),
         **_energy_summary(problem, shared, trajectory, states),
         "soc_start": float(states[0, 0]),
         "soc_end": shared["soc_end"],
@@ -342,13 +342,13 @@ def _row_extremes(problem: Problem, series: dict[str, np.ndarray], states: np.nd
     )
 
 
-def _extremes_summary(problem: Problem, shared: dict[str, Any], series: dict[str, np.ndarray],
-                      tc: np.ndarray) -> dict[str, Any]:
+def _extremes_summary(problem: Problem, trajectory: Trajectory, shared: dict[str, Any],
+                      series: dict[str, np.ndarray], tc: np.ndarray) -> dict[str, Any]:
     """Verdict, temperature, voltage, current and power extremes and margins, in the summary's order."""
     current, cell_voltage = series["current_A"], series["cell_voltage_V"]
     return {
         "completed": shared["completed"],
-        "stop_reason": shared["stop_reason"],
+        "stop_reason": trajectory.stop_reason,
         "duration_s": shared["duration_s"],
         "cell_temperature_max_degC": shared["cell_temperature_max_degC"],
         "cell_temperature_min_degC": float(_celsius(tc.min())),
