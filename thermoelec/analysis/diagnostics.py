@@ -6,6 +6,10 @@ report. The plausibility ranges are those of common practice for Li-ion cells
 (from memory): specific heat 800-1100 J/(kg K), activation energy of the cell
 resistance 15-50 kJ/mol, entropic coefficient up to about 0.5 mV/K in magnitude,
 thermal conductivity 0.2-30 W/(m K) (radial to axial).
+
+Owns the warnings about a result's validity and the stress indicators; imports
+from engine/, physics/ and analysis/ only, never from output/, fit/, the API
+or the command line.
 """
 
 from __future__ import annotations
@@ -16,6 +20,7 @@ from typing import Any
 
 import numpy as np
 
+from thermoelec.analysis.metrics import COULOMBS_PER_AH, ZERO_CELSIUS
 from thermoelec.engine.problem import Problem
 from thermoelec.physics.cell import Cell, ResistanceLaw, arrhenius_ageing_rate
 from thermoelec.physics.thermal import AIR_PRANDTL, AIR_TEMPERATURE, LUMPED_BIOT_LIMIT, biot_number
@@ -32,9 +37,6 @@ __all__ = [
     "time_above",
 ]
 
-KELVIN_AT_0_DEGC = 273.15
-COULOMBS_PER_AH = 3600.0
-
 #: Plausible ranges (common practice for Li-ion cells, from memory), SI units.
 PLAUSIBLE_RANGES: dict[str, tuple[float, float, str]] = {
     "specific_heat": (800.0, 1100.0, "J/kg/K"),
@@ -44,11 +46,11 @@ PLAUSIBLE_RANGES: dict[str, tuple[float, float, str]] = {
 }
 
 #: Charging-temperature thresholds of the stress indicators (common practice) [K].
-CHARGE_STRESS_TEMPERATURES = {"0degC": 273.15, "10degC": 283.15}
+CHARGE_STRESS_TEMPERATURES = {"0degC": ZERO_CELSIUS, "10degC": ZERO_CELSIUS + 10.0}
 
 
 def _degc(kelvin: float) -> float:
-    return float(kelvin) - KELVIN_AT_0_DEGC
+    return float(kelvin) - ZERO_CELSIUS
 
 
 # ---------------------------------------------------------------------------
@@ -279,8 +281,8 @@ def correlation_warnings(problem: Problem, series: dict[str, np.ndarray]) -> lis
     if conv is None:
         return []
     warnings: list[str] = []
-    ts = series["sink_temperature_degC"] + KELVIN_AT_0_DEGC
-    ta = series["ambient_temperature_degC"] + KELVIN_AT_0_DEGC
+    ts = series["sink_temperature_degC"] + ZERO_CELSIUS
+    ta = series["ambient_temperature_degC"] + ZERO_CELSIUS
     film = 0.5 * (ts + ta)
     if film.min() < AIR_TEMPERATURE[0] or film.max() > AIR_TEMPERATURE[-1]:
         warnings.append(f"air film temperature {_degc(film.min()):.1f}..{_degc(film.max()):.1f} degC leaves the "
