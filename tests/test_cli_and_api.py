@@ -139,3 +139,31 @@ def test_cold_charge_warning():
     assert any("charge_temperature_min" in w for w in result.warnings)
     warm = thermoelec.simulate(data, overrides={"profile.segment[1]": {"mode": "rest", "duration": "1 s"}})
     assert not any("charge_temperature_min" in w for w in warm.warnings)
+
+
+def test_api_plot_functions_draw_the_result():
+    # the figures show the result's own series: the dashboard's current panel holds the current,
+    # the energy chart's terminal curve ends at the last discharging voltage, the operating region
+    # plots the mission's (current, power) points
+    from matplotlib.figure import Figure
+
+    result = thermoelec.simulate_file(DRONE)
+    dashboard = thermoelec.plot_dashboard(result)
+    energy = thermoelec.plot_energy(result)
+    region = thermoelec.plot_operating_region(result)
+    assert all(isinstance(fig, Figure) for fig in (dashboard, energy, region))
+    assert len(dashboard.axes) == 6
+    (current_line,) = [line for line in dashboard.axes[1].lines if len(line.get_ydata()) > 2]  # not the markers
+    np.testing.assert_array_equal(current_line.get_ydata(), result.series["current_A"])
+    assert energy.axes[0].get_xlabel() == "charge discharged [Ah]"
+    points = region.axes[0].collections[-1].get_offsets()
+    discharging = result.series["current_A"] > 0
+    np.testing.assert_allclose(points[:, 0], result.series["current_A"][discharging])
+    np.testing.assert_allclose(points[:, 1], result.series["power_W"][discharging])
+
+
+def test_import_thermoelec_loads_no_plotting():
+    # the plot functions import the output layer when called, so a plain import stays light
+    code = "import sys, thermoelec; print(any(m.startswith(('matplotlib', 'thermoelec.output')) for m in sys.modules))"
+    proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert proc.stdout.strip() == "False"

@@ -1,57 +1,76 @@
-"""The orchestrator: scenario -> problem -> integration -> result."""
+"""The public entry points: simulate a mission, draw its figures.
+
+The top layer (with :mod:`thermoelec.cli`): it may import every layer below.
+:func:`simulate` and :func:`simulate_file` are those of
+:mod:`thermoelec.analysis.simulate`; the plot functions draw a result with
+:mod:`thermoelec.output.figures`, imported when first called so that
+``import thermoelec`` does not load matplotlib.
+"""
 
 from __future__ import annotations
 
-from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING
 
-from thermoelec.analysis.results import SimulationResult, build_result
-from thermoelec.engine.driver import integrate_problem
-from thermoelec.engine.options import SolverOptions
-from thermoelec.engine.problem import Problem
-from thermoelec.scenario import Scenario, load_scenario, scenario_from_dict
-from thermoelec.version import __version__
+from thermoelec.analysis.results import SimulationResult
+from thermoelec.analysis.simulate import simulate, simulate_file
 
-__all__ = ["simulate", "simulate_file"]
+if TYPE_CHECKING:
+    from matplotlib.figure import Figure
+
+__all__ = ["plot_dashboard", "plot_energy", "plot_operating_region", "simulate", "simulate_file"]
 
 
-def simulate(scenario: Scenario | Problem | dict, options: SolverOptions | None = None,
-             overrides: dict[str, Any] | None = None) -> SimulationResult:
-    """Simulate one mission.
+def plot_dashboard(result: SimulationResult) -> Figure:
+    """The mission dashboard of a result.
 
     Parameters
     ----------
-    scenario : Scenario, Problem or dict
-        A loaded scenario, an SI problem, or scenario data as a dict.
-    options : SolverOptions, optional
-        Integrator settings; default: the scenario's ``[solver]`` section.
-    overrides : dict, optional
-        Dotted-path replacements applied to a Scenario or dict first.
+    result : SimulationResult
+        A simulated mission (:func:`simulate`).
 
     Returns
     -------
-    SimulationResult
-        Time series, summary, status and solver counters.
+    matplotlib.figure.Figure
+        Demand, current, voltage with limits, SoC, temperatures with limit and heat
+        against time; stops and mode switches marked (:func:`thermoelec.output.figures.dashboard`).
     """
-    metadata: dict[str, Any] = {"thermoelec_version": __version__}
-    if isinstance(scenario, dict):
-        scenario = scenario_from_dict(scenario, overrides=overrides)
-    elif isinstance(scenario, Scenario) and overrides:
-        scenario = scenario.with_overrides(overrides)
-    if isinstance(scenario, Scenario):
-        problem = scenario.problem()
-        options = options or scenario.solver_options()
-        metadata.update(scenario_name=scenario.name, scenario_file=scenario.source,
-                        scenario_sha256=scenario.digest,
-                        overrides=[f"{k}={v}" for k, v in scenario.overrides])
-    else:
-        problem = scenario
-        options = options or SolverOptions()
-    metadata.update(backend=options.backend, rtol=options.rtol, output_interval_s=options.output_interval)
-    trajectory = integrate_problem(problem, options)
-    return build_result(problem, trajectory, options, metadata)
+    from thermoelec.output.figures import dashboard
+
+    return dashboard(result)
 
 
-def simulate_file(path: str | Path, overrides: dict[str, Any] | None = None) -> SimulationResult:
-    """Load a scenario file and simulate it."""
-    return simulate(load_scenario(path, overrides))
+def plot_energy(result: SimulationResult) -> Figure:
+    """The energy chart of a result: pack voltage [V] against charge moved [Ah], energies [Wh] shaded.
+
+    Parameters
+    ----------
+    result : SimulationResult
+        A simulated mission (:func:`simulate`).
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        One panel per direction that moved charge (:func:`thermoelec.output.figures.energy_chart`).
+    """
+    from thermoelec.output.figures import energy_chart
+
+    return energy_chart(result)
+
+
+def plot_operating_region(result: SimulationResult) -> Figure:
+    """The operating region of a result: load power and dissipation [W] against pack current [A].
+
+    Parameters
+    ----------
+    result : SimulationResult
+        A simulated mission (:func:`simulate`).
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        The curves at the start, the coldest instant and the end, with the mission's operating
+        points (:func:`thermoelec.output.figures.operating_region`).
+    """
+    from thermoelec.output.figures import operating_region
+
+    return operating_region(result)

@@ -78,16 +78,19 @@ def _cases(tokens: list[list[str]]) -> list[tuple[str, dict]]:
 
 
 def _compare(args: argparse.Namespace) -> int:
-    from thermoelec.analysis.compare import case_list, format_table, run_cases, write_comparison
+    from thermoelec.analysis.compare import case_list, run_cases, write_comparison
+    from thermoelec.output.tables import format_comparison
 
     scenario = load_scenario(args.scenario, _overrides(args.set or []))
     outcomes = run_cases(scenario, case_list(scenario, _cases(args.case or [])))
     out = Path(args.out)
     try:
-        write_comparison(outcomes, out, figures=not args.no_figures)
+        write_comparison(outcomes, out)
         if not args.no_figures:
+            from thermoelec.output.figures import write_comparison_figure
             from thermoelec.output.report import comparison_report, write_report
 
+            write_comparison_figure({o.name: o.result for o in outcomes}, out)
             write_report(comparison_report(outcomes, scenario.raw, scenario.name,
                                            scenario.spec.scenario.description), out)
     except OSError as exc:
@@ -95,7 +98,7 @@ def _compare(args: argparse.Namespace) -> int:
         return EXIT_FAILURE
     if not args.quiet:
         print(f"scenario: {scenario.name}")
-        print(format_table(outcomes))
+        print(format_comparison(outcomes))
         for outcome in outcomes:
             for warning in outcome.result.warnings:
                 print(f"  warning ({outcome.name}): {warning}")
@@ -189,9 +192,9 @@ def _sweep(args: argparse.Namespace) -> int:
         out.mkdir(parents=True, exist_ok=True)
         found.to_netcdf(out / "search.nc")
         if not args.no_figures:
-            from thermoelec.output.figures import save
+            from thermoelec.output.sweep_figures import write_search_figure
 
-            save(sweep.search_chart(found), out, "search", ("png", "svg"))
+            write_search_figure(found, out)
         if not args.quiet:
             print(found.to_dataframe().to_string())
             print(f"search results in {out}/")
@@ -208,7 +211,11 @@ def _sweep(args: argparse.Namespace) -> int:
     rows = sweep.run_sweep(scenario, plan, out, args.workers, args.scheduler, args.resume, args.chunk_size,
                            progress=not args.quiet, keep_interval=keep, engine=args.engine)
     ds = sweep.sweep_dataset(scenario, plan, rows)
-    sweep.write_sweep(ds, out, figures=not args.no_figures)
+    sweep.write_sweep(ds, out)
+    if not args.no_figures:
+        from thermoelec.output.sweep_figures import write_sweep_figures
+
+        write_sweep_figures(ds, out)
     if keep is not None:
         sweep.write_series(plan, rows, out)
     if not args.quiet:

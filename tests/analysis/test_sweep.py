@@ -298,23 +298,6 @@ def test_keep_series_writes_decimated_series_chunked_by_scenario(tmp_path):
     assert list(kept["profile.segment[1].value"].values) == [2.0, 7.0]
 
 
-def test_heat_map_marks_the_stopped_scenarios_and_draws_the_boundary(mixed):
-    from matplotlib.collections import PathCollection
-
-    _, ds, _ = mixed
-    fig = sweep.sweep_map(ds, "cell_temperature_max_degC")
-    ax = fig.axes[0]
-    marks = [c for c in ax.collections if isinstance(c, PathCollection)]
-    stopped = int((ds["stop_reason"].values != "end_of_profile").sum())
-    assert stopped > 0 and len(marks) == 1 and len(marks[0].get_offsets()) == stopped
-    # the mesh holds the metric as the dataset has it (rows: first swept key)
-    mesh = ax.collections[0]
-    np.testing.assert_allclose(np.asarray(mesh.get_array()).reshape(ds["cell_temperature_max_degC"].shape),
-                               ds["cell_temperature_max_degC"].values)
-    dims = ds["cell_temperature_max_degC"].dims
-    assert ax.get_xlabel().startswith(dims[1]) and ax.get_ylabel().startswith(dims[0])
-
-
 def test_a_swept_tolerance_is_each_scenarios_own(tmp_path):
     # solver.rtol swept: each scenario is solved at its own tolerance, as its solo batch run is
     loaded = load(write_scenario(tmp_path, {"solver.rtol": [1e-3, 1e-9]}))

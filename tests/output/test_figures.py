@@ -127,3 +127,20 @@ def test_comparison_overlay_has_one_line_per_case(drone, ebike):
     fig = figures.comparison_overlay({"drone": drone, "e-bike": ebike})
     labels = [t.get_text() for t in fig.axes[0].get_legend().get_texts()]
     assert labels == ["drone", "e-bike"]
+
+
+def test_write_comparison_figure_writes_the_overlay(drone, ebike, tmp_path):
+    paths = figures.write_comparison_figure({"drone": drone, "e-bike": ebike}, tmp_path / "cmp")
+    assert [p.name for p in paths] == ["comparison.png", "comparison.svg"]
+    image = matplotlib.image.imread(paths[0])
+    assert float(np.std(image)) > 0.01  # not a blank canvas
+
+
+def test_mode_colours_and_event_names_come_from_the_registries():
+    from thermoelec.engine.events import EVENTS, STOP_EVENTS
+    from thermoelec.physics.loads import LOAD_MODES
+
+    assert set(figures.MODE_COLOURS) == {"rest", *LOAD_MODES}
+    assert len(set(figures.MODE_COLOURS.values())) == len(figures.MODE_COLOURS)  # told apart
+    assert figures.STOP_EVENT_NAMES == {EVENTS[code].name for code in STOP_EVENTS}
+    assert {"voltage_min", "temperature_max", "power_limit"} <= figures.STOP_EVENT_NAMES

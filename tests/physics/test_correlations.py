@@ -14,7 +14,6 @@ Sources:
 """
 
 import math
-import typing
 
 import ht
 import pytest

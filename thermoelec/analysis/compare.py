@@ -5,6 +5,13 @@ Each case is the scenario with dotted-path overrides (its ``[[case]]`` table or 
 each case gets a second run that answers "how much energy is there to the
 voltage cutoff in these conditions": a constant-power discharge from the same
 start, at the mission's mean discharge power, until a limit stops it.
+
+Owns the cases (:func:`case_list`, :func:`run_cases`), the comparison's rows
+(:data:`COMPARISON_ROWS`, :func:`comparison_table`, :func:`comparison_json`) and
+the writing of its data files (:func:`write_comparison`). Imports from
+scenario/, engine/ and analysis/ only: the overlay figure and the report are
+drawn by output/ (:func:`thermoelec.output.figures.write_comparison_figure`), the
+terminal table is :func:`thermoelec.output.tables.format_comparison`.
 """
 
 from __future__ import annotations
@@ -20,12 +27,13 @@ from typing import Any
 import numpy as np
 
 from thermoelec.analysis.results import SimulationResult
-from thermoelec.output.tables import format_value
+from thermoelec.analysis.simulate import simulate
+from thermoelec.physics.constants import JOULES_PER_WH
 from thermoelec.scenario import Scenario, ScenarioError
 
-__all__ = ["COMPARISON_ROWS", "CaseOutcome", "case_list", "comparison_table", "energy_to_cutoff", "run_cases"]
+__all__ = ["COMPARISON_ROWS", "CaseOutcome", "case_list", "comparison_json", "comparison_table", "energy_to_cutoff",
+           "run_cases", "write_comparison"]
 
-JOULES_PER_WH = 3600.0
 #: Long enough that a limit, not the clock, ends the energy-to-cutoff discharge.
 CUTOFF_RUN_DURATION = "1000 h"
 
@@ -128,8 +136,6 @@ def energy_to_cutoff(case: Scenario, mission: SimulationResult) -> SimulationRes
     power = _mean_discharge_power(mission)
     if power is None:
         return None
-    from thermoelec.api import simulate
-
     # the same start as the mission: its soak segments (if any) come first
     soak = [seg for seg in case.raw["profile"]["segment"] if seg.get("mode") == "soak"]
     overrides: dict[str, Any] = {
@@ -143,8 +149,6 @@ def energy_to_cutoff(case: Scenario, mission: SimulationResult) -> SimulationRes
 
 def run_cases(scenario: Scenario, cases: Sequence[tuple[str, Mapping[str, Any]]]) -> list[CaseOutcome]:
     """Simulate every case (mission and energy-to-cutoff run)."""
-    from thermoelec.api import simulate
-
     outcomes = []
     for index, (name, overrides) in enumerate(cases, start=1):
         try:
@@ -186,30 +190,16 @@ def comparison_json(outcomes: Sequence[CaseOutcome]) -> str:
     return json.dumps({"cases": cases}, indent=2, allow_nan=False)
 
 
-def format_table(outcomes: Sequence[CaseOutcome]) -> str:
-    """The comparison as aligned text for the terminal."""
-    metrics = [o.metrics() for o in outcomes]
-    header = ["", *(o.name for o in outcomes)]
-    lines = [header]
-    for label, key, unit in COMPARISON_ROWS:
-        lines.append([label, *(format_value(m.get(key), unit) for m in metrics)])
-    widths = [max(len(row[i]) for row in lines) for i in range(len(header))]
-    return "\n".join("  ".join(cell.ljust(w) if i == 0 else cell.rjust(w)
-                               for i, (cell, w) in enumerate(zip(row, widths, strict=True))).rstrip()
-                     for row in lines)
+def write_comparison(outcomes: Sequence[CaseOutcome], out_dir: Path) -> list[Path]:
+    """Write ``comparison.csv``, ``comparison.json`` and each case's results (``cases/<name>/``).
 
-
-def write_comparison(outcomes: Sequence[CaseOutcome], out_dir: Path, figures: bool = True) -> list[Path]:
-    """Write ``comparison.csv``, ``comparison.json``, each case's results and (optionally) the overlays."""
+    The overlay figure and the report are the output layer's
+    (:func:`thermoelec.output.figures.write_comparison_figure`, :mod:`thermoelec.output.report`).
+    """
     out_dir.mkdir(parents=True, exist_ok=True)
     written = [out_dir / "comparison.csv", out_dir / "comparison.json"]
     comparison_table(outcomes).to_csv(written[0], index=False)
     written[1].write_text(comparison_json(outcomes) + "\n")
     for outcome in outcomes:
         written += outcome.result.write(out_dir / "cases" / slug(outcome.name))
-    if figures:
-        from thermoelec.output.figures import comparison_overlay, save
-
-        written += save(comparison_overlay({o.name: o.result for o in outcomes}), out_dir, "comparison",
-                        ("png", "svg"))
     return written

@@ -6,6 +6,10 @@ report. The plausibility ranges are those of common practice for Li-ion cells
 (from memory): specific heat 800-1100 J/(kg K), activation energy of the cell
 resistance 15-50 kJ/mol, entropic coefficient up to about 0.5 mV/K in magnitude,
 thermal conductivity 0.2-30 W/(m K) (radial to axial).
+
+Owns the warnings about a result's validity and the stress indicators; imports
+from engine/, physics/ and analysis/ only, never from output/, fit/, the API
+or the command line.
 """
 
 from __future__ import annotations

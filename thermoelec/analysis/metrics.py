@@ -1,32 +1,41 @@
 """The metrics of a mission, defined once: the sweep's contract and the energy accounting.
 
-:data:`METRICS` are the per-scenario numbers a sweep keeps (the numeric keys of
-the output contract and a few more). The solo path (:mod:`thermoelec.analysis.results`)
-and the batched one (:func:`batch_metrics`) compute them from the same pieces:
-the final quadratures of the integration, the running extremes, the problem.
+Owns :data:`METRICS` (the per-scenario numbers a sweep keeps: the numeric keys
+of the output contract and a few more), :func:`mission_metrics` (the one
+function that computes them), the energy accounting (:func:`energy_totals`,
+:func:`round_trip_efficiency`) and the unit constants of the analysis layer.
+The solo summary (:mod:`thermoelec.analysis.results`) and the batched rows
+(:func:`batch_metrics`) both call :func:`mission_metrics`, from the same pieces:
+the problem, the start and final states (with the quadratures), and the running
+extremes (:class:`Extremes`) — the solo path takes its extremes from the output
+rows, the batch from the extremes its kernel keeps over every accepted step.
 
 Energy accounting (pack level, as areas under the voltage-charge curves):
 battery energy ``∫ Ns U I dt``, load energy ``∫ V I dt``, their difference the
 energy dissipated (Bernardi, Pawlikowski & Newman, J. Electrochem. Soc. 132
 (1985) 5).
+
+Imports only from engine/ and physics/ (and scipy); never from output/, fit/,
+the API or the command line.
 """
 
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 
 from thermoelec.engine import layout as L
-from thermoelec.engine.batch import X_ARRHENIUS, X_I_ABS, X_TC_MAX, X_TS_MAX, X_V_MIN, X_VCELL_MIN, BatchOutcome
+from thermoelec.engine.batch import EXTREMES, BatchOutcome
 from thermoelec.engine.problem import Problem
+from thermoelec.physics.constants import COULOMBS_PER_AH, JOULES_PER_WH, ZERO_CELSIUS
 
-__all__ = ["METRICS", "batch_metrics", "energy_totals", "round_trip_efficiency"]
+__all__ = ["METRICS", "Extremes", "batch_metrics",
+           "energy_totals", "mission_metrics", "round_trip_efficiency"]
 
-KELVIN_AT_0_DEGC = 273.15
-JOULES_PER_WH = 3600.0
-COULOMBS_PER_AH = 3600.0
+# Until physics/constants.py lands, the unit constants of analysis/ and output/ are defined here, once.
 
 #: Summary metrics kept per scenario of a sweep (the numeric keys of the output contract and a few more).
 METRICS: tuple[str, ...] = (
@@ -37,13 +46,59 @@ METRICS: tuple[str, ...] = (
 )
 
 
+@dataclass(frozen=True)
+class Extremes:
+    """The running extremes of a mission (field names and order: :data:`thermoelec.engine.batch.EXTREMES`).
+
+    Attributes
+    ----------
+    cell_temperature_max : float
+        Highest cell temperature [K].
+    sink_temperature_max : float
+        Highest heat-sink temperature [K].
+    voltage_min : float
+        Lowest pack terminal voltage [V].
+    cell_voltage_min : float
+        Lowest cell terminal voltage [V].
+    current_abs_max : float
+        Largest pack current magnitude [A].
+    equivalent_time_at_reference : float
+        Arrhenius-weighted time at the ageing reference temperature [s]: a trapezoid over
+        the output rows on the solo path, over the accepted steps in the batch.
+    """
+
+    cell_temperature_max: float
+    sink_temperature_max: float
+    voltage_min: float
+    cell_voltage_min: float
+    current_abs_max: float
+    equivalent_time_at_reference: float
+
+    @classmethod
+    def from_batch(cls, extras: np.ndarray) -> Extremes:
+        """The extremes of one scenario from the batched kernel's ``extras`` row (order of ``EXTREMES``)."""
+        return cls(**{name: float(value) for name, value in zip(EXTREMES, extras, strict=True)})
+
+
 def finite_or_none(x: float) -> float | None:
     """``x`` as a float, or None where it is not finite (JSON has no NaN)."""
     return float(x) if math.isfinite(x) else None
 
 
 def energy_totals(q: np.ndarray) -> dict[str, float]:
-    """Battery and load energies [Wh] from the quadratures ``q`` (``layout.Q_*``), discharge and charge apart."""
+    """Battery and load energies, discharge and charge apart.
+
+    Parameters
+    ----------
+    q : array
+        Final quadratures of the integration (indices ``layout.Q_*``) [J, C].
+
+    Returns
+    -------
+    dict of str to float
+        ``energy_battery_Wh``, ``energy_load_Wh``, ``energy_dissipated_Wh`` (net), and the
+        discharged and charged parts of the load and battery energies [Wh].
+    """
     battery_out, battery_in = q[L.Q_BATTERY_DISCHARGE], -q[L.Q_BATTERY_CHARGE]
     load_out, load_in = q[L.Q_LOAD_DISCHARGE], -q[L.Q_LOAD_CHARGE]
     energy_battery_wh = float(battery_out - battery_in) / JOULES_PER_WH
@@ -60,29 +115,94 @@ def energy_totals(q: np.ndarray) -> dict[str, float]:
 
 
 def round_trip_efficiency(q: np.ndarray) -> float | None:
-    """Energy out over energy in: delivered to the load and stored in the cells, over drawn from the
-    cells and taken from the charger; ``None`` when nothing flowed."""
+    """Energy out over energy in [-]: delivered to the load and stored in the cells, over drawn from the
+    cells and taken from the charger; ``None`` when nothing flowed.
+
+    Parameters
+    ----------
+    q : array
+        Final quadratures of the integration (indices ``layout.Q_*``) [J, C].
+    """
     taken = q[L.Q_BATTERY_DISCHARGE] - q[L.Q_LOAD_CHARGE]
     if taken <= 0:
         return None
     return finite_or_none((q[L.Q_LOAD_DISCHARGE] - q[L.Q_BATTERY_CHARGE]) / taken)
 
 
-def batch_metrics(problem: Problem, outcome: BatchOutcome, i: int) -> dict[str, Any]:
-    """The :data:`METRICS` of scenario ``i`` of a batch, from its final state and running extremes."""
-    n_rc = problem.n_rc
-    y, x = outcome.states[i], outcome.extras[i]
-    q = y[L.quadrature_index(n_rc):]
-    tc0 = outcome.initial_states[i, L.cell_temperature_index(n_rc)]
+def mission_metrics(problem: Problem, start: np.ndarray, end: np.ndarray, extremes: Extremes, duration: float,
+                    stop_reason: str, status: str = "ok") -> dict[str, Any]:
+    """The :data:`METRICS` of one mission (and the energy parts of :func:`energy_totals`).
+
+    Parameters
+    ----------
+    problem : Problem
+        The simulated problem (layout, cell voltage limits, cell temperature limit).
+    start, end : arrays
+        State vector at the mission start (after any soak) and at its end, quadratures
+        included (``layout``: SoC [-], RC voltages [V], temperatures [K], quadratures [J, C]).
+    extremes : Extremes
+        Running extremes of the mission [K, V, A, s].
+    duration : float
+        Mission time from start to end [s].
+    stop_reason : str
+        Why the mission ended (``end_of_profile`` or a stop reason of ``engine.events``).
+    status : str
+        ``"ok"`` or ``"failed"`` (a failed run is never ``completed``).
+
+    Returns
+    -------
+    dict
+        Every key of :data:`METRICS` (in its order, the energy parts among them); temperatures
+        [degC], differences [K], voltages [V], currents [A], energies [Wh], charge [Ah], times [s].
+
+    Notes
+    -----
+    The Arrhenius-equivalent time is the one in ``extremes``; the solo and batched paths
+    integrate it differently by nature (see :class:`Extremes`), so they agree to the
+    resolution of the output rows only.
+    """
+    q = end[L.quadrature_index(problem.n_rc):]
+    cell_temperature_start = start[L.cell_temperature_index(problem.n_rc)]
     return {
-        "completed": outcome.stop_reason[i] == "end_of_profile", "duration_s": float(outcome.duration[i]),
-        "cell_temperature_max_degC": x[X_TC_MAX] - KELVIN_AT_0_DEGC, "cell_temperature_rise_K": x[X_TC_MAX] - tc0,
-        "sink_temperature_max_degC": x[X_TS_MAX] - KELVIN_AT_0_DEGC, "voltage_min_V": x[X_V_MIN],
-        "current_max_A": x[X_I_ABS], **energy_totals(q), "heat_generated_Wh": q[L.Q_HEAT] / JOULES_PER_WH,
-        "heat_to_ambient_Wh": q[L.Q_HEAT_AMBIENT] / JOULES_PER_WH, "efficiency": round_trip_efficiency(q),
-        "charge_throughput_Ah": q[L.Q_THROUGHPUT] / COULOMBS_PER_AH, "soc_end": float(y[0]),
-        "voltage_margin_min_V": x[X_VCELL_MIN] - problem.cell.voltage_min,
-        "temperature_margin_K": problem.limits.cell_temperature_max - x[X_TC_MAX],
-        "equivalent_time_at_reference_s": x[X_ARRHENIUS],
-        "status": "ok", "message": "", "stop_reason": outcome.stop_reason[i],
+        "completed": status == "ok" and stop_reason == "end_of_profile",
+        "duration_s": float(duration),
+        "cell_temperature_max_degC": float(extremes.cell_temperature_max - ZERO_CELSIUS),
+        "cell_temperature_rise_K": float(extremes.cell_temperature_max - cell_temperature_start),
+        "sink_temperature_max_degC": float(extremes.sink_temperature_max - ZERO_CELSIUS),
+        "voltage_min_V": float(extremes.voltage_min),
+        "current_max_A": float(extremes.current_abs_max),
+        **energy_totals(q),
+        "heat_generated_Wh": float(q[L.Q_HEAT]) / JOULES_PER_WH,
+        "heat_to_ambient_Wh": float(q[L.Q_HEAT_AMBIENT]) / JOULES_PER_WH,
+        "efficiency": round_trip_efficiency(q),
+        "charge_throughput_Ah": float(q[L.Q_THROUGHPUT]) / COULOMBS_PER_AH,
+        "soc_end": float(end[0]),
+        "voltage_margin_min_V": float(extremes.cell_voltage_min - problem.cell.voltage_min),
+        "temperature_margin_K": float(problem.limits.cell_temperature_max - extremes.cell_temperature_max),
+        "equivalent_time_at_reference_s": float(extremes.equivalent_time_at_reference),
     }
+
+
+def batch_metrics(problem: Problem, outcome: BatchOutcome, i: int) -> dict[str, Any]:
+    """The :data:`METRICS` of scenario ``i`` of a batch, from its final state and running extremes.
+
+    Parameters
+    ----------
+    problem : Problem
+        The scenario's problem.
+    outcome : BatchOutcome
+        The batch's outcome (:func:`thermoelec.engine.batch.solve_batch`).
+    i : int
+        Index of the scenario in the batch.
+
+    Returns
+    -------
+    dict
+        :func:`mission_metrics` plus ``status`` (``"ok"``), ``message`` and ``stop_reason``. The
+        Arrhenius-equivalent time is the kernel's trapezoid over accepted steps, not
+        over output rows as in the solo summary.
+    """
+    row = mission_metrics(problem, outcome.initial_states[i], outcome.states[i],
+                          Extremes.from_batch(outcome.extras[i]), outcome.duration[i], outcome.stop_reason[i])
+    row.update(status="ok", message="", stop_reason=outcome.stop_reason[i])
+    return row

@@ -1,4 +1,13 @@
-"""Simulation results: time series, summary metrics, energy and heat accounting.
+"""Simulation results: the result object, its time series and the solo summary.
+
+Owns :class:`SimulationResult` (series with units, summary, status, solver
+counters, events; pandas, xarray and file output) and :func:`build_result`,
+which turns the engine's raw trajectory into it. The metrics shared with the
+batched sweep come from :func:`thermoelec.analysis.metrics.mission_metrics`;
+the warnings and stress indicators from :mod:`thermoelec.analysis.diagnostics`.
+Imports from engine/, physics/ and analysis/ only: never from output/ (figures
+of a result are :func:`thermoelec.plot_dashboard` and its siblings), fit/, the
+API or the command line.
 
 Energy accounting (pack level, as areas under the voltage-charge curves):
 battery energy ``∫ Ns U I dt``, load energy ``∫ V I dt``, their difference the
@@ -18,18 +27,17 @@ from typing import Any
 import numpy as np
 
 from thermoelec.analysis import diagnostics
-from thermoelec.analysis.metrics import energy_totals, round_trip_efficiency
+from thermoelec.analysis.metrics import Extremes, mission_metrics
 from thermoelec.engine import layout as L
 from thermoelec.engine.driver import Trajectory
+from thermoelec.engine.events import CONTROL_EVENTS, EVENT_NAMES
 from thermoelec.engine.options import SolverOptions
 from thermoelec.engine.problem import Problem
+from thermoelec.physics.constants import COULOMBS_PER_AH, JOULES_PER_WH, ZERO_CELSIUS
 from thermoelec.physics.loads import LOAD_MODES, MODE_CURRENT
 
-__all__ = ["SERIES_UNITS", "SimulationResult", "build_result"]
-
-KELVIN_AT_0_DEGC = 273.15
-JOULES_PER_WH = 3600.0
-COULOMBS_PER_AH = 3600.0
+__all__ = ["CCCV_CAP_EVENT", "DEMAND_MODES", "REST_MODE", "SERIES_UNITS", "THERMOSTAT_EVENTS", "SimulationResult",
+           "build_result"]
 
 #: Reported series and their units; the first ten are the output contract.
 SERIES_UNITS: dict[str, str] = {
@@ -83,10 +91,20 @@ SERIES_DESCRIPTIONS: dict[str, str] = {
 
 #: Names of the load modes in the order of their codes in the engine.
 MODE_NAMES = tuple(sorted(LOAD_MODES, key=lambda name: LOAD_MODES[name].code))
+#: The demand label of an output row at zero current: the composite segment mode of a rest
+#: (a key of :data:`thermoelec.physics.loads.COMPOSITE_MODES`).
+REST_MODE = "rest"
+#: Every label :attr:`SimulationResult.demand_mode` can hold: a rest, then the load modes in code order.
+DEMAND_MODES: tuple[str, ...] = (REST_MODE, *MODE_NAMES)
+#: Names of the thermostat switch events (fan, heater, pump), from the event registry.
+THERMOSTAT_EVENTS: tuple[str, ...] = tuple(EVENT_NAMES[code] for code in CONTROL_EVENTS)
+#: The driver's event for a CC-CV charge stopped by its duration cap (no root function, so not in the
+#: event registry of :mod:`thermoelec.engine.events`).
+CCCV_CAP_EVENT = "cccv_cap"
 
 
 def _celsius(kelvin: np.ndarray | float) -> np.ndarray | float:
-    return kelvin - KELVIN_AT_0_DEGC
+    return kelvin - ZERO_CELSIUS
 
 
 @dataclass
@@ -115,8 +133,8 @@ class SimulationResult:
     states : array
         Raw state rows of the integration.
     demand_mode, demand_value : arrays
-        Demand of each output row: mode name (``"rest"`` for zero current) and
-        its value in SI units (A, W, ohm or V).
+        Demand of each output row: mode name (one of :data:`DEMAND_MODES`, ``"rest"``
+        for zero current) and its value in SI units (A, W, ohm or V).
     limits : dict
         Pack-level limits and layout for plots and reports (``voltage_min_V``,
         ``voltage_max_V``, ``cell_temperature_max_degC``, ...).
@@ -179,24 +197,6 @@ class SimulationResult:
         ds.attrs.update(attrs)
         return ds
 
-    def plot_dashboard(self):
-        """The mission dashboard as a matplotlib Figure (see :mod:`thermoelec.output.figures`)."""
-        from thermoelec.output.figures import dashboard
-
-        return dashboard(self)
-
-    def plot_energy(self):
-        """The energy chart (voltage against charge, energies shaded) as a matplotlib Figure."""
-        from thermoelec.output.figures import energy_chart
-
-        return energy_chart(self)
-
-    def plot_operating_region(self):
-        """The operating-region chart (power and dissipation against current) as a matplotlib Figure."""
-        from thermoelec.output.figures import operating_region
-
-        return operating_region(self)
-
     def summary_json(self) -> str:
         """The summary as JSON text."""
         return json.dumps(self.summary, indent=2, allow_nan=False)
@@ -256,7 +256,7 @@ def build_result(problem: Problem, trajectory: Trajectory, options: SolverOption
     codes = trajectory.demand_modes
     demand_value = trajectory.demand_values
     demand_mode = np.array(MODE_NAMES, dtype=object)[codes]
-    demand_mode[(codes == MODE_CURRENT) & (demand_value == 0.0)] = "rest"
+    demand_mode[(codes == MODE_CURRENT) & (demand_value == 0.0)] = REST_MODE
     return SimulationResult(series=series, summary=summary, status=trajectory.status,
                             message=trajectory.message, statistics=stats, events=trajectory.events,
                             metadata=dict(metadata or {}), states=states, demand_mode=demand_mode,
@@ -299,85 +299,26 @@ def _soak_summary(problem: Problem, soak: Trajectory | None) -> dict[str, Any] |
 
 def _summary(problem: Problem, trajectory: Trajectory, series: dict[str, np.ndarray],
              states: np.ndarray, output_interval: float) -> dict[str, Any]:
+    """The summary of a solo run: :func:`mission_metrics` from the output rows, and what only a solo run has."""
     n_rc = problem.n_rc
-    q = states[-1, L.quadrature_index(n_rc):]
-    th = problem.thermal
-    pk = problem.pack
-    cell = problem.cell
-    c_cells = pk.series * pk.parallel * cell.mass * cell.specific_heat
-    tc, ts = states[:, L.cell_temperature_index(n_rc)], states[:, L.sink_temperature_index(n_rc)]
-    tf = states[:, L.coolant_temperature_index(n_rc)]
-    c_coolant = th.coolant.heat_capacity if th.coolant is not None else 0.0
-    stored = (c_cells * (tc[-1] - tc[0]) + th.sink_heat_capacity * (ts[-1] - ts[0])
-              + c_coolant * (tf[-1] - tf[0]))
-
-    efficiency = round_trip_efficiency(q)
-    current = series["current_A"]
-    cell_voltage = series["cell_voltage_V"]
-    times = series["time_s"]
-
-    warnings: list[str] = []
-    if trajectory.status == "failed":
-        warnings.append(f"solver failure at t = {times[-1]:.6g} s: {trajectory.message}; "
-                        "the results cover the mission up to that time only")
-    t_charge_min = problem.limits.charge_temperature_min
-    cold_charge = (current < 0) & (tc < t_charge_min)
-    charging = 0.5 * (current[:-1] + current[1:]) < 0.0
-    cold_time = diagnostics.time_above(times, -tc, -t_charge_min, charging)
-    if cold_charge.any():
-        warnings.append(
-            f"charging below charge_temperature_min ({_celsius(t_charge_min):.1f} degC) for {cold_time:.0f} s, "
-            f"coldest {float(_celsius(tc[cold_charge].min())):.1f} degC: risk of lithium plating; "
-            "follow the cell maker's charge temperature window")
-    for ev in trajectory.events:
-        if ev["event"] == "cccv_cap":
-            warnings.append(f"CC-CV segment {ev['origin']} reached its duration cap at t = {ev['time_s']:.0f} s "
-                            "without falling below its cutoff current")
-    warnings += diagnostics.table_range_warnings(cell, states[:, 0], tc)
+    tc = states[:, L.cell_temperature_index(n_rc)]
+    times, current = series["time_s"], series["current_A"]
+    stress = diagnostics.stress_indicators(problem, times, current, tc)
+    shared = mission_metrics(problem, states[0], states[-1], _row_extremes(problem, series, states, stress),
+                             float(times[-1]), trajectory.stop_reason, trajectory.status)
+    cold_time = _cold_charging_time(problem, times, current, tc)
     biot, biot_warnings = diagnostics.biot_check(problem)
-    warnings += biot_warnings
-    warnings += diagnostics.plausibility_warnings(cell)
-    warnings += diagnostics.resolution_warnings(problem, output_interval)
-    warnings += diagnostics.correlation_warnings(problem, series)
-
-    summary: dict[str, Any] = {
+    warnings = _warnings(problem, trajectory, series, states, cold_time) + biot_warnings \
+        + diagnostics.plausibility_warnings(problem.cell) + diagnostics.resolution_warnings(problem, output_interval) \
+        + diagnostics.correlation_warnings(problem, series)
+    return {
         "scenario": problem.name,
-        "completed": trajectory.status == "ok" and trajectory.stop_reason == "end_of_profile",
-        "stop_reason": trajectory.stop_reason,
-        "duration_s": float(times[-1]),
-        "cell_temperature_max_degC": float(_celsius(tc.max())),
-        "cell_temperature_min_degC": float(_celsius(tc.min())),
-        "cell_temperature_rise_K": float(tc.max() - tc[0]),
-        "sink_temperature_max_degC": float(_celsius(ts.max())),
-        "voltage_min_V": float(series["voltage_V"].min()),
-        "voltage_max_V": float(series["voltage_V"].max()),
-        "cell_voltage_min_V": float(cell_voltage.min()),
-        "cell_voltage_max_V": float(cell_voltage.max()),
-        "voltage_margin_min_V": float(cell_voltage.min() - cell.voltage_min),
-        "voltage_margin_max_V": float(cell.voltage_max - cell_voltage.max()),
-        "temperature_margin_K": float(problem.limits.cell_temperature_max - tc.max()),
-        "current_max_A": float(np.abs(current).max()),
-        "discharge_current_max_A": float(max(current.max(), 0.0)),
-        "charge_current_max_A": float(max(-current.min(), 0.0)) + 0.0,  # no -0.0
-        "power_max_W": float(series["power_W"].max()),
-        **energy_totals(q),
-        "heat_generated_Wh": float(q[L.Q_HEAT]) / JOULES_PER_WH,
-        "heat_reversible_Wh": float(q[L.Q_REVERSIBLE]) / JOULES_PER_WH,
-        "heat_to_ambient_Wh": float(q[L.Q_HEAT_AMBIENT]) / JOULES_PER_WH,
-        "heat_stored_Wh": float(stored) / JOULES_PER_WH,
-        "heat_to_coolant_Wh": float(q[L.Q_COOLANT]) / JOULES_PER_WH,
-        "heat_radiated_Wh": float(q[L.Q_RADIATION]) / JOULES_PER_WH,
-        "heater_energy_Wh": float(q[L.Q_HEATER]) / JOULES_PER_WH,
-        "heater_energy_from_pack_Wh": float(q[L.Q_HEATER]) / JOULES_PER_WH
-        if th.heater is not None and th.heater.from_pack else 0.0,
-        "thermostat_switches": sum(1 for e in trajectory.events if e["event"].endswith("_switch")
-                                   and e["event"] != "cv_switch"),
-        "efficiency": efficiency,
-        "charge_throughput_Ah": float(q[L.Q_THROUGHPUT]) / COULOMBS_PER_AH,
+        **_extremes_summary(problem, trajectory, shared, series, tc),
+        **_energy_summary(problem, shared, trajectory, states),
         "soc_start": float(states[0, 0]),
-        "soc_end": float(states[-1, 0]),
+        "soc_end": shared["soc_end"],
         "time_charging_below_limit_s": float(cold_time),
-        **diagnostics.stress_indicators(problem, times, current, tc),
+        **stress,
         "biot_number": biot,
         "segments_completed": trajectory.segments_completed,
         "segments_total": len(problem.segments),
@@ -386,4 +327,108 @@ def _summary(problem: Problem, trajectory: Trajectory, series: dict[str, np.ndar
         "soak": _soak_summary(problem, trajectory.soak),
         "warnings": warnings,
     }
-    return summary
+
+
+def _row_extremes(problem: Problem, series: dict[str, np.ndarray], states: np.ndarray,
+                  stress: dict[str, Any]) -> Extremes:
+    """The running extremes of a solo run, over its output rows (the Arrhenius time of ``stress``)."""
+    n_rc = problem.n_rc
+    return Extremes(
+        cell_temperature_max=states[:, L.cell_temperature_index(n_rc)].max(),
+        sink_temperature_max=states[:, L.sink_temperature_index(n_rc)].max(),
+        voltage_min=series["voltage_V"].min(),
+        cell_voltage_min=series["cell_voltage_V"].min(),
+        current_abs_max=np.abs(series["current_A"]).max(),
+        equivalent_time_at_reference=stress["equivalent_time_at_reference_s"],
+    )
+
+
+def _extremes_summary(problem: Problem, trajectory: Trajectory, shared: dict[str, Any],
+                      series: dict[str, np.ndarray], tc: np.ndarray) -> dict[str, Any]:
+    """Verdict, temperature, voltage, current and power extremes and margins, in the summary's order."""
+    current, cell_voltage = series["current_A"], series["cell_voltage_V"]
+    return {
+        "completed": shared["completed"],
+        "stop_reason": trajectory.stop_reason,
+        "duration_s": shared["duration_s"],
+        "cell_temperature_max_degC": shared["cell_temperature_max_degC"],
+        "cell_temperature_min_degC": float(_celsius(tc.min())),
+        "cell_temperature_rise_K": shared["cell_temperature_rise_K"],
+        "sink_temperature_max_degC": shared["sink_temperature_max_degC"],
+        "voltage_min_V": shared["voltage_min_V"],
+        "voltage_max_V": float(series["voltage_V"].max()),
+        "cell_voltage_min_V": float(cell_voltage.min()),
+        "cell_voltage_max_V": float(cell_voltage.max()),
+        "voltage_margin_min_V": shared["voltage_margin_min_V"],
+        "voltage_margin_max_V": float(problem.cell.voltage_max - cell_voltage.max()),
+        "temperature_margin_K": shared["temperature_margin_K"],
+        "current_max_A": shared["current_max_A"],
+        "discharge_current_max_A": float(max(current.max(), 0.0)),
+        "charge_current_max_A": float(max(-current.min(), 0.0)) + 0.0,  # no -0.0
+        "power_max_W": float(series["power_W"].max()),
+    }
+
+
+def _energy_summary(problem: Problem, shared: dict[str, Any], trajectory: Trajectory,
+                    states: np.ndarray) -> dict[str, Any]:
+    """Energies, heat balance, heater and thermostats, efficiency and throughput, in the summary's order."""
+    q = states[-1, L.quadrature_index(problem.n_rc):]
+    heater = problem.thermal.heater
+    return {
+        # the energy keys of mission_metrics, all from energy_totals and in its order
+        **{key: value for key, value in shared.items() if key.startswith("energy_")},
+        "heat_generated_Wh": shared["heat_generated_Wh"],
+        "heat_reversible_Wh": float(q[L.Q_REVERSIBLE]) / JOULES_PER_WH,
+        "heat_to_ambient_Wh": shared["heat_to_ambient_Wh"],
+        "heat_stored_Wh": float(_heat_stored(problem, states)) / JOULES_PER_WH,
+        "heat_to_coolant_Wh": float(q[L.Q_COOLANT]) / JOULES_PER_WH,
+        "heat_radiated_Wh": float(q[L.Q_RADIATION]) / JOULES_PER_WH,
+        "heater_energy_Wh": float(q[L.Q_HEATER]) / JOULES_PER_WH,
+        "heater_energy_from_pack_Wh": float(q[L.Q_HEATER]) / JOULES_PER_WH
+        if heater is not None and heater.from_pack else 0.0,
+        "thermostat_switches": sum(1 for e in trajectory.events if e["event"] in THERMOSTAT_EVENTS),
+        "efficiency": shared["efficiency"],
+        "charge_throughput_Ah": shared["charge_throughput_Ah"],
+    }
+
+
+def _heat_stored(problem: Problem, states: np.ndarray) -> float:
+    """Heat stored in the cells, the sink and the coolant from the first to the last row [J]."""
+    n_rc, th, pk, cell = problem.n_rc, problem.thermal, problem.pack, problem.cell
+    c_cells = pk.series * pk.parallel * cell.mass * cell.specific_heat
+    tc, ts = states[:, L.cell_temperature_index(n_rc)], states[:, L.sink_temperature_index(n_rc)]
+    tf = states[:, L.coolant_temperature_index(n_rc)]
+    c_coolant = th.coolant.heat_capacity if th.coolant is not None else 0.0
+    return (c_cells * (tc[-1] - tc[0]) + th.sink_heat_capacity * (ts[-1] - ts[0])
+            + c_coolant * (tf[-1] - tf[0]))
+
+
+def _cold_charging_time(problem: Problem, times: np.ndarray, current: np.ndarray, tc: np.ndarray) -> float:
+    """Time spent charging below the charge temperature limit [s]."""
+    charging = 0.5 * (current[:-1] + current[1:]) < 0.0
+    t_charge_min = problem.limits.charge_temperature_min
+    return diagnostics.time_above(times, -tc, -t_charge_min, charging)
+
+
+def _warnings(problem: Problem, trajectory: Trajectory, series: dict[str, np.ndarray], states: np.ndarray,
+              cold_time: float) -> list[str]:
+    """The warnings about the run itself: a solver failure, cold charging, capped CC-CV, table ranges."""
+    times, current = series["time_s"], series["current_A"]
+    tc = states[:, L.cell_temperature_index(problem.n_rc)]
+    warnings: list[str] = []
+    if trajectory.status == "failed":
+        warnings.append(f"solver failure at t = {times[-1]:.6g} s: {trajectory.message}; "
+                        "the results cover the mission up to that time only")
+    t_charge_min = problem.limits.charge_temperature_min
+    cold_charge = (current < 0) & (tc < t_charge_min)
+    if cold_charge.any():
+        warnings.append(
+            f"charging below charge_temperature_min ({_celsius(t_charge_min):.1f} degC) for {cold_time:.0f} s, "
+            f"coldest {float(_celsius(tc[cold_charge].min())):.1f} degC: risk of lithium plating; "
+            "follow the cell maker's charge temperature window")
+    for ev in trajectory.events:
+        if ev["event"] == CCCV_CAP_EVENT:
+            warnings.append(f"CC-CV segment {ev['origin']} reached its duration cap at t = {ev['time_s']:.0f} s "
+                            "without falling below its cutoff current")
+    warnings += diagnostics.table_range_warnings(problem.cell, states[:, 0], tc)
+    return warnings

@@ -15,6 +15,7 @@ from thermoelec.engine import layout as L
 from thermoelec.engine.profile import Segment
 from thermoelec.physics import correlations
 from thermoelec.physics.cell import Cell, Pack
+from thermoelec.physics.constants import ZERO_CELSIUS
 from thermoelec.physics.thermal import ThermalNetwork
 
 __all__ = ["Limits", "Problem", "StressSettings", "pack_parameters"]
@@ -24,8 +25,8 @@ __all__ = ["Limits", "Problem", "StressSettings", "pack_parameters"]
 class Limits:
     """Operating limits [V per cell, K]."""
 
-    cell_temperature_max: float = 333.15
-    charge_temperature_min: float = 273.15
+    cell_temperature_max: float = ZERO_CELSIUS + 60.0
+    charge_temperature_min: float = ZERO_CELSIUS
 
 
 @dataclass(frozen=True)

@@ -20,12 +20,12 @@ from typing import Any
 
 import numpy as np
 from matplotlib.figure import Figure
-from scipy.constants import zero_Celsius as KELVIN_AT_0_DEGC  # [K]
 
 from thermoelec.fit import fitting
 from thermoelec.fit.cellfile import CellData, dump_toml, read_cell_file
 from thermoelec.fit.logs import LogMapping, read_log
 from thermoelec.inputs import ScenarioError, to_si
+from thermoelec.physics.constants import ZERO_CELSIUS
 from thermoelec.physics.thermal import biot_number
 
 __all__ = ["FitOutcome", "fit_ocv_logs", "fit_pulse_logs", "fit_thermal_log"]
@@ -61,7 +61,7 @@ class FitOutcome:
 
 
 def _degc(kelvin: float) -> float:
-    return float(kelvin) - KELVIN_AT_0_DEGC
+    return float(kelvin) - ZERO_CELSIUS
 
 
 def _base_tables(cell: CellData | None) -> dict[str, Any]:
@@ -281,12 +281,12 @@ def fit_thermal_log(path: str, mapping: LogMapping, cell_path: str | None = None
     outcome.tables.setdefault("cell", {})
     fig = Figure(figsize=(9, 6), layout="constrained")
     ax, res = fig.subplots(2, 1, sharex=True, height_ratios=(3, 1))
-    ax.plot(result.time, result.temperature - KELVIN_AT_0_DEGC, ".", ms=2, label="cell, data")
-    ax.plot(result.time, result.model - KELVIN_AT_0_DEGC, "k-", lw=1, label="cell, model")
+    ax.plot(result.time, result.temperature - ZERO_CELSIUS, ".", ms=2, label="cell, data")
+    ax.plot(result.time, result.model - ZERO_CELSIUS, "k-", lw=1, label="cell, model")
     res.plot(result.time, 1e3 * (result.temperature - result.model), ".", ms=2)
     if two_node:
-        ax.plot(result.time, result.sink_temperature - KELVIN_AT_0_DEGC, ".", ms=2, label="sink, data")
-        ax.plot(result.time, result.sink_model - KELVIN_AT_0_DEGC, "k--", lw=1, label="sink, model")
+        ax.plot(result.time, result.sink_temperature - ZERO_CELSIUS, ".", ms=2, label="sink, data")
+        ax.plot(result.time, result.sink_model - ZERO_CELSIUS, "k--", lw=1, label="sink, model")
     ax.set_ylabel("temperature [degC]")
     ax.legend()
     res.set_ylabel("residual [mK]")

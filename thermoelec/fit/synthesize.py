@@ -16,6 +16,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from thermoelec.analysis.results import SimulationResult
+from thermoelec.physics.constants import SECONDS_PER_HOUR
 
 __all__ = ["Recorder", "hppc_segments", "ocv_test_segments", "record", "thermal_test_segments"]
 
@@ -42,7 +43,7 @@ def hppc_segments(capacity_ah: float, levels: int = 10, pulse_c: float = 2.0, ch
     default), each step discharged at 1C.
     """
     segments = [{"mode": "rest", "duration": f"{first_rest} s"}]
-    step = 3600.0 * span / (levels - 1)
+    step = SECONDS_PER_HOUR * span / (levels - 1)
     for level in range(levels):
         segments += [
             {"mode": "current", "value": f"{pulse_c * capacity_ah} A", "duration": f"{pulse} s"},

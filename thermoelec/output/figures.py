@@ -1,9 +1,14 @@
-"""Figures of a mission: dashboard, energy chart, operating region, case overlays.
+"""Figures of a mission: dashboard, energy chart, operating region, case overlays, and writing them.
 
-Each figure has a data function that computes what it shows (tested against
-the summary and closed forms) and a drawing function that returns a
-:class:`matplotlib.figure.Figure`. Figures are built without pyplot, so no
-display and no global state are involved.
+Owns the drawing of a result (:class:`thermoelec.analysis.results.SimulationResult`)
+and of a case comparison, and the files they go to (:func:`save`,
+:func:`write_figures`, :func:`write_comparison_figure`). Each figure has a data
+function that computes what it shows (tested against the summary and closed
+forms) and a drawing function that returns a :class:`matplotlib.figure.Figure`.
+Figures are built without pyplot, so no display and no global state are
+involved. Mode and event names come from their registries
+(:mod:`thermoelec.physics.loads`, :mod:`thermoelec.engine.events`). Imports from
+analysis/ and below only; never from fit/, the API or the command line.
 """
 
 from __future__ import annotations
@@ -11,15 +16,19 @@ from __future__ import annotations
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 from matplotlib.figure import Figure
 
-from thermoelec.analysis.results import SimulationResult
+from thermoelec.analysis.results import CCCV_CAP_EVENT, DEMAND_MODES, THERMOSTAT_EVENTS, SimulationResult
+from thermoelec.engine.events import EV_CV_CUTOFF, EV_CV_SWITCH, EVENT_NAMES, STOP_EVENTS
+from thermoelec.physics.constants import COULOMBS_PER_AH, SECONDS_PER_HOUR
 from thermoelec.physics.loads import maximum_power, voltage_limited_power
 
 __all__ = [
     "FIGURE_NAMES",
+    "MODE_COLOURS",
     "EnergyPart",
     "OperatingState",
     "comparison_overlay",
@@ -28,15 +37,19 @@ __all__ = [
     "energy_parts",
     "operating_region",
     "operating_states",
+    "save",
+    "write_comparison_figure",
     "write_figures",
 ]
 
-SECONDS_PER_HOUR = 3600.0
-MODE_COLOURS = {"rest": "#eeeeee", "current": "#dde8f6", "power": "#fbe8d3", "resistance": "#e3f1dc",
-                "voltage": "#efe0f3"}
-STOP_EVENTS = {"voltage_min", "voltage_max", "power_limit", "temperature_max", "soc_empty", "soc_full"}
-THERMOSTAT_EVENTS = {"fan_switch", "heater_switch", "pump_switch"}
-
+#: Pale background colours of the demand modes, taken in the order of :data:`DEMAND_MODES`.
+_MODE_PALETTE = ("#eeeeee", "#dde8f6", "#fbe8d3", "#e3f1dc", "#efe0f3", "#f6f3d6", "#dcf0f0")
+#: The background colour of each demand mode of the dashboard (a rest, then the load modes).
+MODE_COLOURS: dict[str, str] = dict(zip(DEMAND_MODES, _MODE_PALETTE, strict=False))
+#: Names of the events that stop a mission, from the event registry.
+STOP_EVENT_NAMES: frozenset[str] = frozenset(EVENT_NAMES[code] for code in STOP_EVENTS)
+#: Names of the CC-CV events the dashboard marks: the switch to CV, the cutoff, the duration cap.
+CCCV_EVENT_NAMES: frozenset[str] = frozenset((EVENT_NAMES[EV_CV_SWITCH], EVENT_NAMES[EV_CV_CUTOFF], CCCV_CAP_EVENT))
 
 def _time_axis(times: np.ndarray) -> tuple[np.ndarray, str]:
     """Time in a readable unit for the axis."""
@@ -69,33 +82,64 @@ def _mode_runs(modes: np.ndarray) -> list[tuple[int, int, str]]:
 
 
 def dashboard(result: SimulationResult) -> Figure:
-    """Demand, current, voltage with limits, SoC, temperatures with limit, heat; stops and mode switches marked."""
+    """Demand, current, voltage with limits, SoC, temperatures with limit, heat; stops and mode switches marked.
+
+    Parameters
+    ----------
+    result : SimulationResult
+        A simulated mission; its series [s, A, V, W, degC], limits and events are drawn.
+
+    Returns
+    -------
+    Figure
+        Six panels sharing the time axis (s, min or h by the mission's length).
+    """
     s = result.series
     t, t_label = _time_axis(s["time_s"])
-    lim = result.limits
     fig = Figure(figsize=(10, 13), layout="constrained")
     axes = fig.subplots(6, 1, sharex=True)
     ax_power, ax_current, ax_voltage, ax_soc, ax_temp, ax_heat = axes
-
     modes = result.demand_mode if result.demand_mode is not None else np.array(["current"] * len(t), dtype=object)
+    _shade_modes(axes, t, modes)
+    _draw_power(fig, ax_power, t, s, modes, result.demand_value)
+    _draw_electrical(ax_current, ax_voltage, ax_soc, t, s, result.limits)
+    _draw_thermal(ax_temp, ax_heat, t, s, result.limits)
+    ax_heat.set_xlabel(t_label)
+    _mark_events(axes, result.events, s["time_s"])
+    summary = result.summary
+    verdict = "completed" if summary["completed"] else f"stopped: {summary['stop_reason']}"
+    fig.suptitle(f"{summary.get('scenario', '')} - {verdict} at {summary['duration_s']:.0f} s", fontsize=11)
+    return fig
+
+
+def _shade_modes(axes: Sequence[Any], t: np.ndarray, modes: np.ndarray) -> None:
+    """Each run of one demand mode shaded in its colour on every panel, a thin line at each change."""
     seen: set[str] = set()
     for first, last, mode in _mode_runs(modes):
         for ax in axes:
             ax.axvspan(t[first], t[last], color=MODE_COLOURS.get(mode, "#ffffff"), lw=0,
-                       label=f"{mode} mode" if ax is ax_power and mode not in seen else None)
+                       label=f"{mode} mode" if ax is axes[0] and mode not in seen else None)
         seen.add(mode)
         if first > 0:
             for ax in axes:
                 ax.axvline(t[first], color="0.6", lw=0.6)
 
-    ax_power.plot(t, s["power_W"], color="C1", lw=1.0, label="power to load")
-    if result.demand_value is not None:
-        demanded = np.where(modes == "power", result.demand_value, np.nan)
-        if np.isfinite(demanded).any():
-            ax_power.plot(t, demanded, color="k", lw=0.8, ls="--", label="demanded power")
-    ax_power.set_ylabel("power [W]")
-    fig.legend(*ax_power.get_legend_handles_labels(), loc="outside lower center", fontsize=8, ncol=7)
 
+def _draw_power(fig: Figure, ax: Any, t: np.ndarray, s: Mapping[str, np.ndarray], modes: np.ndarray,
+                demand_value: np.ndarray | None) -> None:
+    """Power to the load [W] and the demanded power; the figure's legend (modes and power lines)."""
+    ax.plot(t, s["power_W"], color="C1", lw=1.0, label="power to load")
+    if demand_value is not None:
+        demanded = np.where(modes == "power", demand_value, np.nan)
+        if np.isfinite(demanded).any():
+            ax.plot(t, demanded, color="k", lw=0.8, ls="--", label="demanded power")
+    ax.set_ylabel("power [W]")
+    fig.legend(*ax.get_legend_handles_labels(), loc="outside lower center", fontsize=8, ncol=7)
+
+
+def _draw_electrical(ax_current: Any, ax_voltage: Any, ax_soc: Any, t: np.ndarray, s: Mapping[str, np.ndarray],
+                     lim: Mapping[str, float]) -> None:
+    """Pack current [A], pack voltage [V] with the open-circuit voltage and the limits, SoC [-]."""
     ax_current.plot(t, s["current_A"], color="C0", lw=1.0)
     ax_current.axhline(0.0, color="0.3", lw=0.5)
     ax_current.set_ylabel("pack current [A]\n(+ discharge)")
@@ -112,6 +156,10 @@ def dashboard(result: SimulationResult) -> Figure:
     ax_soc.set_ylabel("SoC [-]")
     ax_soc.set_ylim(-0.02, 1.02)
 
+
+def _draw_thermal(ax_temp: Any, ax_heat: Any, t: np.ndarray, s: Mapping[str, np.ndarray],
+                  lim: Mapping[str, float]) -> None:
+    """Cell, sink and ambient temperatures [degC] with the cell limit; heat flows [W]."""
     ax_temp.plot(t, s["cell_temperature_degC"], color="C3", lw=1.2, label="cell")
     ax_temp.plot(t, s["sink_temperature_degC"], color="C5", lw=1.0, label="sink")
     ax_temp.plot(t, s["ambient_temperature_degC"], color="0.4", lw=0.9, ls="-.", label="ambient")
@@ -127,28 +175,28 @@ def dashboard(result: SimulationResult) -> Figure:
             ax_heat.plot(t, s[key], color=colour, lw=0.9, ls="--", label=label)
     ax_heat.axhline(0.0, color="0.3", lw=0.5)
     ax_heat.set_ylabel("heat [W]")
-    ax_heat.set_xlabel(t_label)
     ax_heat.legend(loc="upper right", fontsize=7, ncol=2)
 
-    for event in result.events:
-        if event["event"] in THERMOSTAT_EVENTS:
-            te = _scale_like(s["time_s"], event["time_s"])
+
+def _mark_events(axes: Sequence[Any], events: Sequence[Mapping[str, Any]], times: np.ndarray) -> None:
+    """Thermostat switches on the temperature panel; stops and CC-CV events across every panel."""
+    ax_power, ax_temp = axes[0], axes[4]
+    for event in events:
+        name = event["event"]
+        if name in THERMOSTAT_EVENTS:
+            te = _scale_like(times, event["time_s"])
             ax_temp.axvline(te, color="C6", lw=0.7, ls=":")
-            ax_temp.annotate(f"{event['event'].removesuffix('_switch')} {event.get('state', '')}", (te, 0.02),
+            ax_temp.annotate(f"{name.removesuffix('_switch')} {event.get('state', '')}", (te, 0.02),
                              xycoords=("data", "axes fraction"), rotation=90, va="bottom", ha="right", fontsize=6,
                              color="C6")
             continue
-        if event["event"] in STOP_EVENTS or event["event"] in ("cv_switch", "cv_cutoff", "cccv_cap"):
-            te = _scale_like(s["time_s"], event["time_s"])
-            stop = event["event"] in STOP_EVENTS
+        if name in STOP_EVENT_NAMES or name in CCCV_EVENT_NAMES:
+            te = _scale_like(times, event["time_s"])
+            stop = name in STOP_EVENT_NAMES
             for ax in axes:
                 ax.axvline(te, color="C3" if stop else "C0", lw=1.2 if stop else 0.8, ls="-" if stop else "--")
-            ax_power.annotate(event["event"].replace("_", " "), (te, 1.0), xycoords=("data", "axes fraction"),
+            ax_power.annotate(name.replace("_", " "), (te, 1.0), xycoords=("data", "axes fraction"),
                               rotation=90, va="top", ha="right", fontsize=7, color="C3" if stop else "C0")
-    summary = result.summary
-    verdict = "completed" if summary["completed"] else f"stopped: {summary['stop_reason']}"
-    fig.suptitle(f"{summary.get('scenario', '')} - {verdict} at {summary['duration_s']:.0f} s", fontsize=11)
-    return fig
 
 
 # ---------------------------------------------------------------------------
@@ -204,7 +252,7 @@ def energy_parts(result: SimulationResult) -> list[EnergyPart]:
         moving = (sign * mean_current > 0) & (dt > 0)
         if not moving.any():
             continue
-        dq = np.where(moving, sign * mean_current * dt / SECONDS_PER_HOUR, 0.0)
+        dq = np.where(moving, sign * mean_current * dt / COULOMBS_PER_AH, 0.0)
         x = np.concatenate([[0.0], np.cumsum(dq)])
         rows = np.zeros(len(times), dtype=bool)
         rows[:-1] |= moving
@@ -414,3 +462,21 @@ def write_figures(result: SimulationResult, out_dir: str | Path,
     for stem in FIGURE_NAMES:
         paths += save(makers[stem](result), out, stem, formats)
     return paths
+
+
+def write_comparison_figure(results: Mapping[str, SimulationResult], out_dir: str | Path,
+                            formats: Sequence[str] = ("png", "svg")) -> list[Path]:
+    """Write the overlay of a case comparison (:func:`comparison_overlay`) as ``comparison.<format>``.
+
+    Parameters
+    ----------
+    results : mapping of str to SimulationResult
+        Each case's mission, by case name (in the order of the legend).
+    out_dir : str or Path
+        The comparison's folder (created if missing).
+    formats : sequence of str
+        File formats matplotlib writes (``png``, ``svg``, ...).
+    """
+    out = Path(out_dir)
+    out.mkdir(parents=True, exist_ok=True)
+    return save(comparison_overlay(results), out, "comparison", formats)

@@ -1,10 +1,18 @@
-"""Plain-text output for the terminal: value formatting and the run summary."""
+"""Plain-text output for the terminal: value formatting, the run summary, the case comparison.
+
+Owns every table printed on the terminal; the numbers come from analysis/
+(the summary, :data:`thermoelec.analysis.compare.COMPARISON_ROWS`). Imports from
+analysis/ and below only; never from fit/, the API or the command line.
+"""
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from typing import Any, TextIO
 
-__all__ = ["SUMMARY_ROWS", "format_value", "print_summary"]
+from thermoelec.analysis.compare import COMPARISON_ROWS, CaseOutcome
+
+__all__ = ["SUMMARY_ROWS", "format_comparison", "format_value", "print_summary"]
 
 
 def format_value(value: Any, unit: str = "", digits: int = 4) -> str:
@@ -54,3 +62,17 @@ def print_summary(summary: dict, stream: TextIO) -> None:
         print(f"  {label:<{width}}  {format_value(summary.get(key), unit)}", file=stream)
     for warning in summary.get("warnings", []):
         print(f"  warning: {warning}", file=stream)
+
+
+def format_comparison(outcomes: Sequence[CaseOutcome]) -> str:
+    """The case comparison as aligned text for the terminal: a row per :data:`COMPARISON_ROWS` entry, a column
+    per case (values with their units, as :func:`format_value` writes them)."""
+    metrics = [o.metrics() for o in outcomes]
+    header = ["", *(o.name for o in outcomes)]
+    lines = [header]
+    for label, key, unit in COMPARISON_ROWS:
+        lines.append([label, *(format_value(m.get(key), unit) for m in metrics)])
+    widths = [max(len(row[i]) for row in lines) for i in range(len(header))]
+    return "\n".join("  ".join(cell.ljust(w) if i == 0 else cell.rjust(w)
+                               for i, (cell, w) in enumerate(zip(row, widths, strict=True))).rstrip()
+                     for row in lines)

@@ -19,13 +19,13 @@ from typing import Annotated, Any, Literal
 
 import numpy as np
 from pydantic import BaseModel, BeforeValidator, ConfigDict, model_validator
-from scipy.constants import zero_Celsius
 
 from thermoelec.engine.backends import BACKENDS
 from thermoelec.engine.options import SolverOptions
 from thermoelec.engine.problem import StressSettings
 from thermoelec.inputs.units import to_si
 from thermoelec.physics.cell import CellGeometry, RCPair, ResistanceLaw
+from thermoelec.physics.constants import ZERO_CELSIUS
 from thermoelec.physics.correlations import FORCED_CORRELATION_NAMES, NATURAL_CORRELATION_NAMES
 from thermoelec.physics.loads import LOAD_MODES, SEGMENT_MODES
 from thermoelec.physics.thermal import (
@@ -45,7 +45,7 @@ __all__ = ["FORMAT_VERSION", "KeyedError", "ScenarioSpec", "SegmentSpec"]
 #: The scenario format this schema reads (the file's ``format`` key).
 FORMAT_VERSION = 1
 #: Default reference temperature of the cell's tables and laws: 25 degC (common practice) [K].
-REFERENCE_TEMPERATURE = zero_Celsius + 25.0
+REFERENCE_TEMPERATURE = ZERO_CELSIUS + 25.0
 
 
 # ---------------------------------------------------------------------------
@@ -594,8 +594,8 @@ class ProfileSpec(_Section):
 
 
 class LimitsSpec(_Section):
-    cell_temperature_max: Temperature = zero_Celsius + 60.0  # 60 degC, common practice for Li-ion cells
-    charge_temperature_min: Temperature = zero_Celsius  # no charging below 0 degC (lithium plating; common practice)
+    cell_temperature_max: Temperature = ZERO_CELSIUS + 60.0  # 60 degC, common practice for Li-ion cells
+    charge_temperature_min: Temperature = ZERO_CELSIUS  # no charging below 0 degC (lithium plating; common practice)
 
 
 class StressSpec(_Section):

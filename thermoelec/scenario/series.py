@@ -16,10 +16,10 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
-from scipy.constants import zero_Celsius
 
 from thermoelec.inputs.csvfiles import check_increasing, numeric_column, read_csv_frame
 from thermoelec.inputs.errors import ScenarioError
+from thermoelec.physics.constants import ZERO_CELSIUS
 from thermoelec.physics.loads import LOAD_MODES
 
 __all__ = ["AMBIENT_COLUMN", "DEMAND_COLUMNS", "TIME_COLUMN", "SeriesProfile", "read_ambient_csv",
@@ -147,7 +147,7 @@ def read_ambient_csv(path: Path, key: str) -> tuple[np.ndarray, np.ndarray]:
 
 def _kelvin(celsius: np.ndarray, name: str) -> np.ndarray:
     """Temperatures of a CSV column [degC] in kelvin, none below absolute zero [K]."""
-    kelvin = celsius + zero_Celsius
+    kelvin = celsius + ZERO_CELSIUS
     if (kelvin <= 0).any():
         raise ScenarioError(name, AMBIENT_COLUMN, "temperature below absolute zero")
     return kelvin

@@ -1,0 +1,103 @@
+"""The labelled results of a sweep: the dataset of metrics, the kept series, pass / fail.
+
+Owns :func:`sweep_dataset` (one xarray Dataset: a dimension per swept key, or
+``case`` for zip, a variable per metric of :data:`thermoelec.analysis.metrics.METRICS`),
+:func:`write_sweep` (``sweep.nc``), :func:`write_series` (``series.zarr``) and
+:func:`passes`. The heat maps are drawn by the output layer
+(:mod:`thermoelec.output.sweep_figures`). Imports from scenario/ and analysis/
+only; never from output/, fit/, the API or the command line.
+"""
+
+from __future__ import annotations
+
+import os
+from collections.abc import Mapping, Sequence
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from thermoelec.analysis.metrics import METRICS
+from thermoelec.analysis.sweep.plan import SweepPlan
+from thermoelec.analysis.sweep.run import KEPT_SERIES
+from thermoelec.scenario import Scenario
+from thermoelec.version import __version__
+
+__all__ = ["passes", "sweep_dataset", "write_series", "write_sweep"]
+
+
+def sweep_dataset(scenario: Scenario, plan: SweepPlan, rows: Sequence[Mapping[str, Any]]):
+    """One xarray Dataset: a dimension per swept key (or ``case`` for zip), a variable per metric."""
+    import xarray as xr
+
+    shape = plan.shape
+    dims = ["case"] if plan.mode == "zip" else [a.path for a in plan.axes]
+    coords: dict[str, Any] = {}
+    for axis in plan.axes:
+        dim = "case" if plan.mode == "zip" else axis.path
+        coords[axis.path] = (dim, np.array(axis.coords), {"units": axis.unit or "as in the scenario file"})
+    data: dict[str, Any] = {}
+    for key in METRICS:
+        values = np.array([np.nan if r.get(key) is None else float(r[key]) for r in rows]).reshape(shape)
+        data[key] = (dims, values, {"units": _unit_of(key)})
+    for key in ("status", "message", "stop_reason", "engine"):
+        data[key] = (dims, np.array([str(r.get(key) or "") for r in rows], dtype=object).reshape(shape))
+    ds = xr.Dataset(data, coords=coords)
+    ds.attrs.update(thermoelec_version=__version__, scenario_file=scenario.source, scenario_sha256=scenario.digest,
+                    sweep_mode=plan.mode, scenarios=plan.size,
+                    failed=int(sum(r.get("status") != "ok" for r in rows)))
+    return ds
+
+
+def _unit_of(key: str) -> str:
+    for suffix, unit in (("_degC", "degC"), ("_K", "K"), ("_V", "V"), ("_A", "A"), ("_Wh", "Wh"), ("_Ah", "Ah"),
+                         ("_s", "s")):
+        if key.endswith(suffix):
+            return unit
+    return "1"
+
+
+def write_series(plan: SweepPlan, rows: Sequence[Mapping[str, Any]], out: Path, chunk: int = 64) -> Path:
+    """The kept series of every scenario into ``DIR/series.zarr``: dimensions ``scenario`` x ``time``,
+    chunked by scenario; a scenario that stopped early (or failed) is NaN after its end."""
+    import xarray as xr
+
+    length = max((len(r["series"]["time_s"]) for r in rows if "series" in r), default=0)
+    longest = next((r["series"]["time_s"] for r in rows if "series" in r and len(r["series"]["time_s"]) == length),
+                   [])
+    data = {}
+    for key in KEPT_SERIES:
+        block = np.full((len(rows), length), np.nan)
+        for i, row in enumerate(rows):
+            if "series" in row:
+                values = row["series"][key]
+                block[i, :len(values)] = values
+        data[key] = (("scenario", "time"), block, {"units": _unit_of(key) if key != "soc" else "1"})
+    index = {}
+    for axis in plan.axes:  # each scenario's value of each swept key, in the key's coordinate
+        lookup = dict(zip(map(str, axis.values), axis.coords, strict=True))
+        index[axis.path] = ("scenario", np.array([lookup[str(plan.overrides(i)[axis.path])]
+                                                  for i in range(plan.size)]), {"units": axis.unit})
+    ds = xr.Dataset(data, coords={"time": ("time", np.asarray(longest, float), {"units": "s"}),
+                                  "scenario": np.arange(len(rows)), **index})
+    path = out / "series.zarr"
+    ds.chunk({"scenario": chunk, "time": -1}).to_zarr(path, mode="w", zarr_format=2, consolidated=True)
+    return path
+
+
+def passes(ds) -> Any:
+    """Pass / fail of every scenario: completed, solved, within every limit."""
+    ok = (ds["status"] == "ok") & (ds["completed"] == 1.0)
+    return ok & (ds["voltage_margin_min_V"] >= 0) & (ds["temperature_margin_K"] > 0)
+
+
+def write_sweep(ds, out: Path) -> list[Path]:
+    """Write the sweep's dataset as ``out/sweep.nc`` (strings as variable-length text), atomically.
+
+    The heat maps are :func:`thermoelec.output.sweep_figures.write_sweep_figures`.
+    """
+    path = out / "sweep.nc"
+    tmp = out / ".sweep.nc.tmp"
+    ds.to_netcdf(tmp)
+    os.replace(tmp, path)
+    return [path]
