@@ -7,7 +7,11 @@
     ``scipy.integrate.solve_ivp`` (LSODA by default) with its event location.
 
 A back end knows the integrator and nothing of missions: the driver
-(:mod:`thermoelec.engine.driver`) hands it one phase at a time.
+(:mod:`thermoelec.engine.driver`) hands it one phase at a time, with the phase
+already written into the kernels' parameter vector. This module imports nothing
+of the engine but the events, the layout, the kernels (:class:`~thermoelec.engine.model.Kernels`)
+and the options; it must not import the mission plan, the problem or the drivers.
+scikits.odes and scipy are imported inside the back ends, when first used.
 """
 
 from __future__ import annotations
@@ -34,7 +38,21 @@ DIAGONAL_CONTRACTION = 0.2
 
 @dataclass
 class PhaseOutcome:
-    """What a back end returns for one phase."""
+    """What a back end returns for one phase.
+
+    Attributes
+    ----------
+    times : list of float
+        Times of the reported rows: the output times reached, then the root or the
+        last time reached before a failure [s].
+    states : list of float64 array, shape (n_states,)
+        The state at each of those times (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
+    status : str
+        ``"end"`` (the phase ran to its end), ``"root"`` (it stopped at a root,
+        the last row) or ``"error"``.
+    message : str
+        The solver's message for an error, else empty.
+    """
 
     times: list[float]
     states: list[np.ndarray]
@@ -52,12 +70,39 @@ class Backend(Protocol):
         """Integrate from ``t0`` to ``t_end``; report at ``outputs`` (ending with ``t_end``).
 
         With ``find_roots`` false the caller has shown that no root function can
-        reach zero in the phase, and the back end may skip root finding.
+        reach zero in the phase, and the back end may skip root finding. The phase
+        (demand, active root functions) is already written into the kernels' parameter
+        vector; a back end never raises for a solver failure, it returns it.
+
+        Parameters
+        ----------
+        t0 : float
+            Time of the phase start [s].
+        y0 : float64 array, shape (n_states,)
+            State at ``t0`` (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
+        t_end : float
+            Time of the phase end, finite [s].
+        outputs : list of float
+            Report times in ``(t0, t_end]``, increasing, the last one ``t_end`` [s].
+        find_roots : bool
+            Locate the active root functions; False lets the back end skip them [-].
+
+        Returns
+        -------
+        PhaseOutcome
+            Rows up to the phase end or the root: times [s], states [-, V, K, J, C],
+            and the status ``"end"``, ``"root"`` or ``"error"``.
         """
         ...
 
     def statistics(self) -> dict[str, float]:
-        """Solver counters summed over all phases."""
+        """Solver counters summed over all phases.
+
+        Returns
+        -------
+        dict of str to float
+            Counter name to count (steps, right-hand-side calls, phases, ...) [-].
+        """
         ...
 
 
@@ -84,6 +129,21 @@ class CvodeBackend:
     is taken from CVODE's interpolant (``step(t_end)`` in normal mode); the step
     can overshoot the end by at most one float32 ulp with the phase's own
     right-hand side, which the interpolant does not see.
+
+    Parameters
+    ----------
+    kernels : Kernels
+        The kernels over the scenario's parameter vector [SI, unit per slot].
+    options : SolverOptions
+        Tolerances [-, and per state -, V, K, J, C], step limit [-],
+        first step [s] (a number: the driver resolves ``"auto"``) and Newton matrix.
+    n_rc : int
+        Number of RC pairs of the cell [-].
+
+    References
+    ----------
+    A. C. Hindmarsh et al., "SUNDIALS: Suite of nonlinear and differential/algebraic
+    equation solvers", ACM TOMS 31 (2005) 363.
     """
 
     name = "cvode"
@@ -121,6 +181,15 @@ class CvodeBackend:
             stats[key] = stats.get(key, 0) + info[key]
 
     def statistics(self) -> dict[str, float]:
+        """CVODE's counters summed over all phases, and how the phases were solved.
+
+        Returns
+        -------
+        dict of str to float
+            ``NumSteps``, ``NumRhsEvals``, ``NumLinSolvSetups``, ``NumErrTestFails``
+            (CVODE's own), ``NumPhasesWithRoots`` / ``NumPhasesWithoutRoots`` and
+            ``NumPhasesDiagonal`` / ``NumPhasesDense`` (a repeated phase counts again) [-].
+        """
         return dict(self._stats)
 
     @staticmethod
@@ -137,6 +206,39 @@ class CvodeBackend:
 
     def integrate(self, t0: float, y0: np.ndarray, t_end: float, outputs: list[float],
                   find_roots: bool = True) -> PhaseOutcome:
+        """Integrate one phase with CVODE; see :meth:`Backend.integrate`.
+
+        The RC base is set at ``(t0, y0)`` and CVODE integrates the shifted state. With
+        ``linear_solver = "auto"`` the same kernel call bounds the contraction of the
+        diagonal Newton iteration for a step as long as the phase
+        (:func:`thermoelec.engine.model.diagonal_newton_contraction`); at most
+        :data:`DIAGONAL_CONTRACTION` the phase takes the diagonal Newton matrix, and
+        should it fail there, the phase is integrated again with the dense one.
+
+        Parameters
+        ----------
+        t0 : float
+            Time of the phase start [s].
+        y0 : float64 array, shape (n_states,)
+            State at ``t0`` (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
+        t_end : float
+            Time of the phase end, finite [s].
+        outputs : list of float
+            Report times in ``(t0, t_end]``, increasing, the last one ``t_end`` [s].
+        find_roots : bool
+            Locate the active root functions; False uses a CVODE instance without them [-].
+
+        Returns
+        -------
+        PhaseOutcome
+            Rows up to the phase end or the root: times [s], states [-, V, K, J, C]
+            (unshifted), and the status ``"end"``, ``"root"`` or ``"error"``.
+
+        References
+        ----------
+        A. C. Hindmarsh et al., "SUNDIALS: Suite of nonlinear and differential/algebraic
+        equation solvers", ACM TOMS 31 (2005) 363.
+        """
         choice = self.options.linear_solver
         # the shift, and the contraction bound for the longest step the phase allows, in one kernel call
         w0, contraction = self.kernels.shift_from(t0, y0, t_end - t0 if choice == "auto" else 0.0)
@@ -186,7 +288,21 @@ class CvodeBackend:
 
 
 class ScipyBackend:
-    """``scipy.integrate.solve_ivp`` restarted per phase, events as terminal functions."""
+    """``scipy.integrate.solve_ivp`` restarted per phase, events as terminal functions.
+
+    Each root function is a terminal event that fires falling through zero
+    (``direction = -1``); only the active ones are passed. The implicit methods
+    (BDF, Radau, LSODA) get the kernels' difference Jacobian.
+
+    Parameters
+    ----------
+    kernels : Kernels
+        The kernels over the scenario's parameter vector [SI, unit per slot].
+    options : SolverOptions
+        Tolerances [-, and per state -, V, K, J, C] and the ``solve_ivp`` method.
+    n_rc : int
+        Number of RC pairs of the cell [-].
+    """
 
     name = "scipy"
 
@@ -208,10 +324,41 @@ class ScipyBackend:
         return event
 
     def statistics(self) -> dict[str, float]:
+        """``solve_ivp``'s counters summed over all phases.
+
+        Returns
+        -------
+        dict of str to float
+            ``NumRhsEvals``, ``NumJacEvals``, ``NumLUDecomps`` and ``NumPhases`` [-].
+        """
         return dict(self._stats)
 
     def integrate(self, t0: float, y0: np.ndarray, t_end: float, outputs: list[float],
                   find_roots: bool = True) -> PhaseOutcome:
+        """Integrate one phase with ``solve_ivp``; see :meth:`Backend.integrate`.
+
+        The phase stops at the earliest terminal event; the rows before it are kept and
+        the root is the last row.
+
+        Parameters
+        ----------
+        t0 : float
+            Time of the phase start [s].
+        y0 : float64 array, shape (n_states,)
+            State at ``t0`` (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
+        t_end : float
+            Time of the phase end, finite [s].
+        outputs : list of float
+            Report times in ``(t0, t_end]``, increasing, the last one ``t_end`` [s].
+        find_roots : bool
+            Not used: the active root functions are always located [-].
+
+        Returns
+        -------
+        PhaseOutcome
+            Rows up to the phase end or the root: times [s], states [-, V, K, J, C],
+            and the status ``"end"``, ``"root"`` or ``"error"``.
+        """
         from scipy.integrate import solve_ivp
 
         p = self.kernels.p

@@ -31,6 +31,17 @@ large conductance) is handed back for a solo CVODE run (status ``fallback``).
 Scope: every segment kind (current, power, resistance, voltage, rest, CC-CV)
 with its end conditions, thermostats (fan, heater, pump), the ambient profile
 and soaks (run first, as in the engine's driver).
+
+Only this module and the driver walk the mission plan. It imports the events,
+the layout, the kernels (:mod:`thermoelec.engine.model`), the mission plan, the
+options and the problem (and physics' ageing rate and load modes); it must not
+import the back ends or the driver: the caller (the sweep) runs a ``fallback``
+scenario on the driver itself.
+
+References
+----------
+P. Bogacki, L. F. Shampine, "A 3(2) pair of Runge-Kutta formulas",
+Appl. Math. Lett. 2 (1989) 321.
 """
 
 from __future__ import annotations
@@ -296,7 +307,23 @@ def _integrate_many(params, profile, n_phases, modes, values, durations, ambient
 
 @dataclass
 class BatchOutcome:
-    """Per scenario: status (``ok`` / ``fallback``), stop reason, end time and state, extremes."""
+    """Per scenario: status (``ok`` / ``fallback``), stop reason, end time and state, extremes.
+
+    Attributes
+    ----------
+    status : list of str
+        ``"ok"``, or ``"fallback"`` when the scenario (or its soak) must be run on CVODE.
+    stop_reason : list of str
+        One of :data:`thermoelec.engine.events.STOP_REASONS` (``"end_of_profile"`` for a fallback).
+    duration : float64 array, shape (n,)
+        Time at which each mission ended, or was handed back [s].
+    states : float64 array, shape (n, n_states)
+        State at the end (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
+    extras : float64 array, shape (n, len(EXTREMES))
+        The running extremes of :data:`EXTREMES` [K, K, V, V, A, s].
+    initial_states : float64 array, shape (n, n_states)
+        Where each mission started, after its soak [-, V, K, J, C].
+    """
 
     status: list[str]
     stop_reason: list[str]
@@ -353,20 +380,22 @@ def solve_batch(problems: list[Problem], options: SolverOptions) -> BatchOutcome
 
     As in the engine's driver, the soak segments of a problem run first, as a
     problem of their own (here: a batch of the soaks); its mission starts at
-    t = 0 from the state they end in, with the integrals reset.
+    t = 0 from the state they end in, with the integrals reset. Scenarios that
+    share a profile (and the limits its plan reads) share one mission plan.
 
     Parameters
     ----------
     problems : list of Problem
-        Scenarios with one state layout.
+        Scenarios with one state layout, in SI units [SI].
     options : SolverOptions
-        Tolerances (one set for the batch).
+        Tolerances, one set for the batch [-, and per state -, V, K, J, C].
 
     Returns
     -------
     BatchOutcome
         Per scenario: ``ok`` or ``fallback`` (to be run on CVODE), stop reason,
-        end time and state, and the running extremes of :data:`EXTREMES`.
+        end time [s] and state [-, V, K, J, C], and the running extremes of
+        :data:`EXTREMES` [K, K, V, V, A, s].
     """
     n_rc = problems[0].n_rc
     if any(p.n_rc != n_rc for p in problems):

@@ -12,6 +12,11 @@ root function starts beyond :data:`REACH_FACTOR` times its first-order reach is
 integrated without root functions and checked at its end; should any have gone
 non-positive, the phase is integrated again with root finding, so every event
 is located by the integrator.
+
+Only this module and the batched solver walk the mission plan. It sits at the
+top of the engine and imports from every part below it (back ends, events,
+layout, mission, kernels, options, problem); nothing of the engine imports it,
+and it must not import the batched solver or anything above the engine.
 """
 
 from __future__ import annotations
@@ -64,8 +69,37 @@ class Trajectory:
     Rows of ``(time, state)`` and the phase of each row: at a phase boundary
     the state appears twice, in the phase before and the phase after it, so the
     reported series shows each jump of the demand exactly. Each phase's
-    parameter vector is kept once (``phase_params``), with its demand
-    (``phase_modes`` load-mode codes and ``phase_values`` [A, W, Ω, V]).
+    parameter vector is kept once (``phase_params``), its demand in it;
+    :attr:`demand_modes` (load-mode codes) and :attr:`demand_values` [A, W, Ω, V]
+    read it for every row.
+
+    Attributes
+    ----------
+    times : float64 array, shape (n,)
+        Row times [s].
+    states : float64 array, shape (n, n_states)
+        State rows (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
+    phase_params : float64 array, shape (n_phases, len(p))
+        The parameter vector of each phase as it started [SI, unit per slot].
+    phase_index : int64 array, shape (n,)
+        The phase of each row [-].
+    stop_reason : str
+        One of :data:`thermoelec.engine.events.STOP_REASONS`.
+    status : str
+        ``"ok"`` or ``"failed"`` (the solver failed; ``message`` says why).
+    message : str
+        The solver's message for a failure, else empty.
+    events : list of dict
+        Each event: ``time_s`` [s], ``event`` name, ``segment`` index, ``origin``, and
+        ``state`` (``"on"`` / ``"off"``) for a thermostat.
+    statistics : dict of str to float
+        The back end's counters (:meth:`~thermoelec.engine.backends.Backend.statistics`).
+    wall_time : float
+        Wall-clock time of the integration [s].
+    segments_completed : int
+        Segments run to their end [-].
+    soak : Trajectory or None
+        The soak's own trajectory, None without a soak.
     """
 
     times: np.ndarray
@@ -83,7 +117,7 @@ class Trajectory:
 
     @property
     def demand_modes(self) -> np.ndarray:
-        """Load-mode code of each row (:data:`thermoelec.physics.loads.LOAD_MODES`)."""
+        """Load-mode code of each row [-] (:data:`thermoelec.physics.loads.LOAD_MODES`)."""
         return self.phase_params[self.phase_index, H_MODE].astype(int)
 
     @property
@@ -92,7 +126,14 @@ class Trajectory:
         return self.phase_params[self.phase_index, H_VALUE].copy()
 
     def algebraics(self) -> np.ndarray:
-        """The algebraic outputs of every row (:func:`thermoelec.engine.model.trajectory_algebraics`)."""
+        """The algebraic outputs of every row (:func:`thermoelec.engine.model.trajectory_algebraics`).
+
+        Returns
+        -------
+        float64 array, shape (n, N_ALGEBRAICS)
+            Current [A], voltages [V], heats [W], ... in the order of
+            :data:`thermoelec.engine.layout.ALGEBRAICS`.
+        """
         return trajectory_algebraics(self.times, self.states, self.phase_params, self.phase_index)
 
 
@@ -141,22 +182,24 @@ def integrate_problem(problem: Problem, options: SolverOptions, initial_state: n
     """Integrate a mission from t = 0 until its profile ends or a stop event fires.
 
     Never raises for a solver failure: the trajectory up to the failure comes
-    back with ``status = "failed"`` and the solver's message.
+    back with ``status = "failed"`` and the solver's message. An unknown back end
+    or Newton matrix is a ValueError naming the valid ones.
 
     Parameters
     ----------
     problem : Problem
-        The SI problem.
+        The scenario in SI units [SI].
     options : SolverOptions
-        Back end, tolerances, output grid.
-    initial_state : array, optional
+        Back end, tolerances [-, and per state -, V, K, J, C], output interval [s].
+    initial_state : float64 array, shape (n_states,), optional
         State at t = 0 (default :meth:`Problem.initial_state`); a soak, if the
-        problem has one, starts from it.
+        problem has one, starts from it [-, V, K, J, C].
 
     Returns
     -------
     Trajectory
-        Rows, events, stop reason, solver counters; the soak's own trajectory in ``soak``.
+        Rows (times [s], states [-, V, K, J, C]), events, stop reason, solver
+        counters; the soak's own trajectory in ``soak``.
     """
     _check_options(options)
     soak = None

@@ -9,6 +9,9 @@ fire at once (its priority) and what the mission does then (its action). Both
 drivers (:mod:`thermoelec.engine.driver` for CVODE, :mod:`thermoelec.engine.batch`
 for sweeps) act on :data:`EVENT_ACTION`; reports and figures take the names and
 the stop reasons from here.
+
+This module is the bottom of the engine: it imports nothing of the engine (nor of
+physics), so the layout, the kernels, the mission plan and both drivers can all read it.
 """
 
 from __future__ import annotations

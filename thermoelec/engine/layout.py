@@ -17,10 +17,12 @@ State vector of one scenario (SI units)::
     y[1 + n_rc]            Tc     lumped cell temperature [K]
     y[2 + n_rc]            Ts     heat-sink node temperature [K]
     y[3 + n_rc]            Tf     coolant node temperature [K] (constant without a coolant mass)
-    y[4 + n_rc : ...]      the running integrals of :data:`QUADRATURES`
+    y[4 + n_rc : ...]      the running integrals of :data:`QUADRATURES` [J, C]
 
-This module imports nothing of the engine but the event registry (and physics'
-table readers); it must not import the problem, the kernels or the drivers.
+This module imports nothing of the engine but the event registry (for the number,
+names and thermostat codes of the root functions), and of physics only the table
+readers and the Arrhenius factor; it must not import the problem, the mission, the
+kernels, the back ends or the drivers, which all read it.
 """
 
 from __future__ import annotations
@@ -73,32 +75,102 @@ class _Declaration:
 # ---- states ---------------------------------------------------------------------------------
 
 def n_dynamic(n_rc: int) -> int:
-    """Number of dynamic (non-quadrature) states for ``n_rc`` RC pairs [-]."""
+    """Number of dynamic (non-quadrature) states for ``n_rc`` RC pairs.
+
+    SoC, the ``n_rc`` RC voltages and the cell, sink and coolant temperatures.
+
+    Parameters
+    ----------
+    n_rc : int
+        Number of RC pairs of the cell [-].
+
+    Returns
+    -------
+    int
+        ``4 + n_rc`` [-].
+    """
     return 4 + n_rc
 
 
 def n_states(n_rc: int) -> int:
-    """Number of states for ``n_rc`` RC pairs: dynamic states plus quadratures [-]."""
+    """Number of states for ``n_rc`` RC pairs: dynamic states plus quadratures.
+
+    Parameters
+    ----------
+    n_rc : int
+        Number of RC pairs of the cell [-].
+
+    Returns
+    -------
+    int
+        :func:`n_dynamic` plus the number of :data:`QUADRATURES` [-].
+    """
     return n_dynamic(n_rc) + N_QUADRATURES
 
 
 def cell_temperature_index(n_rc: int) -> int:
-    """Index of the cell temperature in the state vector [-]."""
+    """Index of the cell temperature in the state vector.
+
+    Parameters
+    ----------
+    n_rc : int
+        Number of RC pairs of the cell [-].
+
+    Returns
+    -------
+    int
+        ``1 + n_rc`` [-].
+    """
     return 1 + n_rc
 
 
 def sink_temperature_index(n_rc: int) -> int:
-    """Index of the sink temperature in the state vector [-]."""
+    """Index of the sink temperature in the state vector.
+
+    Parameters
+    ----------
+    n_rc : int
+        Number of RC pairs of the cell [-].
+
+    Returns
+    -------
+    int
+        ``2 + n_rc`` [-].
+    """
     return 2 + n_rc
 
 
 def coolant_temperature_index(n_rc: int) -> int:
-    """Index of the coolant node temperature in the state vector [-]."""
+    """Index of the coolant node temperature in the state vector.
+
+    Parameters
+    ----------
+    n_rc : int
+        Number of RC pairs of the cell [-].
+
+    Returns
+    -------
+    int
+        ``3 + n_rc`` [-].
+    """
     return 3 + n_rc
 
 
 def quadrature_index(n_rc: int) -> int:
-    """Index of the first quadrature in the state vector [-]."""
+    """Index of the first quadrature in the state vector.
+
+    The quadratures follow in the order of :data:`QUADRATURES` (offsets ``Q_*``).
+
+    Parameters
+    ----------
+    n_rc : int
+        Number of RC pairs of the cell [-].
+
+    Returns
+    -------
+    int
+        ``4 + n_rc`` [-].
+    """
     return 4 + n_rc
 
 
@@ -212,33 +284,113 @@ AMBIENT_N, AMBIENT_TIME = 0, 1
 
 
 def ocv_block(soc, voltage, entropic, reference_temperature: float) -> list[float]:
-    """The OCV block of a cell: SoC grid [-], OCV [V] and dU/dT [V/K] at ``reference_temperature`` [K]."""
+    """The OCV block of a cell: ``[n, T_ref, soc[n], voltage[n], entropic[n]]``.
+
+    The OCV and its entropic coefficient share one SoC grid, so a kernel brackets
+    the SoC once for both (:func:`ocv_at`).
+
+    Parameters
+    ----------
+    soc : sequence of float
+        SoC grid, strictly increasing [-].
+    voltage : sequence of float
+        Open-circuit voltage at the grid points at ``reference_temperature`` [V].
+    entropic : sequence of float
+        Entropic coefficient dU/dT at the grid points [V/K].
+    reference_temperature : float
+        Temperature at which ``voltage`` holds [K].
+
+    Returns
+    -------
+    list of float
+        The block: its length ``n`` [-], ``T_ref`` [K], the SoC grid [-], the
+        voltages [V] and the entropic coefficients [V/K].
+    """
     return [len(soc), reference_temperature, *soc, *voltage, *entropic]
 
 
 def law_block(law) -> list[float]:
-    """The block of a :class:`~thermoelec.physics.cell.ResistanceLaw` (table [Ω], Ea [J/mol], T_ref [K])."""
+    """The block of a :class:`~thermoelec.physics.cell.ResistanceLaw`.
+
+    Format ``[nz, nt, Ea, T_ref, soc[nz], temperature[nt], values[nt * nz]]``, the
+    values row by row, one row per temperature (read by :func:`law_value`).
+
+    Parameters
+    ----------
+    law : ResistanceLaw
+        Table [Ω] over SoC [-] and temperature [K], activation energy [J/mol] (0 for
+        none) and its reference temperature [K].
+
+    Returns
+    -------
+    list of float
+        The block: grid sizes [-], ``Ea`` [J/mol], ``T_ref`` [K], SoC grid [-],
+        temperature grid [K], table values [Ω].
+    """
     nz, nt = len(law.soc), len(law.temperature)
     return [nz, nt, law.activation_energy, law.reference_temperature,
             *law.soc, *law.temperature, *np.asarray(law.values, float).ravel()]
 
 
 def rc_block(pair) -> list[float]:
-    """The block of an :class:`~thermoelec.physics.cell.RCPair`: its kind, tau [s] or C [F], its law."""
+    """The block of an :class:`~thermoelec.physics.cell.RCPair`: ``[kind, tau or C, law block]``.
+
+    Parameters
+    ----------
+    pair : RCPair
+        An RC pair: its time constant [s] or capacitance [F], and its resistance law [Ω].
+
+    Returns
+    -------
+    list of float
+        ``kind`` (1: time constant given, 0: capacitance) [-], the time constant [s]
+        or capacitance [F], then the :func:`law_block` of its resistance.
+    """
     head = [1.0, pair.time_constant] if pair.time_constant is not None else [0.0, float(pair.capacitance)]
     return head + law_block(pair.resistance)
 
 
 def ambient_block(times, values) -> list[float]:
-    """The block of an ambient profile: times [s] and temperatures [K]."""
+    """The block of an ambient profile: ``[n, time[n], ambient[n]]``, linear in time.
+
+    Parameters
+    ----------
+    times : sequence of float
+        Time stamps of the profile, strictly increasing [s].
+    values : sequence of float
+        Ambient temperature at each time stamp [K].
+
+    Returns
+    -------
+    list of float
+        The block: its length ``n`` [-], the times [s], the temperatures [K].
+    """
     return [len(times), *times, *values]
 
 
 @_jit
 def ocv_at(p, off, z):
-    """OCV at the reference temperature [V] and entropic coefficient [V/K] at SoC ``z`` [-], block at ``off``.
+    """OCV at the reference temperature and entropic coefficient at SoC ``z``, from the OCV block at ``off``.
 
-    The two tables share their SoC grid, so one bracket serves both.
+    The two tables share their SoC grid, so one bracket serves both; the tables are
+    linear between grid points and held at their end values outside
+    (:func:`thermoelec.physics.tables.bracket_at`).
+
+    Parameters
+    ----------
+    p : float64 array
+        Parameter vector (:mod:`thermoelec.engine.layout`) [SI, unit per slot].
+    off : int
+        Offset of the OCV block in ``p`` [-].
+    z : float
+        State of charge [-].
+
+    Returns
+    -------
+    u_ref : float
+        Open-circuit voltage at the block's reference temperature [V].
+    dudt : float
+        Entropic coefficient dU/dT [V/K].
     """
     n = int(p[off + OCV_N])
     i, w = bracket_at(p, off + OCV_SOC, n, z)
@@ -251,7 +403,27 @@ def ocv_at(p, off, z):
 
 @_jit
 def law_base(p, off, z, temperature):
-    """The table value [Ω] of the resistance-law block at ``off``, before its Arrhenius factor."""
+    """The table value of the resistance-law block at ``off``, before its Arrhenius factor.
+
+    Bilinear in SoC and temperature (constant along an axis of one point), held at the
+    edge values outside the grid; a 1 x 1 table is read directly.
+
+    Parameters
+    ----------
+    p : float64 array
+        Parameter vector (:mod:`thermoelec.engine.layout`) [SI, unit per slot].
+    off : int
+        Offset of the resistance-law block in ``p`` [-].
+    z : float
+        State of charge [-].
+    temperature : float
+        Cell temperature [K].
+
+    Returns
+    -------
+    float
+        Table resistance [Ω].
+    """
     nz = int(p[off + LAW_NZ])
     nt = int(p[off + LAW_NT])
     grid = off + LAW_SOC
@@ -262,10 +434,26 @@ def law_base(p, off, z, temperature):
 
 @_jit
 def law_value(p, off, z, temperature):
-    """Resistance [Ω] of the resistance-law block at ``off`` at SoC ``z`` [-] and ``temperature`` [K].
+    """Resistance of the resistance-law block at ``off`` at SoC ``z`` and ``temperature``.
 
-    The bilinear table times the Arrhenius factor
+    The bilinear table (:func:`law_base`) times the Arrhenius factor
     :func:`thermoelec.physics.cell.arrhenius_factor` when the block has an activation energy.
+
+    Parameters
+    ----------
+    p : float64 array
+        Parameter vector (:mod:`thermoelec.engine.layout`) [SI, unit per slot].
+    off : int
+        Offset of the resistance-law block in ``p`` [-].
+    z : float
+        State of charge [-].
+    temperature : float
+        Cell temperature [K].
+
+    Returns
+    -------
+    float
+        Resistance [Ω].
     """
     base = law_base(p, off, z, temperature)
     if p[off + LAW_EA] != 0.0:
@@ -275,7 +463,20 @@ def law_value(p, off, z, temperature):
 
 @_jit
 def law_length(p, off):
-    """Length of the resistance-law block at ``off`` [-]."""
+    """Length of the resistance-law block at ``off``.
+
+    Parameters
+    ----------
+    p : float64 array
+        Parameter vector (:mod:`thermoelec.engine.layout`) [SI, unit per slot].
+    off : int
+        Offset of the resistance-law block in ``p`` [-].
+
+    Returns
+    -------
+    int
+        Number of slots of the block, ``4 + nz + nt + nz nt`` [-].
+    """
     nz = int(p[off + LAW_NZ])
     nt = int(p[off + LAW_NT])
     return LAW_SOC + nz + nt + nz * nt
@@ -283,13 +484,43 @@ def law_length(p, off):
 
 @_jit
 def rc_length(p, off):
-    """Length of the RC-pair block at ``off`` [-]."""
+    """Length of the RC-pair block at ``off`` (the next pair's block starts after it).
+
+    Parameters
+    ----------
+    p : float64 array
+        Parameter vector (:mod:`thermoelec.engine.layout`) [SI, unit per slot].
+    off : int
+        Offset of the RC-pair block in ``p`` [-].
+
+    Returns
+    -------
+    int
+        Number of slots of the block, its two head slots and its resistance-law block [-].
+    """
     return RC_LAW + law_length(p, off + RC_LAW)
 
 
 @_jit
 def ambient_at(p, off, t):
-    """Ambient temperature [K] at time ``t`` [s] from the ambient-profile block at ``off``."""
+    """Ambient temperature at time ``t`` from the ambient-profile block at ``off``.
+
+    Linear in time between the time stamps, held at the end values outside them.
+
+    Parameters
+    ----------
+    p : float64 array
+        Parameter vector (:mod:`thermoelec.engine.layout`) [SI, unit per slot].
+    off : int
+        Offset of the ambient-profile block in ``p`` [-].
+    t : float
+        Mission time [s].
+
+    Returns
+    -------
+    float
+        Ambient temperature [K].
+    """
     n = int(p[off + AMBIENT_N])
     i, w = bracket_at(p, off + AMBIENT_TIME, n, t)
     values = off + AMBIENT_TIME + n
@@ -312,14 +543,15 @@ def describe(p: np.ndarray) -> str:
 
     Parameters
     ----------
-    p : array of float
-        A vector built by :func:`thermoelec.engine.problem.pack_parameters`.
+    p : float64 array
+        A vector built by :func:`thermoelec.engine.problem.pack_parameters` [SI, unit per slot].
 
     Returns
     -------
     str
-        One line per header slot (``index name = value unit  description``), the
-        root functions by event name, and the OCV, R0, RC and ambient blocks.
+        One line per header slot (``index name = value [unit]  description``), the
+        root functions by event name (activity flag [-], threshold [V, K, A or -]), and
+        the OCV, R0, RC and ambient blocks with their units.
     """
     lines = []
     for slot in HEADER_SLOTS:

@@ -14,6 +14,10 @@ thing to both. Soaks (:func:`soak_problem`) run first, as their own problem;
 the mission then starts at t = 0 from their end state with the integrals reset
 (:func:`start_after_soak`). Thermostats start on when the cell temperature is
 already past their on threshold (:func:`initial_controls`).
+
+This module imports nothing of the engine but the events, the layout, the problem
+and the profile (and physics' load modes); it knows no kernel, no back end and no
+driver, and must not import them: only the driver and the batched solver walk the plan.
 """
 
 from __future__ import annotations
@@ -115,7 +119,7 @@ class MissionPlan:
 
     @property
     def n_segments(self) -> int:
-        """Number of segments [-]."""
+        """Number of segments of the mission [-]."""
         return len(self.durations)
 
 
@@ -134,20 +138,22 @@ def event_setup(problem: Problem, segment: Segment, mode: int, value: float, kin
     Parameters
     ----------
     problem : Problem
-        Limits and layout of the pack.
+        Limits [V per cell, K] and series count [-] of the scenario.
     segment : Segment
-        The segment the phase belongs to (end conditions, CC-CV set points).
+        The segment the phase belongs to: its end conditions [V, -] and CC-CV set
+        points [V, A].
     mode : int
-        Load-mode code of the phase.
+        Load-mode code of the phase (:data:`thermoelec.physics.loads.LOAD_MODES`) [-].
     value : float
         Its demand [A, W, Ω or V].
     kind : int
-        ``KIND_DEMAND``, ``KIND_CC`` or ``KIND_CV``.
+        ``KIND_DEMAND``, ``KIND_CC`` or ``KIND_CV`` [-].
 
     Returns
     -------
-    array, shape (2 N_EVENTS,)
-        Flags (1 active), then thresholds [V, K, A, -], in :data:`~thermoelec.engine.events.EVENTS` order.
+    float64 array, shape (2 N_EVENTS,)
+        Flags (1 active) [-], then thresholds [V, K, A, -], in
+        :data:`~thermoelec.engine.events.EVENTS` order.
     """
     cell, ns = problem.cell, problem.pack.series
     active = np.zeros(N_EVENTS)
@@ -183,7 +189,23 @@ def event_setup(problem: Problem, segment: Segment, mode: int, value: float, kin
 
 
 def cccv_cap(problem: Problem, segment: Segment) -> float:
-    """Duration cap of a CC-CV segment without one [s]: ten full charges at its CC rate."""
+    """Duration cap of a CC-CV segment without one: ten full charges at its CC rate.
+
+    A CC-CV segment normally ends on its cutoff current; the cap only makes the
+    phase finite (the CVODE driver reports a ``cccv_cap`` event should it be reached).
+
+    Parameters
+    ----------
+    problem : Problem
+        The scenario: the cell capacity [C] and the cells in parallel [-].
+    segment : Segment
+        The CC-CV segment; its ``value`` is the pack's charge current [A].
+
+    Returns
+    -------
+    float
+        ``10 Q / |I_cell|`` [s].
+    """
     per_cell = abs(segment.value) / problem.pack.parallel
     return 10.0 * problem.cell.capacity / max(per_cell, 1e-12)
 
@@ -194,12 +216,15 @@ def plan_mission(problem: Problem) -> MissionPlan:
     Parameters
     ----------
     problem : Problem
-        The SI problem (its segments, limits and pack layout).
+        The scenario in SI units: its segments, limits and pack layout [SI].
 
     Returns
     -------
     MissionPlan
-        Identical set-ups are stored once (a 1 Hz profile has thousands of phases and a handful of set-ups).
+        Per segment its phases' modes [-] and demands [A, W, Ω or V], durations [s],
+        ambients [K] and root-function set-ups (flags [-], thresholds [V, K, A, -]).
+        Identical set-ups are stored once (a 1 Hz profile has thousands of phases
+        and a handful of set-ups).
     """
     kinds: dict[tuple, int] = {}
     blocks = []
@@ -228,9 +253,19 @@ def plan_mission(problem: Problem) -> MissionPlan:
 
 
 def thermostat_switches(problem: Problem) -> np.ndarray:
-    """The fan, heater and pump thermostats as rows ``(present, on_at, off_at)`` [-, K, K].
+    """The fan, heater and pump thermostats as rows ``(present, on_at, off_at)``.
 
-    Rows follow :data:`thermoelec.engine.events.CONTROL_EVENTS`; an absent one is all zeros.
+    Parameters
+    ----------
+    problem : Problem
+        The scenario; its thermal network's fan, heater and pump switches [K].
+
+    Returns
+    -------
+    float64 array, shape (3, 3)
+        One row per thermostat in the order of
+        :data:`thermoelec.engine.events.CONTROL_EVENTS`: present (1 or 0) [-], the on
+        and off thresholds of the cell temperature [K]; an absent one is all zeros.
     """
     th = problem.thermal
     found = {EV_FAN: th.fan.switch if th.fan else None, EV_HEATER: th.heater.switch if th.heater else None,
@@ -244,10 +279,22 @@ def thermostat_switches(problem: Problem) -> np.ndarray:
 
 
 def initial_controls(switches: np.ndarray, cell_temperature: float) -> np.ndarray:
-    """Whether each thermostat starts on: already past its on threshold at ``cell_temperature`` [K].
+    """Whether each thermostat starts on: already past its on threshold at ``cell_temperature``.
 
     A heating switch (``on_at < off_at``) is on at or below its on threshold, a
     cooling one at or above it (:meth:`thermoelec.physics.thermal.Switch.initially_on`).
+
+    Parameters
+    ----------
+    switches : float64 array, shape (3, 3)
+        Rows ``(present, on_at, off_at)`` of :func:`thermostat_switches` [-, K, K].
+    cell_temperature : float
+        Cell temperature at the start [K].
+
+    Returns
+    -------
+    bool array, shape (3,)
+        True for each thermostat that starts on [-]; an absent one is False.
     """
     on = np.zeros(len(switches), dtype=np.bool_)
     for c, (present, on_at, off_at) in enumerate(switches):
@@ -263,26 +310,36 @@ def configure_phase(p, seg, phase, modes, values, ambients, setups, setup_index,
 
     The one writer of the per-phase slots, for both drivers. A segment with its
     own ambient (a CSV row, a soak) holds it and switches the ambient profile
-    off; the others take ``default_ambient`` [K] and the profile block at
+    off; the others take ``default_ambient`` and the profile block at
     ``default_table`` (0: none). A present thermostat's root function waits for
     its off threshold while it is on, for its on threshold while it is off.
 
     Parameters
     ----------
-    p : float array
-        The parameter vector (:mod:`thermoelec.engine.layout`), written in place.
-    seg, phase : int
-        The segment and its phase (0, or 1 for the CV phase of a CC-CV charge).
-    modes, values, ambients, setups, setup_index : arrays
-        The arrays of a :class:`MissionPlan`.
+    p : float64 array
+        The parameter vector (:mod:`thermoelec.engine.layout`), written in place [SI, unit per slot].
+    seg : int
+        Index of the segment in the plan [-].
+    phase : int
+        Its phase: 0, or 1 for the CV phase of a CC-CV charge [-].
+    modes : float64 array, shape (n, 2)
+        Load-mode code of each phase, :attr:`MissionPlan.modes` [-].
+    values : float64 array, shape (n, 2)
+        Demand of each phase, :attr:`MissionPlan.values` [A, W, Ω or V].
+    ambients : float64 array, shape (n,)
+        A segment's own ambient, NaN for the mission's, :attr:`MissionPlan.ambients` [K].
+    setups : float64 array, shape (k, 2 N_EVENTS)
+        Root-function set-ups, :attr:`MissionPlan.setups`: flags [-], then thresholds [V, K, A, -].
+    setup_index : int64 array, shape (n, 2)
+        The set-up of each phase, :attr:`MissionPlan.setup_index` [-].
     default_ambient : float
         The mission's ambient [K].
     default_table : float
-        Offset of the ambient-profile block in ``p``, 0 for none.
-    switches : float array, shape (3, 3)
-        :func:`thermostat_switches`.
+        Offset of the ambient-profile block in ``p``, 0 for none [-].
+    switches : float64 array, shape (3, 3)
+        Rows ``(present, on_at, off_at)`` of :func:`thermostat_switches` [-, K, K].
     controls : bool array, shape (3,)
-        Which thermostats are on.
+        Which thermostats are on (read, not changed) [-].
     """
     p[H_MODE] = modes[seg, phase]
     p[H_VALUE] = values[seg, phase]
@@ -299,14 +356,39 @@ def configure_phase(p, seg, phase, modes, values, ambients, setups, setup_index,
 
 
 def soak_problem(problem: Problem) -> Problem | None:
-    """The soak segments of ``problem`` as a problem of their own (None without a soak)."""
+    """The soak segments of ``problem`` as a problem of their own.
+
+    Parameters
+    ----------
+    problem : Problem
+        The scenario in SI units [SI].
+
+    Returns
+    -------
+    Problem or None
+        The same scenario with the soak as its segments and no soak [SI]; None
+        without a soak.
+    """
     if not problem.soak:
         return None
     return replace(problem, segments=problem.soak, soak=())
 
 
 def start_after_soak(state: np.ndarray, n_rc: int) -> np.ndarray:
-    """The mission's initial state from a soak's end state: the same states, the integrals reset."""
+    """The mission's initial state from a soak's end state: the same states, the integrals reset.
+
+    Parameters
+    ----------
+    state : float64 array, shape (n_states,)
+        State at the end of the soak (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
+    n_rc : int
+        Number of RC pairs of the cell [-].
+
+    Returns
+    -------
+    float64 array, shape (n_states,)
+        A copy with the quadratures set to zero [-, V, K, J, C].
+    """
     start = np.array(state, dtype=float)
     start[quadrature_index(n_rc):] = 0.0
     return start

@@ -1,12 +1,13 @@
 """The coupled electro-thermal right-hand side, its Jacobian and event functions (numba kernels).
 
-Equations (see DESIGN notes): Thevenin cell ``V = U - sum v_k - I R0`` with
+Equations: Thevenin cell ``V = U - sum v_k - I R0`` with
 ``U(z, T) = U_ref(z) + (T - T_ref) dU/dT(z)``; pack ``Ns x Np`` with
 ``E = Ns (U - sum v_k)``, ``R_tot = Ns R0 / Np + R_ic``; the pack current is
 closed-form for each load mode (:func:`thermoelec.physics.loads.pack_current`);
-Bernardi heat; two lumped thermal nodes and an optional coolant node;
-convection from correlations, radiation, thermostatic fan, heater and pump
-(their on/off states are phase parameters, switched at located events).
+Bernardi heat (:func:`thermoelec.physics.cell.bernardi_heat`); two lumped thermal
+nodes and an optional coolant node; convection from correlations, radiation,
+thermostatic fan, heater and pump (their on/off states are phase parameters,
+switched at located events).
 
 The quadratures integrate battery and load energy, heat generated, heat rejected
 to ambient and charge throughput with the same integrator as the states. BDF is
@@ -15,7 +16,14 @@ to ambient`` is kept to the Newton tolerance, not only to the error tolerance.
 
 Every kernel reads the flat parameter vector of :mod:`thermoelec.engine.layout`
 (states, quadratures, algebraic outputs and parameter slots are declared there).
-This module knows no integrator and no mission: the drivers call it.
+Kernels write into buffers their caller owns (no allocation per call: the
+right-hand side runs ~10^5 times a mission), so most return nothing.
+
+This module imports nothing of the engine but the events and the layout (and
+physics' cell, thermal and load-mode laws). It knows no integrator and no mission:
+it imports neither scikits.odes nor scipy, nor the mission plan; :class:`Kernels`
+only offers the call signatures the back ends want, and the back ends and the
+batched solver call it.
 """
 
 from __future__ import annotations
@@ -190,14 +198,14 @@ def evaluate(y, p, ydot, alg):
 
     Parameters
     ----------
-    y : float array
+    y : float64 array, shape (n_states,)
         State (:mod:`thermoelec.engine.layout`): SoC [-], RC voltages [V], cell,
         sink and coolant temperatures [K], then the quadratures [J, C].
-    p : float array
-        Parameter vector with the phase written in (demand, ambient, time [s]).
-    ydot : float array
+    p : float64 array
+        Parameter vector with the phase written in (demand, ambient, time) [SI, unit per slot].
+    ydot : float64 array, shape (n_states,)
         Written: ``dy/dt`` [1/s, V/s, K/s, W, A].
-    alg : float array
+    alg : float64 array, shape (N_ALGEBRAICS,)
         Written: the algebraic outputs ``A_*`` (current [A], voltages [V], heats [W], ...).
     """
     nrc = int(p[H_NRC])
@@ -323,20 +331,72 @@ def evaluate(y, p, ydot, alg):
 
 @_jit
 def rhs(y, ydot, p, alg):
-    """Right-hand side ``dy/dt`` written into ``ydot`` (autonomous within a phase)."""
+    """Right-hand side ``dy/dt`` written into ``ydot`` (autonomous within a phase).
+
+    :func:`evaluate` in the argument order of the solver-facing callers; time enters
+    only through the time slot of ``p`` (an ambient profile reads it).
+
+    Parameters
+    ----------
+    y : float64 array, shape (n_states,)
+        State (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
+    ydot : float64 array, shape (n_states,)
+        Written: ``dy/dt`` [1/s, V/s, K/s, W, A].
+    p : float64 array
+        Parameter vector with the phase written in [SI, unit per slot].
+    alg : float64 array, shape (N_ALGEBRAICS,)
+        Written: the algebraic outputs at ``y`` [A, V, Ω, W, K, ... unit per slot].
+    """
     evaluate(y, p, ydot, alg)
 
 
 @_jit
 def roots(y, g, p, alg, scratch):
-    """Event functions ``g_k`` written into ``g``; each is positive while all is well."""
+    """Event functions ``g_k`` written into ``g``; each is positive while all is well.
+
+    Evaluates the right-hand side at ``y`` for its algebraic outputs, then :func:`roots_from`.
+
+    Parameters
+    ----------
+    y : float64 array, shape (n_states,)
+        State (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
+    g : float64 array, shape (N_EVENTS,)
+        Written: the root functions in :data:`~thermoelec.engine.events.EVENTS` order
+        [V, V², K, - or A, by event]; inactive ones read 1.
+    p : float64 array
+        Parameter vector with the phase written in [SI, unit per slot].
+    alg : float64 array, shape (N_ALGEBRAICS,)
+        Written: the algebraic outputs at ``y`` [A, V, Ω, W, K, ... unit per slot].
+    scratch : float64 array, shape (n_states,)
+        Work array for ``dy/dt`` [1/s, V/s, K/s, W, A].
+    """
     evaluate(y, p, scratch, alg)
     roots_from(y, g, p, alg)
 
 
 @_jit
 def roots_from(y, g, p, alg):
-    """Event functions from the algebraic outputs ``alg`` already evaluated at ``y``."""
+    """Event functions from the algebraic outputs ``alg`` already evaluated at ``y``.
+
+    Each active function is the signed distance to its threshold, positive on the
+    safe side: ``V_cell - V_min`` for ``voltage_min``, ``T_max - T_c`` for
+    ``temperature_max``, the margin ``E² - 4 R P`` for the power limit, ``|I| - I_cutoff``
+    for the CV cutoff. An inactive one reads 1, so it never fires. A thermostat's
+    function measures the distance to the threshold it switches at next, in the
+    direction it waits for.
+
+    Parameters
+    ----------
+    y : float64 array, shape (n_states,)
+        State (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
+    g : float64 array, shape (N_EVENTS,)
+        Written: the root functions in :data:`~thermoelec.engine.events.EVENTS` order
+        [V, V², K, - or A, by event].
+    p : float64 array
+        Parameter vector with the phase written in (activity flags, thresholds) [SI, unit per slot].
+    alg : float64 array, shape (N_ALGEBRAICS,)
+        The algebraic outputs at ``y``, read [A, V, Ω, W, K, ... unit per slot].
+    """
     nrc = int(p[H_NRC])
     z = y[0]
     vcell = alg[A_CELL_VOLTAGE]
@@ -372,8 +432,8 @@ def roots_from(y, g, p, alg):
             g[k] = thr - z
         else:
             # a thermostat: the threshold is the one it switches at next; a cooling
-            # switch (fan, pump) and a heater that is on wait for the temperature to
-            # rise to it, the others for it to fall
+            # switch (fan, pump) that is off and a heater that is on wait for the
+            # temperature to rise to it, the others for it to fall
             rising = (p[CONTROL_FLAG_OF[k - EV_FAN]] == 1.0) == (k == EV_HEATER)
             g[k] = thr - y[1 + nrc] if rising else y[1 + nrc] - thr
 
@@ -384,8 +444,31 @@ def jacobian(y, jac, p, alg, f0, f1, yy):
 
     The quadrature columns are zero (nothing depends on a running integral), so
     only the ``4 + n_rc`` dynamic columns are differenced. Step
-    ``sqrt(eps) * max(|y_j|, 1)`` as in Dennis & Schnabel, *Numerical Methods for
-    Unconstrained Optimization and Nonlinear Equations* (1983), §5.4.
+    ``sqrt(eps) * max(|y_j|, 1)``, with ``eps`` the float64 machine epsilon, as in
+    Dennis & Schnabel §5.4: it balances the truncation error of the difference
+    against the rounding error of ``f``.
+
+    Parameters
+    ----------
+    y : float64 array, shape (n_states,)
+        State (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
+    jac : float64 array, shape (n_states, n_states)
+        Written: ``jac[i, j] = df_i/dy_j`` [unit of dy_i/dt per unit of y_j].
+    p : float64 array
+        Parameter vector with the phase written in [SI, unit per slot].
+    alg : float64 array, shape (N_ALGEBRAICS,)
+        Work array for the algebraic outputs [A, V, Ω, W, K, ... unit per slot].
+    f0 : float64 array, shape (n_states,)
+        Written: ``f(y)`` [1/s, V/s, K/s, W, A].
+    f1 : float64 array, shape (n_states,)
+        Work array for ``f(y + h e_j)`` [1/s, V/s, K/s, W, A].
+    yy : float64 array, shape (n_states,)
+        Work array for the perturbed state [-, V, K, J, C].
+
+    References
+    ----------
+    J. E. Dennis, R. B. Schnabel, *Numerical Methods for Unconstrained Optimization
+    and Nonlinear Equations*, Prentice-Hall (1983), §5.4.
     """
     n = y.shape[0]
     ndyn = 4 + int(p[H_NRC])
@@ -412,10 +495,45 @@ def diagonal_newton_contraction(y, p, alg, f0, f1, yy, jac, gamma):
     ``D`` of ``J`` alone converges with the rate of ``E = (I - gamma D)^-1 gamma O``
     (``O`` the off-diagonal part), the Jacobi splitting of ``I - gamma J``. Its
     spectral radius is at most its row-sum norm, as for any induced norm (Horn &
-    Johnson, *Matrix Analysis*, 1985, Thm. 5.6.9; theorem number from memory).
-    The diagonal Newton matrix is CVODE's CVDIAG module (Hindmarsh et al., ACM
-    TOMS 31 (2005) 363). Taken over the dynamic states; the quadratures only
-    receive and do not change the rate.
+    Johnson). The diagonal Newton matrix is CVODE's CVDIAG module (Hindmarsh et
+    al.). Taken over the dynamic states; the quadratures only receive and do not
+    change the rate. Where the diagonal entries are negative (decaying states),
+    each row's bound grows with ``gamma``, so the bound for the longest step of a
+    phase holds for its shorter steps too (at the state where it is taken).
+
+    Parameters
+    ----------
+    y : float64 array, shape (n_states,)
+        State at which the Jacobian is taken (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
+    p : float64 array
+        Parameter vector with the phase written in [SI, unit per slot].
+    alg : float64 array, shape (N_ALGEBRAICS,)
+        Work array for the algebraic outputs [A, V, Ω, W, K, ... unit per slot].
+    f0 : float64 array, shape (n_states,)
+        Work array for ``f(y)`` [1/s, V/s, K/s, W, A].
+    f1 : float64 array, shape (n_states,)
+        Work array for the differenced ``f`` [1/s, V/s, K/s, W, A].
+    yy : float64 array, shape (n_states,)
+        Work array for the perturbed state [-, V, K, J, C].
+    jac : float64 array, shape (n_states, n_states)
+        Work array for the Jacobian [unit of dy_i/dt per unit of y_j].
+    gamma : float
+        The ``gamma`` of the Newton matrix ``I - gamma J``, a step size times the
+        method's leading coefficient; the CVODE back end passes the phase length [s].
+
+    Returns
+    -------
+    float
+        The largest row sum of ``|E|`` over the dynamic states [-]; below 1 the
+        diagonal iteration converges.
+
+    References
+    ----------
+    R. A. Horn, C. R. Johnson, *Matrix Analysis*, Cambridge University Press (1985),
+    Thm. 5.6.9 (theorem number from memory).
+
+    A. C. Hindmarsh et al., "SUNDIALS: Suite of nonlinear and differential/algebraic
+    equation solvers", ACM TOMS 31 (2005) 363.
     """
     jacobian(y, jac, p, alg, f0, f1, yy)
     ndyn = 4 + int(p[H_NRC])
@@ -445,13 +563,51 @@ def diagonal_newton_contraction(y, p, alg, f0, f1, yy, jac, gamma):
 
 
 def rc_base_size(n_rc: int) -> int:
-    """Length of the RC base vector for ``n_rc`` pairs."""
+    """Length of the RC base vector ``[t_0, (v_0, v_inf, tau) per pair]`` for ``n_rc`` pairs.
+
+    Parameters
+    ----------
+    n_rc : int
+        Number of RC pairs of the cell [-].
+
+    Returns
+    -------
+    int
+        ``1 + 3 n_rc`` [-].
+    """
     return 1 + 3 * n_rc
 
 
 @_jit
 def rc_base_setup(y, p, alg, scratch, t0, base):
-    """Fill ``base`` with the zero-order-hold response of each RC pair from state ``y`` at ``t0``."""
+    """Fill ``base`` with the zero-order-hold response of each RC pair from state ``y`` at ``t0``.
+
+    With the cell current held at its value at ``y``, pair ``k`` relaxes exactly as
+    ``b_k(t) = v_inf + (v_0 - v_inf) exp(-(t - t_0) / tau_k)`` from ``v_0 = v_k``
+    towards ``v_inf = R_k I_cell``, ``tau_k = R_k C_k`` (the zero-order-hold response
+    of Plett's discrete-time form). Where ``tau`` is not positive and finite, or the
+    current not finite, the pair gets ``tau = 0``: ``b(t) = v_0``, a constant shift,
+    still exact.
+
+    Parameters
+    ----------
+    y : float64 array, shape (n_states,)
+        State at the phase start (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
+    p : float64 array
+        Parameter vector with the phase written in [SI, unit per slot].
+    alg : float64 array, shape (N_ALGEBRAICS,)
+        Written: the algebraic outputs at ``y`` [A, V, Ω, W, K, ... unit per slot].
+    scratch : float64 array, shape (n_states,)
+        Work array for ``dy/dt`` [1/s, V/s, K/s, W, A].
+    t0 : float
+        Time of the phase start [s].
+    base : float64 array, shape (1 + 3 n_rc,)
+        Written: ``[t_0, (v_0, v_inf, tau) per pair]`` [s, then V, V, s per pair].
+
+    References
+    ----------
+    G. L. Plett, *Battery Management Systems*, Vol. I, Artech House (2015).
+    """
     evaluate(y, p, scratch, alg)
     nrc = int(p[H_NRC])
     icell = alg[A_CURRENT] / p[H_NP]
@@ -471,7 +627,24 @@ def rc_base_setup(y, p, alg, scratch, t0, base):
 
 @_jit
 def rc_base_add(w, y, base, t, sign):
-    """``y = w + sign * b(t)`` on the RC slots, ``y = w`` elsewhere; returns nothing."""
+    """``y = w + sign * b(t)`` on the RC slots, ``y = w`` elsewhere; returns nothing.
+
+    ``sign = 1`` gives the state from the shifted variables, ``sign = -1`` the
+    shifted variables from the state.
+
+    Parameters
+    ----------
+    w : float64 array, shape (n_states,)
+        The vector to shift, read [-, V, K, J, C].
+    y : float64 array, shape (n_states,)
+        Written: the shifted vector [-, V, K, J, C].
+    base : float64 array, shape (1 + 3 n_rc,)
+        RC base vector of :func:`rc_base_setup` [s, then V, V, s per pair].
+    t : float
+        Time at which ``b`` is taken [s].
+    sign : float
+        +1.0 or -1.0 [-].
+    """
     for i in range(w.shape[0]):
         y[i] = w[i]
     s = t - base[0]
@@ -485,9 +658,42 @@ def rc_base_add(w, y, base, t, sign):
 def shift_phase_start(y0, p, alg, scratch, t0, base, w0, f0, f1, yy, jac, gamma):
     """Start a CVODE phase at ``(t0, y0)``.
 
-    Sets the RC base there (:func:`rc_base_setup`), writes ``w0 = y0 - b(t0)`` and
-    returns :func:`diagonal_newton_contraction` for steps up to ``gamma`` (0 when
-    ``gamma`` is 0: not wanted).
+    Writes ``t0`` into the time slot of ``p``, sets the RC base there
+    (:func:`rc_base_setup`), writes ``w0 = y0 - b(t0)`` and returns
+    :func:`diagonal_newton_contraction` for steps up to ``gamma`` (0 when ``gamma``
+    is 0: not wanted). One kernel call instead of three, at every restart.
+
+    Parameters
+    ----------
+    y0 : float64 array, shape (n_states,)
+        State at the phase start (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
+    p : float64 array
+        Parameter vector with the phase written in [SI, unit per slot].
+    alg : float64 array, shape (N_ALGEBRAICS,)
+        Work array for the algebraic outputs [A, V, Ω, W, K, ... unit per slot].
+    scratch : float64 array, shape (n_states,)
+        Work array for ``dy/dt`` [1/s, V/s, K/s, W, A].
+    t0 : float
+        Time of the phase start [s].
+    base : float64 array, shape (1 + 3 n_rc,)
+        Written: the RC base vector [s, then V, V, s per pair].
+    w0 : float64 array, shape (n_states,)
+        Written: the shifted initial state ``y0 - b(t0)`` [-, V, K, J, C].
+    f0 : float64 array, shape (n_states,)
+        Work array for ``f(y)`` [1/s, V/s, K/s, W, A].
+    f1 : float64 array, shape (n_states,)
+        Work array for the differenced ``f`` [1/s, V/s, K/s, W, A].
+    yy : float64 array, shape (n_states,)
+        Work array for the perturbed state [-, V, K, J, C].
+    jac : float64 array, shape (n_states, n_states)
+        Work array for the Jacobian [unit of dy_i/dt per unit of y_j].
+    gamma : float
+        Longest ``gamma`` of the phase's Newton matrices, 0 for no contraction bound [s].
+
+    Returns
+    -------
+    float
+        The contraction bound of :func:`diagonal_newton_contraction`, 0 when not wanted [-].
     """
     p[H_TIME] = t0
     rc_base_setup(y0, p, alg, scratch, t0, base)
@@ -499,7 +705,32 @@ def shift_phase_start(y0, p, alg, scratch, t0, base, w0, f0, f1, yy, jac, gamma)
 
 @_jit
 def shifted_rhs(t, w, wdot, p, alg, base, y):
-    """Right-hand side in the shifted variables: ``dw/dt = f(w + b(t)) - b'(t)``; sets the time in ``p``."""
+    """Right-hand side in the shifted variables: ``dw/dt = f(w + b(t)) - b'(t)``; sets the time in ``p``.
+
+    An exact change of variables (Lawson's integrating-factor idea): the equations
+    are those of :func:`evaluate`, but the fast RC exponentials are taken out.
+
+    Parameters
+    ----------
+    t : float
+        Time [s].
+    w : float64 array, shape (n_states,)
+        Shifted state, ``y - b(t)`` on the RC slots [-, V, K, J, C].
+    wdot : float64 array, shape (n_states,)
+        Written: ``dw/dt`` [1/s, V/s, K/s, W, A].
+    p : float64 array
+        Parameter vector with the phase written in; its time slot is written [SI, unit per slot].
+    alg : float64 array, shape (N_ALGEBRAICS,)
+        Written: the algebraic outputs at ``w + b(t)`` [A, V, Ω, W, K, ... unit per slot].
+    base : float64 array, shape (1 + 3 n_rc,)
+        RC base vector of :func:`rc_base_setup` [s, then V, V, s per pair].
+    y : float64 array, shape (n_states,)
+        Written: the state ``w + b(t)`` [-, V, K, J, C].
+
+    References
+    ----------
+    J. D. Lawson, SIAM J. Numer. Anal. 4 (1967) 372.
+    """
     p[H_TIME] = t
     rc_base_add(w, y, base, t, 1.0)
     evaluate(y, p, wdot, alg)
@@ -512,14 +743,60 @@ def shifted_rhs(t, w, wdot, p, alg, base, y):
 
 @_jit
 def shifted_roots(t, w, g, p, alg, scratch, base, y):
-    """Event functions at ``w + b(t)``."""
+    """Event functions at ``w + b(t)`` (the caller writes the time into ``p``).
+
+    Parameters
+    ----------
+    t : float
+        Time [s].
+    w : float64 array, shape (n_states,)
+        Shifted state, ``y - b(t)`` on the RC slots [-, V, K, J, C].
+    g : float64 array, shape (N_EVENTS,)
+        Written: the root functions [V, V², K, - or A, by event]; inactive ones read 1.
+    p : float64 array
+        Parameter vector with the phase written in [SI, unit per slot].
+    alg : float64 array, shape (N_ALGEBRAICS,)
+        Written: the algebraic outputs at ``w + b(t)`` [A, V, Ω, W, K, ... unit per slot].
+    scratch : float64 array, shape (n_states,)
+        Work array for ``dy/dt`` [1/s, V/s, K/s, W, A].
+    base : float64 array, shape (1 + 3 n_rc,)
+        RC base vector of :func:`rc_base_setup` [s, then V, V, s per pair].
+    y : float64 array, shape (n_states,)
+        Written: the state ``w + b(t)`` [-, V, K, J, C].
+    """
     rc_base_add(w, y, base, t, 1.0)
     roots(y, g, p, alg, scratch)
 
 
 @_jit
 def shifted_jacobian(t, w, jac, p, alg, f0, f1, yy, base, y):
-    """Jacobian of the shifted system: ``b`` does not depend on ``w``, so it is ``df/dy`` at ``w + b(t)``."""
+    """Jacobian of the shifted system: ``b`` does not depend on ``w``, so it is ``df/dy`` at ``w + b(t)``.
+
+    The caller writes the time into ``p``.
+
+    Parameters
+    ----------
+    t : float
+        Time [s].
+    w : float64 array, shape (n_states,)
+        Shifted state, ``y - b(t)`` on the RC slots [-, V, K, J, C].
+    jac : float64 array, shape (n_states, n_states)
+        Written: ``df_i/dy_j`` at ``w + b(t)`` [unit of dy_i/dt per unit of y_j].
+    p : float64 array
+        Parameter vector with the phase written in [SI, unit per slot].
+    alg : float64 array, shape (N_ALGEBRAICS,)
+        Work array for the algebraic outputs [A, V, Ω, W, K, ... unit per slot].
+    f0 : float64 array, shape (n_states,)
+        Work array for ``f(y)`` [1/s, V/s, K/s, W, A].
+    f1 : float64 array, shape (n_states,)
+        Work array for the differenced ``f`` [1/s, V/s, K/s, W, A].
+    yy : float64 array, shape (n_states,)
+        Work array for the perturbed state [-, V, K, J, C].
+    base : float64 array, shape (1 + 3 n_rc,)
+        RC base vector of :func:`rc_base_setup` [s, then V, V, s per pair].
+    y : float64 array, shape (n_states,)
+        Written: the state ``w + b(t)`` [-, V, K, J, C].
+    """
     rc_base_add(w, y, base, t, 1.0)
     jacobian(y, jac, p, alg, f0, f1, yy)
 
@@ -531,12 +808,35 @@ def start_check(y, p, alg, scratch, g, g_ahead, probe, slack):
     Root finding cannot see a root function that is already non-positive when a
     phase starts (a jump of the demand can put the voltage below its minimum at
     once), so this is checked here. A function at zero that is not heading down
-    (a full cell at rest) is switched off for the phase. With an imposed terminal
-    voltage the cell voltage limits are checked here, with a relative ``slack``.
+    (a full cell at rest) is switched off for the phase, in ``p``. With an imposed
+    terminal voltage the cell voltage limits are checked here, with a relative
+    ``slack``. The probe is a first-order (Euler) step along ``dy/dt`` at ``y``,
+    with the time slot of ``p`` left as it is.
 
-    Returns the index of the event that fired (by ``EVENT_PRIORITY`` order of the
-    caller: the lowest-index stop first), or -1; ``g`` and ``g_ahead`` hold the
-    root functions at the start and ``probe`` seconds along the initial slope.
+    Parameters
+    ----------
+    y : float64 array, shape (n_states,)
+        State at the phase start (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
+    p : float64 array
+        Parameter vector with the phase written in; activity flags may be cleared [SI, unit per slot].
+    alg : float64 array, shape (N_ALGEBRAICS,)
+        Work array for the algebraic outputs [A, V, Ω, W, K, ... unit per slot].
+    scratch : float64 array, shape (n_states,)
+        Work array for ``dy/dt`` [1/s, V/s, K/s, W, A].
+    g : float64 array, shape (N_EVENTS,)
+        Written: the root functions at the start [V, V², K, - or A, by event].
+    g_ahead : float64 array, shape (N_EVENTS,)
+        Written: the root functions ``probe`` seconds along the initial slope [V, V², K, - or A, by event].
+    probe : float
+        Length of the probe step [s].
+    slack : float
+        Relative slack on the cell voltage limits under an imposed terminal voltage [-].
+
+    Returns
+    -------
+    int
+        Code of the event that fired (the first by :data:`EVENT_PRIORITY`: the power
+        limit, then by code), or -1 for none [-].
     """
     n = y.shape[0]
     roots(y, g, p, alg, scratch)
@@ -572,7 +872,29 @@ def beyond_reach(g, g_ahead, p, probe, duration, factor):
     """True when every active root function stays clear of zero over the phase.
 
     "Clear" means ``g(t0) > factor * |g'(t0)| * duration``: beyond ``factor``
-    times the first-order reach, with ``g'`` from the probe.
+    times the first-order reach, with ``g'`` from the probe. Such a phase can be
+    integrated without root finding (checked at its end by the driver).
+
+    Parameters
+    ----------
+    g : float64 array, shape (N_EVENTS,)
+        Root functions at the phase start [V, V², K, - or A, by event].
+    g_ahead : float64 array, shape (N_EVENTS,)
+        Root functions ``probe`` seconds along the initial slope [V, V², K, - or A, by event].
+    p : float64 array
+        Parameter vector with the phase written in (activity flags) [SI, unit per slot].
+    probe : float
+        Length of the probe step [s].
+    duration : float
+        Length of the phase [s].
+    factor : float
+        Safety factor on the first-order reach [-].
+
+    Returns
+    -------
+    bool
+        True when no active root function can reach zero within the phase at
+        ``factor`` times its initial rate [-].
     """
     for k in range(N_EVENTS):
         if p[H_ACTIVE + k] == 0.0:
@@ -587,8 +909,34 @@ def beyond_reach(g, g_ahead, p, probe, duration, factor):
 def phase_start(y, p, alg, scratch, g, g_ahead, probe, slack, duration, factor):
     """:func:`start_check`, then :func:`beyond_reach` over ``duration``, in one call.
 
-    Returns the event that fired (>= 0), -1 when the phase needs root finding, or
-    -2 when every root function stays beyond reach.
+    Parameters
+    ----------
+    y : float64 array, shape (n_states,)
+        State at the phase start (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
+    p : float64 array
+        Parameter vector with the phase written in; activity flags may be cleared [SI, unit per slot].
+    alg : float64 array, shape (N_ALGEBRAICS,)
+        Work array for the algebraic outputs [A, V, Ω, W, K, ... unit per slot].
+    scratch : float64 array, shape (n_states,)
+        Work array for ``dy/dt`` [1/s, V/s, K/s, W, A].
+    g : float64 array, shape (N_EVENTS,)
+        Written: the root functions at the start [V, V², K, - or A, by event].
+    g_ahead : float64 array, shape (N_EVENTS,)
+        Written: the root functions ``probe`` seconds along the initial slope [V, V², K, - or A, by event].
+    probe : float
+        Length of the probe step [s].
+    slack : float
+        Relative slack on the cell voltage limits under an imposed terminal voltage [-].
+    duration : float
+        Length of the phase [s].
+    factor : float
+        Safety factor on the first-order reach [-].
+
+    Returns
+    -------
+    int
+        The event that fired (>= 0), -1 when the phase needs root finding, or -2
+        when every root function stays beyond reach [-].
     """
     fired = start_check(y, p, alg, scratch, g, g_ahead, probe, slack)
     if fired >= 0:
@@ -602,7 +950,19 @@ def fired_event(g, p):
 
     Among the active functions within :data:`ROOT_TOLERANCE` of their scale of
     zero (or below) the first by :data:`EVENT_PRIORITY` wins; should none be that
-    close, the nearest to zero does.
+    close, the nearest to zero (relative to its scale) does.
+
+    Parameters
+    ----------
+    g : float64 array, shape (N_EVENTS,)
+        Root functions at the located root [V, V², K, - or A, by event].
+    p : float64 array
+        Parameter vector with the phase written in (activity flags) [SI, unit per slot].
+
+    Returns
+    -------
+    int
+        Event code (:data:`~thermoelec.engine.events.EVENTS` order) [-].
     """
     for k in EVENT_PRIORITY:
         if p[H_ACTIVE + k] != 0.0 and g[k] <= ROOT_TOLERANCE * EVENT_SCALES[k]:
@@ -616,7 +976,26 @@ def fired_event(g, p):
 
 @_jit
 def all_positive(y, p, alg, scratch, g):
-    """True when every active root function is positive at ``y``."""
+    """True when every active root function is positive at ``y``.
+
+    Parameters
+    ----------
+    y : float64 array, shape (n_states,)
+        State (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
+    p : float64 array
+        Parameter vector with the phase written in [SI, unit per slot].
+    alg : float64 array, shape (N_ALGEBRAICS,)
+        Written: the algebraic outputs at ``y`` [A, V, Ω, W, K, ... unit per slot].
+    scratch : float64 array, shape (n_states,)
+        Work array for ``dy/dt`` [1/s, V/s, K/s, W, A].
+    g : float64 array, shape (N_EVENTS,)
+        Written: the root functions at ``y`` [V, V², K, - or A, by event].
+
+    Returns
+    -------
+    bool
+        No active root function is zero or below [-].
+    """
     roots(y, g, p, alg, scratch)
     for k in range(N_EVENTS):
         if p[H_ACTIVE + k] != 0.0 and g[k] <= 0.0:
@@ -626,7 +1005,17 @@ def all_positive(y, p, alg, scratch, g):
 
 @_jit
 def evaluate_rows(states, params, algebraics):
-    """Algebraic outputs for many rows, each with its own parameter vector."""
+    """Algebraic outputs for many rows, each with its own parameter vector.
+
+    Parameters
+    ----------
+    states : float64 array, shape (n, n_states)
+        State rows (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
+    params : float64 array, shape (n, len(p))
+        The parameter vector of each row, its time slot set [SI, unit per slot].
+    algebraics : float64 array, shape (n, N_ALGEBRAICS)
+        Written: the algebraic outputs of each row [A, V, Ω, W, K, ... unit per slot].
+    """
     n = states.shape[1]
     scratch = np.empty(n)
     alg = np.empty(N_ALGEBRAICS)
@@ -640,7 +1029,26 @@ class Kernels:
     """Python-callable closures over one parameter vector, in the signatures solvers want.
 
     The vector ``p`` is shared and mutated between phases (mode, demand, ambient,
-    active events), so the closures never need rebuilding.
+    active events), so the closures never need rebuilding. Work buffers are
+    allocated once here and reused at every call.
+
+    Parameters
+    ----------
+    p : float64 array
+        The parameter vector (:mod:`thermoelec.engine.layout`), kept by reference [SI, unit per slot].
+    size : int
+        Number of states, :func:`thermoelec.engine.layout.n_states` [-].
+
+    Attributes
+    ----------
+    base : float64 array, shape (1 + 3 n_rc,)
+        RC base vector of the current phase (:func:`rc_base_setup`) [s, then V, V, s per pair].
+    error : BaseException or None
+        An exception raised inside a solver callback, kept for the back end to report.
+    g, g_ahead : float64 array, shape (N_EVENTS,)
+        Root functions at the last phase start and at its probe [V, V², K, - or A, by event].
+    cvode_rhs : callable
+        ``cvode_rhs(t, w, wdot) -> int``, the shifted right-hand side for CVODE.
     """
 
     def __init__(self, p: np.ndarray, size: int):
@@ -665,14 +1073,44 @@ class Kernels:
     # CVODE sees the shifted variables w = y - b(t) of :func:`rc_base_setup`; see
     # :meth:`shift_from` and :meth:`unshift`.
     def shift_from(self, t0: float, y0: np.ndarray, gamma: float = 0.0) -> tuple[np.ndarray, float]:
-        """Start a phase at ``(t0, y0)``: see :func:`shift_phase_start`; returns ``w0`` and the contraction."""
+        """Start a phase at ``(t0, y0)``: see :func:`shift_phase_start`.
+
+        Parameters
+        ----------
+        t0 : float
+            Time of the phase start [s].
+        y0 : float64 array, shape (n_states,)
+            State at the phase start (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
+        gamma : float
+            Longest ``gamma`` of the phase's Newton matrices, 0 for no contraction bound [s].
+
+        Returns
+        -------
+        w0 : float64 array, shape (n_states,)
+            Shifted initial state for CVODE, ``y0 - b(t0)`` [-, V, K, J, C].
+        contraction : float
+            Bound of :func:`diagonal_newton_contraction`, 0 when not wanted [-].
+        """
         w0 = np.empty(self.size)
         contraction = shift_phase_start(y0, self.p, self._alg, self._scratch, t0, self.base, w0, self._f0,
                                         self._f1, self._yy, self._jac, gamma)
         return w0, contraction
 
     def unshift(self, t: float, w: np.ndarray) -> np.ndarray:
-        """The state ``y = w + b(t)`` (a new array; ``w`` a float64 vector)."""
+        """The state ``y = w + b(t)`` (a new array; ``w`` a float64 vector).
+
+        Parameters
+        ----------
+        t : float
+            Time [s].
+        w : float64 array, shape (n_states,)
+            Shifted state from CVODE [-, V, K, J, C].
+
+        Returns
+        -------
+        float64 array, shape (n_states,)
+            The state (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
+        """
         y = np.empty(self.size)
         rc_base_add(w, y, self.base, t, 1.0)
         return y
@@ -692,6 +1130,25 @@ class Kernels:
         return cvode_rhs
 
     def cvode_roots(self, t: float, y: np.ndarray, g: np.ndarray) -> int:
+        """Root functions for CVODE (scikits.odes ``rootfn``), at the shifted state ``y``.
+
+        Writes ``t`` into the time slot of ``p``. An exception is kept in
+        :attr:`error` and reported as -1: it must not cross the C boundary.
+
+        Parameters
+        ----------
+        t : float
+            Time [s].
+        y : float64 array, shape (n_states,)
+            CVODE's state: the shifted variables ``w = y - b(t)`` [-, V, K, J, C].
+        g : float64 array, shape (N_EVENTS,)
+            Written: the root functions at ``w + b(t)`` [V, V², K, - or A, by event].
+
+        Returns
+        -------
+        int
+            0, or -1 when a kernel raised [-].
+        """
         self.p[H_TIME] = t
         try:
             shifted_roots(t, y, g, self.p, self._alg, self._scratch, self.base, self._shifted)
@@ -701,6 +1158,27 @@ class Kernels:
         return 0
 
     def cvode_jacobian(self, t: float, y: np.ndarray, fy: np.ndarray, jac: np.ndarray) -> int:
+        """Dense Jacobian for CVODE (scikits.odes ``jacfn``), at the shifted state ``y``.
+
+        Writes ``t`` into the time slot of ``p``. An exception is kept in
+        :attr:`error` and reported as -1.
+
+        Parameters
+        ----------
+        t : float
+            Time [s].
+        y : float64 array, shape (n_states,)
+            CVODE's state: the shifted variables ``w = y - b(t)`` [-, V, K, J, C].
+        fy : float64 array, shape (n_states,)
+            CVODE's ``f(t, y)``, not used: the difference quotient evaluates its own [1/s, V/s, K/s, W, A].
+        jac : float64 array, shape (n_states, n_states)
+            Written: ``df_i/dy_j`` [unit of dy_i/dt per unit of y_j].
+
+        Returns
+        -------
+        int
+            0, or -1 when a kernel raised [-].
+        """
         self.p[H_TIME] = t
         try:
             shifted_jacobian(t, y, jac, self.p, self._alg, self._f0, self._f1, self._yy, self.base,
@@ -712,33 +1190,119 @@ class Kernels:
 
     # scipy signatures: return new arrays
     def scipy_rhs(self, t: float, y: np.ndarray) -> np.ndarray:
+        """Right-hand side for ``solve_ivp`` (unshifted): writes ``t`` into ``p``, returns a new array.
+
+        Parameters
+        ----------
+        t : float
+            Time [s].
+        y : float64 array, shape (n_states,)
+            State (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
+
+        Returns
+        -------
+        float64 array, shape (n_states,)
+            ``dy/dt`` [1/s, V/s, K/s, W, A].
+        """
         self.p[H_TIME] = t
         ydot = np.empty(self.size)
         rhs(y, ydot, self.p, self._alg)
         return ydot
 
     def event_values(self, y: np.ndarray) -> np.ndarray:
-        """All root functions at ``y`` (inactive ones read 1)."""
+        """All root functions at ``y`` (inactive ones read 1).
+
+        Taken at the time last written into ``p`` (an ambient profile reads it): the
+        call has no time argument.
+
+        Parameters
+        ----------
+        y : array of float, shape (n_states,)
+            State (:mod:`thermoelec.engine.layout`), converted to contiguous float64 [-, V, K, J, C].
+
+        Returns
+        -------
+        float64 array, shape (N_EVENTS,)
+            The root functions in :data:`~thermoelec.engine.events.EVENTS` order [V, V², K, - or A, by event].
+        """
         g = np.empty(N_EVENTS)
         roots(np.ascontiguousarray(y, dtype=float), g, self.p, self._alg, self._scratch)
         return g
 
     def scipy_jacobian(self, t: float, y: np.ndarray) -> np.ndarray:
+        """Dense Jacobian for ``solve_ivp`` (unshifted): writes ``t`` into ``p``, returns a new array.
+
+        Parameters
+        ----------
+        t : float
+            Time [s].
+        y : array of float, shape (n_states,)
+            State (:mod:`thermoelec.engine.layout`), converted to contiguous float64 [-, V, K, J, C].
+
+        Returns
+        -------
+        float64 array, shape (n_states, n_states)
+            ``df_i/dy_j`` [unit of dy_i/dt per unit of y_j].
+        """
         self.p[H_TIME] = t
         jac = np.empty((self.size, self.size))
         jacobian(np.ascontiguousarray(y, dtype=float), jac, self.p, self._alg, self._f0, self._f1, self._yy)
         return jac
 
     def phase_start(self, y: np.ndarray, probe: float, slack: float, duration: float, factor: float) -> int:
-        """See :func:`phase_start`; fills ``self.g`` and ``self.g_ahead``."""
+        """See :func:`phase_start`; fills ``self.g`` and ``self.g_ahead``.
+
+        Parameters
+        ----------
+        y : float64 array, shape (n_states,)
+            State at the phase start (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
+        probe : float
+            Length of the probe step [s].
+        slack : float
+            Relative slack on the cell voltage limits under an imposed terminal voltage [-].
+        duration : float
+            Length of the phase [s].
+        factor : float
+            Safety factor on the first-order reach [-].
+
+        Returns
+        -------
+        int
+            The event that fired (>= 0), -1 when the phase needs root finding, or -2
+            when every root function stays beyond reach [-].
+        """
         return phase_start(y, self.p, self._alg, self._scratch, self.g, self.g_ahead, probe, slack, duration, factor)
 
     def diagonal_newton_contraction(self, y: np.ndarray, gamma: float) -> float:
-        """See :func:`diagonal_newton_contraction`."""
+        """See :func:`diagonal_newton_contraction`.
+
+        Parameters
+        ----------
+        y : float64 array, shape (n_states,)
+            State at which the Jacobian is taken (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
+        gamma : float
+            The ``gamma`` of the Newton matrix ``I - gamma J`` [s].
+
+        Returns
+        -------
+        float
+            Bound on the contraction factor of the diagonal Newton iteration [-].
+        """
         return diagonal_newton_contraction(y, self.p, self._alg, self._f0, self._f1, self._yy, self._jac, gamma)
 
     def all_positive(self, y: np.ndarray) -> bool:
-        """See :func:`all_positive`."""
+        """See :func:`all_positive`.
+
+        Parameters
+        ----------
+        y : float64 array, shape (n_states,)
+            State (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
+
+        Returns
+        -------
+        bool
+            No active root function is zero or below [-].
+        """
         return all_positive(y, self.p, self._alg, self._scratch, self._g_end)
 
 
@@ -748,18 +1312,18 @@ def trajectory_algebraics(times: np.ndarray, states: np.ndarray, phase_params: n
 
     Parameters
     ----------
-    times : array, shape (n,)
+    times : float64 array, shape (n,)
         Row times [s] (an ambient profile is a function of time).
-    states : array, shape (n, n_states)
-        State rows (SI units).
-    phase_params : array, shape (n_phases, len(p))
-        The parameter vector of each phase.
-    phase_index : array of int, shape (n,)
-        The phase of each row.
+    states : float64 array, shape (n, n_states)
+        State rows (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
+    phase_params : float64 array, shape (n_phases, len(p))
+        The parameter vector of each phase [SI, unit per slot].
+    phase_index : int array, shape (n,)
+        The phase of each row [-].
 
     Returns
     -------
-    array, shape (n, N_ALGEBRAICS)
+    float64 array, shape (n, N_ALGEBRAICS)
         Current [A], voltages [V], heats [W], ... in the declared order.
     """
     params = phase_params[phase_index]

@@ -1,4 +1,10 @@
-"""Integrator settings: tolerances, output grid, back end and its Newton matrix."""
+"""Integrator settings: tolerances, output grid, back end and its Newton matrix.
+
+:class:`SolverOptions` is what the scenario layer hands to both drivers. This
+module imports nothing of the engine but the layout (for the number of
+quadratures); it names the back ends only in text, so it must not import
+:mod:`thermoelec.engine.backends`, the kernels or the drivers.
+"""
 
 from __future__ import annotations
 
@@ -31,7 +37,7 @@ class SolverOptions:
     Attributes
     ----------
     backend : str
-        A key of :data:`BACKENDS`.
+        A key of :data:`thermoelec.engine.backends.BACKENDS`.
     rtol : float
         Relative tolerance [-].
     atol_soc, atol_voltage, atol_temperature, atol_integral : float or None
@@ -60,8 +66,8 @@ class SolverOptions:
         Newton matrix of the CVODE back end: ``"dense"`` (the full Jacobian),
         ``"diagonal"`` (its diagonal only: one right-hand-side call to form, no
         matrix to hand over), or ``"auto"``: diagonal for a phase in which it
-        converges fast (:data:`DIAGONAL_CONTRACTION`), dense otherwise and for a
-        phase the diagonal one failed.
+        converges fast (:data:`thermoelec.engine.backends.DIAGONAL_CONTRACTION`),
+        dense otherwise and for a phase the diagonal one failed.
     scipy_method : str
         ``solve_ivp`` method for the scipy back end.
     """
@@ -79,7 +85,19 @@ class SolverOptions:
     scipy_method: str = "LSODA"
 
     def atol_vector(self, n_rc: int) -> np.ndarray:
-        """Per-state absolute tolerances in state order."""
+        """Per-state absolute tolerances in state order (:mod:`thermoelec.engine.layout`).
+
+        Parameters
+        ----------
+        n_rc : int
+            Number of RC pairs of the cell [-].
+
+        Returns
+        -------
+        float64 array, shape (n_states,)
+            Tolerance of the SoC [-], of each RC voltage [V], of the cell, sink and
+            coolant temperatures [K] and of each quadrature [J, C].
+        """
         def atol(name: str) -> float:
             given = getattr(self, f"atol_{name}")
             return given if given is not None else self.rtol * ATOL_SCALES[name]

@@ -3,6 +3,10 @@
 :class:`Problem` is what the scenario layer builds and both drivers integrate;
 :func:`pack_parameters` writes it into the flat vector the kernels read (its
 layout is declared in :mod:`thermoelec.engine.layout`).
+
+This module imports nothing of the engine but the layout and the profile (and
+physics' cell and thermal data); it must not import the mission, the kernels,
+the back ends or the drivers, which all take a :class:`Problem`.
 """
 
 from __future__ import annotations
@@ -23,7 +27,15 @@ __all__ = ["Limits", "Problem", "StressSettings", "pack_parameters"]
 
 @dataclass(frozen=True)
 class Limits:
-    """Operating limits [V per cell, K]."""
+    """Operating limits of the cell temperature (the voltage limits are the cell's own).
+
+    Attributes
+    ----------
+    cell_temperature_max : float
+        The mission stops when the cell temperature rises to it (event ``temperature_max``) [K].
+    charge_temperature_min : float
+        Charging below it is reported after the run (by the results layer), not an event [K].
+    """
 
     cell_temperature_max: float = ZERO_CELSIUS + 60.0
     charge_temperature_min: float = ZERO_CELSIUS
@@ -49,7 +61,41 @@ class StressSettings:
 
 @dataclass(frozen=True)
 class Problem:
-    """Everything needed to simulate one scenario, in SI units."""
+    """Everything needed to simulate one scenario, in SI units.
+
+    Attributes
+    ----------
+    cell : Cell
+        Equivalent-circuit and thermal data of one cell (:class:`thermoelec.physics.cell.Cell`).
+    pack : Pack
+        Cells in series and in parallel, interconnect resistance [Ω].
+    thermal : ThermalNetwork
+        Conductances [W/K], heat capacities [J/K] and the cooling options.
+    segments : tuple of Segment
+        The mission profile, pack level [SI].
+    ambient_temperature : float
+        Ambient of the mission [K], where neither a segment nor ``ambient_profile`` sets it.
+    initial_soc : float
+        State of charge at t = 0 [-].
+    initial_cell_temperature, initial_sink_temperature : float
+        Node temperatures at t = 0 [K].
+    limits : Limits
+        Temperature limits [K].
+    name : str
+        Scenario name, for reports.
+    stress : StressSettings
+        Arrhenius weighting of time for the ageing-stress indicators.
+    initial_coolant_temperature : float or None
+        Coolant node temperature at t = 0 [K]; None: the coolant inlet temperature
+        (the sink temperature without a coolant).
+    ambient_profile : tuple of two arrays or None
+        Times [s] and ambient temperatures [K], linear in time; a segment with its own
+        ambient holds that instead.
+    soak : tuple of Segment
+        Segments run before the mission as a problem of their own
+        (:func:`thermoelec.engine.mission.soak_problem`); the mission starts from their
+        end state with the integrals reset.
+    """
 
     cell: Cell
     pack: Pack
@@ -68,11 +114,20 @@ class Problem:
 
     @property
     def n_rc(self) -> int:
-        """Number of RC pairs."""
+        """Number of RC pairs of the cell [-]."""
         return len(self.cell.rc)
 
     def initial_state(self) -> np.ndarray:
-        """State vector at t = 0: RC pairs relaxed, integrals zero."""
+        """State vector at t = 0: RC pairs relaxed, integrals zero.
+
+        Returns
+        -------
+        float64 array, shape (n_states,)
+            The state (:mod:`thermoelec.engine.layout`): the initial SoC [-], RC
+            voltages 0 [V], the initial cell and sink temperatures [K], the coolant node
+            at ``initial_coolant_temperature``, else the coolant inlet, else the sink
+            temperature [K], and the quadratures 0 [J, C].
+        """
         y = np.zeros(L.n_states(self.n_rc))
         y[0] = self.initial_soc
         y[L.cell_temperature_index(self.n_rc)] = self.initial_cell_temperature
@@ -87,7 +142,20 @@ class Problem:
         return y
 
     def ambient_at(self, time: float) -> float:
-        """Ambient temperature [K] at ``time`` [s] from the ambient profile (else the constant)."""
+        """Ambient temperature at ``time`` from the ambient profile, else the constant ambient.
+
+        Linear in time between the profile's points, held at its end values outside them.
+
+        Parameters
+        ----------
+        time : float
+            Mission time [s].
+
+        Returns
+        -------
+        float
+            Ambient temperature [K].
+        """
         if self.ambient_profile is None:
             return self.ambient_temperature
         return float(np.interp(time, *self.ambient_profile))
@@ -96,15 +164,21 @@ class Problem:
 def pack_parameters(problem: Problem) -> np.ndarray:
     """The flat parameter vector of :mod:`thermoelec.engine.layout`, the phase slots left at zero.
 
+    The phase slots (mode, demand, root functions) are left at zero and the ambient
+    at the mission's: :func:`thermoelec.engine.mission.configure_phase` writes them at
+    every phase start, and the flag of each thermostat present. The fan and heater
+    flags start off, the pump's on (a coolant without a pump thermostat always flows).
+
     Parameters
     ----------
     problem : Problem
-        The SI problem.
+        The scenario in SI units [SI].
 
     Returns
     -------
-    array of float
-        Header then blocks; :func:`thermoelec.engine.layout.describe` prints it by name.
+    float64 array
+        Header then blocks [SI, unit per slot]; :func:`thermoelec.engine.layout.describe`
+        prints it by name.
     """
     c, pk, th = problem.cell, problem.pack, problem.thermal
     header = np.zeros(L.HEADER)

@@ -1,9 +1,12 @@
 """Mission profiles: load segments, repeats, zero-order-hold series, CC-CV.
 
 A profile is a list of :class:`Segment` in SI units (pack level). The scenario
-layer builds them from the file; the solve layer turns each into one or more
+layer builds them from the file; the mission plan
+(:func:`thermoelec.engine.mission.plan_mission`) turns each into one or more
 integration phases (a CC-CV segment has a constant-current and a
 constant-voltage phase).
+
+This module imports nothing of the engine (the problem and the mission plan read it).
 """
 
 from __future__ import annotations
@@ -62,7 +65,20 @@ class Segment:
 
 
 def expand_repeats(segments: list[Segment], repeat: int) -> list[Segment]:
-    """The segment list run ``repeat`` times, origins tagged with the pass number."""
+    """The segment list run ``repeat`` times, origins tagged with the pass number.
+
+    Parameters
+    ----------
+    segments : list of Segment
+        One pass of the profile, pack level, SI units [SI].
+    repeat : int
+        Number of passes, >= 1 [-]; 1 returns the segments untagged (a new list).
+
+    Returns
+    -------
+    list of Segment
+        ``repeat`` copies one after the other, each origin followed by ``(pass k)`` [SI].
+    """
     if repeat == 1:
         return list(segments)
     return [replace(s, origin=f"{s.origin} (pass {k + 1})") for k in range(repeat) for s in segments]
@@ -85,17 +101,19 @@ def segments_from_series(
     time : array of float
         Strictly increasing time stamps [s].
     mode : str
-        One of :data:`DEMAND_MODES`.
+        One of :data:`DEMAND_MODES` [-].
     demand : array of float
-        Demand per row in the unit of ``mode`` (SI).
+        Demand per row in the unit of ``mode`` (SI) [A, W, Ω or V].
     ambient_temperature : array of float or None
         Ambient temperature per row [K].
     origin : str
-        File name, for messages.
+        File name, for messages [-].
 
     Returns
     -------
     list of Segment
+        ``n - 1`` segments: durations [s], demands in the unit of ``mode`` [A, W, Ω or V],
+        ambient temperatures [K], origins ``"<origin> row k"``.
     """
     durations = np.diff(time)
     return [
