@@ -1,31 +1,44 @@
-"""The benchmarks run in a quick mode so they never rot (no timing is asserted here)."""
+"""The benchmarks run in a quick mode so they never rot (no timing is asserted here).
+
+The quick runs take minutes, so they are ``slow`` tests (``make test-all``,
+and ``make bench`` runs the benchmarks in full); what ``make test`` keeps is
+that every script still imports the package as it is and parses its options.
+"""
 
 import subprocess
 import sys
 from pathlib import Path
 
+import pytest
+
 BENCHMARKS = Path(__file__).resolve().parents[1] / "benchmarks"
+SCRIPTS = sorted(path.name for path in BENCHMARKS.glob("bench_*.py"))
 
 
-def test_single_mission_benchmark_runs_quick():
-    proc = subprocess.run([sys.executable, str(BENCHMARKS / "bench_single_mission.py"), "--quick"],
-                          capture_output=True, text=True, timeout=300)
-    assert proc.returncode == 0, proc.stderr
-    assert "speed-up of CVODE over the LSODA loop" in proc.stdout
-
-
-def _run_quick(script: str) -> str:
-    proc = subprocess.run([sys.executable, str(BENCHMARKS / script), "--quick"], capture_output=True, text=True,
-                          timeout=600)
+def _run(script: str, *arguments: str, timeout: float = 600) -> str:
+    proc = subprocess.run([sys.executable, str(BENCHMARKS / script), *arguments], capture_output=True, text=True,
+                          timeout=timeout)
     assert proc.returncode == 0, proc.stderr
     return proc.stdout
 
 
+@pytest.mark.parametrize("script", SCRIPTS)
+def test_every_benchmark_imports_and_parses_its_options(script):
+    assert "--quick" in _run(script, "--help", timeout=120)
+
+
+@pytest.mark.slow
+def test_single_mission_benchmark_runs_quick():
+    assert "speed-up of CVODE over the LSODA loop" in _run("bench_single_mission.py", "--quick")
+
+
+@pytest.mark.slow
 def test_sweep_benchmark_runs_quick():
-    out = _run_quick("bench_sweep.py")
+    out = _run("bench_sweep.py", "--quick")
     assert "speed-up over the LSODA loop" in out and "ratio to the RK4 floor" in out and "peak Tc" in out
 
 
+@pytest.mark.slow
 def test_sweep_scale_benchmark_runs_quick():
-    out = _run_quick("bench_sweep_scale.py")
+    out = _run("bench_sweep_scale.py", "--quick")
     assert "linear in scenarios" in out and "peak memory" in out

@@ -30,13 +30,13 @@ from thermoelec.analysis import diagnostics
 from thermoelec.analysis.metrics import Extremes, mission_metrics
 from thermoelec.engine import layout as L
 from thermoelec.engine.driver import Trajectory
-from thermoelec.engine.events import CONTROL_EVENTS, EVENT_NAMES
+from thermoelec.engine.events import CCCV_CAP_EVENT, CONTROL_EVENTS, EVENT_NAMES
 from thermoelec.engine.options import SolverOptions
 from thermoelec.engine.problem import Problem
 from thermoelec.physics.constants import COULOMBS_PER_AH, JOULES_PER_WH, ZERO_CELSIUS
 from thermoelec.physics.loads import LOAD_MODES, MODE_CURRENT
 
-__all__ = ["CCCV_CAP_EVENT", "DEMAND_MODES", "REST_MODE", "SERIES_UNITS", "THERMOSTAT_EVENTS", "SimulationResult",
+__all__ = ["DEMAND_MODES", "REST_MODE", "SERIES_UNITS", "THERMOSTAT_EVENTS", "SimulationResult",
            "build_result"]
 
 #: Reported series and their units; the first ten are the output contract.
@@ -98,9 +98,6 @@ REST_MODE = "rest"
 DEMAND_MODES: tuple[str, ...] = (REST_MODE, *MODE_NAMES)
 #: Names of the thermostat switch events (fan, heater, pump), from the event registry.
 THERMOSTAT_EVENTS: tuple[str, ...] = tuple(EVENT_NAMES[code] for code in CONTROL_EVENTS)
-#: The driver's event for a CC-CV charge stopped by its duration cap (no root function, so not in the
-#: event registry of :mod:`thermoelec.engine.events`).
-CCCV_CAP_EVENT = "cccv_cap"
 
 
 def _celsius(kelvin: np.ndarray | float) -> np.ndarray | float:

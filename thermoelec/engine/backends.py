@@ -22,7 +22,7 @@ from typing import Protocol
 import numpy as np
 
 from thermoelec.engine.events import N_EVENTS
-from thermoelec.engine.layout import H_ACTIVE
+from thermoelec.engine.layout import H_ACTIVE, H_TIME
 from thermoelec.engine.model import Kernels
 from thermoelec.engine.options import SolverOptions
 
@@ -317,6 +317,7 @@ class ScipyBackend:
         kernels = self.kernels
 
         def event(t: float, y: np.ndarray) -> float:
+            kernels.p[H_TIME] = t  # the root functions do not read the ambient, but keep p's time true
             return kernels.event_values(y)[k]
 
         event.terminal = True

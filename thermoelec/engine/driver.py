@@ -32,6 +32,7 @@ from thermoelec.engine.events import (
     ACTION_NEXT_PHASE,
     ACTION_STOP,
     ACTION_TOGGLE,
+    CCCV_CAP_EVENT,
     CONTROL_EVENTS,
     EVENT_ACTION,
     EVENT_NAMES,
@@ -261,7 +262,7 @@ def _walk(plan: MissionPlan, problem: Problem, p: np.ndarray, kernels: Kernels, 
         if run.status == "failed":
             return seg
         if ended_by_time and plan.capped[seg]:
-            run.events.append({"time_s": t, "event": "cccv_cap", "segment": seg, "origin": plan.origins[seg]})
+            run.events.append({"time_s": t, "event": CCCV_CAP_EVENT, "segment": seg, "origin": plan.origins[seg]})
     return plan.n_segments
 
 

@@ -20,9 +20,25 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["ACTION_END_SEGMENT", "ACTION_NEXT_PHASE", "ACTION_STOP", "ACTION_TOGGLE", "CONTROL_EVENTS", "EVENTS",
-           "EVENT_ACTION", "EVENT_NAMES", "EVENT_PRIORITY", "EVENT_RANK", "EVENT_SCALES", "N_EVENTS",
-           "ROOT_TOLERANCE", "STOP_EVENTS", "STOP_REASONS", "Event"]
+__all__ = [
+    "ACTION_END_SEGMENT",
+    "ACTION_NEXT_PHASE",
+    "ACTION_STOP",
+    "ACTION_TOGGLE",
+    "CCCV_CAP_EVENT",
+    "CONTROL_EVENTS",
+    "EVENTS",
+    "EVENT_ACTION",
+    "EVENT_NAMES",
+    "EVENT_PRIORITY",
+    "EVENT_RANK",
+    "EVENT_SCALES",
+    "N_EVENTS",
+    "ROOT_TOLERANCE",
+    "STOP_EVENTS",
+    "STOP_REASONS",
+    "Event",
+]
 
 #: What an event does to the phase it fires in (kernel codes).
 ACTION_STOP, ACTION_NEXT_PHASE, ACTION_END_SEGMENT, ACTION_TOGGLE = 0, 1, 2, 3
@@ -107,6 +123,9 @@ STOP_EVENTS: dict[int, str] = {code: event.stop_reason for code, event in enumer
                                if event.action == ACTION_STOP and event.stop_reason is not None}
 #: Every stop reason a mission can end with: the profile ran out, a stop event, or the solver failed.
 STOP_REASONS: tuple[str, ...] = ("end_of_profile", *dict.fromkeys(STOP_EVENTS.values()), "solver_error")
+#: Reported when a CC-CV segment without a duration reaches its cap (:func:`thermoelec.engine.mission.cccv_cap`)
+#: before its cutoff current: a note of the driver, not a root function.
+CCCV_CAP_EVENT = "cccv_cap"
 #: A root function within this many of its scales of zero (or below) counts as fired.
 ROOT_TOLERANCE = 1e-9
 #: Which event wins when several fire at once (first wins): the power limit (no solution past it),

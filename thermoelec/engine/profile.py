@@ -16,12 +16,7 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-__all__ = ["DEMAND_MODES", "MODES", "Segment", "expand_repeats", "segments_from_series"]
-
-#: Load modes with one demand value, and the unit of that value (pack level).
-DEMAND_MODES: dict[str, str] = {"current": "A", "power": "W", "resistance": "ohm", "voltage": "V"}
-#: Every segment mode of the scenario format.
-MODES: tuple[str, ...] = (*DEMAND_MODES, "rest", "cccv")
+__all__ = ["Segment", "expand_repeats", "segments_from_series"]
 
 
 @dataclass(frozen=True)
@@ -31,7 +26,8 @@ class Segment:
     Attributes
     ----------
     mode : str
-        One of :data:`MODES`.
+        A load mode of :data:`thermoelec.physics.loads.LOAD_MODES`, ``rest`` or ``cccv``
+        (a soak is a rest at its own ambient).
     value : float
         Demand: current [A], power [W], load resistance [Ω] or terminal voltage
         [V]; for ``cccv`` the constant charge current [A] (negative); 0 for ``rest``.

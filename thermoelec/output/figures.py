@@ -21,8 +21,8 @@ from typing import Any
 import numpy as np
 from matplotlib.figure import Figure
 
-from thermoelec.analysis.results import CCCV_CAP_EVENT, DEMAND_MODES, THERMOSTAT_EVENTS, SimulationResult
-from thermoelec.engine.events import EV_CV_CUTOFF, EV_CV_SWITCH, EVENT_NAMES, STOP_EVENTS
+from thermoelec.analysis.results import DEMAND_MODES, THERMOSTAT_EVENTS, SimulationResult
+from thermoelec.engine.events import CCCV_CAP_EVENT, EV_CV_CUTOFF, EV_CV_SWITCH, EVENT_NAMES, STOP_EVENTS
 from thermoelec.physics.constants import COULOMBS_PER_AH, SECONDS_PER_HOUR
 from thermoelec.physics.loads import maximum_power, voltage_limited_power
 

@@ -294,7 +294,20 @@ class Cell:
     geometry: CellGeometry | None = None
 
     def ocv(self, soc: float, temperature: float) -> float:
-        """Open-circuit voltage [V] at ``soc`` [-] and ``temperature`` [K]."""
+        """Open-circuit voltage of the cell, corrected for temperature by the entropic coefficient.
+
+        Parameters
+        ----------
+        soc : float
+            State of charge [-].
+        temperature : float
+            Cell temperature [K].
+
+        Returns
+        -------
+        float
+            Open-circuit voltage [V] (:func:`open_circuit_voltage`).
+        """
         return open_circuit_voltage(interpolate_1d(self.ocv_soc, self.ocv_voltage, soc),
                                     interpolate_1d(self.ocv_soc, self.ocv_entropic, soc),
                                     temperature, self.ocv_reference_temperature)
@@ -323,14 +336,26 @@ class CellGeometry:
         return "cylindrical" if self.diameter is not None else "prismatic"
 
     def volume(self) -> float:
-        """Cell volume [m³]."""
+        """Cell volume.
+
+        Returns
+        -------
+        float
+            Volume [m³]: ``π D² L / 4`` for a cylinder, ``t w h`` for a prism.
+        """
         if self.diameter is not None and self.length is not None:
             return np.pi * self.diameter**2 / 4.0 * self.length
         assert self.thickness is not None and self.width is not None and self.height is not None
         return self.thickness * self.width * self.height
 
     def surface_area(self) -> float:
-        """Outer surface, ends included [m²]."""
+        """Outer surface, ends included.
+
+        Returns
+        -------
+        float
+            Area [m²]: ``π D L + π D² / 2`` for a cylinder, ``2 (w h + t w + t h)`` for a prism.
+        """
         if self.diameter is not None and self.length is not None:
             return np.pi * self.diameter * self.length + np.pi * self.diameter**2 / 2.0
         assert self.thickness is not None and self.width is not None and self.height is not None

@@ -473,7 +473,22 @@ class ValidityRange:
     form: str = ""
 
     def value(self, reynolds, rayleigh, prandtl):
-        """The bounded group from Re, Ra and Pr [-] (scalars or arrays alike)."""
+        """The bounded group (Re, Re Pr, Pr or Ra) from the flow's numbers, scalars or arrays alike.
+
+        Parameters
+        ----------
+        reynolds : float or array
+            Reynolds number [-].
+        rayleigh : float or array
+            Rayleigh number [-].
+        prandtl : float or array
+            Prandtl number [-].
+
+        Returns
+        -------
+        float or array
+            The group this range bounds [-].
+        """
         if self.quantity == "Re":
             return reynolds
         if self.quantity == "Re Pr":
@@ -483,19 +498,47 @@ class ValidityRange:
         return rayleigh
 
     def applies(self, surface_hot):
-        """Whether the range applies for a surface at or above the air temperature (bool or bool array)."""
+        """Whether the range applies to a surface that is (or is not) at or above the air temperature.
+
+        Parameters
+        ----------
+        surface_hot : bool or bool array
+            The surface is at or above the air temperature.
+
+        Returns
+        -------
+        bool array
+            Where the range applies (every element for a range of ``surface = "any"``).
+        """
         hot = np.asarray(surface_hot, dtype=bool)
         if self.surface == "any":
             return np.ones_like(hot)
         return hot if self.surface == "hot" else ~hot
 
     def contains(self, value) -> bool:
-        """True when every value lies within the bounds."""
+        """True when every value lies within the bounds.
+
+        Parameters
+        ----------
+        value : float or array
+            Values of the bounded group [-].
+
+        Returns
+        -------
+        bool
+            All within ``low <= value <= high``.
+        """
         values = np.asarray(value, dtype=float)
         return bool(np.all((values >= self.low) & (values <= self.high)))
 
     def describe(self) -> str:
-        """The range in words: ``1e+04 <= Ra <= 1e+11``, ``0.2 <= Re Pr``, ``Ra <= 1e+12``."""
+        """The range in words.
+
+        Returns
+        -------
+        str
+            ``1e+04 <= Ra <= 1e+11``, ``0.2 <= Re Pr``, ``Ra <= 1e+12``.
+        """
         parts = []
         if self.low > 0.0:
             parts.append(f"{self.low:.3g} <=")
@@ -543,17 +586,44 @@ class Correlation:
     facing: Literal["up", "down"] | None = None
 
     def evaluate(self, number: float, prandtl: float, surface_hot: bool = True) -> float:
-        """Nusselt number [-] at ``Re`` (forced) or ``Ra`` (natural) [-] and ``Pr`` [-].
+        """The correlation's Nusselt number.
 
-        ``surface_hot`` (the surface at or above the air temperature) picks the
-        form of a horizontal plate; the other correlations ignore it.
+        Parameters
+        ----------
+        number : float
+            Reynolds number (forced) or Rayleigh number (natural) [-].
+        prandtl : float
+            Prandtl number [-].
+        surface_hot : bool
+            The surface is at or above the air temperature: picks the form of a
+            horizontal plate; the other correlations ignore it.
+
+        Returns
+        -------
+        float
+            Average Nusselt number [-].
         """
         if self.facing is None:
             return self.nusselt(number, prandtl)
         return self.nusselt(number, surface_hot if self.facing == "up" else not surface_hot)
 
     def is_valid(self, number: float, prandtl: float, surface_hot: bool = True) -> bool:
-        """True when ``Re`` or ``Ra`` [-] and ``Pr`` [-] lie inside every range that applies."""
+        """True when the flow lies inside every validity range that applies.
+
+        Parameters
+        ----------
+        number : float
+            Reynolds number (forced) or Rayleigh number (natural) [-].
+        prandtl : float
+            Prandtl number [-].
+        surface_hot : bool
+            The surface is at or above the air temperature (for a horizontal plate's ranges).
+
+        Returns
+        -------
+        bool
+            Inside every applicable range.
+        """
         reynolds, rayleigh = (number, 0.0) if self.kind == "forced" else (0.0, number)
         return all(rng.contains(rng.value(reynolds, rayleigh, prandtl))
                    for rng in self.validity if rng.applies(surface_hot))

@@ -237,7 +237,18 @@ class Switch:
         return self.on_at < self.off_at
 
     def initially_on(self, temperature: float) -> bool:
-        """On at the start when the temperature is already past the on threshold."""
+        """Whether the thermostat is on at the start: the temperature is already past its on threshold.
+
+        Parameters
+        ----------
+        temperature : float
+            Cell temperature at the start [K].
+
+        Returns
+        -------
+        bool
+            On: at or below ``on_at`` for a heating switch, at or above it for a cooling one.
+        """
         return temperature <= self.on_at if self.heating else temperature >= self.on_at
 
 

@@ -2,7 +2,7 @@
 
 The rule of the project's style (numpydoc, a ``[unit]`` for every parameter and
 return, docstrings that agree with the signature), checked by the reader of
-:mod:`tests.physics.docstrings`. Add a package or a module to :data:`CHECKED`
+:mod:`tests.docstrings`. Add a package or a module to :data:`CHECKED`
 to hold it to the same rule.
 """
 
@@ -13,7 +13,7 @@ import pytest
 from .docstrings import modules, problems, public_functions
 
 #: Packages (each of their modules) and modules whose public functions are checked.
-CHECKED = ["thermoelec.physics"]
+CHECKED = ["thermoelec.physics", "thermoelec.engine"]
 
 FUNCTIONS = [f for module in modules(CHECKED) for f in public_functions(module)]
 

@@ -11,10 +11,12 @@ and returns that are not quantities (a name, a flag, an object) need no unit.
 
 from __future__ import annotations
 
+import ast
 import importlib
 import inspect
 import pkgutil
 import re
+import textwrap
 from collections.abc import Callable, Iterator
 from types import ModuleType
 
@@ -82,7 +84,7 @@ def problems(function: Callable) -> list[str]:
             issues.append(f"{name}: parameter {head!r} has no [unit]")
     if documented != wanted:
         issues.append(f"{name}: documents parameters {documented}, the signature has {wanted}")
-    if signature.return_annotation not in (None, "None"):
+    if _returns_a_value(function, signature):
         returns = entries(found.get("Returns", []))
         if not returns:
             issues.append(f"{name}: no Returns section")
@@ -91,6 +93,17 @@ def problems(function: Callable) -> list[str]:
             if is_quantity(kind) and not UNIT.search(f"{kind} {text}"):
                 issues.append(f"{name}: return {head!r} has no [unit]")
     return issues
+
+
+def _returns_a_value(function: Callable, signature: inspect.Signature) -> bool:
+    """Whether the function returns something: by its annotation, else (a numba kernel has none) by its source."""
+    if signature.return_annotation is not inspect.Signature.empty:
+        return signature.return_annotation not in (None, "None")
+    tree = ast.parse(textwrap.dedent(inspect.getsource(function)))
+    body = tree.body[0]
+    inner = [n for n in ast.walk(body) if isinstance(n, (ast.FunctionDef, ast.Lambda)) and n is not body]
+    nested = {id(n) for f in inner for n in ast.walk(f)}
+    return any(isinstance(n, ast.Return) and n.value is not None and id(n) not in nested for n in ast.walk(body))
 
 
 def modules(names: list[str]) -> Iterator[ModuleType]:
@@ -105,6 +118,16 @@ def modules(names: list[str]) -> Iterator[ModuleType]:
 
 
 def public_functions(module: ModuleType) -> list[Callable]:
-    """The functions of ``module.__all__`` defined in the module itself (re-exports are checked at home)."""
-    objects = (getattr(module, name) for name in getattr(module, "__all__", ()))
-    return [f for f in objects if inspect.isfunction(f) and f.__module__ == module.__name__]
+    """The public functions defined in ``module`` (numba kernels by their Python function) and the public
+    methods of its public classes; re-exports are checked at home, properties by their one-line summary."""
+    found: list[Callable] = []
+    for name, obj in vars(module).items():
+        if name.startswith("_"):
+            continue
+        obj = getattr(obj, "py_func", obj)  # a numba dispatcher holds the function it compiles
+        if inspect.isfunction(obj) and obj.__module__ == module.__name__:
+            found.append(obj)
+        elif inspect.isclass(obj) and obj.__module__ == module.__name__:
+            found += [member for key, member in vars(obj).items()
+                      if inspect.isfunction(member) and not key.startswith("_")]
+    return found
