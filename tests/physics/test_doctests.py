@@ -13,7 +13,7 @@ import io
 
 import pytest
 
-from .docstrings import modules
+from ..docstrings import modules
 
 PACKAGES = ["thermoelec.physics"]
 MODULES = list(modules(PACKAGES))
