@@ -169,10 +169,10 @@ def test_registry_names_and_codes():
         assert 0 not in codes  # 0 is "none" in the kernels
     assert set(corr.FORCED_CORRELATION_NAMES).isdisjoint(corr.NATURAL_CORRELATION_NAMES)
     assert set(corr.FORCED_CORRELATION_NAMES) | set(corr.NATURAL_CORRELATION_NAMES) == set(corr.CORRELATIONS)
-    # the codes are those the kernels had before the registry: the registry changes no number
-    assert corr.FORCED_CORRELATIONS == {"cylinder_crossflow": 1, "flat_plate": 2}
-    assert corr.NATURAL_CORRELATIONS == {"horizontal_cylinder": 1, "vertical_plate": 2, "horizontal_plate_up": 3,
-                                         "horizontal_plate_down": 4}
+    # the codes are those the kernels had before the registry (a new entry takes a new code)
+    assert {"cylinder_crossflow": 1, "flat_plate": 2}.items() <= corr.FORCED_CORRELATIONS.items()
+    assert {"horizontal_cylinder": 1, "vertical_plate": 2, "horizontal_plate_up": 3,
+            "horizontal_plate_down": 4}.items() <= corr.NATURAL_CORRELATIONS.items()
 
 
 def test_registry_entries_document_themselves():
@@ -230,8 +230,8 @@ def test_mixed_convection_in_the_dispatch():
 
 
 def test_unknown_name_lists_the_valid_ones():
-    with pytest.raises(ValueError, match="unknown convection correlation 'sphere'") as error:
-        corr.correlation("sphere")
+    with pytest.raises(ValueError, match="unknown convection correlation 'no_such_correlation'") as error:
+        corr.correlation("no_such_correlation")
     for name in corr.CORRELATIONS:
         assert name in str(error.value)
     with pytest.raises(ValueError, match="unknown forced convection correlation 'vertical_plate'") as error:
