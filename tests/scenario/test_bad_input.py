@@ -90,7 +90,7 @@ SCENARIO_CASES = [
     ("correlation-without-length", 'sink_to_ambient = "0.3 W/K"',
      '[thermal.convection]\nnatural = "vertical_plate"\narea = "0.05 m^2"', "thermal.convection.length"),
     ("correlation-unknown", 'sink_to_ambient = "0.3 W/K"',
-     '[thermal.convection]\nnatural = "sphere"\nlength = 0.1\narea = 0.05', "thermal.convection.natural"),
+     '[thermal.convection]\nnatural = "no_such_correlation"\nlength = 0.1\narea = 0.05', "thermal.convection.natural"),
     ("air-speed-without-forced", 'sink_to_ambient = "0.3 W/K"',
      '[thermal.convection]\nnatural = "vertical_plate"\nlength = 0.1\narea = 0.05\nair_speed = "2 m/s"',
      "thermal.convection.air_speed"),
