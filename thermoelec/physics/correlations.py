@@ -702,10 +702,10 @@ def correlation(name: str, kind: CorrelationKind | None = None) -> Correlation:
     --------
     >>> correlation("vertical_plate").method
     'Churchill-Chu, Incropera Eq. 9.26'
-    >>> correlation("no_such_correlation", "natural")
+    >>> correlation("cone", "natural")
     Traceback (most recent call last):
     ...
-    ValueError: unknown natural convection correlation 'no_such_correlation'; valid: horizontal_cylinder, vertical_plate, \
+    ValueError: unknown natural convection correlation 'cone'; valid: horizontal_cylinder, vertical_plate, \
 horizontal_plate_up, horizontal_plate_down
     """
     entry = CORRELATIONS.get(name)
