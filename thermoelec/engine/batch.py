@@ -4,8 +4,8 @@ Short segments make CVODE pay its restart (order 1, small first steps, a new
 Jacobian) at every breakpoint. An explicit one-step method pays nothing to
 restart: it keeps its step size across a breakpoint and only shortens the step
 that would cross it. So scenarios are integrated here with the Bogacki-Shampine
-3(2) pair (P. Bogacki, L. F. Shampine, Appl. Math. Lett. 2 (1989) 321; the pair
-of MATLAB's ode23 and scipy's RK23), with per-scenario error control on the
+3(2) pair (P. Bogacki, L. F. Shampine, Appl. Math. Lett. 2 (1989) 321; scipy's
+``RK23`` uses the same pair), with per-scenario error control on the
 engine's own right-hand side kernel (``model.evaluate``, so the physics is the
 engine's) and the same per-state tolerances, each step ending at or before the
 next segment boundary.
