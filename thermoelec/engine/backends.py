@@ -270,9 +270,11 @@ class CvodeBackend:
                 try:
                     out = solver.step(float(tout))
                 except Exception as exc:  # scikits.odes raises for some failures instead of flagging
+                    _raise_interrupt(self.kernels.error)
                     return PhaseOutcome(times, states, "error", f"CVODE: {exc}")
                 flag = int(out.flag)
                 if self.kernels.error is not None:
+                    _raise_interrupt(self.kernels.error)
                     return PhaseOutcome(times, states, "error", f"right-hand side failed: {self.kernels.error!r}")
                 if flag == 2:  # root found; out.roots keeps every root since init, values is this one
                     times.append(float(out.values.t))
@@ -285,6 +287,12 @@ class CvodeBackend:
         finally:
             self._accumulate(solver)
         return PhaseOutcome(times, states, "end")
+
+
+def _raise_interrupt(error: BaseException | None) -> None:
+    """Raise what a callback kept if it was no failure but an interrupt (Ctrl-C, SIGTERM): it ends the run."""
+    if error is not None and not isinstance(error, Exception):
+        raise error
 
 
 class ScipyBackend:

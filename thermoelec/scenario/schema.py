@@ -18,7 +18,7 @@ import itertools
 from typing import Annotated, Any, Literal
 
 import numpy as np
-from pydantic import BaseModel, BeforeValidator, ConfigDict, model_validator
+from pydantic import BaseModel, BeforeValidator, ConfigDict, create_model, model_validator
 
 from thermoelec.engine.backends import BACKENDS
 from thermoelec.engine.options import SolverOptions
@@ -40,10 +40,18 @@ from thermoelec.physics.thermal import (
 )
 from thermoelec.scenario.series import AMBIENT_COLUMN
 
-__all__ = ["FORMAT_VERSION", "KeyedError", "ScenarioSpec", "SegmentSpec"]
+__all__ = ["FORMAT_VERSION", "MIN_RTOL", "CellFileSpec", "KeyedError", "ScenarioSpec", "SegmentSpec"]
 
 #: The scenario format this schema reads (the file's ``format`` key).
 FORMAT_VERSION = 1
+#: The tightest relative tolerance accepted [-]: about 450 times the double-precision epsilon (2.2e-16);
+#: CVODE refuses a tighter one as "too much accuracy requested", scipy's solvers raise it to 100 epsilon.
+MIN_RTOL = 1e-13
+#: The largest activation energy accepted [J/mol]: cells' Arrhenius laws take 20 to 80 kJ/mol (common
+#: practice); ten times that keeps the factor finite over the temperatures a pack meets.
+MAX_ACTIVATION_ENERGY = 500e3
+#: The most internal steps per phase accepted [-]: CVODE counts them in a C long.
+MAX_STEPS = 2**31 - 1
 #: Default reference temperature of the cell's tables and laws: 25 degC (common practice) [K].
 REFERENCE_TEMPERATURE = ZERO_CELSIUS + 25.0
 
@@ -56,6 +64,28 @@ REFERENCE_TEMPERATURE = ZERO_CELSIUS + 25.0
 def _quantity(default_unit: str, si_unit: str | None = None):
     si = si_unit or default_unit
     return BeforeValidator(lambda v: to_si(v, default_unit, si))
+
+
+def _absolute(value: Any) -> float:
+    """A temperature [K] from a file's value (a bare number in degC), refused at or below absolute zero."""
+    kelvin = to_si(value, "degC", "K")
+    if kelvin <= 0.0:
+        raise ValueError(f"{value!r} is at or below absolute zero ({kelvin - ZERO_CELSIUS:.6g} degC)")
+    return kelvin
+
+
+def _temperature_list(v: Any) -> list[float]:
+    if not isinstance(v, list):
+        raise ValueError(f"expected a list of temperatures in degC, got {v!r}")
+    if not v:
+        raise ValueError("the list is empty")
+    out = []
+    for i, item in enumerate(v):
+        try:
+            out.append(_absolute(item))
+        except ValueError as exc:
+            raise ValueError(f"item {i + 1}: {exc}") from None
+    return out
 
 
 def _quantity_list(default_unit: str, si_unit: str | None = None):
@@ -109,7 +139,7 @@ Resistance = Annotated[float, _quantity("ohm")]
 Capacity = Annotated[float, _quantity("Ah", "C")]
 Mass = Annotated[float, _quantity("kg")]
 SpecificHeat = Annotated[float, _quantity("J/kg/K")]
-Temperature = Annotated[float, _quantity("degC", "K")]
+Temperature = Annotated[float, BeforeValidator(_absolute)]
 HeatCapacity = Annotated[float, _quantity("J/K")]
 Conductance = Annotated[float, _quantity("W/K")]
 Coefficient = Annotated[float, _quantity("W/m^2/K")]
@@ -125,17 +155,21 @@ Dimensionless = Annotated[float, _quantity("", "")]
 SocList = Annotated[list[float], _quantity_list("", "")]
 VoltageList = Annotated[list[float], _quantity_list("V")]
 EntropicList = Annotated[list[float], _quantity_list("V/K")]
-TemperatureList = Annotated[list[float], _quantity_list("degC", "K")]
+TemperatureList = Annotated[list[float], BeforeValidator(_temperature_list)]
 ResistanceTable = Annotated[list[list[float]], _quantity_table("ohm")]
 Count = Annotated[int, BeforeValidator(_positive_int)]
 
 
 class KeyedError(ValueError):
-    """A validation error that knows which key of its section is at fault."""
+    """A validation error that knows which key of its section is at fault.
 
-    def __init__(self, key: str | None, message: str):
+    ``form`` tells a value that cannot be read as its key's kind (a wrong unit) from
+    one read well but out of range or at odds with another key (the default).
+    """
+
+    def __init__(self, key: str | None, message: str, form: bool = False):
         super().__init__(message)
-        self.key = key
+        self.key, self.form = key, form
 
 
 def _check(condition: bool, message: str, key: str | None = None) -> None:
@@ -147,6 +181,13 @@ def _check(condition: bool, message: str, key: str | None = None) -> None:
 def _increasing(values: list[float], what: str) -> None:
     _check(all(b > a for a, b in itertools.pairwise(values)),
            f"{what} must be strictly increasing", what)
+
+
+def _activation_energy(value: float | None, what: str = "activation_energy") -> None:
+    """0 .. :data:`MAX_ACTIVATION_ENERGY`: an Arrhenius factor that stays a finite number."""
+    if value is not None:
+        _check(0.0 <= value <= MAX_ACTIVATION_ENERGY, f"{what} must lie within 0..{MAX_ACTIVATION_ENERGY / 1e3:g} "
+               f"kJ/mol, got {value / 1e3:.4g} kJ/mol", what)
 
 
 def _positive(value: float | None, what: str, allow_zero: bool = False) -> None:
@@ -226,8 +267,7 @@ class ResistanceSpec(_Section):
                 _check(len(row) == len(self.soc), f"values row {r + 1} has {len(row)} values but soc has "
                                                   f"{len(self.soc)}")
                 _check(all(x > 0 for x in row), f"values row {r + 1}: resistances must be > 0")
-        if self.activation_energy is not None:
-            _check(self.activation_energy >= 0, "activation_energy must be >= 0")
+        _activation_energy(self.activation_energy)
         return self
 
     def law(self) -> ResistanceLaw:
@@ -266,6 +306,7 @@ class RCSpec(_Section):
         _positive(self.time_constant, "time_constant")
         if isinstance(self.resistance, float):
             _positive(self.resistance, "resistance")
+        _activation_energy(self.activation_energy)
         return self
 
     def pair(self) -> RCPair:
@@ -312,11 +353,13 @@ class CellSpec(_Section):
         if self.thermal_conductivity is not None:
             _check(bool(cylinder or prism), "thermal_conductivity needs the cell geometry: diameter and length, "
                    "or thickness, width and height", "thermal_conductivity")
-        _check(self.voltage_min < self.voltage_max,
-               f"voltage_min ({self.voltage_min:g} V) must be below voltage_max ({self.voltage_max:g} V)",
-               "voltage_min")
-        _check(0.0 <= self.initial_soc <= 1.0, f"initial_soc must lie within 0..1, got {self.initial_soc:g}",
-               "initial_soc")
+        if self.voltage_min is not None and self.voltage_max is not None:  # a cell file may give one
+            _check(self.voltage_min < self.voltage_max,
+                   f"voltage_min ({self.voltage_min:g} V) must be below voltage_max ({self.voltage_max:g} V)",
+                   "voltage_min")
+        if self.initial_soc is not None:
+            _check(0.0 <= self.initial_soc <= 1.0, f"initial_soc must lie within 0..1, got {self.initial_soc:g}",
+                   "initial_soc")
         return self
 
 
@@ -569,7 +612,7 @@ class SegmentSpec(_Section):
         try:
             value = to_si(self.value, load.unit, load.unit)
         except ValueError as exc:
-            raise KeyedError("value", str(exc)) from None
+            raise KeyedError("value", str(exc), form=True) from None
         if load.positive:
             _positive(value, "value")
         object.__setattr__(self, "value", value)
@@ -597,6 +640,13 @@ class LimitsSpec(_Section):
     cell_temperature_max: Temperature = ZERO_CELSIUS + 60.0  # 60 degC, common practice for Li-ion cells
     charge_temperature_min: Temperature = ZERO_CELSIUS  # no charging below 0 degC (lithium plating; common practice)
 
+    @model_validator(mode="after")
+    def _limits(self):
+        _check(self.charge_temperature_min < self.cell_temperature_max,
+               f"charge_temperature_min ({self.charge_temperature_min - ZERO_CELSIUS:.4g} degC) must be below "
+               f"cell_temperature_max ({self.cell_temperature_max - ZERO_CELSIUS:.4g} degC)", "charge_temperature_min")
+        return self
+
 
 class StressSpec(_Section):
     activation_energy: Energy = StressSettings.activation_energy
@@ -605,7 +655,7 @@ class StressSpec(_Section):
 
     @model_validator(mode="after")
     def _stress(self):
-        _positive(self.activation_energy, "activation_energy", allow_zero=True)
+        _activation_energy(self.activation_energy)
         for key in ("reference_temperature", "hot_temperature"):
             _check(getattr(self, key) > 0, f"{key} is below absolute zero", key)
         return self
@@ -628,7 +678,8 @@ class SolverSpec(_Section):
     def _solver(self):
         _check(self.backend in BACKENDS, f"unknown backend {self.backend!r}; valid: {', '.join(BACKENDS)}",
                "backend")
-        _check(0 < self.rtol < 0.1, f"rtol must lie within 0..0.1, got {self.rtol:g}", "rtol")
+        _check(MIN_RTOL <= self.rtol < 0.1, f"rtol must lie within {MIN_RTOL:g}..0.1, got {self.rtol:g}", "rtol")
+        _check(self.max_steps <= MAX_STEPS, f"max_steps must be at most {MAX_STEPS}", "max_steps")
         _positive(self.output_interval, "output_interval")
         for key in ("atol_soc", "atol_voltage", "atol_temperature"):
             _positive(getattr(self, key), key)
@@ -646,6 +697,26 @@ class CaseSpec(BaseModel):
 
     model_config = ConfigDict(extra="allow", frozen=True)
     name: str
+
+
+def _all_optional(model: type[_Section], name: str) -> type[_Section]:
+    """``model`` with every key optional (default None), the same types, units and checks."""
+    fields = {key: (Annotated[field.annotation | None, *field.metadata] if field.metadata else field.annotation | None,
+                    None) for key, field in model.model_fields.items()}
+    validators = {f"_check_{key}": model_validator(mode="after")(decorator.func)
+                  for key, decorator in model.__pydantic_decorators__.model_validators.items()}
+    return create_model(name, __base__=_Section, __validators__=validators, __doc__=model.__doc__, **fields)
+
+
+#: A cell file's ``[cell]`` (``include = "cell.toml"``, ``fit --cell``): the scenario's keys, units and
+#: checks, each key optional (the scenario that includes it gives the rest).
+CellFileCell = _all_optional(CellSpec, "CellFileCell")
+
+
+class CellFileSpec(_Section):
+    """A cell file: one ``[cell]`` table, validated as the scenario's with every key optional."""
+
+    cell: CellFileCell  # type: ignore[valid-type]
 
 
 class ScenarioSpec(_Section):
