@@ -1,18 +1,24 @@
 """The command line: ``thermoelec run SCENARIO --out DIR`` and ``thermoelec compare SCENARIO --out DIR``.
 
 Exit status: 0 when the run finished (whatever ``completed`` says), 2 for an
-invalid scenario or profile (one message naming the file and the key), 1 for
-anything else (a solver failure still writes what was computed).
+invalid scenario or profile (one message naming the file and the key), for an
+input over its budget and for an output folder in use; 130 after SIGINT
+(Ctrl-C) and 143 after SIGTERM; 1 for anything else (a solver failure still
+writes what was computed).
 """
 
 from __future__ import annotations
 
 import argparse
 import os
+import shlex
 import sys
 from pathlib import Path
 
+from thermoelec.analysis.interrupts import Interrupted, termination_signals
+from thermoelec.analysis.transaction import check_output_path, hold
 from thermoelec.inputs import ScenarioError, to_si
+from thermoelec.inputs.budgets import DEFAULT_BUDGETS, Budgets, using
 from thermoelec.output.tables import print_summary
 from thermoelec.scenario import load_scenario, parse_value
 from thermoelec.version import __version__
@@ -30,6 +36,16 @@ def _overrides(pairs: list[str]) -> dict:
     return overrides
 
 
+def _load(args: argparse.Namespace, extra: dict | None = None):
+    """The scenario of a command, its ``--set`` overrides named as such in messages."""
+    return load_scenario(args.scenario, {**_overrides(args.set or []), **(extra or {})}, overrides_from="--set")
+
+
+def _notes(folder) -> None:
+    for note in folder.notes:
+        print(f"thermoelec: note: {note}", file=sys.stderr)
+
+
 def _write_run(result, scenario, out: Path, figures: bool) -> None:
     """Results first (so a plotting problem loses nothing), then figures and the report."""
     result.write(out)
@@ -42,19 +58,21 @@ def _write_run(result, scenario, out: Path, figures: bool) -> None:
 
 
 def _run(args: argparse.Namespace) -> int:
+    from thermoelec.analysis.estimates import check_run
     from thermoelec.api import simulate
 
-    overrides = _overrides(args.set or [])
-    if args.backend:
-        overrides["solver.backend"] = args.backend
-    scenario = load_scenario(args.scenario, overrides)
-    result = simulate(scenario)
-    out = Path(args.out)
-    try:
-        _write_run(result, scenario, out, not args.no_figures)
-    except OSError as exc:
-        print(f"thermoelec: cannot write results to {out}: {exc.strerror or exc}", file=sys.stderr)
-        return EXIT_FAILURE
+    out = check_output_path(args.out)
+    scenario = _load(args, {"solver.backend": args.backend} if args.backend else None)
+    check_run(scenario)
+    with hold(out, args.command_line) as folder:
+        _notes(folder)
+        result = simulate(scenario)
+        try:
+            with folder.transaction() as stage:
+                _write_run(result, scenario, stage, not args.no_figures)
+        except OSError as exc:
+            print(f"thermoelec: cannot write results to {out}: {exc.strerror or exc}", file=sys.stderr)
+            return EXIT_FAILURE
     if not args.quiet:
         print_summary(result.summary, sys.stdout)
         print(f"results in {out}/", file=sys.stdout)
@@ -78,24 +96,24 @@ def _cases(tokens: list[list[str]]) -> list[tuple[str, dict]]:
 
 
 def _compare(args: argparse.Namespace) -> int:
-    from thermoelec.analysis.compare import case_list, run_cases, write_comparison
+    from thermoelec.analysis.compare import case_list, case_scenarios, run_cases
+    from thermoelec.analysis.estimates import check_compare
     from thermoelec.output.tables import format_comparison
 
-    scenario = load_scenario(args.scenario, _overrides(args.set or []))
-    outcomes = run_cases(scenario, case_list(scenario, _cases(args.case or [])))
-    out = Path(args.out)
-    try:
-        write_comparison(outcomes, out)
-        if not args.no_figures:
-            from thermoelec.output.figures import write_comparison_figure
-            from thermoelec.output.report import comparison_report, write_report
-
-            write_comparison_figure({o.name: o.result for o in outcomes}, out)
-            write_report(comparison_report(outcomes, scenario.raw, scenario.name,
-                                           scenario.spec.scenario.description), out)
-    except OSError as exc:
-        print(f"thermoelec: cannot write results to {out}: {exc.strerror or exc}", file=sys.stderr)
-        return EXIT_FAILURE
+    out = check_output_path(args.out)
+    scenario = _load(args)
+    cases = case_list(scenario, _cases(args.case or []))
+    variants = case_scenarios(scenario, cases)  # every case validated before any is computed
+    check_compare(scenario, variants, [name for name, _ in cases])
+    with hold(out, args.command_line) as folder:
+        _notes(folder)
+        outcomes = run_cases(scenario, cases, variants)
+        try:
+            with folder.transaction() as stage:
+                _write_comparison(outcomes, scenario, stage, not args.no_figures)
+        except OSError as exc:
+            print(f"thermoelec: cannot write results to {out}: {exc.strerror or exc}", file=sys.stderr)
+            return EXIT_FAILURE
     if not args.quiet:
         print(f"scenario: {scenario.name}")
         print(format_comparison(outcomes))
@@ -111,19 +129,38 @@ def _compare(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
-def _quantity_option(text: str, unit: str, option: str) -> float:
+def _write_comparison(outcomes, scenario, out: Path, figures: bool) -> None:
+    from thermoelec.analysis.compare import write_comparison
+
+    write_comparison(outcomes, out)
+    if figures:
+        from thermoelec.output.figures import write_comparison_figure
+        from thermoelec.output.report import comparison_report, write_report
+
+        write_comparison_figure({o.name: o.result for o in outcomes}, out)
+        write_report(comparison_report(outcomes, scenario.raw, scenario.name,
+                                       scenario.spec.scenario.description), out)
+
+
+def _quantity_option(text: str, unit: str, option: str, positive: bool = False) -> float:
     """A command-line quantity (``'68 g'``, ``'-10 degC'``, a bare number in ``unit``) in SI."""
     si = {"degC": "K"}.get(unit, unit)
     try:
-        return to_si(parse_value(text), unit, si)
+        value = to_si(parse_value(text), unit, si)
     except ValueError as exc:
         raise ScenarioError(option, text, str(exc)) from None
+    if positive and not value > 0:
+        raise ScenarioError(option, text, "must be > 0")
+    if si == "K" and not value > 0:
+        raise ScenarioError(option, text, "is at or below absolute zero")
+    return value
 
 
 def _fit(args: argparse.Namespace) -> int:
     from thermoelec.fit import jobs as fit
     from thermoelec.fit.logs import read_mapping
 
+    out = _fit_output(args.out)
     columns = {}
     for pair in args.column or []:
         key, sep, value = pair.partition("=")
@@ -145,13 +182,19 @@ def _fit(args: argparse.Namespace) -> int:
         if len(args.logs) != 1:
             raise ScenarioError("fit thermal", "LOG", "give one heating-and-cooling log")
         ambient = None if args.ambient is None else _quantity_option(args.ambient, "degC", "--ambient")
-        mass = None if args.mass is None else _quantity_option(args.mass, "kg", "--mass")
+        mass = None if args.mass is None else _quantity_option(args.mass, "kg", "--mass", positive=True)
         outcome = fit.fit_thermal_log(args.logs[0], mapping, args.cell, ambient, mass)
-    try:
-        written = outcome.write(args.out)
-    except OSError as exc:
-        print(f"thermoelec: cannot write {args.out}: {exc.strerror or exc}", file=sys.stderr)
-        return EXIT_FAILURE
+    outcome.check()  # nonsense refused (exit 2), the doubtful warned of; never a file the loader rejects
+    with hold(out.parent, args.command_line, manifest=False) as folder:  # a folder of several fits' files: no manifest
+        _notes(folder)
+        try:
+            with folder.transaction() as stage:
+                written = [out.parent / path.name for path in outcome.write(stage / out.name)]
+        except OSError as exc:
+            print(f"thermoelec: cannot write {args.out}: {exc.strerror or exc}", file=sys.stderr)
+            return EXIT_FAILURE
+    for warning in outcome.warnings:
+        print(f"thermoelec: warning: {warning}", file=sys.stderr)
     if not args.quiet:
         width = max(len(name) for name, _, _ in outcome.parameters)
         for name, value, interval in outcome.parameters:
@@ -162,67 +205,163 @@ def _fit(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
-def _sweep(args: argparse.Namespace) -> int:
+def _fit_output(text: str) -> Path:
+    """The cell file ``fit`` writes: a file name in a folder that can be written."""
+    if not str(text).strip():
+        raise ScenarioError("--out", "", "the cell file's name is empty")
+    out = Path(text)
+    if out.is_dir() or str(text).endswith(("/", os.sep)):
+        raise ScenarioError("--out", str(text), "is a folder: give the cell file to write, e.g. out/cell.toml")
+    check_output_path(out.parent)
+    return out
+
+
+def _search(args: argparse.Namespace, scenario, out: Path) -> int:
+    """``sweep --find``: the design search, written as a unit into ``out``."""
     from thermoelec.analysis import sweep
-    scenario = load_scenario(args.scenario, _overrides(args.set or []))
-    out = Path(args.out)
-    if args.find:
-        criterion = sweep.parse_criterion(args.find)
-        if not args.over or not args.between:
-            raise ScenarioError("--find", args.find, "give --over KEY and --between LOW HIGH")
-        bounds = []
-        for text in args.between:
-            value = parse_value(text)
-            parts = str(value).split(None, 1) if isinstance(value, str) else [value]
-            try:
-                bounds.append((float(parts[0]), parts[1] if len(parts) > 1 else ""))
-            except ValueError:
-                raise ScenarioError("--between", text, "expected a quantity such as '0.2 W/K'") from None
-        (low, unit), (high, unit_high) = bounds
-        if unit != unit_high or not low < high:
-            raise ScenarioError("--between", " ".join(args.between), "LOW < HIGH in the same unit")
+
+    criterion = sweep.parse_criterion(args.find)
+    if not args.over or not args.between:
+        raise ScenarioError("--find", args.find, "give --over KEY and --between LOW HIGH")
+    bounds = []
+    for text in args.between:
+        value = parse_value(text)
+        parts = str(value).split(None, 1) if isinstance(value, str) else [value]
         try:
-            to_si(f"{low} {unit}".strip(), unit or "", unit or "")
-        except ValueError as exc:
-            raise ScenarioError("--between", args.between[0], str(exc)) from None
-        plan = sweep.plan_sweep(scenario, args.sweep or []) if (scenario.spec.sweep or args.sweep) else None
-        scenario.with_overrides({args.over: f"{low} {unit}".strip() if unit else low})  # the key must exist
+            bounds.append((float(parts[0]), parts[1] if len(parts) > 1 else ""))
+        except ValueError:
+            raise ScenarioError("--between", text, "expected a quantity such as '0.2 W/K'") from None
+    (low, unit), (high, unit_high) = bounds
+    if unit != unit_high or not low < high:
+        raise ScenarioError("--between", " ".join(args.between), "LOW < HIGH in the same unit")
+    try:
+        to_si(f"{low} {unit}".strip(), unit or "", unit or "")
+    except ValueError as exc:
+        raise ScenarioError("--between", args.between[0], str(exc)) from None
+    plan = sweep.plan_sweep(scenario, args.sweep or []) if (scenario.spec.sweep or args.sweep) else None
+    for bound in (low, high):  # the key must exist and take both ends
+        scenario.with_overrides({args.over: f"{bound} {unit}".strip() if unit else bound}, origin="--between")
+    with hold(out, args.command_line) as folder:
+        _notes(folder)
         found = sweep.design_search(scenario, plan, args.over, low, high, unit, criterion, args.greatest,
                                     args.tolerance, args.workers)
-        out.mkdir(parents=True, exist_ok=True)
-        found.to_netcdf(out / "search.nc")
-        if not args.no_figures:
-            from thermoelec.output.sweep_figures import write_search_figure
+        with folder.transaction() as stage:
+            found.to_netcdf(stage / "search.nc")
+            if not args.no_figures:
+                from thermoelec.output.sweep_figures import write_search_figure
 
-            write_search_figure(found, out)
-        if not args.quiet:
-            print(found.to_dataframe().to_string())
-            print(f"search results in {out}/")
-        return EXIT_OK
+                write_search_figure(found, stage)
+    if not args.quiet:
+        print(found.to_dataframe().to_string())
+        print(f"search results in {out}/")
+    return EXIT_OK
+
+
+def _sweep(args: argparse.Namespace) -> int:
+    from thermoelec.analysis import sweep
+    from thermoelec.analysis.estimates import check_sweep
+
+    out = check_output_path(args.out)
+    scenario = _load(args)
+    if args.find:
+        return _search(args, scenario, out)
     plan = sweep.plan_sweep(scenario, args.sweep or [])
+    keep = None if args.keep_series is None else _quantity_option(args.keep_series, "s", "--keep-series",
+                                                                   positive=True)
+    check_sweep(scenario, plan.size, sweep.check_values(scenario, plan), keep, args.engine == "solo",
+                args.workers or os.cpu_count() or 1)
     if not args.quiet:
         dims = " x ".join(f"{a.path} ({len(a.values)})" for a in plan.axes)
         print(f"sweep of {scenario.name}: {plan.size} scenarios, {plan.mode} over {dims}")
-    keep = None
-    if args.keep_series is not None:
-        keep = _quantity_option(args.keep_series, "s", "--keep-series")
-        if keep <= 0:
-            raise ScenarioError("--keep-series", args.keep_series, "the interval must be > 0")
-    rows = sweep.run_sweep(scenario, plan, out, args.workers, args.scheduler, args.resume, args.chunk_size,
-                           progress=not args.quiet, keep_interval=keep, engine=args.engine)
-    ds = sweep.sweep_dataset(scenario, plan, rows)
-    sweep.write_sweep(ds, out)
-    if not args.no_figures:
-        from thermoelec.output.sweep_figures import write_sweep_figures
+    with hold(out, args.command_line) as folder:
+        _notes(folder)
+        if args.resume and not args.force and not sweep.Checkpoints(out / "chunks").finished():
+            print(f"thermoelec: note: no finished chunks in {out}/chunks/: the sweep starts from the beginning",
+                  file=sys.stderr)
+        try:
+            rows = sweep.run_sweep(scenario, plan, out, args.workers, args.scheduler, args.resume, args.chunk_size,
+                                   progress=not args.quiet, keep_interval=keep, engine=args.engine,
+                                   force=args.force)
+        except Interrupted as exc:
+            _resume_hint(exc, out, args.command_line)
+            raise
+        ds = sweep.sweep_dataset(scenario, plan, rows)
+        with folder.transaction() as stage:
+            sweep.write_sweep(ds, stage)
+            if not args.no_figures:
+                from thermoelec.output.sweep_figures import write_sweep_figures
 
-        write_sweep_figures(ds, out)
-    if keep is not None:
-        sweep.write_series(plan, rows, out)
+                write_sweep_figures(ds, stage)
+            if keep is not None:
+                sweep.write_series(plan, rows, stage)
+        sweep.Checkpoints(out / "chunks").discard()  # the dataset holds them now
     if not args.quiet:
         passed = int(sweep.passes(ds).sum())
         print(f"{passed} of {plan.size} pass; {ds.attrs['failed']} failed to solve or were invalid; "
               f"results in {out}/sweep.nc")
     return EXIT_OK
+
+
+def _resume_hint(exc: Interrupted, out: Path, command_line: str) -> None:
+    """How to go on after an interrupted sweep: what is kept, the command that resumes it."""
+    from thermoelec.analysis import sweep
+
+    kept = sweep.Checkpoints(out / "chunks").finished()
+    argv = [a for a in shlex.split(command_line)[1:] if a not in ("--resume", "--force")]
+    print(f"\nthermoelec: {exc.name}: {kept} finished scenarios are kept in {out}/chunks/; resume with:\n  "
+          f"{shlex.join(['thermoelec', *argv, '--resume'])}", file=sys.stderr)
+
+
+def _at_least(low: int):
+    """An argparse type: a whole number >= ``low`` (``4e7`` accepted for 40000000)."""
+    def parse(text: str) -> int:
+        try:
+            value = float(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
+        if not value.is_integer() or value < low:
+            raise argparse.ArgumentTypeError(f"{text!r}: expected a whole number >= {low}")
+        return int(value)
+
+    parse.__name__ = f"whole number >= {low}"
+    return parse
+
+
+_positive_int = _at_least(1)
+
+
+def _fraction(text: str) -> float:
+    """An argparse type: a number strictly between 0 and 1."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+    if not 0.0 < value < 1.0:
+        raise argparse.ArgumentTypeError(f"{text!r}: expected a fraction of the range, between 0 and 1")
+    return value
+
+
+def _memory(text: str) -> float:
+    """An argparse type: a memory size (``'8 GB'``, ``'512 MiB'``, a bare number in GB) [B]."""
+    try:
+        value = to_si(parse_value(text), "GB", "B")
+    except ValueError as exc:
+        raise argparse.ArgumentTypeError(str(exc)) from None
+    if not value > 0:
+        raise argparse.ArgumentTypeError(f"{text!r}: expected a size > 0, e.g. '8 GB'")
+    return value
+
+
+def _budget_options(parser: argparse.ArgumentParser, scenarios: bool = False) -> None:
+    """The options that raise a command's budgets (:class:`thermoelec.inputs.budgets.Budgets`)."""
+    group = parser.add_argument_group("budgets", "refuse work that would exceed these, before starting")
+    group.add_argument("--max-rows", type=_positive_int, default=DEFAULT_BUDGETS.rows, metavar="N",
+                       help=f"output rows of one run, rows of one CSV file (default {DEFAULT_BUDGETS.rows:.3g})")
+    group.add_argument("--max-memory", type=_memory, default=DEFAULT_BUDGETS.memory, metavar="SIZE",
+                       help=f"estimated peak memory (default {DEFAULT_BUDGETS.memory / 1e9:g} GB)")
+    if scenarios:
+        group.add_argument("--max-scenarios", type=_positive_int, default=DEFAULT_BUDGETS.scenarios, metavar="N",
+                           help=f"scenarios of a sweep (default {DEFAULT_BUDGETS.scenarios:.3g})")
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -238,6 +377,7 @@ def build_parser() -> argparse.ArgumentParser:
     run.add_argument("--backend", choices=("cvode", "scipy"), help="solver back end (overrides [solver])")
     run.add_argument("--quiet", action="store_true", help="print no summary")
     run.add_argument("--no-figures", action="store_true", help="write no figures and no report (faster)")
+    _budget_options(run)
     run.set_defaults(handler=_run)
     compare = sub.add_parser("compare", help="run the scenario's [[case]] variants side by side")
     compare.add_argument("scenario", help="scenario file (TOML)")
@@ -247,16 +387,20 @@ def build_parser() -> argparse.ArgumentParser:
     compare.add_argument("--set", action="append", metavar="KEY=VALUE", help="override a value in every case")
     compare.add_argument("--quiet", action="store_true", help="print no table")
     compare.add_argument("--no-figures", action="store_true", help="write no figures and no report (faster)")
+    _budget_options(compare)
     compare.set_defaults(handler=_compare)
     sw = sub.add_parser("sweep", help="run every combination of swept keys, or search for the least cooling")
     sw.add_argument("scenario", help="scenario file (TOML) with a [sweep] table, or use --sweep")
     sw.add_argument("--out", required=True, help="output folder (created if missing)")
     sw.add_argument("--sweep", action="append", metavar="KEY=V1,V2,...", help="a swept key (replaces [sweep]'s)")
     sw.add_argument("--set", action="append", metavar="KEY=VALUE", help="override a value in every scenario")
-    sw.add_argument("--workers", type=int, help="local worker processes (default: the number of cores)")
+    sw.add_argument("--workers", type=_positive_int, help="local worker processes (default: the number of cores)")
     sw.add_argument("--scheduler", help="address of a dask.distributed scheduler to run the chunks on")
-    sw.add_argument("--resume", action="store_true", help="skip the chunks already finished in --out")
-    sw.add_argument("--chunk-size", type=int, help="scenarios per task")
+    sw.add_argument("--resume", action="store_true",
+                    help="continue the sweep in --out: keep its finished chunks (refused if anything changed)")
+    sw.add_argument("--force", action="store_true", help="discard the finished chunks in --out and start again")
+    sw.add_argument("--chunk-size", type=_positive_int,
+                    help="scenarios per task (default: about 64 chunks of 16 to 256, whatever the workers)")
     sw.add_argument("--engine", choices=("batch", "solo"), default="batch",
                     help="batch: the batched Runge-Kutta solver where it applies (default); solo: every scenario "
                          "on its own back end")
@@ -266,9 +410,10 @@ def build_parser() -> argparse.ArgumentParser:
     sw.add_argument("--over", metavar="KEY", help="the key the search varies, e.g. thermal.sink_to_ambient")
     sw.add_argument("--between", nargs=2, metavar=("LOW", "HIGH"), help="its range, e.g. '0.1 W/K' '10 W/K'")
     sw.add_argument("--greatest", action="store_true", help="the greatest value meeting it (default: the least)")
-    sw.add_argument("--tolerance", type=float, default=1e-3, help="search tolerance, a fraction of the range")
+    sw.add_argument("--tolerance", type=_fraction, default=1e-3, help="search tolerance, a fraction of the range")
     sw.add_argument("--no-figures", action="store_true", help="write no figures")
     sw.add_argument("--quiet", action="store_true", help="print nothing")
+    _budget_options(sw, scenarios=True)
     sw.set_defaults(handler=_sweep)
     fitting = sub.add_parser("fit", help="fit cell or thermal parameters to test logs and write a cell file")
     fitting.add_argument("kind", choices=("ocv", "pulse", "thermal"),
@@ -286,10 +431,11 @@ def build_parser() -> argparse.ArgumentParser:
     fitting.add_argument("--temperature", nargs="+", help="test temperature of each pulse log, if not in the logs")
     fitting.add_argument("--arrhenius", action="store_true",
                          help="write R0 as a table over SoC with an activation energy instead of a 2-D table")
-    fitting.add_argument("--points", type=int, default=21, help="SoC points of the OCV table (ocv)")
+    fitting.add_argument("--points", type=_at_least(2), default=21, help="SoC points of the OCV table (ocv), >= 2")
     fitting.add_argument("--ambient", help="ambient temperature, if not in the log (thermal)")
     fitting.add_argument("--mass", help="cell mass, for the specific heat (thermal), e.g. '68 g'")
     fitting.add_argument("--quiet", action="store_true", help="print nothing")
+    _budget_options(fitting)
     fitting.set_defaults(handler=_fit)
     return parser
 
@@ -297,12 +443,19 @@ def build_parser() -> argparse.ArgumentParser:
 def main(argv: list[str] | None = None) -> int:
     """Entry point; returns the exit status."""
     parser = build_parser()
+    argv = sys.argv[1:] if argv is None else list(argv)
     args = parser.parse_args(argv)
+    args.command_line = shlex.join(["thermoelec", *argv])
+    budgets = Budgets(args.max_rows, args.max_memory, getattr(args, "max_scenarios", DEFAULT_BUDGETS.scenarios))
     try:
-        return args.handler(args)
+        with termination_signals(), using(budgets):
+            return args.handler(args)
     except ScenarioError as exc:
         print(f"thermoelec: invalid input: {exc}", file=sys.stderr)
         return EXIT_INVALID
+    except Interrupted as exc:
+        print(f"thermoelec: interrupted by {exc.name} (outputs are put in place whole or not at all)", file=sys.stderr)
+        return exc.exit_status
     except KeyboardInterrupt:
         print("thermoelec: interrupted", file=sys.stderr)
         return 130

@@ -31,8 +31,8 @@ from thermoelec.analysis.simulate import simulate
 from thermoelec.physics.constants import JOULES_PER_WH
 from thermoelec.scenario import Scenario, ScenarioError
 
-__all__ = ["COMPARISON_ROWS", "CaseOutcome", "case_list", "comparison_json", "comparison_table", "energy_to_cutoff",
-           "run_cases", "write_comparison"]
+__all__ = ["COMPARISON_ROWS", "CaseOutcome", "case_folders", "case_list", "case_scenarios", "comparison_json",
+           "comparison_table", "energy_to_cutoff", "run_cases", "write_comparison"]
 
 #: Long enough that a limit, not the clock, ends the energy-to-cutoff discharge.
 CUTOFF_RUN_DURATION = "1000 h"
@@ -94,6 +94,31 @@ def slug(name: str) -> str:
     return re.sub(r"[^A-Za-z0-9]+", "-", name).strip("-").lower() or "case"
 
 
+def case_folders(names: Sequence[str]) -> list[str]:
+    """One folder name per case, all different: names that differ only in case or punctuation
+    (``Cold start``, ``cold-start``) get ``cold-start`` and ``cold-start-2``.
+
+    Parameters
+    ----------
+    names : sequence of str
+        The case names, in order.
+
+    Returns
+    -------
+    list of str
+        Folder names under ``cases/``, in the same order.
+    """
+    folders: list[str] = []
+    for name in names:
+        base = folder = slug(name)
+        n = 1
+        while folder in folders:
+            n += 1
+            folder = f"{base}-{n}"
+        folders.append(folder)
+    return folders
+
+
 def case_list(scenario: Scenario, extra: Sequence[tuple[str, Mapping[str, Any]]] = ()) -> list[tuple[str, dict]]:
     """The scenario's ``[[case]]`` variants followed by ``extra`` ones, as ``(name, overrides)``.
 
@@ -147,14 +172,59 @@ def energy_to_cutoff(case: Scenario, mission: SimulationResult) -> SimulationRes
     return simulate(case.with_overrides(overrides))
 
 
-def run_cases(scenario: Scenario, cases: Sequence[tuple[str, Mapping[str, Any]]]) -> list[CaseOutcome]:
-    """Simulate every case (mission and energy-to-cutoff run)."""
-    outcomes = []
+def case_scenarios(scenario: Scenario, cases: Sequence[tuple[str, Mapping[str, Any]]]) -> list[Scenario]:
+    """Every case validated, before any is computed (an invalid last case is found first).
+
+    Parameters
+    ----------
+    scenario : Scenario
+        The base scenario; its ``[[case]]`` tables come first in ``cases``.
+    cases : sequence of (str, mapping)
+        Names and dotted-path overrides (:func:`case_list`).
+
+    Returns
+    -------
+    list of Scenario
+        One per case, in order.
+
+    Raises
+    ------
+    ScenarioError
+        At the first invalid case, naming it (``[[case]] 2 "cold start"`` of the file, or ``--case``).
+    """
+    in_file = len(scenario.spec.case)
+    variants = []
     for index, (name, overrides) in enumerate(cases, start=1):
+        origin = f'{scenario.source}: [[case]] {index} "{name}"' if index <= in_file else f'--case "{name}"'
         try:
-            case = scenario.with_overrides(overrides)
+            variants.append(scenario.with_overrides(overrides, origin=origin))
         except ScenarioError as exc:
-            raise ScenarioError(exc.file, f"case {index} ({name}): {exc.key}", exc.message, exc.line) from None
+            where = exc.file if exc.file != scenario.source else origin
+            raise ScenarioError(where, exc.key, exc.message, exc.line if where == exc.file else None) from None
+    return variants
+
+
+def run_cases(scenario: Scenario, cases: Sequence[tuple[str, Mapping[str, Any]]],
+              variants: Sequence[Scenario] | None = None) -> list[CaseOutcome]:
+    """Simulate every case (mission and energy-to-cutoff run), all validated first.
+
+    Parameters
+    ----------
+    scenario : Scenario
+        The base scenario.
+    cases : sequence of (str, mapping)
+        Names and overrides (:func:`case_list`).
+    variants : sequence of Scenario, optional
+        The cases already validated (:func:`case_scenarios`).
+
+    Returns
+    -------
+    list of CaseOutcome
+        In order.
+    """
+    variants = case_scenarios(scenario, cases) if variants is None else variants
+    outcomes = []
+    for (name, overrides), case in zip(cases, variants, strict=True):
         result = simulate(case)
         result.metadata["case"] = name
         outcomes.append(CaseOutcome(name, dict(overrides), result, energy_to_cutoff(case, result)))
@@ -184,14 +254,17 @@ def _jsonable(value: Any) -> Any:
 def comparison_json(outcomes: Sequence[CaseOutcome]) -> str:
     """Every case's overrides and metrics as JSON text."""
     cases = []
-    for outcome in outcomes:
+    folders = case_folders([o.name for o in outcomes])
+    for outcome, folder in zip(outcomes, folders, strict=True):
         metrics = {k: _jsonable(v) for k, v in outcome.metrics().items() if k != "events"}
-        cases.append({"name": outcome.name, "overrides": outcome.overrides, "metrics": metrics})
+        cases.append({"name": outcome.name, "folder": f"cases/{folder}", "overrides": outcome.overrides,
+                      "metrics": metrics})
     return json.dumps({"cases": cases}, indent=2, allow_nan=False)
 
 
 def write_comparison(outcomes: Sequence[CaseOutcome], out_dir: Path) -> list[Path]:
-    """Write ``comparison.csv``, ``comparison.json`` and each case's results (``cases/<name>/``).
+    """Write ``comparison.csv``, ``comparison.json`` and each case's results (``cases/<name>/``, one
+    folder per case: :func:`case_folders`).
 
     The overlay figure and the report are the output layer's
     (:func:`thermoelec.output.figures.write_comparison_figure`, :mod:`thermoelec.output.report`).
@@ -200,6 +273,6 @@ def write_comparison(outcomes: Sequence[CaseOutcome], out_dir: Path) -> list[Pat
     written = [out_dir / "comparison.csv", out_dir / "comparison.json"]
     comparison_table(outcomes).to_csv(written[0], index=False)
     written[1].write_text(comparison_json(outcomes) + "\n")
-    for outcome in outcomes:
-        written += outcome.result.write(out_dir / "cases" / slug(outcome.name))
+    for outcome, folder in zip(outcomes, case_folders([o.name for o in outcomes]), strict=True):
+        written += outcome.result.write(out_dir / "cases" / folder)
     return written

@@ -10,7 +10,6 @@ never from output/, fit/, the API or the command line.
 
 from __future__ import annotations
 
-import hashlib
 import json
 import math
 import re
@@ -20,9 +19,10 @@ from typing import Any
 
 import numpy as np
 
+from thermoelec.inputs.budgets import current, round_up
 from thermoelec.scenario import Scenario, ScenarioError, parse_value
 
-__all__ = ["SweepAxis", "SweepPlan", "iter_combinations", "plan_sweep"]
+__all__ = ["SweepAxis", "SweepPlan", "check_values", "iter_combinations", "plan_sweep"]
 
 _QUANTITY = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
 
@@ -59,16 +59,22 @@ def _axis(path: str, spec: Any, source: str) -> SweepAxis:
         if start is None or stop is None or start[1] != stop[1]:
             raise ScenarioError(source, key, "start and stop must be quantities in the same unit")
         unit = start[1]
+        limit = current().scenarios
         if "num" in spec:
             num = spec["num"]
-            if not isinstance(num, int) or num < 1:
+            if isinstance(num, bool) or not isinstance(num, int) or num < 1:
                 raise ScenarioError(source, key, "num must be a whole number >= 1")
+            _within(num, limit, source, key)
             numbers = np.linspace(start[0], stop[0], num)
         else:
             step = _split_quantity(spec["step"])
             if step is None or step[0] <= 0 or step[1] not in (unit, "", "K" if unit == "degC" else unit):
                 raise ScenarioError(source, key, f"step must be a positive quantity in {unit or 'the same unit'}")
+            if stop[0] < start[0]:
+                raise ScenarioError(source, key, f"stop ({spec['stop']}) is below start ({spec['start']}): a range "
+                                    "with a step runs upwards; swap them, or give num for a descending range")
             count = math.floor((stop[0] - start[0]) / step[0] + 1e-9) + 1
+            _within(count, limit, source, key)
             numbers = start[0] + step[0] * np.arange(count)
         values = tuple(f"{v:.12g} {unit}".strip() if unit else float(v) for v in numbers)
         return SweepAxis(path, values, tuple(float(v) for v in numbers), unit)
@@ -78,6 +84,13 @@ def _axis(path: str, spec: Any, source: str) -> SweepAxis:
     if all(p is not None for p in parts) and len({p[1] for p in parts}) == 1:
         return SweepAxis(path, tuple(spec), tuple(p[0] for p in parts), parts[0][1])
     return SweepAxis(path, tuple(spec), tuple(json.dumps(v) if not isinstance(v, str) else v for v in spec), "")
+
+
+def _within(count: float, limit: int, source: str, key: str) -> None:
+    """Refuse an axis with more values than the budget of scenarios, before making them."""
+    if count > limit:
+        raise ScenarioError(source, key, f"the range has {count:.3g} values, over the budget of {limit:.3g} "
+                            f"scenarios: a coarser step, or raise the budget with --max-scenarios {round_up(count)}")
 
 
 @dataclass(frozen=True)
@@ -93,7 +106,7 @@ class SweepPlan:
 
     @property
     def size(self) -> int:
-        return int(np.prod(self.shape))
+        return math.prod(self.shape)
 
     def overrides(self, flat_index: int) -> dict[str, Any]:
         """Dotted-path overrides of scenario ``flat_index`` (C order over :attr:`shape`)."""
@@ -101,11 +114,6 @@ class SweepPlan:
             return {a.path: a.values[flat_index] for a in self.axes}
         index = np.unravel_index(flat_index, self.shape)
         return {a.path: a.values[i] for a, i in zip(self.axes, index, strict=True)}
-
-    def signature(self, scenario_digest: str) -> str:
-        """A fingerprint of the scenario and the plan, to refuse resuming a different sweep."""
-        text = json.dumps([scenario_digest, self.mode, [(a.path, list(map(str, a.values))) for a in self.axes]])
-        return hashlib.sha256(text.encode()).hexdigest()
 
 
 def plan_sweep(scenario: Scenario, cli_items: Sequence[str] = ()) -> SweepPlan:
@@ -126,8 +134,56 @@ def plan_sweep(scenario: Scenario, cli_items: Sequence[str] = ()) -> SweepPlan:
         raise ScenarioError(scenario.source, "sweep", "mode = 'zip' needs lists of the same length: "
                             + ", ".join(f"{a.path} has {len(a.values)}" for a in axes))
     plan = SweepPlan(axes, mode)
-    scenario.with_overrides(plan.overrides(0))  # the first combination must validate (key paths, units)
+    if plan.size > current().scenarios:
+        raise ScenarioError(scenario.source, "sweep", f"the sweep has {plan.size:.3g} scenarios ("
+                            + " x ".join(str(len(a.values)) for a in axes) + f"), over the budget of "
+                            f"{current().scenarios:.3g}: sweep fewer values, or raise the budget with --max-scenarios "
+                            f"{round_up(plan.size)}")
+    check_values(scenario, plan)
     return plan
+
+
+def check_values(scenario: Scenario, plan: SweepPlan) -> list[Scenario]:
+    """Every swept value on its own (the other keys at their first value) must be one its key can take.
+
+    A key path that does not exist, or a value of the wrong kind or unit, refuses the
+    sweep before anything runs. A value read well but out of range, or at odds with
+    another key (``cell.initial_soc = 1.5``), only makes its scenarios invalid: they are
+    recorded with the message and the sweep goes on.
+
+    Parameters
+    ----------
+    scenario : Scenario
+        The base scenario.
+    plan : SweepPlan
+        The plan.
+
+    Returns
+    -------
+    list of Scenario
+        The variants that validated, the first combination first.
+
+    Raises
+    ------
+    ScenarioError
+        Naming the swept key and its value.
+    """
+    first = plan.overrides(0)
+    variants = []
+    tried = set()
+    for axis in plan.axes:
+        for value in axis.values:
+            case = {**first, axis.path: value}
+            label = json.dumps(case, sort_keys=True, default=str)
+            if label in tried:
+                continue
+            tried.add(label)
+            try:
+                variants.append(scenario.with_overrides(case, origin=f"sweep.{axis.path} = {value!r}"))
+            except ScenarioError as exc:
+                if exc.form:
+                    raise
+    return variants
 
 
 def iter_combinations(plan: SweepPlan) -> Iterable[dict[str, Any]]:

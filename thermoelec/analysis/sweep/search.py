@@ -19,7 +19,7 @@ import numpy as np
 
 from thermoelec.analysis.metrics import METRICS
 from thermoelec.analysis.sweep.plan import SweepPlan
-from thermoelec.analysis.sweep.run import solo_metrics
+from thermoelec.analysis.sweep.run import process_pool, solo_metrics
 from thermoelec.scenario import Scenario, ScenarioError
 
 __all__ = ["Criterion", "design_search", "parse_criterion"]
@@ -126,8 +126,6 @@ def design_search(scenario: Scenario, plan: SweepPlan | None, path: str, low: fl
         ``least_<path>`` (or ``greatest_<path>``) [unit], ``status``, ``message`` and
         ``evaluations``, with a dimension per other swept key (``case`` for none).
     """
-    from concurrent.futures import ProcessPoolExecutor
-
     import xarray as xr
 
     axes = [a for a in (plan.axes if plan else ()) if a.path != path]
@@ -141,9 +139,7 @@ def design_search(scenario: Scenario, plan: SweepPlan | None, path: str, low: fl
     args = [(scenario, c, path, low, high, unit, criterion, greatest, tolerance) for c in combos]
     workers = workers or os.cpu_count() or 1
     if workers > 1 and len(args) > 1:
-        import multiprocessing
-
-        with ProcessPoolExecutor(max_workers=workers, mp_context=multiprocessing.get_context("forkserver")) as pool:
+        with process_pool(workers) as pool:
             found = list(pool.map(_search_one, *zip(*args, strict=True)))
     else:
         found = [_search_one(*a) for a in args]
