@@ -265,7 +265,7 @@ def _sweep(args: argparse.Namespace) -> int:
     scenario = _load(args)
     if args.find:
         return _search(args, scenario, out)
-    plan = sweep.plan_sweep(scenario, args.sweep or [])
+    plan = sweep.plan_sweep(scenario, args.sweep or [], check=False)
     keep = None if args.keep_series is None else _quantity_option(args.keep_series, "s", "--keep-series",
                                                                    positive=True)
     check_sweep(scenario, plan.size, sweep.check_values(scenario, plan), keep, args.engine == "solo",
@@ -400,7 +400,7 @@ def build_parser() -> argparse.ArgumentParser:
                     help="continue the sweep in --out: keep its finished chunks (refused if anything changed)")
     sw.add_argument("--force", action="store_true", help="discard the finished chunks in --out and start again")
     sw.add_argument("--chunk-size", type=_positive_int,
-                    help="scenarios per task (default: about 64 chunks of 16 to 256, whatever the workers)")
+                    help="scenarios per task (default: a sixteenth of the plan, 16 to 256, whatever the workers)")
     sw.add_argument("--engine", choices=("batch", "solo"), default="batch",
                     help="batch: the batched Runge-Kutta solver where it applies (default); solo: every scenario "
                          "on its own back end")

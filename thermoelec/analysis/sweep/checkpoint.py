@@ -18,7 +18,6 @@ identity differs; starting without ``--resume`` over finished chunks needs
 from __future__ import annotations
 
 import hashlib
-import itertools
 import json
 import re
 from collections.abc import Mapping, Sequence
@@ -50,18 +49,18 @@ def _sha256(path: Path) -> str:
 
 
 def _file_variants(scenario: Scenario, plan: SweepPlan) -> list[Scenario]:
-    """The base scenario, and one variant per combination of the swept values that may name files."""
-    axes = [a for a in plan.axes if names_files(a.path)]
+    """The base scenario, and one variant per value of each swept key that may name files (the other
+    keys at their first value): between them they read every file any scenario of the plan reads."""
     variants = [scenario]
     first = plan.overrides(0)
-    combos = zip(*(a.values for a in axes), strict=True) if plan.mode == "zip" else \
-        itertools.product(*(a.values for a in axes))
-    for values in combos if axes else ():
-        try:
-            variants.append(scenario.with_overrides({**first, **dict(zip((a.path for a in axes), values,
-                                                                         strict=True))}))
-        except ScenarioError:
-            continue  # recorded as invalid when the sweep reaches it; it reads no file
+    for axis in plan.axes:
+        if not names_files(axis.path):
+            continue
+        for value in axis.values:
+            try:
+                variants.append(scenario.with_overrides({**first, axis.path: value}))
+            except ScenarioError:
+                continue  # recorded as invalid when the sweep reaches it; it reads no file
     return variants
 
 

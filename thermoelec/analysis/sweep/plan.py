@@ -116,8 +116,12 @@ class SweepPlan:
         return {a.path: a.values[i] for a, i in zip(self.axes, index, strict=True)}
 
 
-def plan_sweep(scenario: Scenario, cli_items: Sequence[str] = ()) -> SweepPlan:
-    """The sweep of a scenario: its ``[sweep]`` table, then ``--sweep KEY=V1,V2,...`` items (which replace)."""
+def plan_sweep(scenario: Scenario, cli_items: Sequence[str] = (), check: bool = True) -> SweepPlan:
+    """The sweep of a scenario: its ``[sweep]`` table, then ``--sweep KEY=V1,V2,...`` items (which replace).
+
+    With ``check`` every swept value is validated (:func:`check_values`); the command
+    line does that itself, to keep the variants for its estimates.
+    """
     spec = dict(scenario.spec.sweep)
     mode = spec.pop("mode", "grid")
     if mode not in ("grid", "zip"):
@@ -139,7 +143,8 @@ def plan_sweep(scenario: Scenario, cli_items: Sequence[str] = ()) -> SweepPlan:
                             + " x ".join(str(len(a.values)) for a in axes) + f"), over the budget of "
                             f"{current().scenarios:.3g}: sweep fewer values, or raise the budget with --max-scenarios "
                             f"{round_up(plan.size)}")
-    check_values(scenario, plan)
+    if check:
+        check_values(scenario, plan)
     return plan
 
 
