@@ -113,6 +113,8 @@ def _now() -> str:
 
 
 def _alive(pid: int) -> bool:
+    if pid <= 0:  # 0 and -1 would ask the process group, or every process
+        return False
     try:
         os.kill(pid, 0)
     except ProcessLookupError:
@@ -170,14 +172,17 @@ class OutputFolder:
             raise ScenarioError("--out", str(self.path), f"cannot write into the folder: {exc.strerror}") from None
         try:
             previous = _read_holder(fd)
+            locked = False
             if fcntl is not None:
                 try:
                     fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+                    locked = True
                 except OSError as exc:
-                    if exc.errno not in (errno.EWOULDBLOCK, errno.EAGAIN, errno.EACCES):
-                        raise
-                    raise ScenarioError("--out", str(self.path), _refusal(previous)) from None
-            elif previous and previous.get("host") == socket.gethostname() and _alive(int(previous["pid"])):
+                    if exc.errno in (errno.EWOULDBLOCK, errno.EAGAIN, errno.EACCES):
+                        raise ScenarioError("--out", str(self.path), _refusal(previous)) from None
+                    # a file system without flock (some network mounts): the holder's process is asked instead
+            if not locked and previous and previous.get("host") == socket.gethostname() and \
+                    _alive(int(previous.get("pid") or 0)):
                 raise ScenarioError("--out", str(self.path), _refusal(previous))
             if previous:
                 self.notes.append(f"{self.path}: the lock left by process {previous.get('pid')} "

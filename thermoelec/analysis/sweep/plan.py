@@ -175,19 +175,17 @@ def check_values(scenario: Scenario, plan: SweepPlan) -> list[Scenario]:
     """
     first = plan.overrides(0)
     variants = []
-    tried = set()
     for axis in plan.axes:
         for value in axis.values:
-            case = {**first, axis.path: value}
-            label = json.dumps(case, sort_keys=True, default=str)
-            if label in tried:
-                continue
-            tried.add(label)
-            try:
-                variants.append(scenario.with_overrides(case, origin=f"sweep.{axis.path} = {value!r}"))
-            except ScenarioError as exc:
-                if exc.form:
-                    raise
+            origin = f"sweep.{axis.path} = {value!r}"
+            try:  # alone, so that an error is this value's; with the other keys' first values if it needs them
+                variants.append(scenario.with_overrides({axis.path: value}, origin=origin))
+            except ScenarioError as alone:
+                try:
+                    variants.append(scenario.with_overrides({**first, axis.path: value}, origin=origin))
+                except ScenarioError as exc:
+                    if alone.form and exc.form:
+                        raise alone from None
     return variants
 
 
