@@ -182,7 +182,7 @@ class OutputFolder:
                         raise ScenarioError("--out", str(self.path), _refusal(previous)) from None
                     # a file system without flock (some network mounts): the holder's process is asked instead
             if not locked and previous and previous.get("host") == socket.gethostname() and \
-                    _alive(int(previous.get("pid") or 0)):
+                    _alive(previous["pid"]):
                 raise ScenarioError("--out", str(self.path), _refusal(previous))
             if previous:
                 self.notes.append(f"{self.path}: the lock left by process {previous.get('pid')} "
@@ -309,11 +309,15 @@ class OutputFolder:
 
 
 def _read_holder(fd: int) -> dict[str, Any] | None:
+    """The holder a lock file names (None for an empty file, or one that is not a holder's record)."""
     try:
         text = os.pread(fd, 4096, 0).decode("utf-8", "replace").strip()
-        return json.loads(text) if text else None
+        holder = json.loads(text) if text else None
     except (OSError, ValueError):
         return None
+    if not isinstance(holder, dict) or not isinstance(holder.get("pid"), int):
+        return None
+    return holder
 
 
 def _refusal(holder: dict[str, Any] | None) -> str:
