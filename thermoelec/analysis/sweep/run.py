@@ -74,7 +74,9 @@ def solo_metrics(scenario: Scenario, overrides: Mapping[str, Any], keep_interval
     except Exception as exc:  # a scenario must never stop the sweep
         return {"status": "failed", "message": f"{type(exc).__name__}: {exc}"}
     row: dict[str, Any] = {k: result.summary.get(k) for k in METRICS}
-    row.update(status=result.status, message=result.message, stop_reason=result.summary["stop_reason"])
+    row.update(status=result.status, message=result.message, stop_reason=result.summary["stop_reason"],
+               verdict=result.summary["verdict"],
+               failed_checks=",".join(c["check"] for c in result.summary["checks"] if not c["passed"]))
     if keep_interval is not None:
         row["series"] = decimate(result.series, keep_interval)
     return row
