@@ -17,7 +17,8 @@ import pytest
 import thermoelec
 from thermoelec import cli
 from thermoelec.analysis import compare
-from thermoelec.output.report import CAUTIONS, limit_checks
+from thermoelec.analysis.verdict import limit_checks
+from thermoelec.output.report import CAUTIONS
 
 from ..helpers import SCENARIOS, cell_section, scenario
 
@@ -67,7 +68,7 @@ def test_compare_writes_table_json_overlays_cases_and_report(drone_compare_dir):
     out = drone_compare_dir
     table = pd.read_csv(out / "comparison.csv")
     assert list(table.columns) == ["metric", "key", "unit", "hot afternoon", "cold morning", "cold and heavy"]
-    assert {"energy_to_cutoff_Wh", "voltage_min_V", "cell_temperature_max_degC", "efficiency"} <= set(table["key"])
+    assert {"energy_to_cutoff_Wh", "voltage_min_V", "cell_temperature_max_degC", "efficiency_discharge", "verdict"} <= set(table["key"])
     data = json.loads((out / "comparison.json").read_text())
     assert [c["name"] for c in data["cases"]] == ["hot afternoon", "cold morning", "cold and heavy"]
     heavy = data["cases"][2]
@@ -112,10 +113,11 @@ def test_limit_checks_fail_on_the_limit_that_stopped_the_run():
     result = thermoelec.simulate(scenario(cell=cell, segments=[{"mode": "current", "value": "6 A",
                                                                 "duration": "1 h"}]))
     checks = {row["check"]: row for row in limit_checks(result.summary, result.limits)}
-    assert not checks["cell voltage >= voltage_min"]["passed"]
-    assert checks["cell voltage >= voltage_min"]["margin"] == pytest.approx(0.0, abs=1e-6)
-    assert checks["cell temperature <= cell_temperature_max"]["passed"]
-    assert not checks["whole profile completed"]["passed"]
+    assert not checks["voltage_min"]["passed"]
+    assert checks["voltage_min"]["margin"] == pytest.approx(0.0, abs=1e-6)
+    assert checks["temperature_max"]["passed"]
+    assert not checks["completed"]["passed"]
+    assert result.summary["verdict"] == "fail" and result.verdict == "fail"
 
 
 def test_limit_checks_pass_a_completed_mission(drone_cases):
@@ -145,7 +147,8 @@ def test_run_writes_figures_and_a_self_contained_report(run_dir):
     assert "<script" not in report and "@import" not in report
     for caution in CAUTIONS:
         assert caution in report.replace("&#x27;", "'")
-    for section in ("Limits", "Warnings", "Summary", "Stress indicators", "Parameters", "Run"):
+    for section in ("Limits", "Notes and warnings", "Energy", "Summary", "Events", "Soak", "Stress indicators",
+                    "Overrides", "Parameters", "Run"):
         assert f"<h2>{section}</h2>" in report
     assert "cell.r0.temperature" in report  # parameters are listed by dotted key
     assert "scenario_sha256" in report

@@ -78,7 +78,7 @@ def facet_indices(n: int, limit: int = MAX_FACETS) -> list[int]:
     """
     if n <= limit:
         return list(range(n))
-    return sorted({int(round(v)) for v in np.linspace(0, n - 1, limit)})
+    return sorted({round(float(v)) for v in np.linspace(0, n - 1, limit)})
 
 
 def _edges(centres: np.ndarray) -> np.ndarray:

@@ -20,9 +20,9 @@ from typing import Any
 import numpy as np
 
 from thermoelec.analysis.metrics import METRICS, VERDICT_KEYS
-from thermoelec.analysis.verdict import PASS
 from thermoelec.analysis.sweep.plan import SweepPlan
 from thermoelec.analysis.sweep.run import KEPT_SERIES
+from thermoelec.analysis.verdict import PASS
 from thermoelec.scenario import Scenario
 from thermoelec.version import __version__
 
