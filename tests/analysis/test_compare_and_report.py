@@ -68,7 +68,8 @@ def test_compare_writes_table_json_overlays_cases_and_report(drone_compare_dir):
     out = drone_compare_dir
     table = pd.read_csv(out / "comparison.csv")
     assert list(table.columns) == ["metric", "key", "unit", "hot afternoon", "cold morning", "cold and heavy"]
-    assert {"energy_to_cutoff_Wh", "voltage_min_V", "cell_temperature_max_degC", "efficiency_discharge", "verdict"} <= set(table["key"])
+    assert {"energy_to_cutoff_Wh", "voltage_min_V", "cell_temperature_max_degC", "efficiency_discharge",
+            "verdict"} <= set(table["key"])
     data = json.loads((out / "comparison.json").read_text())
     assert [c["name"] for c in data["cases"]] == ["hot afternoon", "cold morning", "cold and heavy"]
     heavy = data["cases"][2]

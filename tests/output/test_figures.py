@@ -8,7 +8,6 @@ E/R is the maximum power transfer theorem (circuit theory, common practice).
 import matplotlib.image
 import numpy as np
 import pytest
-from matplotlib.lines import Line2D
 
 from thermoelec.output import figures
 
