@@ -14,6 +14,7 @@ all: test
 
 $(STAMP): pyproject.toml
 	@tools/ensure-sundials
+	@tools/ensure-chromium
 	@test -x $(BIN)/python || $(PYTHON) -m venv $(VENV)
 	@$(BIN)/python -m pip install -q --disable-pip-version-check --upgrade pip
 	@echo "thermoelec set-up: installing the package and its dependencies into $(VENV)"

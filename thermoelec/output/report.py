@@ -99,9 +99,9 @@ def _checks_table(summary: Mapping[str, Any], limits: Mapping[str, float]) -> st
     return _table(["limit", "value", "worst in mission", "margin", "result"], rows, table_class="limits")
 
 
-def _rows_table(summary: Mapping[str, Any], rows: Iterable[tuple[str, str, str]]) -> str:
+def _rows_table(summary: Mapping[str, Any], rows: Iterable[tuple[str, str, str]], table_class: str = "") -> str:
     return _table(["metric", "value"], [[_e(label.strip()), _e(format_value(summary.get(key), unit))]
-                                        for label, key, unit in rows])
+                                        for label, key, unit in rows], table_class=table_class)
 
 
 def _summary_table(summary: Mapping[str, Any]) -> str:
@@ -288,7 +288,7 @@ def run_report(result: SimulationResult, raw: Mapping[str, Any] | None = None, d
         _cautions(),
         "<h2>Limits</h2>", _checks_table(summary, result.limits),
         "<h2>Notes and warnings</h2>", _notes(summary.get("notes", [])), _warnings(result.warnings),
-        "<h2>Energy</h2>", _rows_table(summary, ENERGY_ROWS),
+        "<h2>Energy</h2>", _rows_table(summary, ENERGY_ROWS, "energy"),
         "<h2>Summary</h2>", _summary_table(summary),
         "<h2>Events</h2>", _events(summary.get("events", [])),
         "<h2>Soak</h2>", _soak(summary.get("soak")),
