@@ -75,11 +75,13 @@ bench: $(STAMP)
 	$(BIN)/python benchmarks/bench_single_mission.py
 	$(BIN)/python benchmarks/bench_sweep.py
 	$(BIN)/python benchmarks/bench_sweep_scale.py
+	$(BIN)/python benchmarks/bench_sweep_figures.py
 
 bench-quick: $(STAMP)
 	$(BIN)/python benchmarks/bench_single_mission.py --quick
 	$(BIN)/python benchmarks/bench_sweep.py --quick
 	$(BIN)/python benchmarks/bench_sweep_scale.py --quick
+	$(BIN)/python benchmarks/bench_sweep_figures.py --quick
 
 clean:
 	rm -rf $(VENV) out .pytest_cache .ruff_cache

@@ -243,9 +243,14 @@ def sweep_map(ds, metric: str) -> Figure:
         return _line_plot(ds, metric)
     data = map_data(ds, metric)
     n = len(data.facets)
-    cols = min(n, FACET_COLUMNS)
-    fig = Figure(figsize=(4.6 * cols + 1.2, 3.9 * math.ceil(n / cols) + 0.8), layout="constrained")
-    axes = np.atleast_1d(fig.subplots(math.ceil(n / cols), cols, squeeze=False).ravel())
+    cols, rows = min(n, FACET_COLUMNS), math.ceil(n / FACET_COLUMNS)
+    width, height = 4.2 * cols + 1.6, 3.4 * rows + 1.2
+    # a fixed grid, not the constrained layout: laying out a dozen facets' ticks twice per file format
+    # cost more than drawing them; the facets share their axes, so only the outer ones are labelled
+    fig = Figure(figsize=(width, height))
+    axes = np.atleast_1d(fig.subplots(rows, cols, squeeze=False, sharex=True, sharey=True, gridspec_kw={
+        "left": 0.9 / width, "right": 1 - 1.5 / width, "bottom": 0.65 / height, "top": 1 - 0.95 / height,
+        "wspace": 0.12, "hspace": 0.35}).ravel())
     norm = Normalize(*data.limits)
     mesh = None
     for k in range(n):
@@ -258,13 +263,16 @@ def sweep_map(ds, metric: str) -> Figure:
         if data.stopped[k].any():
             xx, yy = np.meshgrid(data.x, data.y)
             ax.scatter(xx[data.stopped[k]], yy[data.stopped[k]], marker="x", color="white", s=28, linewidths=1.2)
-        ax.set_xlabel(data.x_label)
-        ax.set_ylabel(data.y_label)
+        if k >= n - cols:
+            ax.set_xlabel(data.x_label)
+        if k % cols == 0:
+            ax.set_ylabel(data.y_label)
         if data.facet_titles[k]:
             ax.set_title(data.facet_titles[k], fontsize=9)
     for ax in axes[n:]:
         ax.set_axis_off()
-    fig.colorbar(mesh, ax=list(axes[:n]), label=data.label, shrink=0.9)
+    bar = fig.add_axes((1 - 1.2 / width, 0.65 / height, 0.18 / width, 1 - 1.6 / height))
+    fig.colorbar(mesh, cax=bar, label=data.label)
     shown = f"; {n} of {ds.sizes[data.facet_dim]} values of {axis_label(data.facet_dim)} shown" \
         if data.facet_dim and n < ds.sizes[data.facet_dim] else ""
     fig.suptitle(f"{data.label}\ncyan: pass / fail boundary; x: stopped before the end of the profile; "
