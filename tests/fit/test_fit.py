@@ -372,3 +372,13 @@ def test_fit_pulse_warns_when_a_log_leaves_the_cell_files_voltage_limits(tmp_pat
                      "--out", str(tmp_path / "pulse.toml")]) == 0
     out = capsys.readouterr().out
     assert "above the cell file's voltage_max (4 V)" in out
+
+
+def test_demo_logs_stay_inside_the_demo_cells_voltage_limits():
+    # the demo cell's limits (scenarios/logs/make_demo_logs.py and scenarios/scooter_commute.toml): 2.5..4.2 V;
+    # a lab's procedure never takes a cell past them, so neither do the invented logs
+    from ..helpers import SCENARIOS
+
+    for path in sorted((SCENARIOS / "logs").glob("*.csv")):
+        voltage = pd.read_csv(path)["voltage_V"]
+        assert voltage.max() <= 4.2 and voltage.min() >= 2.5, path.name
