@@ -304,7 +304,9 @@ def _print_search(found) -> None:
     unit = found[name].attrs.get("units", "")
     frame = found.to_dataframe().reset_index()
     for _, row in frame.iterrows():
-        where = ", ".join(f"{k} = {row[k]}" for k in found[name].dims if k != "case") or "the scenario"
+        where = ", ".join(f"{k} = {row[k]:g} {found[k].attrs.get('units', '')}".rstrip()
+                          if isinstance(row[k], float) else f"{k} = {row[k]}"
+                          for k in found[name].dims if k != "case") or "the scenario"
         status = row["status"]
         value = f"{row[name]:.6g} {unit}".strip()
         said = {"ok": value, "at_bound": row["message"], "not_met": "not met in range"}.get(status, row["message"])

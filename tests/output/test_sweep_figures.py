@@ -156,7 +156,7 @@ def test_search_chart_draws_lines_and_marks_the_bounds(tmp_path):
     assert isinstance(fig, Figure)
     ax = fig.axes[0]
     labels = [t.get_text() for t in ax.get_legend().get_texts()]
-    assert "met at the lower bound (the answer lies at or beyond it)" in labels
+    assert "met at the lower bound (the answer lies at or below it)" in labels
     assert "not met in range (drawn at the other bound)" in labels
     assert len(labels) == len(set(labels))  # each legend entry once
     cross = next(line for line in ax.lines if line.get_marker() == "x")

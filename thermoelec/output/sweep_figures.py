@@ -354,8 +354,8 @@ def search_chart(ds) -> Figure:
     -------
     Figure
         The found value in the searched key's unit (circles); a triangle where the criterion holds at the
-        range's bound already (met at the bound: the answer lies at or beyond it); a cross at the other
-        bound where it is not met in the range.
+        range's bound already (met at the bound: the answer lies at or below it, above for the greatest); a
+        cross at the other bound where it is not met in the range.
     """
     name = next(v for v in ds.data_vars if v.startswith(("least_", "greatest_")))
     greatest = name.startswith("greatest_")
@@ -376,8 +376,9 @@ def search_chart(ds) -> Figure:
         colour = f"C{k}"
         ax.plot(line.x, line.found, "o-", color=colour, label=line.label or None)
         if np.isfinite(line.at_bound).any():
+            side = "above" if greatest else "below"
             ax.plot(line.x, line.at_bound, "v" if not greatest else "^", color=colour, ms=8, ls="none",
-                    label=once(f"met at the {bound_word} bound (the answer lies at or beyond it)"))
+                    label=once(f"met at the {bound_word} bound (the answer lies at or {side} it)"))
         if line.not_met.any() and high is not None:
             other = low if greatest else high
             ax.plot(line.x[line.not_met], np.full(int(line.not_met.sum()), other), "x", color=colour, ms=9,

@@ -80,7 +80,8 @@ def _search_one(scenario: Scenario, fixed: dict[str, Any], path: str, low: float
         bound = "upper" if greatest else "lower"
         return {"value": inner, "status": "at_bound", "evaluations": evaluations,
                 "message": f"met at the {bound} bound: the criterion holds there already, so the "
-                           f"{'greatest' if greatest else 'least'} value lies at or beyond {inner:g} {unit}".rstrip()}
+                           f"{'greatest' if greatest else 'least'} value lies at or {'above' if greatest else 'below'} "
+                           f"{inner:g} {unit}".rstrip()}
     if m_outer > 0:
         return {"value": math.nan, "status": "not_met", "message": "not met in range", "evaluations": evaluations}
     try:
