@@ -42,3 +42,9 @@ def test_sweep_benchmark_runs_quick():
 def test_sweep_scale_benchmark_runs_quick():
     out = _run("bench_sweep_scale.py", "--quick")
     assert "linear in scenarios" in out and "peak memory" in out
+
+
+@pytest.mark.slow
+def test_sweep_figures_benchmark_runs_quick():
+    out = _run("bench_sweep_figures.py", "--quick")
+    assert "figures' share of the wall time" in out and "reference, --no-figures" in out

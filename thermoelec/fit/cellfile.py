@@ -91,6 +91,7 @@ class CellData:
         cell = spec.cell
         self.capacity = cell.capacity
         self.mass = cell.mass
+        self.voltage_max, self.voltage_min = cell.voltage_max, cell.voltage_min
         self.geometry = CellSpec.geometry(cell)  # the cell's CellGeometry, None without conductivity and sizes
         self.ocv_soc = None if cell.ocv is None else np.asarray(cell.ocv.soc, float)
         self.ocv_voltage = None if cell.ocv is None else np.asarray(cell.ocv.voltage, float)
