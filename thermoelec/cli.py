@@ -251,7 +251,8 @@ def _fit(args: argparse.Namespace) -> int:
         for name, value, interval in outcome.parameters:
             print(f"  {name:<{width}}  {value}  {interval}")
         for note in outcome.notes:
-            print(f"  note: {note}")
+            if note.removeprefix("warning: ") not in outcome.warnings:  # those went to stderr already
+                print(f"  note: {note}")
         print("wrote " + ", ".join(str(path) for path in written))
     return EXIT_OK
 
