@@ -107,7 +107,7 @@ class Scenario:
             self.origins.with_overrides(_override_sources(items, origin or self.source))
         return _validate(_deep_copy(self.raw), self.source, self.base_dir, None, items, self.digest, self.overrides,
                          check_files=any(names_files(path) for path, _ in items), cache=self.cache,
-                         origins=origins, included=self.included)
+                         origins=origins, included=self.included, variant=True)
 
     def problem(self) -> Problem:
         """The SI :class:`~thermoelec.engine.problem.Problem` for the simulator (reads CSV profiles, once per version).
@@ -160,9 +160,13 @@ def _override_sources(items: list[tuple[str, Any]], label: str, flag: bool = Fal
 def _validate(data: dict, source: str, base_dir: Path, text: str | None, overrides: list[tuple[str, Any]],
               digest: str, previous: tuple = (), check_files: bool = True,
               cache: ScenarioCache | None = None, origins: Origins | None = None,
-              included: tuple[Path, ...] = ()) -> Scenario:
+              included: tuple[Path, ...] = (), variant: bool = False) -> Scenario:
     """The scenario of raw ``data`` with ``overrides`` applied, validated (its CSV files too if ``check_files``)."""
-    _check_sizes(data, source)
+    if variant:  # the base was checked when it was loaded: only what the overrides bring
+        for path, value in overrides:
+            _check_sizes(value, source, path)
+    else:
+        _check_sizes(data, source)
     labels = origins.overrides[len(origins.overrides) - len(overrides):] if origins is not None else ()
     for i, (path, value) in enumerate(overrides):
         try:
