@@ -63,8 +63,19 @@ class Extremes:
     current_abs_max : float
         Largest pack current magnitude [A].
     equivalent_time_at_reference : float
-        Arrhenius-weighted time at the ageing reference temperature [s]: a trapezoid over
-        the output rows on the solo path, over the accepted steps in the batch.
+        Arrhenius-weighted time at the ageing reference temperature [s] (of the hottest
+        cell): a trapezoid over the output rows on the solo path, over the accepted steps
+        in the batch.
+    cell_temperature_spread_max : float
+        Largest difference between the hottest and the coldest cell [K] (0 for a lumped pack).
+    cell_temperature_spread_time : float
+        When it was largest [s].
+    current_share_max : float
+        Largest current of one cell over its group's mean [-] (1 for a lumped pack).
+    hottest_cell : float
+        The cell that reached the highest temperature, from 0 [-].
+    hottest_time : float
+        When it did [s].
     """
 
     cell_temperature_max: float
@@ -73,6 +84,11 @@ class Extremes:
     cell_voltage_min: float
     current_abs_max: float
     equivalent_time_at_reference: float
+    cell_temperature_spread_max: float = 0.0
+    cell_temperature_spread_time: float = 0.0
+    current_share_max: float = 1.0
+    hottest_cell: float = 0.0
+    hottest_time: float = 0.0
 
     @classmethod
     def from_batch(cls, extras: np.ndarray) -> Extremes:

@@ -38,7 +38,7 @@ from thermoelec.engine.events import (
     EVENT_NAMES,
     STOP_EVENTS,
 )
-from thermoelec.engine.layout import H_AMBIENT_TABLE, H_MODE, H_TIME, H_VALUE, cell_temperature_index, n_states
+from thermoelec.engine.layout import CELL_OF_EVENT, H_AMBIENT_TABLE, H_MODE, H_TIME, H_VALUE, cell_state_indices
 from thermoelec.engine.mission import (
     IMPOSED_VOLTAGE_SLACK,
     MIN_PHASE,
@@ -53,7 +53,7 @@ from thermoelec.engine.mission import (
 )
 from thermoelec.engine.model import Kernels, fired_event, trajectory_algebraics
 from thermoelec.engine.options import LINEAR_SOLVERS, SolverOptions, automatic_first_step
-from thermoelec.engine.problem import Problem, pack_parameters
+from thermoelec.engine.problem import Problem, jacobian_bandwidth, pack_parameters
 
 __all__ = ["REACH_FACTOR", "Trajectory", "integrate_problem"]
 
@@ -91,8 +91,10 @@ class Trajectory:
     message : str
         The solver's message for a failure, else empty.
     events : list of dict
-        Each event: ``time_s`` [s], ``event`` name, ``segment`` index, ``origin``, and
-        ``state`` (``"on"`` / ``"off"``) for a thermostat.
+        Each event: ``time_s`` [s], ``event`` name, ``segment`` index, ``origin``,
+        ``state`` (``"on"`` / ``"off"``) for a thermostat, and in a resolved pack
+        ``cell`` (from 0) for a cell limit or a thermostat: the cell at the limit
+        (for a voltage limit the first cell of the group at it), or the cell sensed.
     statistics : dict of str to float
         The back end's counters (:meth:`~thermoelec.engine.backends.Backend.statistics`).
     wall_time : float
@@ -207,14 +209,14 @@ def integrate_problem(problem: Problem, options: SolverOptions, initial_state: n
     soaking = soak_problem(problem)
     if soaking is not None:
         soak = integrate_problem(soaking, options, initial_state)
-        initial_state = start_after_soak(soak.states[-1], problem.n_rc)
+        initial_state = start_after_soak(soak.states[-1], problem.n_rc, problem.n_cells)
     if options.first_step == "auto":
         options = replace(options, first_step=automatic_first_step((s.duration for s in problem.segments),
                                                                    options.rtol))
     plan = plan_mission(problem)
     p = pack_parameters(problem)
-    kernels = Kernels(p, n_states(problem.n_rc))
-    backend = BACKENDS[options.backend](kernels, options, problem.n_rc)
+    kernels = Kernels(p, problem.n_states)
+    backend = BACKENDS[options.backend](kernels, options, problem.n_rc, problem.n_cells, jacobian_bandwidth(problem))
     started = _time.perf_counter()
     y = problem.initial_state() if initial_state is None else np.array(initial_state, dtype=float)
     run = _Run()
@@ -231,7 +233,8 @@ def _walk(plan: MissionPlan, problem: Problem, p: np.ndarray, kernels: Kernels, 
           y: np.ndarray, run: _Run) -> int:
     """Every segment of the plan in turn; returns the number completed (``run`` collects the rows)."""
     switches = thermostat_switches(problem)
-    controls = initial_controls(switches, y[cell_temperature_index(problem.n_rc)])
+    temperatures = y[cell_state_indices(problem.n_rc, problem.n_cells)[1]]
+    controls = initial_controls(switches, temperatures.max(), temperatures.min())
     default_ambient, default_table = problem.ambient_temperature, float(p[H_AMBIENT_TABLE])
     t = 0.0
     for seg in range(plan.n_segments):
@@ -245,6 +248,8 @@ def _walk(plan: MissionPlan, problem: Problem, p: np.ndarray, kernels: Kernels, 
             if fired is None:
                 break
             event = {"time_s": t, "event": EVENT_NAMES[fired], "segment": seg, "origin": plan.origins[seg]}
+            if problem.resolved is not None and fired in CELL_OF_EVENT:
+                event["cell"] = int(kernels.algebraics(y)[CELL_OF_EVENT[fired]])
             run.events.append(event)
             action = EVENT_ACTION[fired]
             if action == ACTION_TOGGLE:

@@ -17,8 +17,10 @@ from thermoelec.engine.layout import N_QUADRATURES
 
 __all__ = ["ATOL_SCALES", "FIRST_STEP_MAX", "LINEAR_SOLVERS", "SolverOptions", "automatic_first_step"]
 
-#: Newton matrices of the CVODE back end (``SolverOptions.linear_solver``).
-LINEAR_SOLVERS = ("auto", "dense", "diagonal")
+#: Newton matrices of the CVODE back end (``SolverOptions.linear_solver``): the full Jacobian, its
+#: diagonal, a band of it (CVODE's own difference quotients) or none (Krylov: GMRES on Jacobian-vector
+#: products); "auto" picks by the pack model (see SolverOptions).
+LINEAR_SOLVERS = ("auto", "dense", "diagonal", "band", "krylov")
 #: Longest automatic first step after a restart [s] (``SolverOptions.first_step``).
 FIRST_STEP_MAX = 1.0
 
@@ -65,9 +67,14 @@ class SolverOptions:
     linear_solver : str
         Newton matrix of the CVODE back end: ``"dense"`` (the full Jacobian),
         ``"diagonal"`` (its diagonal only: one right-hand-side call to form, no
-        matrix to hand over), or ``"auto"``: diagonal for a phase in which it
-        converges fast (:data:`thermoelec.engine.backends.DIAGONAL_CONTRACTION`),
-        dense otherwise and for a phase the diagonal one failed.
+        matrix to hand over), ``"band"`` (a band of the Jacobian around the cell
+        blocks, from CVODE's own difference quotients), ``"krylov"`` (no matrix:
+        GMRES on Jacobian-vector products, each one right-hand side), or
+        ``"auto"``: for a lumped pack diagonal in a phase in which it converges fast
+        (:data:`thermoelec.engine.backends.DIAGONAL_CONTRACTION`), dense otherwise and
+        for a phase the diagonal one failed; for a resolved pack Krylov (its bound
+        would cost a full Jacobian per phase, more than the phase), band for a phase
+        Krylov failed.
     scipy_method : str
         ``solve_ivp`` method for the scipy back end.
     """
@@ -84,26 +91,28 @@ class SolverOptions:
     linear_solver: str = "auto"
     scipy_method: str = "LSODA"
 
-    def atol_vector(self, n_rc: int) -> np.ndarray:
+    def atol_vector(self, n_rc: int, n_cells: int = 1) -> np.ndarray:
         """Per-state absolute tolerances in state order (:mod:`thermoelec.engine.layout`).
 
         Parameters
         ----------
         n_rc : int
             Number of RC pairs of the cell [-].
+        n_cells : int
+            Number of cell blocks: 1 for a lumped pack [-].
 
         Returns
         -------
         float64 array, shape (n_states,)
-            Tolerance of the SoC [-], of each RC voltage [V], of the cell, sink and
-            coolant temperatures [K] and of each quadrature [J, C].
+            Tolerance of each cell's SoC [-], RC voltages [V] and temperature [K], of the
+            sink and coolant temperatures [K] and of each quadrature [J, C].
         """
         def atol(name: str) -> float:
             given = getattr(self, f"atol_{name}")
             return given if given is not None else self.rtol * ATOL_SCALES[name]
 
-        return np.concatenate([[atol("soc")], np.full(n_rc, atol("voltage")),
-                               [atol("temperature"), atol("temperature"), atol("temperature")],
+        block = np.concatenate([[atol("soc")], np.full(n_rc, atol("voltage")), [atol("temperature")]])
+        return np.concatenate([np.tile(block, n_cells), [atol("temperature"), atol("temperature")],
                                np.full(N_QUADRATURES, atol("integral"))])
 
 

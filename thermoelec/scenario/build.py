@@ -6,7 +6,7 @@ repeated, soak segments apart. Files are read and segment tuples built through
 the scenario family's :class:`~thermoelec.scenario.cache.ScenarioCache`, so
 the variants of a sweep with one profile share one segment tuple.
 
-Imports the schema, series and cache modules of :mod:`thermoelec.scenario`,
+Imports the schema, series, cache and resolved-pack modules of :mod:`thermoelec.scenario`,
 :mod:`thermoelec.engine` and :mod:`thermoelec.physics`; never the loading module
 (the scenario object calls this one) nor the layers above.
 """
@@ -25,6 +25,7 @@ from thermoelec.inputs.errors import ScenarioError
 from thermoelec.physics.cell import Cell, Pack
 from thermoelec.physics.loads import LOAD_MODES
 from thermoelec.scenario.cache import ScenarioCache, file_version
+from thermoelec.scenario.resolved import resolved_pack
 from thermoelec.scenario.schema import CellSpec, ScenarioSpec, SegmentSpec
 from thermoelec.scenario.series import AMBIENT_COLUMN, read_ambient_csv, read_profile_csv
 
@@ -81,7 +82,7 @@ def build_problem(spec: ScenarioSpec, base_dir: Path, source: str, cache: Scenar
         initial_cell_temperature=t_cell, initial_sink_temperature=t_sink,
         limits=Limits(spec.limits.cell_temperature_max, spec.limits.charge_temperature_min),
         name=spec.scenario.name, stress=spec.stress.settings(),
-        ambient_profile=ambient_profile, soak=soak,
+        ambient_profile=ambient_profile, soak=soak, resolved=resolved_pack(spec, source),
     )
 
 

@@ -91,8 +91,8 @@ def run_chunk(scenario: Scenario, plan: SweepPlan, indices: Sequence[int],
     """
     rows: dict[int, dict[str, Any]] = {}
     if engine == "batch" and keep_interval is None:
-        # a batch shares one state layout and one set of solver settings (a swept solver.rtol
-        # makes batches of its own)
+        # a batch shares one state layout (RC pairs, cells) and one set of solver settings (a swept
+        # solver.rtol makes batches of its own)
         groups: dict[tuple, list[tuple[int, Any]]] = {}
         for i in indices:
             try:
@@ -100,8 +100,8 @@ def run_chunk(scenario: Scenario, plan: SweepPlan, indices: Sequence[int],
                 problem = variant.problem()
             except ScenarioError:
                 continue  # recorded by the solo path below
-            groups.setdefault((problem.n_rc, variant.solver_options()), []).append((i, problem))
-        for (_, options), members in groups.items():
+            groups.setdefault((problem.n_rc, problem.n_cells, variant.solver_options()), []).append((i, problem))
+        for (_, _, options), members in groups.items():
             outcome = batch.solve_batch([problem for _, problem in members], options)
             for j, (i, problem) in enumerate(members):
                 if outcome.status[j] == "ok":
