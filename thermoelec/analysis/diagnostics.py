@@ -103,7 +103,7 @@ def arrhenius_equivalent_time(times: np.ndarray, temperatures: np.ndarray, activ
 
 
 def stress_indicators(problem: Problem, times: np.ndarray, current: np.ndarray,
-                      cell_temperature: np.ndarray) -> dict[str, Any]:
+                      cell_temperature: np.ndarray, coldest: np.ndarray | None = None) -> dict[str, Any]:
     """Ageing and abuse stress of a mission: time hot, cold charging, C-rates, Arrhenius time.
 
     Parameters
@@ -111,11 +111,14 @@ def stress_indicators(problem: Problem, times: np.ndarray, current: np.ndarray,
     problem : Problem
         The simulated problem (limits, stress settings, capacity, layout).
     times, current, cell_temperature : arrays
-        Output rows [s], pack current [A] (> 0 discharging), cell temperature [K].
+        Output rows [s], pack current [A] (> 0 discharging), cell temperature [K] (of the
+        hottest cell of a resolved pack: the times hot and the Arrhenius time are its).
+    coldest : array, optional
+        Temperature of the coldest cell [K], for the times charging cold (default ``cell_temperature``).
     """
     stress = problem.stress
     charging = 0.5 * (current[:-1] + current[1:]) < 0.0 if len(current) > 1 else np.zeros(0, bool)
-    cold = -cell_temperature  # time below T  ==  time "above" -T
+    cold = -(cell_temperature if coldest is None else coldest)  # time below T  ==  time "above" -T
     capacity_ah = problem.cell.capacity / COULOMBS_PER_AH
     cell_current = current / problem.pack.parallel
     duration = float(times[-1] - times[0]) if len(times) else 0.0

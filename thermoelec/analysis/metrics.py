@@ -32,8 +32,8 @@ from thermoelec.engine.batch import EXTREMES, BatchOutcome
 from thermoelec.engine.problem import Problem
 from thermoelec.physics.constants import COULOMBS_PER_AH, JOULES_PER_WH, ZERO_CELSIUS
 
-__all__ = ["METRICS", "Extremes", "batch_metrics",
-           "energy_totals", "mission_metrics", "round_trip_efficiency"]
+__all__ = ["METRICS", "PACK_METRICS", "Extremes", "batch_metrics", "energy_totals", "metric_names",
+           "mission_metrics", "pack_soc", "round_trip_efficiency"]
 
 # Until physics/constants.py lands, the unit constants of analysis/ and output/ are defined here, once.
 
@@ -44,6 +44,54 @@ METRICS: tuple[str, ...] = (
     "energy_discharged_Wh", "heat_generated_Wh", "heat_to_ambient_Wh", "efficiency", "charge_throughput_Ah",
     "soc_end", "voltage_margin_min_V", "temperature_margin_K", "equivalent_time_at_reference_s",
 )
+#: The metrics a resolved pack adds (``pack.model = "resolved"``): the largest difference between the
+#: hottest and the coldest cell and when, the SoC spread at the end, the largest current of a cell over
+#: its group's mean, the hottest cell (numbered from 1) and when it peaked, the cell at the limit that
+#: stopped the mission (None when none did). A lumped pack's rows do not have them.
+PACK_METRICS: tuple[str, ...] = (
+    "cell_temperature_spread_max_K", "cell_temperature_spread_time_s", "soc_spread_end", "current_share_max",
+    "hottest_cell", "hottest_cell_time_s", "first_limit_cell",
+)
+
+
+def metric_names(problem: Problem) -> tuple[str, ...]:
+    """The metrics of a problem's rows: :data:`METRICS`, and :data:`PACK_METRICS` for a resolved pack.
+
+    Parameters
+    ----------
+    problem : Problem
+        The problem.
+
+    Returns
+    -------
+    tuple of str
+        Metric names in order.
+    """
+    return METRICS + (PACK_METRICS if problem.resolved is not None else ())
+
+
+def pack_soc(problem: Problem, state: np.ndarray) -> tuple[float, float]:
+    """The pack's SoC (capacity-weighted over the cells) and the spread of the cells' SoC in a state.
+
+    Parameters
+    ----------
+    problem : Problem
+        The problem (its resolved pack's capacities).
+    state : array
+        A state vector (``layout``) [-, V, K, J, C].
+
+    Returns
+    -------
+    soc : float
+        The pack's SoC [-] (the one cell's for a lumped pack).
+    spread : float
+        Highest minus lowest cell SoC [-] (0 for a lumped pack).
+    """
+    if problem.resolved is None:
+        return float(state[0]), 0.0
+    z = state[L.cell_state_indices(problem.n_rc, problem.n_cells)[0]]
+    q = problem.resolved.capacity_factor
+    return float(np.sum(q * z) / np.sum(q)), float(z.max() - z.min())
 
 
 @dataclass(frozen=True)
@@ -146,8 +194,8 @@ def round_trip_efficiency(q: np.ndarray) -> float | None:
 
 
 def mission_metrics(problem: Problem, start: np.ndarray, end: np.ndarray, extremes: Extremes, duration: float,
-                    stop_reason: str, status: str = "ok") -> dict[str, Any]:
-    """The :data:`METRICS` of one mission (and the energy parts of :func:`energy_totals`).
+                    stop_reason: str, status: str = "ok", stop_cell: int | None = None) -> dict[str, Any]:
+    """The metrics of one mission (:func:`metric_names`; and the energy parts of :func:`energy_totals`).
 
     Parameters
     ----------
@@ -164,12 +212,15 @@ def mission_metrics(problem: Problem, start: np.ndarray, end: np.ndarray, extrem
         Why the mission ended (``end_of_profile`` or a stop reason of ``engine.events``).
     status : str
         ``"ok"`` or ``"failed"`` (a failed run is never ``completed``).
+    stop_cell : int, optional
+        The cell (from 0) at the limit that stopped a resolved pack's mission.
 
     Returns
     -------
     dict
-        Every key of :data:`METRICS` (in its order, the energy parts among them); temperatures
-        [degC], differences [K], voltages [V], currents [A], energies [Wh], charge [Ah], times [s].
+        Every key of :data:`METRICS` (in its order, the energy parts among them), then those of
+        :data:`PACK_METRICS` for a resolved pack; temperatures [degC], differences [K], voltages [V],
+        currents [A], energies [Wh], charge [Ah], times [s], cells numbered from 1.
 
     Notes
     -----
@@ -177,9 +228,10 @@ def mission_metrics(problem: Problem, start: np.ndarray, end: np.ndarray, extrem
     integrate it differently by nature (see :class:`Extremes`), so they agree to the
     resolution of the output rows only.
     """
-    q = end[L.quadrature_index(problem.n_rc):]
-    cell_temperature_start = start[L.cell_temperature_index(problem.n_rc)]
-    return {
+    q = end[L.quadrature_index(problem.n_rc, problem.n_cells):]
+    cell_temperature_start = start[L.cell_state_indices(problem.n_rc, problem.n_cells)[1]].max()
+    soc_end, soc_spread = pack_soc(problem, end)
+    row = {
         "completed": status == "ok" and stop_reason == "end_of_profile",
         "duration_s": float(duration),
         "cell_temperature_max_degC": float(extremes.cell_temperature_max - ZERO_CELSIUS),
@@ -192,11 +244,23 @@ def mission_metrics(problem: Problem, start: np.ndarray, end: np.ndarray, extrem
         "heat_to_ambient_Wh": float(q[L.Q_HEAT_AMBIENT]) / JOULES_PER_WH,
         "efficiency": round_trip_efficiency(q),
         "charge_throughput_Ah": float(q[L.Q_THROUGHPUT]) / COULOMBS_PER_AH,
-        "soc_end": float(end[0]),
+        "soc_end": soc_end,
         "voltage_margin_min_V": float(extremes.cell_voltage_min - problem.cell.voltage_min),
         "temperature_margin_K": float(problem.limits.cell_temperature_max - extremes.cell_temperature_max),
         "equivalent_time_at_reference_s": float(extremes.equivalent_time_at_reference),
     }
+    if problem.resolved is not None:
+        row.update({
+            "cell_temperature_spread_max_K": float(extremes.cell_temperature_spread_max),
+            "cell_temperature_spread_time_s": float(extremes.cell_temperature_spread_time),
+            "soc_spread_end": soc_spread,
+            # no share is counted while the group's mean cell current is below C/20
+            "current_share_max": float(extremes.current_share_max) if extremes.current_share_max > 0 else None,
+            "hottest_cell": int(extremes.hottest_cell) + 1,
+            "hottest_cell_time_s": float(extremes.hottest_time),
+            "first_limit_cell": None if stop_cell is None or stop_cell < 0 else int(stop_cell) + 1,
+        })
+    return row
 
 
 def batch_metrics(problem: Problem, outcome: BatchOutcome, i: int) -> dict[str, Any]:
@@ -218,7 +282,9 @@ def batch_metrics(problem: Problem, outcome: BatchOutcome, i: int) -> dict[str, 
         Arrhenius-equivalent time is the kernel's trapezoid over accepted steps, not
         over output rows as in the solo summary.
     """
+    stop_cell = None if outcome.stop_cell is None else int(outcome.stop_cell[i])
     row = mission_metrics(problem, outcome.initial_states[i], outcome.states[i],
-                          Extremes.from_batch(outcome.extras[i]), outcome.duration[i], outcome.stop_reason[i])
+                          Extremes.from_batch(outcome.extras[i]), outcome.duration[i], outcome.stop_reason[i],
+                          stop_cell=stop_cell)
     row.update(status="ok", message="", stop_reason=outcome.stop_reason[i])
     return row

@@ -54,6 +54,7 @@ from thermoelec.engine.mission import (
 from thermoelec.engine.model import Kernels, fired_event, trajectory_algebraics
 from thermoelec.engine.options import LINEAR_SOLVERS, SolverOptions, automatic_first_step
 from thermoelec.engine.problem import Problem, jacobian_bandwidth, pack_parameters
+from thermoelec.engine.resolved import trajectory_cell_values
 
 __all__ = ["REACH_FACTOR", "Trajectory", "integrate_problem"]
 
@@ -138,6 +139,17 @@ class Trajectory:
             :data:`thermoelec.engine.layout.ALGEBRAICS`.
         """
         return trajectory_algebraics(self.times, self.states, self.phase_params, self.phase_index)
+
+    def cell_values(self) -> np.ndarray:
+        """Per-cell values of every row of a resolved pack (:func:`thermoelec.engine.resolved.trajectory_cell_values`).
+
+        Returns
+        -------
+        float64 array, shape (n, n_cells, N_CELL_VALUES)
+            Current [A], heat [W], group voltage [V], OCV [V], series resistance [Ω],
+            coolant temperature entering the cell's segment [K], heat to the coolant [W].
+        """
+        return trajectory_cell_values(self.times, self.states, self.phase_params, self.phase_index)
 
 
 def _output_times(t0: float, t_end: float, interval: float) -> list[float]:

@@ -44,7 +44,7 @@ from thermoelec.physics import thermal as thermphys
 from thermoelec.physics.constants import SECONDS_PER_HOUR
 from thermoelec.physics.loads import MODE_POWER, pack_current, power_deliverable_margin
 
-__all__ = ["CELL_VALUES", "N_CELL_VALUES", "evaluate_pack", "pack_cell_values"]
+__all__ = ["CELL_VALUES", "N_CELL_VALUES", "evaluate_pack", "pack_cell_values", "trajectory_cell_values"]
 
 _jit = numba.njit(cache=True, nogil=True, error_model="numpy")
 _inline = numba.njit(cache=True, nogil=True, error_model="numpy", inline="always")
@@ -397,3 +397,32 @@ def pack_cell_values(states, params, out):
         for c in range(n):
             for k in range(_CELL_VALUES.size):
                 out[r, c, k] = p[work + c * L.WORK_WIDTH + _CELL_VALUES[k]]
+
+
+def trajectory_cell_values(times: np.ndarray, states: np.ndarray, phase_params: np.ndarray,
+                           phase_index: np.ndarray) -> np.ndarray:
+    """Per-cell values (:data:`CELL_VALUES`) of every row of a resolved pack's trajectory.
+
+    Parameters
+    ----------
+    times : float64 array, shape (n,)
+        Row times [s] (an ambient profile is a function of time).
+    states : float64 array, shape (n, n_states)
+        State rows (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
+    phase_params : float64 array, shape (n_phases, len(p))
+        The parameter vector of each phase, of a resolved pack [SI, unit per slot].
+    phase_index : int array, shape (n,)
+        The phase of each row [-].
+
+    Returns
+    -------
+    float64 array, shape (n, n_cells, N_CELL_VALUES)
+        Current [A], heat [W], group voltage [V], OCV [V], series resistance [Ω],
+        coolant temperature entering the cell's segment [K], heat to the coolant [W].
+    """
+    params = phase_params[phase_index]
+    params[:, L.H_TIME] = times
+    n_cells = int(phase_params[0, L.H_NCELLS])
+    out = np.empty((len(states), n_cells, N_CELL_VALUES))
+    pack_cell_values(np.ascontiguousarray(states), params, out)
+    return out

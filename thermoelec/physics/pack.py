@@ -244,7 +244,7 @@ def spread_factors(n: int, relative_std: float, rng: np.random.Generator,
         Standard deviation of the factor before truncation, ``sigma`` [-], >= 0
         and below ``1 / truncation`` (every factor stays positive).
     rng : numpy.random.Generator
-        The generator the draws come from (a seeded one makes the build reproducible).
+        The generator the draws come from (a seeded one makes the build reproducible) [-].
     truncation : float
         Half-width of the allowed range in standard deviations [-], > 0.
 
