@@ -50,7 +50,7 @@ PACK_SERIES_UNITS: dict[str, tuple[str, str]] = {
     "soc_min": ("1", "lowest state of charge of a cell"),
     "soc_max": ("1", "highest state of charge of a cell"),
     "cell_voltage_max_V": ("V", "highest cell terminal voltage"),
-    "current_share_max": ("1", "largest cell current over its group's mean (NaN below C/20 per cell)"),
+    "current_share_max": ("1", "largest cell current over its group's mean (NaN below C/5 per cell)"),
 }
 #: Where each per-cell value comes from in the engine's work block (:data:`thermoelec.engine.resolved.CELL_VALUES`).
 _FROM_WORK = {"cells_current_A": L.W_CURRENT, "cells_heat_W": L.W_HEAT, "cells_voltage_V": L.W_VOLTAGE,

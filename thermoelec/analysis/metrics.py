@@ -254,7 +254,7 @@ def mission_metrics(problem: Problem, start: np.ndarray, end: np.ndarray, extrem
             "cell_temperature_spread_max_K": float(extremes.cell_temperature_spread_max),
             "cell_temperature_spread_time_s": float(extremes.cell_temperature_spread_time),
             "soc_spread_end": soc_spread,
-            # no share is counted while the group's mean cell current is below C/20
+            # no share is counted while the group's mean cell current is below C/5 (physics.pack)
             "current_share_max": float(extremes.current_share_max) if extremes.current_share_max > 0 else None,
             "hottest_cell": int(extremes.hottest_cell) + 1,
             "hottest_cell_time_s": float(extremes.hottest_time),

@@ -234,7 +234,7 @@ class CvodeBackend:
         (:func:`thermoelec.engine.model.diagonal_newton_contraction`); at most
         :data:`DIAGONAL_CONTRACTION` the phase takes the diagonal Newton matrix, and
         should it fail there, the phase is integrated again with the dense one. A
-        resolved pack takes Krylov (GMRES) steps, and the band matrix for a phase they failed.
+        resolved pack takes Krylov (GMRES) steps, and the dense matrix for a phase they failed.
 
         Parameters
         ----------
@@ -262,11 +262,11 @@ class CvodeBackend:
         """
         choice = self.options.linear_solver
         if self.resolved and choice == "auto":
-            # a resolved pack: Krylov (no bound to compute: it needs a full Jacobian), band should it fail
+            # a resolved pack: Krylov (the diagonal's bound would need a full Jacobian), dense should it fail
             w0, _ = self.kernels.shift_from(t0, y0, 0.0)
             outcome = self._integrate(t0, w0, t_end, outputs, find_roots, "krylov")
             if outcome.status == "error":
-                outcome = self._integrate(t0, w0, t_end, outputs, find_roots, "band")
+                outcome = self._integrate(t0, w0, t_end, outputs, find_roots, "dense")
             return outcome
         # the shift, and the contraction bound for the longest step the phase allows, in one kernel call
         w0, contraction = self.kernels.shift_from(t0, y0, t_end - t0 if choice == "auto" else 0.0)

@@ -1396,8 +1396,42 @@ class Kernels:
         return all_positive(y, self.p, self._alg, self._scratch, self._g_end)
 
 
+@_jit
+def evaluate_phase_rows(states, times, headers, phase_index, p, algebraics):
+    """Algebraic outputs of many rows, each in its phase: the phase's header written into ``p`` first.
+
+    The blocks after the header (tables, laws, a resolved pack's cell table) do not
+    change between phases, so a trajectory keeps one parameter vector and the
+    header of each phase (a resolved pack's vector is tens of kilobytes).
+
+    Parameters
+    ----------
+    states : float64 array, shape (n, n_states)
+        State rows (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
+    times : float64 array, shape (n,)
+        Row times [s].
+    headers : float64 array, shape (n_phases, HEADER)
+        The header of the parameter vector of each phase [SI, unit per slot].
+    phase_index : int64 array, shape (n,)
+        The phase of each row [-].
+    p : float64 array
+        A parameter vector of the scenario, overwritten (header, time, work block) [SI, unit per slot].
+    algebraics : float64 array, shape (n, N_ALGEBRAICS)
+        Written: the algebraic outputs of each row [A, V, Ω, W, K, ... unit per slot].
+    """
+    scratch = np.empty(states.shape[1])
+    alg = np.empty(N_ALGEBRAICS)
+    for r in range(states.shape[0]):
+        for k in range(headers.shape[1]):
+            p[k] = headers[phase_index[r], k]
+        p[H_TIME] = times[r]
+        evaluate_any(states[r], p, scratch, alg)
+        for k in range(N_ALGEBRAICS):
+            algebraics[r, k] = alg[k]
+
+
 def trajectory_algebraics(times: np.ndarray, states: np.ndarray, phase_params: np.ndarray,
-                          phase_index: np.ndarray) -> np.ndarray:
+                          phase_index: np.ndarray, parameters: np.ndarray) -> np.ndarray:
     """Algebraic outputs (:data:`thermoelec.engine.layout.ALGEBRAICS`) of every row of a trajectory.
 
     Parameters
@@ -1406,18 +1440,20 @@ def trajectory_algebraics(times: np.ndarray, states: np.ndarray, phase_params: n
         Row times [s] (an ambient profile is a function of time).
     states : float64 array, shape (n, n_states)
         State rows (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
-    phase_params : float64 array, shape (n_phases, len(p))
-        The parameter vector of each phase [SI, unit per slot].
+    phase_params : float64 array, shape (n_phases, HEADER)
+        The header of the parameter vector of each phase [SI, unit per slot].
     phase_index : int array, shape (n,)
         The phase of each row [-].
+    parameters : float64 array
+        The scenario's parameter vector (its blocks; the header is each phase's), not changed [SI, unit per slot].
 
     Returns
     -------
     float64 array, shape (n, N_ALGEBRAICS)
         Current [A], voltages [V], heats [W], ... in the declared order.
     """
-    params = phase_params[phase_index]
-    params[:, H_TIME] = times
     algebraics = np.empty((len(states), N_ALGEBRAICS))
-    evaluate_rows(np.ascontiguousarray(states), params, algebraics)
+    evaluate_phase_rows(np.ascontiguousarray(states), np.ascontiguousarray(times, dtype=float),
+                        np.ascontiguousarray(phase_params), np.ascontiguousarray(phase_index, dtype=np.int64),
+                        np.array(parameters, dtype=float), algebraics)
     return algebraics

@@ -374,33 +374,40 @@ _CELL_VALUES = np.array(CELL_VALUES, dtype=np.int64)
 
 
 @_jit
-def pack_cell_values(states, params, out):
-    """Per-cell values of many rows of a resolved pack, each row with its own parameter vector.
+def pack_cell_values(states, times, headers, phase_index, p, out):
+    """Per-cell values of many rows of a resolved pack, each row in its phase (its header written into ``p``).
 
     Parameters
     ----------
     states : float64 array, shape (n, n_states)
         State rows (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
-    params : float64 array, shape (n, len(p))
-        The parameter vector of each row, its time slot set; work blocks written [SI, unit per slot].
+    times : float64 array, shape (n,)
+        Row times [s].
+    headers : float64 array, shape (n_phases, HEADER)
+        The header of the parameter vector of each phase [SI, unit per slot].
+    phase_index : int64 array, shape (n,)
+        The phase of each row [-].
+    p : float64 array
+        The scenario's parameter vector, overwritten (header, time, work block) [SI, unit per slot].
     out : float64 array, shape (n, n_cells, N_CELL_VALUES)
         Written: the values of :data:`CELL_VALUES` for each row and cell [A, W, V, V, Ω, K, W].
     """
-    n_rows = states.shape[0]
     scratch = np.empty(states.shape[1])
     alg = np.empty(L.N_ALGEBRAICS)
     n = out.shape[1]
-    for r in range(n_rows):
-        p = params[r]
+    work = int(p[L.H_WORK])
+    for r in range(states.shape[0]):
+        for k in range(headers.shape[1]):
+            p[k] = headers[phase_index[r], k]
+        p[L.H_TIME] = times[r]
         evaluate_pack(states[r], p, scratch, alg)
-        work = int(p[L.H_WORK])
         for c in range(n):
             for k in range(_CELL_VALUES.size):
                 out[r, c, k] = p[work + c * L.WORK_WIDTH + _CELL_VALUES[k]]
 
 
 def trajectory_cell_values(times: np.ndarray, states: np.ndarray, phase_params: np.ndarray,
-                           phase_index: np.ndarray) -> np.ndarray:
+                           phase_index: np.ndarray, parameters: np.ndarray) -> np.ndarray:
     """Per-cell values (:data:`CELL_VALUES`) of every row of a resolved pack's trajectory.
 
     Parameters
@@ -409,10 +416,12 @@ def trajectory_cell_values(times: np.ndarray, states: np.ndarray, phase_params: 
         Row times [s] (an ambient profile is a function of time).
     states : float64 array, shape (n, n_states)
         State rows (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
-    phase_params : float64 array, shape (n_phases, len(p))
-        The parameter vector of each phase, of a resolved pack [SI, unit per slot].
+    phase_params : float64 array, shape (n_phases, HEADER)
+        The header of the parameter vector of each phase [SI, unit per slot].
     phase_index : int array, shape (n,)
         The phase of each row [-].
+    parameters : float64 array
+        The resolved pack's parameter vector (its blocks), not changed [SI, unit per slot].
 
     Returns
     -------
@@ -420,9 +429,8 @@ def trajectory_cell_values(times: np.ndarray, states: np.ndarray, phase_params: 
         Current [A], heat [W], group voltage [V], OCV [V], series resistance [Ω],
         coolant temperature entering the cell's segment [K], heat to the coolant [W].
     """
-    params = phase_params[phase_index]
-    params[:, L.H_TIME] = times
-    n_cells = int(phase_params[0, L.H_NCELLS])
-    out = np.empty((len(states), n_cells, N_CELL_VALUES))
-    pack_cell_values(np.ascontiguousarray(states), params, out)
+    out = np.empty((len(states), int(parameters[L.H_NCELLS]), N_CELL_VALUES))
+    pack_cell_values(np.ascontiguousarray(states), np.ascontiguousarray(times, dtype=float),
+                     np.ascontiguousarray(phase_params), np.ascontiguousarray(phase_index, dtype=np.int64),
+                     np.array(parameters, dtype=float), out)
     return out

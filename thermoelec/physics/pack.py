@@ -53,9 +53,10 @@ __all__ = [
 ]
 
 #: A cell's current share (its current over its group's mean, ``I_i Np / I``) is counted where the
-#: group's mean cell current is at least this C-rate [1/h]: C/20, the rate below which a current is
-#: taken as a trickle (the usual CC-CV cut-off; common practice). At rest the share has no meaning.
-SHARE_MIN_C_RATE = 0.05
+#: group's mean cell current is at least this C-rate [1/h], C/5: below it the balancing currents
+#: between the cells of a group (which flow at rest too, where the share has no meaning) dominate
+#: the ratio, not the way the load divides (a choice of ours).
+SHARE_MIN_C_RATE = 0.2
 #: Default truncation of the spread's normal distribution, in standard deviations
 #: (common practice for build tolerances: a cell outside three sigma fails incoming inspection).
 SPREAD_TRUNCATION = 3.0
