@@ -85,12 +85,14 @@ def pack_series(alg: np.ndarray) -> dict[str, np.ndarray]:
 
 
 def cell_coordinates(problem: Problem) -> dict[str, tuple[str, np.ndarray, dict[str, str]]]:
-    """Coordinates of the ``cell`` dimension: number, group, place in the group (from 1) and position."""
+    """Coordinates of the ``cell`` dimension: number, group, place in the group (from 1), position, wall, coolant."""
     rp = problem.resolved
     grid = rp.layout.grid is not None
     where = rp.layout.positions + (1.0 if grid else 0.0)
     first, second = ("row", "column") if grid else ("x", "y")
     unit = "1" if grid else "as in the scenario file"
+    station = np.zeros(rp.n_cells, dtype=np.int64)
+    station[rp.coolant_order] = np.arange(1, len(rp.coolant_order) + 1)
     return {
         "cell": ("cell", np.arange(1, rp.n_cells + 1), {"long_name": "cell number, group by group, from 1"}),
         "group": ("cell", rp.group + 1, {"long_name": "parallel group of the cell, from 1"}),
@@ -98,6 +100,8 @@ def cell_coordinates(problem: Problem) -> dict[str, tuple[str, np.ndarray, dict[
         first: ("cell", where[:, 0], {"units": unit, "long_name": f"{first} of the cell in the pack's layout"}),
         second: ("cell", where[:, 1], {"units": unit, "long_name": f"{second} of the cell in the pack's layout"}),
         "wall": ("cell", rp.layout.wall.astype(np.int8), {"long_name": "1 for a cell next to the housing wall"}),
+        "coolant_station": ("cell", station, {"long_name": "place of the cell along the coolant's path, from 1 "
+                                                            "at the inlet (0: off the path)"}),
     }
 
 

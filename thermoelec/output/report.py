@@ -16,7 +16,7 @@ from pathlib import Path
 from typing import Any
 
 from thermoelec.analysis.results import SimulationResult
-from thermoelec.output.tables import SUMMARY_ROWS, format_value
+from thermoelec.output.tables import PACK_ROWS, SUMMARY_ROWS, format_value
 
 __all__ = ["CAUTIONS", "comparison_report", "fit_report", "limit_checks", "run_report", "write_report"]
 
@@ -127,6 +127,24 @@ def _summary_table(summary: Mapping[str, Any]) -> str:
     return _table(["metric", "value"], rows)
 
 
+def _pack_section(result: SimulationResult, figure: Any) -> str:
+    """A resolved pack's cells: the hottest and where, the spreads, the first cell at a limit, the pack map."""
+    from thermoelec.output.figures import PACK_MAP
+
+    summary = result.summary
+    rows = [[_e(label), _e(format_value(summary.get(key), unit))] for label, key, unit in PACK_ROWS]
+    return "".join([
+        "<h2>Cells of the pack</h2>",
+        f"<p>Every cell resolved: {summary['cells']} cells, "
+        f"{result.limits['series']} groups in series of {result.limits['parallel']} in parallel. The pack's "
+        "cell temperature above is the hottest cell's; each cell is still one lumped node (its core-to-surface "
+        "gradient is not resolved).</p>",
+        _table(["metric", "value"], rows),
+        _figure(figure(PACK_MAP), "Pack map: the peak temperature of each cell where it sits, the hottest ringed, "
+                "parallel groups boxed, the coolant's path from inlet to outlet."),
+    ])
+
+
 def _warnings(warnings: Sequence[str]) -> str:
     if not warnings:
         return "<p>No warnings.</p>"
@@ -203,10 +221,11 @@ def run_report(result: SimulationResult, raw: Mapping[str, Any] | None = None, d
     files already written, so they are embedded instead of drawn again.
     """
     from thermoelec.output import figures
+    from thermoelec.output.pack_figures import pack_map
 
     pngs = pngs or {}
     drawn = {"dashboard": figures.dashboard, "energy": figures.energy_chart,
-             "operating_region": figures.operating_region}
+             "operating_region": figures.operating_region, figures.PACK_MAP: pack_map}
 
     def figure(name: str):
         return pngs[name] if name in pngs else drawn[name](result)
@@ -237,6 +256,7 @@ def run_report(result: SimulationResult, raw: Mapping[str, Any] | None = None, d
         "<h2>Limits</h2>", _checks_table(summary, result.limits),
         "<h2>Warnings</h2>", _warnings(result.warnings),
         "<h2>Summary</h2>", _summary_table(summary),
+        _pack_section(result, figure) if result.cells is not None else "",
         "<h2>Stress indicators</h2>",
         _table(["indicator", "value"], [[_e(label), _e(format_value(summary.get(key), unit))]
                                        for label, key, unit in stress]),
@@ -256,13 +276,13 @@ def run_report(result: SimulationResult, raw: Mapping[str, Any] | None = None, d
 def comparison_report(outcomes: Sequence[Any], raw: Mapping[str, Any] | None = None, title: str = "",
                       description: str = "") -> str:
     """The report of a case comparison as HTML text (``outcomes`` of :func:`thermoelec.analysis.compare.run_cases`)."""
-    from thermoelec.analysis.compare import COMPARISON_ROWS
+    from thermoelec.analysis.compare import comparison_rows
     from thermoelec.output import figures
 
     metrics = [o.metrics() for o in outcomes]
     names = [o.name for o in outcomes]
     rows = [[_e(label.strip()), *(_e(format_value(m.get(key), unit)) for m in metrics)]
-            for label, key, unit in COMPARISON_ROWS]
+            for label, key, unit in comparison_rows(outcomes)]
     verdicts = [[_e("limits"), *(_verdict_badge(verdict(o.result.summary, o.result.limits)) for o in outcomes)]]
     body = [
         f"<h1>{_e(title or 'case comparison')}</h1>",

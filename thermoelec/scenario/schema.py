@@ -402,6 +402,20 @@ class SpreadSpec(_Section):
         return self
 
 
+#: The serpentine coolant paths of a grid layout (``physics.pack.serpentine_order``).
+COOLANT_PATHS = ("rows", "columns")
+
+
+def _coolant_order(v: Any) -> Any:
+    """``"rows"``, ``"columns"`` or a list of cell numbers (whole numbers)."""
+    if v is None or v in COOLANT_PATHS:
+        return v
+    if isinstance(v, list) and all(isinstance(c, int) and not isinstance(c, bool) for c in v):
+        return v
+    raise ValueError(f"expected {' or '.join(repr(p) for p in COOLANT_PATHS)} (a serpentine along the grid) or a "
+                     f"list of cell numbers in flow order, got {v!r}")
+
+
 class PackThermalSpec(_Section):
     """The thermal paths of each cell of a resolved pack (per cell, W/K)."""
 
@@ -409,7 +423,7 @@ class PackThermalSpec(_Section):
     cell_to_sink: Conductance | None = None
     cell_to_ambient: Conductance | None = None
     wall_to_ambient: Conductance = 0.0
-    coolant_order: Literal["rows", "columns"] | list[int] | None = None
+    coolant_order: Annotated[Any, BeforeValidator(_coolant_order)] = None
     plate_conductance: Conductance | None = None
 
     @model_validator(mode="after")

@@ -17,7 +17,7 @@ from typing import Any
 
 import numpy as np
 
-from thermoelec.analysis.metrics import METRICS
+from thermoelec.analysis.metrics import METRICS, PACK_METRICS
 from thermoelec.analysis.sweep.plan import SweepPlan
 from thermoelec.analysis.sweep.run import KEPT_SERIES
 from thermoelec.scenario import Scenario
@@ -27,7 +27,12 @@ __all__ = ["passes", "sweep_dataset", "write_series", "write_sweep"]
 
 
 def sweep_dataset(scenario: Scenario, plan: SweepPlan, rows: Sequence[Mapping[str, Any]]):
-    """One xarray Dataset: a dimension per swept key (or ``case`` for zip), a variable per metric."""
+    """One xarray Dataset: a dimension per swept key (or ``case`` for zip), a variable per metric.
+
+    The metrics are :data:`~thermoelec.analysis.metrics.METRICS`, and those of
+    :data:`~thermoelec.analysis.metrics.PACK_METRICS` a resolved pack's rows have
+    (cells numbered from 1; NaN where a row has none, as a lumped row or no cell at a limit).
+    """
     import xarray as xr
 
     shape = plan.shape
@@ -37,7 +42,9 @@ def sweep_dataset(scenario: Scenario, plan: SweepPlan, rows: Sequence[Mapping[st
         dim = "case" if plan.mode == "zip" else axis.path
         coords[axis.path] = (dim, np.array(axis.coords), {"units": axis.unit or "as in the scenario file"})
     data: dict[str, Any] = {}
-    for key in METRICS:
+    # a resolved pack's metrics where a row has them (a lumped sweep keeps the variables it had)
+    pack = tuple(key for key in PACK_METRICS if any(key in r for r in rows))
+    for key in METRICS + pack:
         values = np.array([np.nan if r.get(key) is None else float(r[key]) for r in rows]).reshape(shape)
         data[key] = (dims, values, {"units": _unit_of(key)})
     for key in ("status", "message", "stop_reason", "engine"):

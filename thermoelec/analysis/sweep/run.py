@@ -25,7 +25,7 @@ from typing import Any
 
 import numpy as np
 
-from thermoelec.analysis.metrics import METRICS, batch_metrics
+from thermoelec.analysis.metrics import METRICS, PACK_METRICS, batch_metrics
 from thermoelec.analysis.simulate import simulate
 from thermoelec.analysis.sweep.plan import SweepPlan
 from thermoelec.engine import batch
@@ -50,7 +50,10 @@ def decimate(series: Mapping[str, np.ndarray], interval: float) -> dict[str, lis
 
 def solo_metrics(scenario: Scenario, overrides: Mapping[str, Any], keep_interval: float | None = None
                  ) -> dict[str, Any]:
-    """The :data:`METRICS` row of one scenario solved on its own back end (the summary's values).
+    """The metrics row of one scenario solved on its own back end (the summary's values).
+
+    :data:`~thermoelec.analysis.metrics.METRICS`, and for a resolved pack
+    :data:`~thermoelec.analysis.metrics.PACK_METRICS` too.
 
     Parameters
     ----------
@@ -73,7 +76,8 @@ def solo_metrics(scenario: Scenario, overrides: Mapping[str, Any], keep_interval
         return {"status": "invalid", "message": str(exc)}
     except Exception as exc:  # a scenario must never stop the sweep
         return {"status": "failed", "message": f"{type(exc).__name__}: {exc}"}
-    row: dict[str, Any] = {k: result.summary.get(k) for k in METRICS}
+    names = METRICS + (PACK_METRICS if result.cells is not None else ())  # a resolved pack's too
+    row: dict[str, Any] = {k: result.summary.get(k) for k in names}
     row.update(status=result.status, message=result.message, stop_reason=result.summary["stop_reason"])
     if keep_interval is not None:
         row["series"] = decimate(result.series, keep_interval)
