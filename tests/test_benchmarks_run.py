@@ -42,3 +42,10 @@ def test_sweep_benchmark_runs_quick():
 def test_sweep_scale_benchmark_runs_quick():
     out = _run("bench_sweep_scale.py", "--quick")
     assert "linear in scenarios" in out and "peak memory" in out
+
+
+@pytest.mark.slow
+def test_pack_benchmark_runs_quick():
+    out = _run("bench_pack.py", "--quick")
+    assert "target 14s4p on the batched engine" in out and "solve_ivp LSODA loop, per cell" in out
+    assert "thermoelec sweep --workers 2, end to end" in out
