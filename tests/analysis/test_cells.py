@@ -112,3 +112,15 @@ def test_a_sweep_over_the_seed_is_a_monte_carlo_of_builds(tmp_path):
     plain = sweep_dataset(lumped, lumped_plan, run_sweep(lumped, lumped_plan, tmp_path / "lumped", workers=1,
                                                          progress=False))
     assert not set(PACK_METRICS) & set(plain.data_vars)
+
+
+def test_the_biot_check_takes_the_best_cooled_cells_paths():
+    # a cylinder of 21 x 70 mm (V/A = 4.56522 mm, VALIDATION.md §1), k = 0.5 W/m/K; cell 1 of the 3 x 2 grid
+    # has the strongest paths: its sink share (0.6/6 W/K), a heavy plate (2 W/K), the wall's 0.01 W/K and its
+    # two neighbours' 0.1 W/K each
+    data = _pack(cell=[{"cell": 1, "plate_conductance": "2 W/K"}])
+    data["cell"] = data["cell"] | {"diameter": "21 mm", "length": "70 mm", "thermal_conductivity": "0.5 W/m/K"}
+    summary = simulate(data).summary
+    area = np.pi * 0.021 * 0.070 + np.pi * 0.021**2 / 2  # Incropera §5.1: ends included
+    h = (0.6 / 6 + 2.0 + 0.01 + 2 * 0.1) / area
+    assert summary["biot_number"] == pytest.approx(h * 4.56522e-3 / 0.5, rel=1e-5)
