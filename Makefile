@@ -14,6 +14,7 @@ all: test
 
 $(STAMP): pyproject.toml
 	@tools/ensure-sundials
+	@tools/ensure-chromium
 	@test -x $(BIN)/python || $(PYTHON) -m venv $(VENV)
 	@$(BIN)/python -m pip install -q --disable-pip-version-check --upgrade pip
 	@echo "thermoelec set-up: installing the package and its dependencies into $(VENV)"
@@ -79,12 +80,14 @@ bench: $(STAMP)
 	$(BIN)/python benchmarks/bench_single_mission.py
 	$(BIN)/python benchmarks/bench_sweep.py
 	$(BIN)/python benchmarks/bench_sweep_scale.py
+	$(BIN)/python benchmarks/bench_sweep_figures.py
 	$(BIN)/python benchmarks/bench_pack.py
 
 bench-quick: $(STAMP)
 	$(BIN)/python benchmarks/bench_single_mission.py --quick
 	$(BIN)/python benchmarks/bench_sweep.py --quick
 	$(BIN)/python benchmarks/bench_sweep_scale.py --quick
+	$(BIN)/python benchmarks/bench_sweep_figures.py --quick
 	$(BIN)/python benchmarks/bench_pack.py --quick
 
 clean:

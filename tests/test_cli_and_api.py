@@ -155,7 +155,7 @@ def test_api_plot_functions_draw_the_result():
     assert len(dashboard.axes) == 6
     (current_line,) = [line for line in dashboard.axes[1].lines if len(line.get_ydata()) > 2]  # not the markers
     np.testing.assert_array_equal(current_line.get_ydata(), result.series["current_A"])
-    assert energy.axes[0].get_xlabel() == "charge discharged [Ah]"
+    assert energy.axes[1].get_xlabel() == "charge moved, discharge [Ah]"
     points = region.axes[0].collections[-1].get_offsets()
     discharging = result.series["current_A"] > 0
     np.testing.assert_allclose(points[:, 0], result.series["current_A"][discharging])

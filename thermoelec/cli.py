@@ -1,8 +1,18 @@
-"""The command line: ``thermoelec run SCENARIO --out DIR`` and ``thermoelec compare SCENARIO --out DIR``.
+"""thermoelec: thermal-electrical duty-cycle co-simulation of battery cells and packs.
 
-Exit status: 0 when the run finished (whatever ``completed`` says), 2 for an
-invalid scenario or profile (one message naming the file and the key), 1 for
-anything else (a solver failure still writes what was computed).
+commands:
+  run SCENARIO --out DIR       simulate one scenario: summary, time series, figures, a report with the verdict
+  compare SCENARIO --out DIR   run the scenario's [[case]] variants (a cold start, a hot soak, ...) side by side
+  sweep SCENARIO --out DIR     run every combination of swept keys, or search for the least (greatest) value
+                               of one key that meets a criterion
+  fit {ocv,pulse,thermal} LOG  fit cell or thermal parameters to test logs and write a cell file
+  check SCENARIO               validate a scenario without running it: its parameters with defaults and
+                               units, and what its profile asks of the pack
+  new FILE                     write a commented template scenario to start from
+
+Exit status: 0 when the run finished (whatever its verdict says), 2 for invalid
+input (one message naming the file and the key), 1 for anything else (a solver
+failure still writes what was computed). "thermoelec COMMAND --help" for each.
 """
 
 from __future__ import annotations
@@ -10,6 +20,9 @@ from __future__ import annotations
 import argparse
 import os
 import sys
+import threading
+from collections.abc import Iterator
+from contextlib import contextmanager
 from pathlib import Path
 
 from thermoelec.inputs import ScenarioError, to_si
@@ -30,15 +43,49 @@ def _overrides(pairs: list[str]) -> dict:
     return overrides
 
 
+#: A task shows its progress only when it takes longer than this [s] (and stderr is a terminal).
+PROGRESS_DELAY = 1.5
+
+
+@contextmanager
+def _progress(label: str, enabled: bool = True) -> Iterator[None]:
+    """An elapsed-time line on stderr (tqdm) while a task runs: only on a terminal, only past
+    :data:`PROGRESS_DELAY` (a first run compiles the kernels for about ten seconds)."""
+    if not enabled:
+        yield
+        return
+    from tqdm import tqdm
+
+    done = threading.Event()
+
+    def show() -> None:
+        if done.wait(PROGRESS_DELAY):
+            return
+        with tqdm(total=None, desc=label, bar_format="{desc}: {elapsed}", file=sys.stderr, disable=None,
+                  leave=False) as bar:
+            while not done.wait(0.5):
+                bar.refresh()
+
+    thread = threading.Thread(target=show, daemon=True)
+    thread.start()
+    try:
+        yield
+    finally:
+        done.set()
+        thread.join()
+
+
 def _write_run(result, scenario, out: Path, figures: bool) -> None:
     """Results first (so a plotting problem loses nothing), then figures and the report."""
     result.write(out)
     if figures:
         from thermoelec.output.figures import write_figures
         from thermoelec.output.report import run_report, write_report
+        from thermoelec.scenario.parameters import resolved_parameters
 
         pngs = {p.stem: p.read_bytes() for p in write_figures(result, out) if p.suffix == ".png"}
-        write_report(run_report(result, scenario.raw, scenario.spec.scenario.description, pngs), out)
+        write_report(run_report(result, scenario.raw, scenario.spec.scenario.description, pngs,
+                                resolved_parameters(scenario)), out)
 
 
 def _run(args: argparse.Namespace) -> int:
@@ -48,16 +95,18 @@ def _run(args: argparse.Namespace) -> int:
     if args.backend:
         overrides["solver.backend"] = args.backend
     scenario = load_scenario(args.scenario, overrides)
-    result = simulate(scenario)
+    with _progress(f"simulating {scenario.name}", not args.quiet):
+        result = simulate(scenario)
     out = Path(args.out)
     try:
-        _write_run(result, scenario, out, not args.no_figures)
+        with _progress("writing results and figures", not args.quiet):
+            _write_run(result, scenario, out, not args.no_figures)
     except OSError as exc:
         print(f"thermoelec: cannot write results to {out}: {exc.strerror or exc}", file=sys.stderr)
         return EXIT_FAILURE
     if not args.quiet:
-        print_summary(result.summary, sys.stdout)
         print(f"results in {out}/", file=sys.stdout)
+        print_summary(result.summary, sys.stdout)
     if result.status != "ok":
         print(f"thermoelec: the solver failed: {result.message} (results up to the failure are in {out}/)",
               file=sys.stderr)
@@ -79,36 +128,54 @@ def _cases(tokens: list[list[str]]) -> list[tuple[str, dict]]:
 
 def _compare(args: argparse.Namespace) -> int:
     from thermoelec.analysis.compare import case_list, run_cases, write_comparison
-    from thermoelec.output.tables import format_comparison
 
     scenario = load_scenario(args.scenario, _overrides(args.set or []))
-    outcomes = run_cases(scenario, case_list(scenario, _cases(args.case or [])))
+    cases = case_list(scenario, _cases(args.case or []))
+    with _progress(f"simulating {len(cases)} cases of {scenario.name}", not args.quiet):
+        outcomes = run_cases(scenario, cases)
     out = Path(args.out)
     try:
-        write_comparison(outcomes, out)
-        if not args.no_figures:
-            from thermoelec.output.figures import write_comparison_figure
-            from thermoelec.output.report import comparison_report, write_report
+        with _progress("writing results and figures", not args.quiet):
+            write_comparison(outcomes, out)
+            if not args.no_figures:
+                from thermoelec.output.figures import write_comparison_figure
+                from thermoelec.output.report import comparison_report, write_report
+                from thermoelec.scenario.parameters import resolved_parameters
 
-            write_comparison_figure({o.name: o.result for o in outcomes}, out)
-            write_report(comparison_report(outcomes, scenario.raw, scenario.name,
-                                           scenario.spec.scenario.description), out)
+                write_comparison_figure({o.name: o.result for o in outcomes}, out)
+                write_report(comparison_report(outcomes, scenario.raw, scenario.name,
+                                               scenario.spec.scenario.description,
+                                               resolved_parameters(scenario)), out)
     except OSError as exc:
         print(f"thermoelec: cannot write results to {out}: {exc.strerror or exc}", file=sys.stderr)
         return EXIT_FAILURE
     if not args.quiet:
-        print(f"scenario: {scenario.name}")
-        print(format_comparison(outcomes))
-        for outcome in outcomes:
-            for warning in outcome.result.warnings:
-                print(f"  warning ({outcome.name}): {warning}")
-        print(f"comparison in {out}/")
+        _print_comparison(scenario.name, outcomes, out)
     failed = [o.name for o in outcomes if o.result.status != "ok"]
     if failed:
         print(f"thermoelec: the solver failed for case(s) {', '.join(failed)} (their results up to the failure "
               f"are in {out}/cases/)", file=sys.stderr)
         return EXIT_FAILURE
     return EXIT_OK
+
+
+def _print_comparison(name: str, outcomes, out: Path) -> None:
+    """The comparison table, each case's stop, notes and warnings, and the verdicts last."""
+    from thermoelec.output.tables import format_comparison, verdict_line
+
+    print(f"comparison in {out}/")
+    print(f"scenario: {name}")
+    print(format_comparison(outcomes))
+    for outcome in outcomes:
+        summary = outcome.result.summary
+        if summary.get("stop_explanation"):
+            print(f"  {outcome.name}: {summary['stop_explanation']}")
+        for note in summary.get("notes", []):
+            print(f"  note ({outcome.name}): {note}")
+        for warning in outcome.result.warnings:
+            print(f"  warning ({outcome.name}): {warning}")
+    for outcome in outcomes:
+        print(f"{outcome.name}: {verdict_line(outcome.result.summary)}")
 
 
 def _quantity_option(text: str, unit: str, option: str) -> float:
@@ -132,21 +199,8 @@ def _fit(args: argparse.Namespace) -> int:
         columns[key.strip()] = value.strip()
     mapping = read_mapping(args.mapping, columns, args.charge_positive)
 
-    if args.kind == "ocv":
-        outcome = fit.fit_ocv_logs(args.logs, mapping, args.points, args.cell)
-    elif args.kind == "pulse":
-        if not args.cell:
-            raise ScenarioError("fit pulse", "--cell", "give the cell file with the capacity and OCV "
-                                "(from thermoelec fit ocv)")
-        temps = None if not args.temperature else [_quantity_option(t, "degC", "--temperature")
-                                                     for t in args.temperature]
-        outcome = fit.fit_pulse_logs(args.logs, mapping, args.cell, args.rc, temps, args.arrhenius)
-    else:
-        if len(args.logs) != 1:
-            raise ScenarioError("fit thermal", "LOG", "give one heating-and-cooling log")
-        ambient = None if args.ambient is None else _quantity_option(args.ambient, "degC", "--ambient")
-        mass = None if args.mass is None else _quantity_option(args.mass, "kg", "--mass")
-        outcome = fit.fit_thermal_log(args.logs[0], mapping, args.cell, ambient, mass)
+    with _progress(f"fitting {args.kind}", not args.quiet):
+        outcome = _fit_outcome(args, fit, mapping)
     try:
         written = outcome.write(args.out)
     except OSError as exc:
@@ -160,6 +214,24 @@ def _fit(args: argparse.Namespace) -> int:
             print(f"  note: {note}")
         print("wrote " + ", ".join(str(path) for path in written))
     return EXIT_OK
+
+
+def _fit_outcome(args: argparse.Namespace, fit, mapping):
+    """The fit job of ``args.kind`` on the logs."""
+    if args.kind == "ocv":
+        return fit.fit_ocv_logs(args.logs, mapping, args.points, args.cell)
+    if args.kind == "pulse":
+        if not args.cell:
+            raise ScenarioError("fit pulse", "--cell", "give the cell file with the capacity and OCV "
+                                "(from thermoelec fit ocv)")
+        temps = None if not args.temperature else [_quantity_option(t, "degC", "--temperature")
+                                                     for t in args.temperature]
+        return fit.fit_pulse_logs(args.logs, mapping, args.cell, args.rc, temps, args.arrhenius)
+    if len(args.logs) != 1:
+        raise ScenarioError("fit thermal", "LOG", "give one heating-and-cooling log")
+    ambient = None if args.ambient is None else _quantity_option(args.ambient, "degC", "--ambient")
+    mass = None if args.mass is None else _quantity_option(args.mass, "kg", "--mass")
+    return fit.fit_thermal_log(args.logs[0], mapping, args.cell, ambient, mass)
 
 
 def _sweep(args: argparse.Namespace) -> int:
@@ -196,7 +268,7 @@ def _sweep(args: argparse.Namespace) -> int:
 
             write_search_figure(found, out)
         if not args.quiet:
-            print(found.to_dataframe().to_string())
+            _print_search(found)
             print(f"search results in {out}/")
         return EXIT_OK
     plan = sweep.plan_sweep(scenario, args.sweep or [])
@@ -215,40 +287,181 @@ def _sweep(args: argparse.Namespace) -> int:
     if not args.no_figures:
         from thermoelec.output.sweep_figures import write_sweep_figures
 
-        write_sweep_figures(ds, out)
+        with _progress("drawing the sweep's maps", not args.quiet):
+            write_sweep_figures(ds, out)
     if keep is not None:
         sweep.write_series(plan, rows, out)
     if not args.quiet:
         passed = int(sweep.passes(ds).sum())
         print(f"{passed} of {plan.size} pass; {ds.attrs['failed']} failed to solve or were invalid; "
-              f"results in {out}/sweep.nc")
+              f"results in {out}/sweep.nc and {out}/sweep.csv")
     return EXIT_OK
 
 
-def build_parser() -> argparse.ArgumentParser:
-    """The argument parser of the ``thermoelec`` command."""
-    parser = argparse.ArgumentParser(prog="thermoelec", description=__doc__.splitlines()[0])
-    parser.add_argument("--version", action="version", version=f"thermoelec {__version__}")
-    sub = parser.add_subparsers(dest="command", required=True)
-    run = sub.add_parser("run", help="simulate one scenario and write its results")
+def _print_search(found) -> None:
+    """The found value for every combination of the other keys, with its status in words."""
+    name = next(v for v in found.data_vars if v.startswith(("least_", "greatest_")))
+    unit = found[name].attrs.get("units", "")
+    frame = found.to_dataframe().reset_index()
+    for _, row in frame.iterrows():
+        where = ", ".join(f"{k} = {row[k]:g} {found[k].attrs.get('units', '')}".rstrip()
+                          if isinstance(row[k], float) else f"{k} = {row[k]}"
+                          for k in found[name].dims if k != "case") or "the scenario"
+        status = row["status"]
+        value = f"{row[name]:.6g} {unit}".strip()
+        said = {"ok": value, "at_bound": row["message"], "not_met": "not met in range"}.get(status, row["message"])
+        print(f"  {where}: {said}")
+
+
+def _check(args: argparse.Namespace) -> int:
+    from thermoelec.analysis.demand import profile_demand
+    from thermoelec.scenario.parameters import resolved_parameters
+
+    scenario = load_scenario(args.scenario, _overrides(args.set or []))
+    problem = scenario.problem()  # reads the profile files: a bad CSV is reported as run reports it
+    if args.quiet:
+        return EXIT_OK
+    rows = resolved_parameters(scenario, problem)
+    width = max(len(p.key) for p in rows)
+    print(f"{args.scenario}: valid scenario {scenario.name!r}")
+    print("parameters (value in the key's unit; source: given, override or default):")
+    shown = [(p, f"{p.value if len(p.value) <= 70 else p.value[:67] + '...'} {p.unit}".rstrip()) for p in rows]
+    value_width = max(len(text) for _, text in shown)
+    for p, text in shown:
+        print(f"  {p.key:<{width}}  {text:<{value_width}}  [{p.source}]")
+    _print_demand(profile_demand(problem))
+    for note in problem.notes:
+        print(f"note: {note}")
+    return EXIT_OK
+
+
+def _print_demand(d: dict) -> None:
+    from thermoelec.output.tables import format_value
+
+    print("profile:")
+    lines = [
+        ("segments", d["segments"], ""), ("duration", d["duration_s"], "s"), ("soak before it", d["soak_s"], "s"),
+        ("energy demanded, discharge", d["energy_discharge_Wh"], "Wh"),
+        ("energy demanded, charge and regeneration", d["energy_charge_Wh"], "Wh"),
+        ("pack energy at the initial OCV", d["capacity_Wh"], "Wh"),
+        ("charge demanded, discharge", d["charge_discharge_Ah"], "Ah"),
+        ("charge demanded, charge", d["charge_charge_Ah"], "Ah"),
+        ("peak power demanded", d["power_peak_W"], "W"), ("peak regeneration", d["power_regeneration_peak_W"], "W"),
+        ("peak C-rate, discharge (per cell)", d["c_rate_discharge_peak"], ""),
+        ("peak C-rate, charge (per cell)", d["c_rate_charge_peak"], ""),
+        ("time whose demand depends on the run", d["run_dependent_s"], "s"),
+    ]
+    width = max(len(label) for label, _, _ in lines)
+    for label, value, unit in lines:
+        print(f"  {label:<{width}}  {format_value(float(value) if isinstance(value, float) else value, unit)}")
+    if d["estimated"]:
+        print(f"  estimated at the initial open-circuit voltage ({d['initial_ocv_V']:.4g} V): "
+              + ", ".join(d["estimated"]))
+
+
+def _new(args: argparse.Namespace) -> int:
+    from thermoelec.scenario.template import TEMPLATE
+
+    path = Path(args.file)
+    if path.exists() and not args.force:
+        raise ScenarioError(str(path), "", "the file exists; give another name or --force to overwrite it")
+    try:
+        path.parent.mkdir(parents=True, exist_ok=True)
+        path.write_text(TEMPLATE)
+    except OSError as exc:
+        print(f"thermoelec: cannot write {path}: {exc.strerror or exc}", file=sys.stderr)
+        return EXIT_FAILURE
+    print(f"wrote {path}: edit it, then thermoelec check {path}")
+    return EXIT_OK
+
+
+def _add_fit_parsers(sub) -> None:
+    """``fit ocv``, ``fit pulse`` and ``fit thermal``, each with its own help and options."""
+    common = argparse.ArgumentParser(add_help=False)
+    common.add_argument("--out", required=True, help="cell file to write (TOML); the report goes beside it")
+    common.add_argument("--mapping", help="TOML file mapping the log's columns, units and sign")
+    common.add_argument("--column", action="append", metavar="QUANTITY=COLUMN",
+                        help="column name of a quantity (time, current, voltage, temperature, ambient, "
+                             "sink_temperature, power)")
+    common.add_argument("--charge-positive", action="store_true", help="the logs count charge current as positive")
+    common.add_argument("--quiet", action="store_true", help="print nothing")
+    fitting = sub.add_parser("fit", help="fit cell or thermal parameters to test logs and write a cell file",
+                             description="Fit cell or thermal parameters to test logs; each kind writes a cell "
+                                         "file and a report beside it. 'thermoelec fit KIND --help' for each.")
+    kinds = fitting.add_subparsers(dest="kind", required=True, metavar="{ocv,pulse,thermal}")
+    ocv = kinds.add_parser("ocv", parents=[common], help="OCV and capacity from a slow discharge and charge",
+                           description="OCV and capacity from a slow (C/20 or slower) full discharge and full "
+                                       "charge, in that order: writes cell.capacity and [cell.ocv].")
+    ocv.add_argument("logs", nargs="+", metavar="LOG", help="the slow discharge log, then the slow charge log")
+    ocv.add_argument("--points", type=int, default=21, help="SoC points of the OCV table (default 21)")
+    ocv.add_argument("--cell", help="a cell file with the resistances, to turn the half-gap into a hysteresis")
+    pulse = kinds.add_parser("pulse", parents=[common], help="R0 and RC pairs from pulse-test logs",
+                             description="R0 and RC pairs over SoC and temperature from pulse (HPPC-style) logs, "
+                                         "one per temperature: writes [cell.r0] and [[cell.rc]].")
+    pulse.add_argument("logs", nargs="+", metavar="LOG", help="pulse-test logs, one per temperature")
+    pulse.add_argument("--cell", help="the cell file with the capacity and OCV (thermoelec fit ocv); required")
+    pulse.add_argument("--rc", type=int, choices=(1, 2), default=1, help="RC pairs to fit (default 1)")
+    pulse.add_argument("--temperature", nargs="+", help="test temperature of each log, if not in the logs")
+    pulse.add_argument("--arrhenius", action="store_true",
+                       help="write R0 as a table over SoC with an activation energy instead of a 2-D table")
+    thermal = kinds.add_parser("thermal", parents=[common], help="heat capacity and conductances from a heater test",
+                               description="Heat capacity and conductance(s) from one heating-and-cooling log "
+                                           "(a two-node rig with a sink temperature column): writes "
+                                           "cell.specific_heat when the mass is known.")
+    thermal.add_argument("logs", nargs="+", metavar="LOG", help="the heating-and-cooling log (one)")
+    thermal.add_argument("--cell", help="a cell file to extend (its mass gives the specific heat)")
+    thermal.add_argument("--ambient", help="ambient temperature, if not in the log, e.g. '22 degC'")
+    thermal.add_argument("--mass", help="cell mass, for the specific heat, e.g. '68 g'")
+    for kind in (ocv, pulse, thermal):
+        kind.set_defaults(handler=_fit, points=21, rc=1, temperature=None, arrhenius=False, ambient=None, mass=None)
+
+
+def _add_run_parsers(sub) -> None:
+    run = sub.add_parser("run", help="simulate one scenario and write its results",
+                         description="Simulate one scenario: summary.json (with the verdict), the time series, "
+                                     "figures and report.html in --out; the summary ends with the verdict.")
     run.add_argument("scenario", help="scenario file (TOML)")
     run.add_argument("--out", required=True, help="output folder (created if missing)")
     run.add_argument("--set", action="append", metavar="KEY=VALUE",
                      help="override a scenario value by dotted path, e.g. thermal.ambient_temperature='-20 degC'")
     run.add_argument("--backend", choices=("cvode", "scipy"), help="solver back end (overrides [solver])")
-    run.add_argument("--quiet", action="store_true", help="print no summary")
+    run.add_argument("--quiet", action="store_true", help="print no summary and no progress")
     run.add_argument("--no-figures", action="store_true", help="write no figures and no report (faster)")
     run.set_defaults(handler=_run)
-    compare = sub.add_parser("compare", help="run the scenario's [[case]] variants side by side")
+    compare = sub.add_parser("compare", help="run the scenario's [[case]] variants side by side",
+                             description="Run the scenario's [[case]] variants (and --case ones) side by side: "
+                                         "comparison.csv / .json with each case's verdict, its runs in cases/, "
+                                         "figures and report.html.")
     compare.add_argument("scenario", help="scenario file (TOML)")
     compare.add_argument("--out", required=True, help="output folder (created if missing)")
     compare.add_argument("--case", action="append", nargs="+", metavar="NAME KEY=VALUE",
                          help="an extra case: its name, then dotted-path overrides; may repeat")
     compare.add_argument("--set", action="append", metavar="KEY=VALUE", help="override a value in every case")
-    compare.add_argument("--quiet", action="store_true", help="print no table")
+    compare.add_argument("--quiet", action="store_true", help="print no table and no progress")
     compare.add_argument("--no-figures", action="store_true", help="write no figures and no report (faster)")
     compare.set_defaults(handler=_compare)
-    sw = sub.add_parser("sweep", help="run every combination of swept keys, or search for the least cooling")
+    check = sub.add_parser("check", help="validate a scenario without running it",
+                           description="Validate a scenario (and the CSV files it names) without running it; "
+                                       "print every parameter with its unit and whether it was given or "
+                                       "defaulted, and the profile's duration, energy demand, peak power and "
+                                       "C-rates. Exit 2 with the message run would give when it is invalid.")
+    check.add_argument("scenario", help="scenario file (TOML)")
+    check.add_argument("--set", action="append", metavar="KEY=VALUE", help="override a value by dotted path")
+    check.add_argument("--quiet", action="store_true", help="print nothing: the exit status says it")
+    check.set_defaults(handler=_check)
+    new = sub.add_parser("new", help="write a commented template scenario",
+                         description="Write a commented template scenario (every required key, the common "
+                                     "optional ones, units in comments) to start a scenario of your own.")
+    new.add_argument("file", help="the scenario file to write (TOML)")
+    new.add_argument("--force", action="store_true", help="overwrite the file if it exists")
+    new.set_defaults(handler=_new)
+
+
+def _add_sweep_parser(sub) -> None:
+    sw = sub.add_parser("sweep", help="run every combination of swept keys, or search for the least cooling",
+                        description="Run every combination of the swept keys ([sweep] or --sweep): sweep.nc and "
+                                    "sweep.csv with each scenario's metrics and verdict, heat maps; or, with "
+                                    "--find, search the least (greatest) value of one key meeting a criterion.")
     sw.add_argument("scenario", help="scenario file (TOML) with a [sweep] table, or use --sweep")
     sw.add_argument("--out", required=True, help="output folder (created if missing)")
     sw.add_argument("--sweep", action="append", metavar="KEY=V1,V2,...", help="a swept key (replaces [sweep]'s)")
@@ -270,27 +483,17 @@ def build_parser() -> argparse.ArgumentParser:
     sw.add_argument("--no-figures", action="store_true", help="write no figures")
     sw.add_argument("--quiet", action="store_true", help="print nothing")
     sw.set_defaults(handler=_sweep)
-    fitting = sub.add_parser("fit", help="fit cell or thermal parameters to test logs and write a cell file")
-    fitting.add_argument("kind", choices=("ocv", "pulse", "thermal"),
-                         help="ocv: slow discharge and charge logs; pulse: pulse-test logs, one per temperature; "
-                              "thermal: a heating-and-cooling log")
-    fitting.add_argument("logs", nargs="+", metavar="LOG", help="CSV logs")
-    fitting.add_argument("--out", required=True, help="cell file to write (TOML); the report goes beside it")
-    fitting.add_argument("--cell", help="a cell file to extend (capacity and OCV for pulse fits, mass for thermal)")
-    fitting.add_argument("--mapping", help="TOML file mapping the log's columns, units and sign")
-    fitting.add_argument("--column", action="append", metavar="QUANTITY=COLUMN",
-                         help="column name of a quantity (time, current, voltage, temperature, ambient, "
-                              "sink_temperature, power)")
-    fitting.add_argument("--charge-positive", action="store_true", help="the logs count charge current as positive")
-    fitting.add_argument("--rc", type=int, choices=(1, 2), default=1, help="RC pairs to fit (pulse)")
-    fitting.add_argument("--temperature", nargs="+", help="test temperature of each pulse log, if not in the logs")
-    fitting.add_argument("--arrhenius", action="store_true",
-                         help="write R0 as a table over SoC with an activation energy instead of a 2-D table")
-    fitting.add_argument("--points", type=int, default=21, help="SoC points of the OCV table (ocv)")
-    fitting.add_argument("--ambient", help="ambient temperature, if not in the log (thermal)")
-    fitting.add_argument("--mass", help="cell mass, for the specific heat (thermal), e.g. '68 g'")
-    fitting.add_argument("--quiet", action="store_true", help="print nothing")
-    fitting.set_defaults(handler=_fit)
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """The argument parser of the ``thermoelec`` command: every command with its own help."""
+    parser = argparse.ArgumentParser(prog="thermoelec", description=__doc__,
+                                     formatter_class=argparse.RawDescriptionHelpFormatter)
+    parser.add_argument("--version", action="version", version=f"thermoelec {__version__}")
+    sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
+    _add_run_parsers(sub)
+    _add_sweep_parser(sub)
+    _add_fit_parsers(sub)
     return parser
 
 

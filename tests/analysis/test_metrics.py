@@ -52,7 +52,7 @@ def test_mission_metrics_from_hand_made_states(problem):
     end[q + L.Q_LOAD_DISCHARGE] = 1.5 * 3600.0    # 1.5 Wh to the load
     end[q + L.Q_HEAT] = 0.5 * 3600.0
     end[q + L.Q_THROUGHPUT] = 7200.0              # 2 Ah
-    extremes = Extremes(318.15, 308.15, 10.0, 3.4, 12.0, 42.0)
+    extremes = Extremes(318.15, 308.15, 10.0, 3.4, 12.0, 42.0, 4.1, 150.0, 0.0)
     got = mission_metrics(problem, start, end, extremes, 600.0, "end_of_profile")
     assert set(METRICS) <= set(got)
     assert got["completed"] is True
@@ -64,6 +64,20 @@ def test_mission_metrics_from_hand_made_states(problem):
     assert got["energy_battery_Wh"] == pytest.approx(2.0) and got["energy_load_Wh"] == pytest.approx(1.5)
     assert got["energy_dissipated_Wh"] == pytest.approx(0.5)
     assert got["efficiency"] == pytest.approx(0.75)
+    # the directions apart: 2 Wh drawn, 1.5 Wh delivered, 0.5 Wh lost in discharge; nothing charged
+    assert got["energy_battery_discharged_Wh"] == pytest.approx(2.0)
+    assert got["energy_discharged_Wh"] == pytest.approx(1.5)
+    assert got["energy_dissipated_discharge_Wh"] == pytest.approx(0.5)
+    assert got["efficiency_discharge"] == pytest.approx(0.75)
+    assert got["efficiency_charge"] is None and got["efficiency_round_trip"] is None
+    # no negative zero where nothing flowed (-0.0 == 0.0, so the sign is checked)
+    for key in ("energy_charged_Wh", "energy_battery_charged_Wh", "energy_dissipated_charge_Wh"):
+        assert got[key] == 0.0 and np.copysign(1.0, got[key]) == 1.0, key
+    assert got["verdict"] == "pass" and got["failed_checks"] == ""
+    # a cold charge fails the verdict on its own check
+    cold = mission_metrics(problem, start, end, dataclasses.replace(extremes, cold_charging_time=5.0), 600.0,
+                           "end_of_profile")
+    assert cold["verdict"] == "fail" and cold["failed_checks"] == "charge_temperature_min"
     assert got["charge_throughput_Ah"] == pytest.approx(2.0)
     assert got["soc_end"] == 0.25 and got["equivalent_time_at_reference_s"] == 42.0
     failed = mission_metrics(problem, start, end, extremes, 600.0, "end_of_profile", status="failed")
@@ -77,14 +91,19 @@ def test_the_solo_summary_is_mission_metrics_of_its_rows():
     s = result.series
     extremes = Extremes(s["cell_temperature_degC"].max() + 273.15, s["sink_temperature_degC"].max() + 273.15,
                         s["voltage_V"].min(), s["cell_voltage_V"].min(), np.abs(s["current_A"]).max(),
-                        result.summary["equivalent_time_at_reference_s"])
+                        result.summary["equivalent_time_at_reference_s"], s["cell_voltage_V"].max(),
+                        s["power_W"].max(), result.summary["time_charging_below_limit_s"])
     again = mission_metrics(thermoelec.scenario_from_dict(data).problem(), result.states[0], result.states[-1],
                             extremes, s["time_s"][-1], result.stop_reason)
     for key in METRICS:
-        assert again[key] == pytest.approx(result.summary[key], rel=1e-12, abs=1e-12), key
+        if result.summary[key] is None:  # an efficiency of a direction that moved nothing
+            assert again[key] is None, key
+        else:
+            assert again[key] == pytest.approx(result.summary[key], rel=1e-12, abs=1e-12), key
+    assert again["verdict"] == result.summary["verdict"]
 
 
 def test_labels_come_from_the_registries():
     assert REST_MODE in COMPOSITE_MODES
-    assert DEMAND_MODES == (REST_MODE, *LOAD_MODES)
+    assert DEMAND_MODES == (REST_MODE, *LOAD_MODES, "cccv") and "cccv" in COMPOSITE_MODES
     assert THERMOSTAT_EVENTS == ("fan_switch", "heater_switch", "pump_switch")

@@ -10,6 +10,7 @@ practice).
 from __future__ import annotations
 
 import math
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -309,3 +310,75 @@ def test_two_rc_pairs_are_separated(tmp_path):
     np.testing.assert_allclose(np.ravel(rc[1]["resistance"]["values"]), 12e-3, rtol=0.07)
     assert float(rc[0]["time_constant"].split()[0]) == pytest.approx(8.0, rel=0.10)
     assert float(rc[1]["time_constant"].split()[0]) == pytest.approx(150.0, rel=0.10)
+
+
+# ---------------------------------------------------------------------------
+# Honest intervals and warnings
+# ---------------------------------------------------------------------------
+
+
+def _line_fit(noise: np.ndarray):
+    """Least squares of y = a + b x on 2 000 points with the given noise (scipy's least_squares)."""
+    from scipy.optimize import least_squares
+
+    x = np.linspace(0.0, 1.0, len(noise))
+    y = 1.0 + 2.0 * x + noise
+    return least_squares(lambda p: p[0] + p[1] * x - y, [0.0, 0.0])
+
+
+def test_intervals_match_the_textbook_for_white_noise_and_widen_for_autocorrelated_residuals():
+    from thermoelec.fit.fitting import Z95, _confidence
+
+    rng = np.random.default_rng(7)
+    n = 2000
+    white = _line_fit(rng.normal(0, 0.01, n))
+    half, structure = _confidence(white, structure=True)
+    # white noise: the usual s^2 (J'J)^-1 interval (Seber & Wild 1989, §2.1), within sampling scatter
+    jac = white.jac
+    textbook = Z95 * np.sqrt(np.diag(np.linalg.inv(jac.T @ jac)) * (white.fun @ white.fun) / (n - 2))
+    np.testing.assert_allclose(half, textbook, rtol=0.15)
+    assert abs(structure.lag1) < 0.1 and abs(structure.durbin_watson - 2.0) < 0.2 and not structure.mismatch
+    # AR(1) noise with rho = 0.95: the variance of a mean grows by (1 + rho) / (1 - rho) = 39 (Box, Jenkins &
+    # Reinsel, Time Series Analysis, §2.1, from memory), so an honest interval is several times wider
+    ar = np.zeros(n)
+    shocks = rng.normal(0, 0.01, n)
+    for i in range(1, n):
+        ar[i] = 0.95 * ar[i - 1] + shocks[i]
+    correlated = _line_fit(ar)
+    _, structure_ar = _confidence(correlated, structure=True)
+    assert structure_ar.mismatch and structure_ar.lag1 > 0.9 and structure_ar.durbin_watson < 0.2
+    assert structure_ar.inflation > 3.0
+
+
+def test_ocv_interpolation_error_of_a_parabola():
+    from thermoelec.fit.fitting import ocv_interpolation_error
+
+    # U = z^2 tabulated every 0.1: linear interpolation errs by at most h^2 |U''| / 8 = 0.01 * 2 / 8 (closed form)
+    z = np.linspace(0.0, 1.0, 11)
+    assert ocv_interpolation_error(z, z**2, 0.42, 0.47) == pytest.approx(0.0025, rel=1e-9)
+    assert ocv_interpolation_error(z, 3.0 + 0.5 * z, 0.2, 0.3) == pytest.approx(0.0, abs=1e-12)  # linear: exact
+
+
+def test_fit_pulse_warns_when_a_log_leaves_the_cell_files_voltage_limits(tmp_path, capsys):
+    from thermoelec import cli
+
+    logs = Path(__file__).resolve().parents[2] / "scenarios" / "logs"
+    ocv = tmp_path / "ocv.toml"
+    assert cli.main(["fit", "ocv", str(logs / "scooter_c20_discharge.csv"), str(logs / "scooter_c20_charge.csv"),
+                     "--out", str(ocv), "--quiet"]) == 0
+    text = ocv.read_text().replace("[cell]\n", '[cell]\nvoltage_max = "4.0 V"\nvoltage_min = "3.0 V"\n', 1)
+    ocv.write_text(text)
+    assert cli.main(["fit", "pulse", str(logs / "scooter_hppc_25C.csv"), "--cell", str(ocv),
+                     "--out", str(tmp_path / "pulse.toml")]) == 0
+    out = capsys.readouterr().out
+    assert "above the cell file's voltage_max (4 V)" in out
+
+
+def test_demo_logs_stay_inside_the_demo_cells_voltage_limits():
+    # the demo cell's limits (scenarios/logs/make_demo_logs.py and scenarios/scooter_commute.toml): 2.5..4.2 V;
+    # a lab's procedure never takes a cell past them, so neither do the invented logs
+    from ..helpers import SCENARIOS
+
+    for path in sorted((SCENARIOS / "logs").glob("*.csv")):
+        voltage = pd.read_csv(path)["voltage_V"]
+        assert voltage.max() <= 4.2 and voltage.min() >= 2.5, path.name

@@ -8,7 +8,6 @@ E/R is the maximum power transfer theorem (circuit theory, common practice).
 import matplotlib.image
 import numpy as np
 import pytest
-from matplotlib.lines import Line2D
 
 from thermoelec.output import figures
 
@@ -40,24 +39,46 @@ def test_energy_areas_equal_the_summary_in_discharge(drone):
     assert part.dissipated_Wh == pytest.approx(s["energy_dissipated_Wh"], rel=5e-3)
 
 
-def test_energy_areas_equal_the_summary_in_discharge_and_charge(ebike):
+def test_energy_areas_equal_the_summary_in_discharge_regeneration_and_charge(ebike):
     parts = {p.direction: p for p in figures.energy_parts(ebike)}
     s = ebike.summary
+    assert set(parts) == {"discharge", "regeneration", "charge"}
     assert parts["discharge"].battery_Wh == pytest.approx(s["energy_battery_discharged_Wh"], rel=5e-3)
     assert parts["discharge"].load_Wh == pytest.approx(s["energy_discharged_Wh"], rel=5e-3)
-    assert parts["charge"].battery_Wh == pytest.approx(s["energy_battery_charged_Wh"], rel=5e-3)
-    assert parts["charge"].load_Wh == pytest.approx(s["energy_charged_Wh"], rel=5e-3)
+    # regeneration (the descent, charge fed in by the load) and the charger's CC-CV apart, as in the summary
+    assert parts["regeneration"].load_Wh == pytest.approx(s["energy_regenerated_Wh"], rel=5e-3)
+    assert parts["charge"].load_Wh == pytest.approx(s["energy_from_charger_Wh"], rel=5e-3)
+    assert parts["regeneration"].battery_Wh + parts["charge"].battery_Wh == \
+        pytest.approx(s["energy_battery_charged_Wh"], rel=5e-3)
+    assert s["energy_regenerated_Wh"] + s["energy_from_charger_Wh"] == pytest.approx(s["energy_charged_Wh"],
+                                                                                       rel=1e-12)
     # in charge the terminal curve lies above the open-circuit curve
     assert parts["charge"].load_Wh > parts["charge"].battery_Wh
-    total_dissipated = parts["discharge"].dissipated_Wh + parts["charge"].dissipated_Wh
+    total_dissipated = sum(p.dissipated_Wh for p in parts.values())
     assert total_dissipated == pytest.approx(s["energy_dissipated_Wh"], rel=5e-3)
+
+
+def test_energy_chart_starts_at_zero_with_unique_legend_entries(ebike):
+    fig = figures.energy_chart(ebike)
+    parts = figures.energy_parts(ebike)
+    panels = [ax for ax in fig.axes if ax.get_legend() is not None]
+    assert len(panels) == len(parts) == 3
+    for ax, part in zip(panels, parts, strict=True):
+        low, high = ax.get_ylim()
+        assert low == 0.0 and high >= max(part.ocv_V.max(), part.voltage_V.max())  # honest axis: from zero
+        assert part.axis_range == (low, high)
+        labels = [t.get_text() for t in ax.get_legend().get_texts()]
+        assert len(labels) == len(set(labels))
+    regeneration = [t.get_text() for t in panels[1].get_legend().get_texts()]
+    assert any("fed in by the load" in label for label in regeneration)
+    assert not any("charger" in label for label in regeneration)  # regeneration is no charger's
 
 
 def test_energy_chart_labels_carry_the_areas(drone):
     fig = figures.energy_chart(drone)
     (part,) = figures.energy_parts(drone)
     labels = [t.get_text() for t in fig.axes[0].get_legend().get_texts()]
-    assert f"load energy {part.load_Wh:.4g} Wh" in labels
+    assert f"to the load {part.load_Wh:.4g} Wh" in labels
     assert f"dissipated {part.dissipated_Wh:.4g} Wh" in labels
     assert f"{part.efficiency:.2%}" in fig.axes[0].get_title()
 
@@ -80,18 +101,40 @@ def test_maximum_power_point_sits_at_half_the_short_circuit_current():
     assert state.voltage_limit_current_A == pytest.approx((3.7 - 1.0) / 0.025, rel=1e-12)
 
 
-def test_operating_region_draws_the_maximum_power_points(drone):
-    fig = figures.operating_region(drone)
-    circles = [line for line in fig.axes[0].lines if isinstance(line, Line2D) and line.get_marker() == "o"]
-    states = figures.operating_states(drone)
-    assert len(circles) == len(states)
-    s = drone.series
-    for line, state in zip(circles, states, strict=True):
-        row = int(np.flatnonzero(s["time_s"] == state.time_s)[-1 if state.time_s > 0 else 0])
-        e, r = s["pack_emf_V"][row], s["pack_resistance_ohm"][row]
-        x, y = line.get_xdata()[0], line.get_ydata()[0]
-        assert x == pytest.approx(e / r / 2, rel=1e-9)
-        assert y == pytest.approx(e * e / (4 * r), rel=1e-9)
+def test_operating_region_is_scaled_to_the_mission_with_its_worst_state(drone, ebike):
+    for result in (drone, ebike):
+        view = figures.operating_view(result)
+        s = result.series
+        discharging = s["current_A"] > 0
+        # the axes contain every operating point, and the current axis ends well short of the short circuit
+        assert s["current_A"][discharging].max() <= view.current_max
+        assert s["power_W"][discharging].max() <= view.power_max
+        assert view.current_max < 0.5 * min(st.short_circuit_A for st in view.states)
+        assert view.off_scale and all("short circuit" in text for text in view.off_scale)
+    # after the e-bike's recharge the end is a full pack: the worst instant (lowest voltage) is drawn too
+    labels = [st.label for st in figures.operating_states(ebike)]
+    assert any("lowest voltage" in label for label in labels)
+    fig = figures.operating_region(ebike)
+    ax = fig.axes[0]
+    assert ax.get_xlim() == (0.0, figures.operating_view(ebike).current_max)
+    labels = [t.get_text() for t in ax.get_legend().get_texts()]
+    assert len(labels) == len(set(labels))
+    points = ax.collections[-1]
+    legend_dot = ax.get_legend().legend_handles[labels.index("mission operating points")]
+    np.testing.assert_allclose(points.get_facecolor()[0], legend_dot.get_facecolor()[0])  # grey, as in the legend
+
+
+def test_operating_region_draws_the_maximum_power_points_on_its_axis():
+    # a small mission current on a stiff pack: 20 A of a 925 A short circuit, maximum power off the axis
+    data = scenario(cell=cell_section(), pack={"series": 4, "interconnect_resistance": "5 mohm"},
+                    segments=[{"mode": "current", "value": "20 A", "duration": "10 s"}])
+    result = simulate(data)
+    view = figures.operating_view(result)
+    assert view.current_max == pytest.approx(2.5 * 20.0, rel=1e-9)
+    fig = figures.operating_region(result)
+    circles = [line for line in fig.axes[0].lines if line.get_marker() == "o"]
+    assert circles == []  # off scale: written at the edge instead
+    assert all("maximum power" in text for text in view.off_scale)
 
 
 def test_dashboard_marks_limits_and_the_stop():
@@ -140,7 +183,61 @@ def test_mode_colours_and_event_names_come_from_the_registries():
     from thermoelec.engine.events import EVENTS, STOP_EVENTS
     from thermoelec.physics.loads import LOAD_MODES
 
-    assert set(figures.MODE_COLOURS) == {"rest", *LOAD_MODES}
+    assert set(figures.MODE_COLOURS) == {"rest", "cccv", *LOAD_MODES}
     assert len(set(figures.MODE_COLOURS.values())) == len(figures.MODE_COLOURS)  # told apart
     assert figures.STOP_EVENT_NAMES == {EVENTS[code].name for code in STOP_EVENTS}
     assert {"voltage_min", "temperature_max", "power_limit"} <= figures.STOP_EVENT_NAMES
+
+
+def test_temperature_axis_follows_the_data_and_marks_an_off_scale_limit(ebike):
+    # a 4.5 K rise from 18 degC on a 60 degC limit: the limit would squash the data flat, so it is marked
+    scale = figures.axis_range(figures.temperature_series(ebike.series), [60.0], figures.MIN_TEMPERATURE_SPAN)
+    cell = ebike.series["cell_temperature_degC"]
+    assert scale.low <= cell.min() and scale.high >= cell.max() and scale.high < 30.0
+    assert scale.off_scale == (60.0,) and scale.shown == ()
+    ax_temp = figures.dashboard(ebike).axes[4]
+    assert ax_temp.get_ylim() == (scale.low, scale.high)
+    assert any("cell limit 60 degC (off scale)" in t.get_text() for t in ax_temp.texts)
+    # a limit near the data is drawn and taken into the range
+    near = figures.axis_range([np.array([40.0, 55.0])], [60.0], figures.MIN_TEMPERATURE_SPAN)
+    assert near.shown == (60.0,) and near.high > 60.0
+
+
+def test_cccv_is_one_mode_and_segment_names_are_written():
+    data = scenario(cell=cell_section(capacity="2 Ah", initial_soc=0.5, ocv={"soc": [0, 1], "voltage": [3.0, 4.1]}),
+                    segments=[
+        {"name": "ride", "mode": "current", "value": "2 A", "duration": "600 s"},
+        {"name": "top up", "mode": "cccv", "current": "-2 A", "voltage": "3.9 V", "cutoff_current": "0.5 A",
+         "duration": "1 h"}])
+    result = simulate(data)
+    cccv = result.segment_name == "top up"
+    assert set(result.demand_mode[cccv]) == {"cccv"}  # CC and CV phases as one charge
+    assert {"cv_switch", "cv_cutoff"} <= {e["event"] for e in result.summary["events"]}
+    assert all(e.get("segment_name") == "top up" for e in result.summary["events"])
+    labels = figures.segment_labels(result.series["time_s"], result.segment_name)
+    assert [name for _, _, name in labels] == ["ride", "top up"]
+    fig = figures.dashboard(result)
+    assert {"ride", "top up"} <= {t.get_text() for t in fig.axes[0].texts}
+    legend = [t.get_text() for t in fig.legends[0].get_texts()]
+    assert "cccv mode" in legend and len(legend) == len(set(legend))
+
+
+def test_an_instant_stop_is_explained_on_the_dashboard_with_the_case_in_the_title(drone):
+    import thermoelec
+
+    cold = thermoelec.simulate(_load("drone_delivery"), overrides={"thermal.ambient_temperature": "-10 degC"})
+    assert cold.summary["duration_s"] == 0.0
+    assert "the first demand" in cold.summary["stop_explanation"]
+    assert "812.7 W" in cold.summary["stop_explanation"]  # the most it delivers above the voltage limit
+    title = figures.dashboard(cold)._suptitle.get_text()
+    assert "thermal.ambient_temperature = -10 degC" in title and "at once" in title
+    cold.metadata["case"] = "frost"
+    assert figures.title_of(cold).endswith("case frost")
+
+
+def test_comparison_title_says_stopped_only_when_a_case_stopped(drone):
+    import thermoelec
+
+    cold = thermoelec.simulate(_load("drone_delivery"), overrides={"thermal.ambient_temperature": "-10 degC"})
+    assert "stopped" not in figures.comparison_overlay({"a": drone, "b": drone})._suptitle.get_text()
+    assert "stopped early - cold" in figures.comparison_overlay({"a": drone, "cold": cold})._suptitle.get_text()

@@ -25,13 +25,18 @@ def test_format_value_digits_units_and_flags():
 
 
 def test_format_comparison_has_a_row_per_comparison_row_and_a_column_per_case():
-    cases = [_Case("warm", {"completed": True, "energy_discharged_Wh": 41.234}),
-             _Case("very cold", {"completed": False, "energy_discharged_Wh": 7.5})]
+    cases = [_Case("warm", {"verdict": "pass", "completed": True, "energy_discharged_Wh": 41.234}),
+             _Case("very cold", {"verdict": "fail", "completed": False, "energy_discharged_Wh": 7.5})]
     lines = format_comparison(cases).splitlines()
     assert len(lines) == 1 + len(COMPARISON_ROWS)
     assert lines[0].split() == ["warm", "very", "cold"]
-    energy = next(line for line in lines if line.startswith("energy delivered"))
+    energy = next(line for line in lines if line.startswith("energy discharged to the load"))
     assert energy.split()[-4:] == ["41.23", "Wh", "7.5", "Wh"]
     # the case columns are right-aligned, so every row ends where the header does
     assert {len(line) for line in lines} == {len(lines[0])}
-    assert lines[1].split()[-2:] == ["yes", "no"]
+    assert lines[1].split() == ["verdict", "pass", "fail"]  # the verdict leads
+    assert next(line for line in lines if line.startswith("completed")).split()[-2:] == ["yes", "no"]
+
+
+def test_format_value_writes_no_negative_zero():
+    assert format_value(-0.0, "Wh") == "0 Wh"

@@ -27,7 +27,7 @@ from typing import Any
 
 import numpy as np
 
-from thermoelec.analysis.results import SimulationResult
+from thermoelec.analysis.results import ENERGY_ROWS, SimulationResult
 from thermoelec.analysis.simulate import simulate
 from thermoelec.physics.constants import JOULES_PER_WH
 from thermoelec.scenario import Scenario, ScenarioError
@@ -38,12 +38,14 @@ __all__ = ["COMPARISON_ROWS", "PACK_COMPARISON_ROWS", "CaseOutcome", "case_list"
 #: Long enough that a limit, not the clock, ends the energy-to-cutoff discharge.
 CUTOFF_RUN_DURATION = "1000 h"
 
-#: Rows of the comparison table: label, key, unit.
+#: Rows of the comparison table: label, key, unit (the verdict first; the energies as every table names them).
 COMPARISON_ROWS: tuple[tuple[str, str, str], ...] = (
+    ("verdict", "verdict", ""),
+    ("failed checks", "failed_checks", ""),
     ("completed", "completed", ""),
     ("stop reason", "stop_reason", ""),
     ("time to stop", "duration_s", "s"),
-    ("energy delivered", "energy_discharged_Wh", "Wh"),
+    *ENERGY_ROWS,
     ("energy to voltage cutoff", "energy_to_cutoff_Wh", "Wh"),
     ("  at constant power", "energy_to_cutoff_power_W", "W"),
     ("  ended by", "energy_to_cutoff_stop", ""),
@@ -52,8 +54,6 @@ COMPARISON_ROWS: tuple[tuple[str, str, str], ...] = (
     ("cell temperature rise", "cell_temperature_rise_K", "K"),
     ("minimum pack voltage", "voltage_min_V", "V"),
     ("cell voltage margin", "voltage_margin_min_V", "V"),
-    ("efficiency", "efficiency", ""),
-    ("energy dissipated", "energy_dissipated_Wh", "Wh"),
     ("heat generated", "heat_generated_Wh", "Wh"),
     ("heat to ambient", "heat_to_ambient_Wh", "Wh"),
     ("heat to coolant", "heat_to_coolant_Wh", "Wh"),
@@ -95,10 +95,11 @@ class CaseOutcome:
     def metrics(self) -> dict[str, Any]:
         """The summary plus the comparison's own keys."""
         row = dict(self.result.summary)
+        row["failed_checks"] = ", ".join(c["check"] for c in row.get("checks", []) if not c["passed"]) or "none"
         row["cell_temperature_start_degC"] = float(self.result.series["cell_temperature_degC"][0])
         row["warning_count"] = len(self.result.warnings)
         if self.cutoff is not None:
-            row["energy_to_cutoff_Wh"] = self.cutoff.summary["energy_load_Wh"]
+            row["energy_to_cutoff_Wh"] = self.cutoff.summary["energy_discharged_Wh"]
             row["energy_to_cutoff_power_W"] = float(self.cutoff.series["power_W"][0])
             row["energy_to_cutoff_stop"] = self.cutoff.summary["stop_reason"]
         else:

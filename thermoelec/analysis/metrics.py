@@ -2,8 +2,10 @@
 
 Owns :data:`METRICS` (the per-scenario numbers a sweep keeps: the numeric keys
 of the output contract and a few more), :func:`mission_metrics` (the one
-function that computes them), the energy accounting (:func:`energy_totals`,
-:func:`round_trip_efficiency`) and the unit constants of the analysis layer.
+function that computes them, with the verdict of
+:mod:`thermoelec.analysis.verdict`), the energy accounting
+(:func:`energy_totals`, :func:`efficiencies`) and the pack limits
+(:func:`pack_limits`).
 The solo summary (:mod:`thermoelec.analysis.results`) and the batched rows
 (:func:`batch_metrics`) both call :func:`mission_metrics`, from the same pieces:
 the problem, the start and final states (with the quadratures), and the running
@@ -13,10 +15,11 @@ rows, the batch from the extremes its kernel keeps over every accepted step.
 Energy accounting (pack level, as areas under the voltage-charge curves):
 battery energy ``∫ Ns U I dt``, load energy ``∫ V I dt``, their difference the
 energy dissipated (Bernardi, Pawlikowski & Newman, J. Electrochem. Soc. 132
-(1985) 5).
+(1985) 5). Discharge and charge are kept apart (the quadratures integrate
+``I > 0`` and ``I < 0`` separately), so a recharge never nets out a ride.
 
-Imports only from engine/ and physics/ (and scipy); never from output/, fit/,
-the API or the command line.
+Imports only from engine/, physics/ and analysis/verdict; never from output/,
+fit/, the API or the command line.
 """
 
 from __future__ import annotations
@@ -27,22 +30,27 @@ from typing import Any
 
 import numpy as np
 
+from thermoelec.analysis.verdict import failed_checks, limit_checks, verdict
 from thermoelec.engine import layout as L
 from thermoelec.engine.batch import EXTREMES, BatchOutcome
 from thermoelec.engine.problem import Problem
 from thermoelec.physics.constants import COULOMBS_PER_AH, JOULES_PER_WH, ZERO_CELSIUS
 
-__all__ = ["METRICS", "PACK_METRICS", "Extremes", "batch_metrics", "energy_totals", "metric_names",
-           "mission_metrics", "pack_soc", "round_trip_efficiency"]
+__all__ = ["METRICS", "PACK_METRICS", "VERDICT_KEYS", "Extremes", "batch_metrics", "efficiencies", "energy_totals",
+           "metric_names", "mission_metrics", "pack_limits", "pack_soc", "round_trip_efficiency"]
 
-# Until physics/constants.py lands, the unit constants of analysis/ and output/ are defined here, once.
-
-#: Summary metrics kept per scenario of a sweep (the numeric keys of the output contract and a few more).
+#: Summary metrics kept per scenario of a sweep (the numeric keys of the output contract and a few more: the
+#: energies apart, the efficiencies and what the verdict of :mod:`thermoelec.analysis.verdict` reads).
 METRICS: tuple[str, ...] = (
     "completed", "duration_s", "cell_temperature_max_degC", "cell_temperature_rise_K", "sink_temperature_max_degC",
-    "voltage_min_V", "current_max_A", "energy_battery_Wh", "energy_load_Wh", "energy_dissipated_Wh",
-    "energy_discharged_Wh", "heat_generated_Wh", "heat_to_ambient_Wh", "efficiency", "charge_throughput_Ah",
-    "soc_end", "voltage_margin_min_V", "temperature_margin_K", "equivalent_time_at_reference_s",
+    "voltage_min_V", "cell_voltage_min_V", "cell_voltage_max_V", "current_max_A", "power_max_W",
+    "energy_battery_Wh", "energy_load_Wh", "energy_dissipated_Wh",
+    "energy_discharged_Wh", "energy_battery_discharged_Wh", "energy_dissipated_discharge_Wh",
+    "energy_charged_Wh", "energy_battery_charged_Wh", "energy_dissipated_charge_Wh",
+    "heat_generated_Wh", "heat_to_ambient_Wh",
+    "efficiency", "efficiency_discharge", "efficiency_charge", "efficiency_round_trip",
+    "charge_throughput_Ah", "soc_end", "voltage_margin_min_V", "voltage_margin_max_V", "temperature_margin_K",
+    "time_charging_below_limit_s", "equivalent_time_at_reference_s",
 )
 #: The metrics a resolved pack adds (``pack.model = "resolved"``): the largest difference between the
 #: hottest and the coldest cell and when, the SoC spread at the end, the largest current of a cell over
@@ -92,6 +100,8 @@ def pack_soc(problem: Problem, state: np.ndarray) -> tuple[float, float]:
     z = state[L.cell_state_indices(problem.n_rc, problem.n_cells)[0]]
     q = problem.resolved.capacity_factor
     return float(np.sum(q * z) / np.sum(q)), float(z.max() - z.min())
+#: Text kept per scenario of a sweep besides the numbers: the verdict and the checks it failed.
+VERDICT_KEYS: tuple[str, ...] = ("verdict", "failed_checks")
 
 
 @dataclass(frozen=True)
@@ -114,6 +124,13 @@ class Extremes:
         Arrhenius-weighted time at the ageing reference temperature [s] (of the hottest
         cell): a trapezoid over the output rows on the solo path, over the accepted steps
         in the batch.
+    cell_voltage_max : float
+        Highest cell terminal voltage [V].
+    power_max : float
+        Highest power to the load [W].
+    cold_charging_time : float
+        Time spent charging below the charge temperature limit [s] (of the coldest cell),
+        the crossings interpolated over the output rows (solo) or the accepted steps (batch).
     cell_temperature_spread_max : float
         Largest difference between the hottest and the coldest cell [K] (0 for a lumped pack).
     cell_temperature_spread_time : float
@@ -132,6 +149,9 @@ class Extremes:
     cell_voltage_min: float
     current_abs_max: float
     equivalent_time_at_reference: float
+    cell_voltage_max: float
+    power_max: float
+    cold_charging_time: float
     cell_temperature_spread_max: float = 0.0
     cell_temperature_spread_time: float = 0.0
     current_share_max: float = 1.0
@@ -149,8 +169,13 @@ def finite_or_none(x: float) -> float | None:
     return float(x) if math.isfinite(x) else None
 
 
+def _wh(joules: float) -> float:
+    """Joules as watt-hours, with no negative zero (``-0.0 + 0.0`` is ``0.0``)."""
+    return float(joules) / JOULES_PER_WH + 0.0
+
+
 def energy_totals(q: np.ndarray) -> dict[str, float]:
-    """Battery and load energies, discharge and charge apart.
+    """Battery and load energies and the losses, discharge and charge apart, and the contract's net values.
 
     Parameters
     ----------
@@ -160,27 +185,31 @@ def energy_totals(q: np.ndarray) -> dict[str, float]:
     Returns
     -------
     dict of str to float
-        ``energy_battery_Wh``, ``energy_load_Wh``, ``energy_dissipated_Wh`` (net), and the
-        discharged and charged parts of the load and battery energies [Wh].
+        In Wh: the contract's net ``energy_battery_Wh`` (∫ Ns U I dt), ``energy_load_Wh`` (∫ V I dt) and
+        ``energy_dissipated_Wh`` (their difference, the sum of both losses); then the discharge
+        (``energy_discharged_Wh`` to the load, ``energy_battery_discharged_Wh`` from the cells,
+        ``energy_dissipated_discharge_Wh`` lost between them) and the charge (``energy_charged_Wh``
+        into the terminals, ``energy_battery_charged_Wh`` stored in the cells,
+        ``energy_dissipated_charge_Wh`` lost between them), never netted, never -0.0.
     """
     battery_out, battery_in = q[L.Q_BATTERY_DISCHARGE], -q[L.Q_BATTERY_CHARGE]
     load_out, load_in = q[L.Q_LOAD_DISCHARGE], -q[L.Q_LOAD_CHARGE]
-    energy_battery_wh = float(battery_out - battery_in) / JOULES_PER_WH
-    energy_load_wh = float(load_out - load_in) / JOULES_PER_WH
     return {
-        "energy_battery_Wh": energy_battery_wh,
-        "energy_load_Wh": energy_load_wh,
-        "energy_dissipated_Wh": energy_battery_wh - energy_load_wh,
-        "energy_discharged_Wh": float(load_out) / JOULES_PER_WH,
-        "energy_charged_Wh": float(load_in) / JOULES_PER_WH,
-        "energy_battery_discharged_Wh": float(battery_out) / JOULES_PER_WH,
-        "energy_battery_charged_Wh": float(battery_in) / JOULES_PER_WH,
+        "energy_battery_Wh": _wh(battery_out - battery_in),
+        "energy_load_Wh": _wh(load_out - load_in),
+        "energy_dissipated_Wh": _wh(battery_out - battery_in) - _wh(load_out - load_in) + 0.0,
+        "energy_discharged_Wh": _wh(load_out),
+        "energy_battery_discharged_Wh": _wh(battery_out),
+        "energy_dissipated_discharge_Wh": _wh(battery_out - load_out),
+        "energy_charged_Wh": _wh(load_in),
+        "energy_battery_charged_Wh": _wh(battery_in),
+        "energy_dissipated_charge_Wh": _wh(load_in - battery_in),
     }
 
 
 def round_trip_efficiency(q: np.ndarray) -> float | None:
     """Energy out over energy in [-]: delivered to the load and stored in the cells, over drawn from the
-    cells and taken from the charger; ``None`` when nothing flowed.
+    cells and taken from the charger; ``None`` when nothing flowed (the contract's ``efficiency``).
 
     Parameters
     ----------
@@ -191,6 +220,64 @@ def round_trip_efficiency(q: np.ndarray) -> float | None:
     if taken <= 0:
         return None
     return finite_or_none((q[L.Q_LOAD_DISCHARGE] - q[L.Q_BATTERY_CHARGE]) / taken)
+
+
+def efficiencies(q: np.ndarray) -> dict[str, float | None]:
+    """The contract's ``efficiency`` and the discharge, charge and round-trip efficiencies [-].
+
+    Parameters
+    ----------
+    q : array
+        Final quadratures of the integration (indices ``layout.Q_*``) [J, C].
+
+    Returns
+    -------
+    dict of str to float or None
+        ``efficiency`` (:func:`round_trip_efficiency`: out over in, both directions pooled);
+        ``efficiency_discharge`` (to the load over drawn from the cells), ``efficiency_charge``
+        (stored in the cells over fed to the terminals) and ``efficiency_round_trip`` (their
+        product: of the energy a charge feeds in at these losses, the share a discharge at these
+        losses delivers); None where a direction moved no energy.
+    """
+    battery_out, battery_in = q[L.Q_BATTERY_DISCHARGE], -q[L.Q_BATTERY_CHARGE]
+    load_out, load_in = q[L.Q_LOAD_DISCHARGE], -q[L.Q_LOAD_CHARGE]
+    discharge = finite_or_none(load_out / battery_out) if battery_out > 0 else None
+    charge = finite_or_none(battery_in / load_in) if load_in > 0 else None
+    return {
+        "efficiency": round_trip_efficiency(q),
+        "efficiency_discharge": discharge,
+        "efficiency_charge": charge,
+        "efficiency_round_trip": discharge * charge if discharge is not None and charge is not None else None,
+    }
+
+
+def pack_limits(problem: Problem) -> dict[str, float]:
+    """Pack-level limits and layout, for the verdict, plots and reports.
+
+    Parameters
+    ----------
+    problem : Problem
+        The simulated problem.
+
+    Returns
+    -------
+    dict of str to float
+        ``voltage_min_V`` and ``voltage_max_V`` (pack, Ns times the cell's) [V], the cell's
+        ``cell_voltage_min_V`` and ``cell_voltage_max_V`` [V], ``cell_temperature_max_degC`` and
+        ``charge_temperature_min_degC`` [degC], ``series`` and ``parallel`` [-], ``capacity_Ah`` of a cell [Ah].
+    """
+    ns, cell = problem.pack.series, problem.cell
+    return {
+        "voltage_min_V": ns * cell.voltage_min,
+        "voltage_max_V": ns * cell.voltage_max,
+        "cell_voltage_min_V": cell.voltage_min,
+        "cell_voltage_max_V": cell.voltage_max,
+        "cell_temperature_max_degC": float(problem.limits.cell_temperature_max - ZERO_CELSIUS),
+        "charge_temperature_min_degC": float(problem.limits.charge_temperature_min - ZERO_CELSIUS),
+        "series": ns,
+        "parallel": problem.pack.parallel,
+        "capacity_Ah": cell.capacity / COULOMBS_PER_AH,
+    }
 
 
 def mission_metrics(problem: Problem, start: np.ndarray, end: np.ndarray, extremes: Extremes, duration: float,
@@ -218,9 +305,12 @@ def mission_metrics(problem: Problem, start: np.ndarray, end: np.ndarray, extrem
     Returns
     -------
     dict
-        Every key of :data:`METRICS` (in its order, the energy parts among them), then those of
-        :data:`PACK_METRICS` for a resolved pack; temperatures [degC], differences [K], voltages [V],
-        currents [A], energies [Wh], charge [Ah], times [s], cells numbered from 1.
+        Every key of :data:`METRICS` (in its order); temperatures [degC], differences [K],
+        voltages [V], currents [A], power [W], energies [Wh], efficiencies [-], charge [Ah],
+        times [s]; then the :data:`VERDICT_KEYS`: ``verdict`` (``"pass"`` / ``"fail"``, from
+        :func:`thermoelec.analysis.verdict.limit_checks`) and ``failed_checks`` (their names,
+        comma-separated); then those of :data:`PACK_METRICS` for a resolved pack (cells
+        numbered from 1).
 
     Notes
     -----
@@ -238,17 +328,25 @@ def mission_metrics(problem: Problem, start: np.ndarray, end: np.ndarray, extrem
         "cell_temperature_rise_K": float(extremes.cell_temperature_max - cell_temperature_start),
         "sink_temperature_max_degC": float(extremes.sink_temperature_max - ZERO_CELSIUS),
         "voltage_min_V": float(extremes.voltage_min),
+        "cell_voltage_min_V": float(extremes.cell_voltage_min),
+        "cell_voltage_max_V": float(extremes.cell_voltage_max),
         "current_max_A": float(extremes.current_abs_max),
+        "power_max_W": float(extremes.power_max),
         **energy_totals(q),
-        "heat_generated_Wh": float(q[L.Q_HEAT]) / JOULES_PER_WH,
-        "heat_to_ambient_Wh": float(q[L.Q_HEAT_AMBIENT]) / JOULES_PER_WH,
-        "efficiency": round_trip_efficiency(q),
+        "heat_generated_Wh": _wh(q[L.Q_HEAT]),
+        "heat_to_ambient_Wh": _wh(q[L.Q_HEAT_AMBIENT]),
+        **efficiencies(q),
         "charge_throughput_Ah": float(q[L.Q_THROUGHPUT]) / COULOMBS_PER_AH,
         "soc_end": soc_end,
         "voltage_margin_min_V": float(extremes.cell_voltage_min - problem.cell.voltage_min),
+        "voltage_margin_max_V": float(problem.cell.voltage_max - extremes.cell_voltage_max),
         "temperature_margin_K": float(problem.limits.cell_temperature_max - extremes.cell_temperature_max),
+        "time_charging_below_limit_s": float(extremes.cold_charging_time) + 0.0,
         "equivalent_time_at_reference_s": float(extremes.equivalent_time_at_reference),
     }
+    checks = limit_checks({**row, "stop_reason": stop_reason}, pack_limits(problem))
+    row["verdict"] = verdict(checks)
+    row["failed_checks"] = ",".join(failed_checks(checks))
     if problem.resolved is not None:
         row.update({
             "cell_temperature_spread_max_K": float(extremes.cell_temperature_spread_max),

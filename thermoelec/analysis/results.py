@@ -28,17 +28,20 @@ import numpy as np
 
 from thermoelec.analysis import cells as pack_cells
 from thermoelec.analysis import diagnostics
-from thermoelec.analysis.metrics import Extremes, mission_metrics, pack_soc
+from thermoelec.analysis.metrics import Extremes, mission_metrics, pack_limits, pack_soc
+from thermoelec.analysis.stops import explain_stop
+from thermoelec.analysis.verdict import limit_checks
 from thermoelec.engine import layout as L
 from thermoelec.engine.driver import Trajectory
 from thermoelec.engine.events import CCCV_CAP_EVENT, CONTROL_EVENTS, EVENT_NAMES
 from thermoelec.engine.options import SolverOptions
 from thermoelec.engine.problem import Problem
-from thermoelec.physics.constants import COULOMBS_PER_AH, JOULES_PER_WH, ZERO_CELSIUS
+from thermoelec.physics.constants import JOULES_PER_WH, ZERO_CELSIUS
 from thermoelec.physics.loads import LOAD_MODES, MODE_CURRENT
 
-__all__ = ["DEMAND_MODES", "REST_MODE", "SERIES_UNITS", "THERMOSTAT_EVENTS", "SimulationResult",
-           "build_result"]
+__all__ = ["CCCV_MODE", "DEMAND_MODES", "ENERGY_KEYS", "ENERGY_ROWS", "NET_ENERGY_ROWS", "REST_MODE", "SERIES_UNITS",
+           "THERMOSTAT_EVENTS", "SimulationResult",
+           "build_result", "charger_segments"]
 
 #: Reported series and their units; the first ten are the output contract.
 SERIES_UNITS: dict[str, str] = {
@@ -97,8 +100,11 @@ MODE_NAMES = tuple(sorted(LOAD_MODES, key=lambda name: LOAD_MODES[name].code))
 #: The demand label of an output row at zero current: the composite segment mode of a rest
 #: (a key of :data:`thermoelec.physics.loads.COMPOSITE_MODES`).
 REST_MODE = "rest"
-#: Every label :attr:`SimulationResult.demand_mode` can hold: a rest, then the load modes in code order.
-DEMAND_MODES: tuple[str, ...] = (REST_MODE, *MODE_NAMES)
+#: The demand label of the rows of a CC-CV segment, both phases
+#: (a key of :data:`thermoelec.physics.loads.COMPOSITE_MODES`).
+CCCV_MODE = "cccv"
+#: Every label :attr:`SimulationResult.demand_mode` can hold: a rest, the load modes in code order, a CC-CV charge.
+DEMAND_MODES: tuple[str, ...] = (REST_MODE, *MODE_NAMES, CCCV_MODE)
 #: Names of the thermostat switch events (fan, heater, pump), from the event registry.
 THERMOSTAT_EVENTS: tuple[str, ...] = tuple(EVENT_NAMES[code] for code in CONTROL_EVENTS)
 
@@ -135,10 +141,16 @@ class SimulationResult:
         Raw state rows of the integration.
     demand_mode, demand_value : arrays
         Demand of each output row: mode name (one of :data:`DEMAND_MODES`, ``"rest"``
-        for zero current) and its value in SI units (A, W, ohm or V).
+        for zero current, ``"cccv"`` for both phases of a CC-CV charge) and its value in SI
+        units (A, W, ohm or V).
     limits : dict
         Pack-level limits and layout for plots and reports (``voltage_min_V``,
-        ``voltage_max_V``, ``cell_temperature_max_degC``, ...).
+        ``voltage_max_V``, ``cell_temperature_max_degC``, ...: :func:`thermoelec.analysis.metrics.pack_limits`).
+    segment_name : object array or None
+        The name of each row's segment (``[[profile.segment]]`` ``name``), empty where it has none.
+    charger : bool array or None
+        Each row's segment is a charger's (CC-CV, or a held terminal voltage): charge there comes
+        from a charger; elsewhere from the load (regeneration).
     cells : dict of str to array or None
         A resolved pack's per-cell series, shape ``(rows, cells)``, keys and units in
         :data:`thermoelec.analysis.cells.CELL_SERIES_UNITS`; None for a lumped pack.
@@ -157,8 +169,16 @@ class SimulationResult:
     demand_mode: np.ndarray | None = None
     demand_value: np.ndarray | None = None
     limits: dict[str, float] = field(default_factory=dict)
+    segment_name: np.ndarray | None = None
+    charger: np.ndarray | None = None
     cells: dict[str, np.ndarray] | None = None
     cell_coords: dict[str, tuple] | None = None
+
+    @property
+    def verdict(self) -> str:
+        """``"pass"`` when the mission stayed inside every limit (:mod:`thermoelec.analysis.verdict`), else
+        ``"fail"``."""
+        return str(self.summary["verdict"])
 
     @property
     def completed(self) -> bool:
@@ -268,35 +288,67 @@ def build_result(problem: Problem, trajectory: Trajectory, options: SolverOption
     if problem.resolved is not None:
         series.update(pack_cells.pack_series(alg))
         cells, coords = pack_cells.cell_series(problem, trajectory), pack_cells.cell_coordinates(problem)
+    limits = pack_limits(problem)
     temperatures = _Temperatures(tc, alg[:, L.A_TEMPERATURE_LOW], ts)
-    summary = _summary(problem, trajectory, series, states, temperatures, options.output_interval, cells)
+    summary = _summary(problem, trajectory, series, states, temperatures, options.output_interval, limits, cells)
     stats = dict(trajectory.statistics)
     stats["wall_time_s"] = trajectory.wall_time
     codes = trajectory.demand_modes
     demand_value = trajectory.demand_values
     demand_mode = np.array(MODE_NAMES, dtype=object)[codes]
     demand_mode[(codes == MODE_CURRENT) & (demand_value == 0.0)] = REST_MODE
+    rows = trajectory.row_segments
+    cccv = np.array([seg.mode == CCCV_MODE for seg in problem.segments], dtype=bool)
+    demand_mode[cccv[rows]] = CCCV_MODE  # its CC and CV phases are one charge
+    names = np.array([seg.name for seg in problem.segments], dtype=object)
     # cells are numbered from 1 in every output (from 0 in the engine)
     events = [{**e, "cell": e["cell"] + 1} if "cell" in e else e for e in trajectory.events]
     return SimulationResult(series=series, summary=summary, status=trajectory.status,
                             message=trajectory.message, statistics=stats, events=events,
                             metadata=dict(metadata or {}), states=states, demand_mode=demand_mode,
-                            demand_value=demand_value, limits=_limits(problem), cells=cells, cell_coords=coords)
+                            demand_value=demand_value, limits=limits, segment_name=names[rows],
+                            charger=charger_segments(problem)[rows], cells=cells, cell_coords=coords)
 
 
-def _limits(problem: Problem) -> dict[str, float]:
-    ns, cell = problem.pack.series, problem.cell
-    return {
-        "voltage_min_V": ns * cell.voltage_min,
-        "voltage_max_V": ns * cell.voltage_max,
-        "cell_voltage_min_V": cell.voltage_min,
-        "cell_voltage_max_V": cell.voltage_max,
-        "cell_temperature_max_degC": float(_celsius(problem.limits.cell_temperature_max)),
-        "charge_temperature_min_degC": float(_celsius(problem.limits.charge_temperature_min)),
-        "series": ns,
-        "parallel": problem.pack.parallel,
-        "capacity_Ah": cell.capacity / COULOMBS_PER_AH,
-    }
+def charger_segments(problem: Problem) -> np.ndarray:
+    """Which segments charge from a charger: CC-CV, and the modes that hold the terminal voltage.
+
+    Charge in any other segment (a negative current or power, a profile row) comes from the load:
+    regeneration.
+
+    Parameters
+    ----------
+    problem : Problem
+        The simulated problem.
+
+    Returns
+    -------
+    bool array, shape (n_segments,)
+        True for a charger's segment.
+    """
+    return np.array([seg.mode == "cccv" or (seg.mode in LOAD_MODES and LOAD_MODES[seg.mode].imposes_voltage)
+                     for seg in problem.segments], dtype=bool)
+
+
+def _charge_sources(problem: Problem, trajectory: Trajectory, series: dict[str, np.ndarray],
+                    charged_wh: float) -> tuple[float, float]:
+    """The energy charged at the terminals [Wh], split into regenerated (from the load) and from a charger.
+
+    Each part is the trapezoid of the charging power over the output rows of its segments;
+    the two are scaled to the integrator's total (``energy_charged_Wh``), so they add up to it
+    exactly and a part with no rows is exactly zero.
+    """
+    times, power, current = series["time_s"], series["power_W"], series["current_A"]
+    if len(times) < 2 or charged_wh == 0.0:
+        return 0.0, 0.0
+    charging = 0.5 * (current[:-1] + current[1:]) < 0.0
+    energy = np.where(charging, -0.5 * (power[:-1] + power[1:]) * np.diff(times), 0.0)
+    charger = charger_segments(problem)[trajectory.row_segments[1:]]
+    from_charger, regenerated = float(np.sum(energy[charger])), float(np.sum(energy[~charger]))
+    if from_charger + regenerated <= 0.0:
+        return 0.0, 0.0
+    share = regenerated / (from_charger + regenerated)
+    return charged_wh * share + 0.0, charged_wh * (1.0 - share) + 0.0
 
 
 @dataclass(frozen=True)
@@ -318,6 +370,7 @@ def _soak_summary(problem: Problem, soak: Trajectory | None) -> dict[str, Any] |
     return {
         "duration_s": float(soak.times[-1]),
         "stop_reason": soak.stop_reason,
+        "soc_start": pack_soc(problem, soak.states[0])[0],
         "status": soak.status,
         "cell_temperature_end_degC": float(_celsius(end[L.cell_state_indices(n_rc, n_cells)[1]].max())),
         "sink_temperature_end_degC": float(_celsius(end[L.sink_temperature_index(n_rc, n_cells)])),
@@ -329,43 +382,57 @@ def _soak_summary(problem: Problem, soak: Trajectory | None) -> dict[str, Any] |
 
 
 def _summary(problem: Problem, trajectory: Trajectory, series: dict[str, np.ndarray], states: np.ndarray,
-             temperatures: _Temperatures, output_interval: float,
+             temperatures: _Temperatures, output_interval: float, limits: dict[str, float],
              cells: dict[str, np.ndarray] | None) -> dict[str, Any]:
     """The summary of a solo run: :func:`mission_metrics` from the output rows, and what only a solo run has."""
     tc = temperatures.hottest
     times, current = series["time_s"], series["current_A"]
     stress = diagnostics.stress_indicators(problem, times, current, tc, temperatures.coldest)
-    stop = pack_cells.stop_event(trajectory) if cells is not None else None
-    shared = mission_metrics(problem, states[0], states[-1], _row_extremes(series, temperatures, stress, cells),
-                             float(times[-1]), trajectory.stop_reason, trajectory.status,
-                             stop_cell=None if stop is None else stop["cell"])
     cold_time = _cold_charging_time(problem, times, current, temperatures.coldest)
+    stop = pack_cells.stop_event(trajectory) if cells is not None else None
+    stop_cell = None if stop is None else stop["cell"]
+    shared = mission_metrics(problem, states[0], states[-1],
+                             _row_extremes(series, temperatures, stress, cold_time, cells), float(times[-1]),
+                             trajectory.stop_reason, trajectory.status, stop_cell=stop_cell)
     biot, biot_warnings = diagnostics.biot_check(problem)
     warnings = _warnings(problem, trajectory, series, states, temperatures, cold_time) + biot_warnings \
         + diagnostics.plausibility_warnings(problem.cell) + diagnostics.resolution_warnings(problem, output_interval) \
         + diagnostics.correlation_warnings(problem, series)
+    checks = limit_checks({**shared, "stop_reason": trajectory.stop_reason}, limits)
     return {
         "scenario": problem.name,
-        **_extremes_summary(problem, trajectory, shared, series, temperatures),
-        **_energy_summary(problem, shared, trajectory, states),
+        "verdict": shared["verdict"],
+        **_extremes_summary(problem, trajectory, shared, series, temperatures.coldest),
+        "stop_explanation": explain_stop(problem, trajectory.stop_reason, trajectory.message, trajectory.events,
+                                         series, trajectory.row_segments),
+        **_energy_summary(problem, shared, trajectory, states, series),
         "soc_start": float(series["soc"][0]),
         "soc_end": shared["soc_end"],
-        "time_charging_below_limit_s": float(cold_time),
+        "time_charging_below_limit_s": shared["time_charging_below_limit_s"],
         **stress,
         "biot_number": biot,
         "segments_completed": trajectory.segments_completed,
         "segments_total": len(problem.segments),
-        "events": [{"time_s": float(e["time_s"]), "event": e["event"], "origin": e["origin"],
-                    **({"state": e["state"]} if "state" in e else {}),
-                    **({"cell": e["cell"] + 1} if "cell" in e else {})} for e in trajectory.events],
+        "events": [_event(problem, e) for e in trajectory.events],
         "soak": _soak_summary(problem, trajectory.soak),
         **(pack_cells.pack_summary(problem, trajectory, shared, series, cells) if cells is not None else {}),
+        "checks": checks,
+        "notes": list(problem.notes),
         "warnings": warnings,
     }
 
 
+def _event(problem: Problem, event: dict[str, Any]) -> dict[str, Any]:
+    """An event for the summary: time, name, origin, the segment's name if it has one, a thermostat's state,
+    a resolved pack's cell (from 1)."""
+    name = problem.segments[event["segment"]].name if 0 <= event.get("segment", -1) < len(problem.segments) else ""
+    return {"time_s": float(event["time_s"]), "event": event["event"], "origin": event["origin"],
+            **({"segment_name": name} if name else {}), **({"state": event["state"]} if "state" in event else {}),
+            **({"cell": event["cell"] + 1} if "cell" in event else {})}
+
+
 def _row_extremes(series: dict[str, np.ndarray], temperatures: _Temperatures, stress: dict[str, Any],
-                  cells: dict[str, np.ndarray] | None) -> Extremes:
+                  cold_time: float, cells: dict[str, np.ndarray] | None) -> Extremes:
     """The running extremes of a solo run, over its output rows (the Arrhenius time of ``stress``)."""
     return Extremes(
         cell_temperature_max=temperatures.hottest.max(),
@@ -374,75 +441,100 @@ def _row_extremes(series: dict[str, np.ndarray], temperatures: _Temperatures, st
         cell_voltage_min=series["cell_voltage_V"].min(),
         current_abs_max=np.abs(series["current_A"]).max(),
         equivalent_time_at_reference=stress["equivalent_time_at_reference_s"],
+        cell_voltage_max=series.get("cell_voltage_max_V", series["cell_voltage_V"]).max(),  # the highest cell's
+        power_max=series["power_W"].max(),
+        cold_charging_time=cold_time,
         **(pack_cells.row_extremes(series, cells) if cells is not None else {}),
     )
 
 
 def _extremes_summary(problem: Problem, trajectory: Trajectory, shared: dict[str, Any],
-                      series: dict[str, np.ndarray], temperatures: _Temperatures) -> dict[str, Any]:
-    """Verdict, temperature, voltage, current and power extremes and margins, in the summary's order."""
-    current, cell_voltage = series["current_A"], series["cell_voltage_V"]
-    highest = series.get("cell_voltage_max_V", cell_voltage)  # a resolved pack's highest cell
+                      series: dict[str, np.ndarray], coldest: np.ndarray) -> dict[str, Any]:
+    """Completion, temperature, voltage, current and power extremes and margins, in the summary's order."""
+    current = series["current_A"]
     return {
         "completed": shared["completed"],
         "stop_reason": trajectory.stop_reason,
         "duration_s": shared["duration_s"],
         "cell_temperature_max_degC": shared["cell_temperature_max_degC"],
-        "cell_temperature_min_degC": float(_celsius(temperatures.coldest.min())),
+        "cell_temperature_min_degC": float(_celsius(coldest.min())),
         "cell_temperature_rise_K": shared["cell_temperature_rise_K"],
         "sink_temperature_max_degC": shared["sink_temperature_max_degC"],
         "voltage_min_V": shared["voltage_min_V"],
         "voltage_max_V": float(series["voltage_V"].max()),
-        "cell_voltage_min_V": float(cell_voltage.min()),
-        "cell_voltage_max_V": float(highest.max()),
+        "cell_voltage_min_V": shared["cell_voltage_min_V"],
+        "cell_voltage_max_V": shared["cell_voltage_max_V"],
         "voltage_margin_min_V": shared["voltage_margin_min_V"],
-        "voltage_margin_max_V": float(problem.cell.voltage_max - highest.max()),
+        "voltage_margin_max_V": shared["voltage_margin_max_V"],
         "temperature_margin_K": shared["temperature_margin_K"],
         "current_max_A": shared["current_max_A"],
         "discharge_current_max_A": float(max(current.max(), 0.0)),
         "charge_current_max_A": float(max(-current.min(), 0.0)) + 0.0,  # no -0.0
-        "power_max_W": float(series["power_W"].max()),
+        "power_max_W": shared["power_max_W"],
     }
 
 
-def _energy_summary(problem: Problem, shared: dict[str, Any], trajectory: Trajectory,
-                    states: np.ndarray) -> dict[str, Any]:
-    """Energies, heat balance, heater and thermostats, efficiency and throughput, in the summary's order."""
+#: The energies of a mission as every table shows them (terminal, comparison, report): label, key, unit; each
+#: direction apart, load side and cell side, with its losses and efficiency; the contract's net values not among them.
+ENERGY_ROWS: tuple[tuple[str, str, str], ...] = (
+    ("energy discharged to the load", "energy_discharged_Wh", "Wh"),
+    ("energy drawn from the cells", "energy_battery_discharged_Wh", "Wh"),
+    ("energy lost in discharge", "energy_dissipated_discharge_Wh", "Wh"),
+    ("energy charged at the terminals", "energy_charged_Wh", "Wh"),
+    ("  regenerated (from the load)", "energy_regenerated_Wh", "Wh"),
+    ("  from a charger", "energy_from_charger_Wh", "Wh"),
+    ("energy stored in the cells", "energy_battery_charged_Wh", "Wh"),
+    ("energy lost in charge", "energy_dissipated_charge_Wh", "Wh"),
+    ("efficiency, discharge", "efficiency_discharge", ""),
+    ("efficiency, charge", "efficiency_charge", ""),
+    ("efficiency, round trip", "efficiency_round_trip", ""),
+)
+#: The net energies of the output contract (discharge minus charge), for the full summary table only.
+NET_ENERGY_ROWS: tuple[tuple[str, str, str], ...] = (
+    ("net energy at the terminals (discharged - charged)", "energy_load_Wh", "Wh"),
+    ("net energy from the cells (drawn - stored)", "energy_battery_Wh", "Wh"),
+    ("energy dissipated, both directions", "energy_dissipated_Wh", "Wh"),
+    ("efficiency, out over in (both directions pooled)", "efficiency", ""),
+)
+#: The energy keys of the summary in its order: each direction apart, then the contract's net values.
+ENERGY_KEYS: tuple[str, ...] = (
+    "energy_discharged_Wh", "energy_battery_discharged_Wh", "energy_dissipated_discharge_Wh",
+    "energy_charged_Wh", "energy_regenerated_Wh", "energy_from_charger_Wh", "energy_battery_charged_Wh",
+    "energy_dissipated_charge_Wh",
+    "energy_battery_Wh", "energy_load_Wh", "energy_dissipated_Wh",
+)
+
+
+def _energy_summary(problem: Problem, shared: dict[str, Any], trajectory: Trajectory, states: np.ndarray,
+                    series: dict[str, np.ndarray]) -> dict[str, Any]:
+    """Energies, heat balance, heater and thermostats, efficiencies and throughput, in the summary's order."""
     q = states[-1, L.quadrature_index(problem.n_rc, problem.n_cells):]
     heater = problem.thermal.heater
+    regenerated, from_charger = _charge_sources(problem, trajectory, series, shared["energy_charged_Wh"])
+    energies = {**shared, "energy_regenerated_Wh": regenerated, "energy_from_charger_Wh": from_charger}
     return {
-        # the energy keys of mission_metrics, all from energy_totals and in its order
-        **{key: value for key, value in shared.items() if key.startswith("energy_")},
+        **{key: energies[key] for key in ENERGY_KEYS},
         "heat_generated_Wh": shared["heat_generated_Wh"],
-        "heat_reversible_Wh": float(q[L.Q_REVERSIBLE]) / JOULES_PER_WH,
+        "heat_reversible_Wh": float(q[L.Q_REVERSIBLE]) / JOULES_PER_WH + 0.0,
         "heat_to_ambient_Wh": shared["heat_to_ambient_Wh"],
-        "heat_stored_Wh": float(_heat_stored(problem, states)) / JOULES_PER_WH,
-        "heat_to_coolant_Wh": float(q[L.Q_COOLANT]) / JOULES_PER_WH,
-        "heat_radiated_Wh": float(q[L.Q_RADIATION]) / JOULES_PER_WH,
-        "heater_energy_Wh": float(q[L.Q_HEATER]) / JOULES_PER_WH,
-        "heater_energy_from_pack_Wh": float(q[L.Q_HEATER]) / JOULES_PER_WH
+        "heat_stored_Wh": float(_heat_stored(problem, states)) / JOULES_PER_WH + 0.0,
+        "heat_to_coolant_Wh": float(q[L.Q_COOLANT]) / JOULES_PER_WH + 0.0,
+        "heat_radiated_Wh": float(q[L.Q_RADIATION]) / JOULES_PER_WH + 0.0,
+        "heater_energy_Wh": float(q[L.Q_HEATER]) / JOULES_PER_WH + 0.0,
+        "heater_energy_from_pack_Wh": float(q[L.Q_HEATER]) / JOULES_PER_WH + 0.0
         if heater is not None and heater.from_pack else 0.0,
         "thermostat_switches": sum(1 for e in trajectory.events if e["event"] in THERMOSTAT_EVENTS),
+        "efficiency_discharge": shared["efficiency_discharge"],
+        "efficiency_charge": shared["efficiency_charge"],
+        "efficiency_round_trip": shared["efficiency_round_trip"],
         "efficiency": shared["efficiency"],
         "charge_throughput_Ah": shared["charge_throughput_Ah"],
     }
 
 
 def _heat_stored(problem: Problem, states: np.ndarray) -> float:
-    """Heat stored in the cells, the sink and the coolant from the first to the last row [J].
-
-    Parameters
-    ----------
-    problem : Problem
-        The problem: heat capacities of the cells [J/K] (each cell of a resolved pack), the sink and the coolant.
-    states : array, shape (rows, n_states)
-        State rows (``layout``) [-, V, K, J, C].
-
-    Returns
-    -------
-    float
-        ``sum C_i (T_i,end - T_i,start)`` over the cells, plus the sink's and the coolant's [J].
-    """
+    """Heat stored in the cells (each cell of a resolved pack), the sink and the coolant from the first to the last
+    row [J]."""
     n_rc, n_cells, th, pk, cell = problem.n_rc, problem.n_cells, problem.thermal, problem.pack, problem.cell
     tc = states[:, L.cell_state_indices(n_rc, n_cells)[1]]
     ts = states[:, L.sink_temperature_index(n_rc, n_cells)]

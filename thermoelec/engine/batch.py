@@ -97,19 +97,24 @@ _E1, _E2, _E3, _E4 = 2 / 9 - 7 / 24, 1 / 3 - 1 / 4, 4 / 9 - 1 / 3, -1 / 8
 #: Exponent of the step-size update: the embedded (second-order) error is O(h^3).
 _ORDER_EXPONENT = -1.0 / 3.0
 
-# per-scenario running extremes and integrals written by the kernel (what the sweep metrics need)
-X_TC_MAX, X_TS_MAX, X_V_MIN, X_VCELL_MIN, X_I_ABS, X_ARRHENIUS = 0, 1, 2, 3, 4, 5
-X_SPREAD, X_SPREAD_TIME, X_SHARE, X_HOT_CELL, X_HOT_TIME, N_EXTRA = 6, 7, 8, 9, 10, 11
+# per-scenario running extremes and integrals written by the kernel (what the sweep metrics and verdict need)
+X_TC_MAX, X_TS_MAX, X_V_MIN, X_VCELL_MIN, X_I_ABS, X_ARRHENIUS, X_VCELL_MAX, X_P_MAX, X_COLD_CHARGE = \
+    0, 1, 2, 3, 4, 5, 6, 7, 8
+X_SPREAD, X_SPREAD_TIME, X_SHARE, X_HOT_CELL, X_HOT_TIME, N_EXTRA = 9, 10, 11, 12, 13, 14
 #: The names of the extremes, by index: highest cell and sink temperature [K], lowest pack and cell
 #: voltage [V], largest current magnitude [A], Arrhenius-weighted time at the reference temperature [s]
-#: (of the hottest cell); the largest difference between the hottest and the coldest cell [K] and
-#: when [s], the largest current share of a cell [-], the cell that reached the highest temperature
+#: (of the hottest cell), highest cell voltage [V], highest power to the load [W], time charging below
+#: the charge temperature limit [s] (of the coldest cell; the crossing interpolated within a step, as over
+#: the output rows of a solo run); the largest difference between the hottest and the coldest cell [K]
+#: and when [s], the largest current share of a cell [-], the cell that reached the highest temperature
 #: (from 0) [-] and when [s] (0, 0, 1, 0 and the time of the peak for a lumped pack).
 EXTREMES = ("cell_temperature_max", "sink_temperature_max", "voltage_min", "cell_voltage_min", "current_abs_max",
-            "equivalent_time_at_reference", "cell_temperature_spread_max", "cell_temperature_spread_time",
-            "current_share_max", "hottest_cell", "hottest_time")
+            "equivalent_time_at_reference", "cell_voltage_max", "power_max", "cold_charging_time",
+            "cell_temperature_spread_max", "cell_temperature_spread_time", "current_share_max", "hottest_cell",
+            "hottest_time")
 #: Their values before the first observation.
-_EXTRA_START = np.array([-np.inf, -np.inf, np.inf, np.inf, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0])
+_EXTRA_START = np.array([-np.inf, -np.inf, np.inf, np.inf, 0.0, 0.0, -np.inf, -np.inf, 0.0,
+                         0.0, 0.0, 0.0, 0.0, 0.0])
 
 
 @numba.njit(cache=True, error_model="numpy")
@@ -163,6 +168,27 @@ def _observe(y, alg, extra, t, ts_index):
     extra[X_V_MIN] = min(extra[X_V_MIN], alg[L.A_VOLTAGE])
     extra[X_VCELL_MIN] = min(extra[X_VCELL_MIN], alg[L.A_CELL_VOLTAGE])
     extra[X_I_ABS] = max(extra[X_I_ABS], abs(alg[L.A_CURRENT]))
+    extra[X_VCELL_MAX] = max(extra[X_VCELL_MAX], alg[L.A_CELL_VOLTAGE_HIGH])
+    extra[X_P_MAX] = max(extra[X_P_MAX], alg[L.A_VOLTAGE] * alg[L.A_CURRENT])
+
+
+@numba.njit(cache=True, error_model="numpy")
+def _cold_charging(tc0, tc1, i0, i1, t_min, h):
+    """Time of a step of length h spent charging below ``t_min`` [s].
+
+    Charging when the step's mean current is negative; the time below the limit
+    is the share of the step below it, the crossing interpolated linearly (the
+    rule of :func:`thermoelec.analysis.diagnostics.time_above` over output rows).
+    """
+    if 0.5 * (i0 + i1) >= 0.0:
+        return 0.0
+    below0, below1 = tc0 < t_min, tc1 < t_min
+    if below0 and below1:
+        return h
+    if not below0 and not below1:
+        return 0.0
+    share = (t_min - tc0) / (tc1 - tc0)
+    return h * share if below0 else h * (1.0 - share)
 
 
 @numba.njit(cache=True, error_model="numpy")
@@ -188,7 +214,7 @@ MAX_EVENTS_PER_SEGMENT = 1000
 
 @numba.njit(cache=True, error_model="numpy")
 def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setup_index, switches, controls, y,
-                   rtol, atol, ea, t_ref, extra, hot0, ts_index):
+                   rtol, atol, ea, t_ref, t_charge_min, extra, hot0, cold0, ts_index):
     """One scenario through the segments of its mission plan and their phases (a CC-CV segment has two).
 
     Events act by :data:`thermoelec.engine.events.EVENT_ACTION`, as in the CVODE
@@ -196,8 +222,10 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
     cutoff or an end condition ends the segment, a thermostat toggles and the
     phase goes on. Returns (status, event, time, cell): status 0 end of profile, 1
     stopped, 2 fallback; the cell at a stop's limit
-    (:data:`thermoelec.engine.layout.EVENT_CELL_SLOT`, -1 for none). ``hot0`` is the
-    hottest cell's temperature at the start [K]. About 100 lines in one compiled
+    (:data:`thermoelec.engine.layout.EVENT_CELL_SLOT`, -1 for none). ``hot0`` and
+    ``cold0`` are the hottest and the coldest cell's temperatures at the start [K]
+    (the Arrhenius time is the hottest cell's, the time charging cold the coldest
+    cell's). About 100 lines in one compiled
     loop, on purpose: the step loop runs once per segment of every scenario, and as
     a separate function taking a dozen arrays its calls cost a fifth of the batch.
     """
@@ -210,6 +238,8 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
     default_table = p[L.H_AMBIENT_TABLE]
     h = 0.05
     rate_prev = arrhenius_ageing_rate(hot0, ea, t_ref)
+    cold_prev = cold0  # the coldest cell at the last accepted point (cold charging counts it)
+    current_prev = 0.0
     t = 0.0
     for seg in range(durations.size):
         t_end = t + durations[seg]
@@ -229,6 +259,7 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
                 p[L.H_TIME] = t
                 m.evaluate_any(y, p, k[0], alg)
             _observe(y, alg, extra, t, ts_index)
+            current_prev = alg[L.A_CURRENT]  # the demand jumps at a phase start
             if code < 0:
                 if t_end - t <= MIN_PHASE:
                     break
@@ -262,6 +293,10 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
                         rate_new = arrhenius_ageing_rate(alg[L.A_TEMPERATURE_HIGH], ea, t_ref)
                         extra[X_ARRHENIUS] += 0.5 * (rate_prev + rate_new) * high
                         rate_prev = rate_new
+                        extra[X_COLD_CHARGE] += _cold_charging(cold_prev, alg[L.A_TEMPERATURE_LOW], current_prev,
+                                                               alg[L.A_CURRENT], t_charge_min, high)
+                        current_prev = alg[L.A_CURRENT]
+                        cold_prev = alg[L.A_TEMPERATURE_LOW]
                         for i in range(n):
                             y[i] = trial[i]
                         t += high
@@ -270,6 +305,10 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
                     rate_new = arrhenius_ageing_rate(alg[L.A_TEMPERATURE_HIGH], ea, t_ref)
                     extra[X_ARRHENIUS] += 0.5 * (rate_prev + rate_new) * h_try
                     rate_prev = rate_new
+                    extra[X_COLD_CHARGE] += _cold_charging(cold_prev, alg[L.A_TEMPERATURE_LOW], current_prev,
+                                                           alg[L.A_CURRENT], t_charge_min, h_try)
+                    current_prev = alg[L.A_CURRENT]
+                    cold_prev = alg[L.A_TEMPERATURE_LOW]
                     t += h_try
                     for i in range(n):
                         y[i] = out[i]
@@ -301,7 +340,7 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
 
 @numba.njit(cache=True, error_model="numpy")
 def _integrate_many(params, profile, n_phases, modes, values, durations, ambients, setups, setup_index, switches,
-                    controls, y0, rtol, atol, ea, t_ref, hot0, ts_index):
+                    controls, y0, rtol, atol, ea, t_ref, t_charge_min, hot0, cold0, ts_index):
     """Every scenario of a batch; scenario ``s`` runs the segments of profile ``profile[s]``."""
     n_scen = params.shape[0]
     states = y0.copy()
@@ -317,7 +356,7 @@ def _integrate_many(params, profile, n_phases, modes, values, durations, ambient
         j = profile[s]
         st, ev, tt, cc = _integrate_one(p, n_phases[j], modes[j], values[j], durations[j], ambients[j], setups[j],
                                         setup_index[j], switches[s], controls[s].copy(), y, rtol, atol[s], ea[s],
-                                        t_ref[s], extras[s], hot0[s], ts_index)
+                                        t_ref[s], t_charge_min[s], extras[s], hot0[s], cold0[s], ts_index)
         status[s], events[s], times[s], cells[s] = st, ev, tt, cc
     return states, extras, status, events, times, cells
 
@@ -337,7 +376,7 @@ class BatchOutcome:
     states : float64 array, shape (n, n_states)
         State at the end (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
     extras : float64 array, shape (n, len(EXTREMES))
-        The running extremes of :data:`EXTREMES` [K, K, V, V, A, s, K, s, -, -, s].
+        The running extremes of :data:`EXTREMES` [K, K, V, V, A, s, V, W, s, K, s, -, -, s].
     initial_states : float64 array, shape (n, n_states)
         Where each mission started, after its soak [-, V, K, J, C].
     stop_cell : int64 array, shape (n,)
@@ -416,7 +455,7 @@ def solve_batch(problems: list[Problem], options: SolverOptions) -> BatchOutcome
     BatchOutcome
         Per scenario: ``ok`` or ``fallback`` (to be run on CVODE), stop reason,
         end time [s] and state [-, V, K, J, C], and the running extremes of
-        :data:`EXTREMES` [K, K, V, V, A, s, K, s, -, -, s], the cell at a stop's limit [-].
+        :data:`EXTREMES` [K, K, V, V, A, s, V, W, s, K, s, -, -, s], the cell at a stop's limit [-].
     """
     n_rc, n_cells = problems[0].n_rc, problems[0].n_cells
     if any(p.n_rc != n_rc or p.n_cells != n_cells for p in problems):
@@ -444,9 +483,10 @@ def solve_batch(problems: list[Problem], options: SolverOptions) -> BatchOutcome
     atol = np.tile(options.atol_vector(n_rc, n_cells), (len(problems), 1))
     ea = np.array([p.stress.activation_energy for p in problems])
     t_ref = np.array([p.stress.reference_temperature for p in problems])
+    t_charge_min = np.array([p.limits.charge_temperature_min for p in problems])
     states, extras, status, events, times, cells = _integrate_many(
         params, which, n_phases, modes, values, durations, ambients, setups, index, switches, controls, y0,
-        options.rtol, atol, ea, t_ref, hot0, L.sink_temperature_index(n_rc, n_cells))
+        options.rtol, atol, ea, t_ref, t_charge_min, hot0, cold0, L.sink_temperature_index(n_rc, n_cells))
     stop = [STOP_EVENTS.get(int(e), "end_of_profile") if s == 1 else "end_of_profile"
             for s, e in zip(status, events, strict=True)]
     names = ["fallback" if s == 2 or i in soak_failed else "ok" for i, s in enumerate(status)]

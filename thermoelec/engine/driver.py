@@ -115,6 +115,8 @@ class Trajectory:
         Segments run to their end [-].
     soak : Trajectory or None
         The soak's own trajectory, None without a soak.
+    phase_segment : int64 array, shape (n_phases,)
+        The mission segment each phase belongs to (index into ``Problem.segments``) [-].
     """
 
     times: np.ndarray
@@ -130,6 +132,12 @@ class Trajectory:
     wall_time: float = 0.0
     segments_completed: int = 0
     soak: Trajectory | None = None
+    phase_segment: np.ndarray = field(default_factory=lambda: np.zeros(0, dtype=np.int64))
+
+    @property
+    def row_segments(self) -> np.ndarray:
+        """The mission segment of each row (index into ``Problem.segments``) [-]."""
+        return self.phase_segment[self.phase_index]
 
     @property
     def demand_modes(self) -> np.ndarray:
@@ -185,6 +193,8 @@ class _Run:
     states: list[np.ndarray] = field(default_factory=list)
     row_phase: list[int] = field(default_factory=list)
     phase_params: list[np.ndarray] = field(default_factory=list)
+    phase_segment: list[int] = field(default_factory=list)
+    segment: int = 0
     events: list[dict] = field(default_factory=list)
     stop_reason: str = "end_of_profile"
     status: str = "ok"
@@ -192,6 +202,7 @@ class _Run:
 
     def start_phase(self, t: float, y: np.ndarray, p: np.ndarray) -> int:
         self.phase_params.append(p[:HEADER].copy())
+        self.phase_segment.append(self.segment)
         self.times.append(t)
         self.states.append(y)
         self.row_phase.append(len(self.phase_params) - 1)
@@ -252,6 +263,7 @@ def integrate_problem(problem: Problem, options: SolverOptions, initial_state: n
         stop_reason=run.stop_reason, status=run.status,
         message=run.message, events=run.events, statistics=backend.statistics(),
         wall_time=_time.perf_counter() - started, segments_completed=completed, soak=soak,
+        phase_segment=np.asarray(run.phase_segment, dtype=np.int64),
     )
 
 
@@ -266,6 +278,7 @@ def _walk(plan: MissionPlan, problem: Problem, p: np.ndarray, kernels: Kernels, 
     for seg in range(plan.n_segments):
         t_seg_end = t + plan.durations[seg]
         phase = 0
+        run.segment = seg
         while True:
             configure_phase(p, seg, phase, plan.modes, plan.values, plan.ambients, plan.setups, plan.setup_index,
                             default_ambient, default_table, switches, controls)

@@ -96,6 +96,9 @@ class Problem:
         Segments run before the mission as a problem of their own
         (:func:`thermoelec.engine.mission.soak_problem`); the mission starts from their
         end state with the integrals reset.
+    notes : tuple of str
+        What the scenario layer wants said in the summary (a profile's ambient column that
+        overrides the scenario's); nothing the engine reads.
     resolved : ResolvedPack or None
         Every cell with its own states, factors and thermal paths
         (:class:`thermoelec.physics.pack.ResolvedPack`); None for the lumped pack
@@ -116,6 +119,7 @@ class Problem:
     initial_coolant_temperature: float | None = None
     ambient_profile: tuple[np.ndarray, np.ndarray] | None = None
     soak: tuple[Segment, ...] = ()
+    notes: tuple[str, ...] = ()
     resolved: ResolvedPack | None = None
 
     @property

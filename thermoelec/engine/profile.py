@@ -45,6 +45,8 @@ class Segment:
         Ambient temperature during the segment [K]; None keeps the scenario's.
     origin : str
         Where the segment came from, for messages ("profile.segment[2]", "route.csv row 14").
+    name : str
+        The segment's own name from the scenario (``"take-off"``), empty without one.
     """
 
     mode: str
@@ -58,6 +60,7 @@ class Segment:
     cutoff_current: float | None = None
     ambient_temperature: float | None = None
     origin: str = ""
+    name: str = ""
 
 
 def expand_repeats(segments: list[Segment], repeat: int) -> list[Segment]:

@@ -85,6 +85,8 @@ class CellData:
 
         self.capacity = si("capacity", "Ah", "C")
         self.mass = si("mass", "kg")
+        self.voltage_max = si("voltage_max", "V")
+        self.voltage_min = si("voltage_min", "V")
         ocv = cell.get("ocv", {})
         self.ocv_soc = np.asarray(ocv["soc"], float) if "soc" in ocv else None
         self.ocv_voltage = np.array([to_si(v, "V", "V") for v in ocv["voltage"]]) if "voltage" in ocv else None

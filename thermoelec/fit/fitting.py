@@ -31,22 +31,108 @@ from thermoelec.fit.logs import Pulse, TestLog, find_pulses
 from thermoelec.inputs import ScenarioError
 from thermoelec.physics.cell import GAS_CONSTANT
 
-__all__ = ["ArrheniusFit", "OcvFit", "PulseFit", "ThermalFit", "fit_arrhenius", "fit_ocv", "fit_pulse_log",
-           "fit_thermal", "tabulate_pulses"]
+__all__ = [
+    "ArrheniusFit",
+    "OcvFit",
+    "PulseFit",
+    "ResidualStructure",
+    "ThermalFit",
+    "fit_arrhenius",
+    "fit_ocv",
+    "fit_pulse_log",
+    "fit_thermal",
+    "ocv_interpolation_error",
+    "tabulate_pulses",
+]
 
 Z95 = 1.959963984540054  # two-sided 95 % quantile of the normal distribution
 
 
-def _confidence(result) -> np.ndarray:
-    """Half-widths of 95 % confidence intervals of a least-squares solution."""
-    jac = result.jac
-    dof = max(len(result.fun) - len(result.x), 1)
-    s2 = float(result.fun @ result.fun) / dof
+@dataclass(frozen=True)
+class ResidualStructure:
+    """How far the residuals of a fit are from independent noise.
+
+    Attributes
+    ----------
+    lag1 : float
+        Lag-1 autocorrelation of the residuals [-] (0 for white noise; near 1 for a smooth,
+        systematic residual: a sign of model mismatch).
+    durbin_watson : float
+        ``sum (r_t - r_t-1)^2 / sum r_t^2`` [-], about ``2 (1 - lag1)``: 2 for white noise
+        (J. Durbin, G. S. Watson, Biometrika 37 (1950) 409).
+    bandwidth : int
+        Lags of the Newey-West covariance [-] (Andrews' AR(1) plug-in).
+    largest : float
+        The largest residual magnitude [the data's unit].
+    inflation : float
+        Width of the HAC interval over that of the independent-noise one, the median over the parameters [-].
+    """
+
+    lag1: float
+    durbin_watson: float
+    bandwidth: int
+    largest: float
+    inflation: float
+
+    @property
+    def mismatch(self) -> bool:
+        """The residuals are structured (lag-1 autocorrelation above 0.5): the model misses something."""
+        return self.lag1 > MISMATCH_LAG1
+
+
+#: A lag-1 autocorrelation of the residuals above this flags a model mismatch [-].
+MISMATCH_LAG1 = 0.5
+
+
+def _andrews_bandwidth(residual: np.ndarray) -> tuple[int, float]:
+    """Lags of the Bartlett-kernel HAC covariance by Andrews' AR(1) plug-in rule, and the lag-1 autocorrelation.
+
+    ``L = 1.1447 (alpha n)^(1/3)``, ``alpha = 4 rho^2 / ((1 - rho)^2 (1 + rho)^2)``
+    (D. W. K. Andrews, Econometrica 59 (1991) 817, eq. 6.4 and table I, Bartlett kernel).
+    """
+    n = len(residual)
+    centred = residual - residual.mean()
+    denominator = float(centred @ centred)
+    rho = float(centred[1:] @ centred[:-1]) / denominator if denominator > 0 else 0.0
+    rho = min(max(rho, -0.99), 0.99)
+    alpha = 4 * rho**2 / ((1 - rho) ** 2 * (1 + rho) ** 2)
+    return int(min(max(np.ceil(1.1447 * (alpha * n) ** (1 / 3)), 0), n - 1)), rho
+
+
+def _confidence(result, structure: bool = False):
+    """Half-widths of 95 % confidence intervals of a least-squares solution, robust to autocorrelated residuals.
+
+    The covariance is the sandwich ``(J'J)^-1 S (J'J)^-1`` with ``S`` the Newey-West
+    heteroskedasticity and autocorrelation consistent estimate, Bartlett weights
+    ``1 - l / (L + 1)`` over ``L`` lags chosen by Andrews' rule (W. K. Newey, K. D. West,
+    Econometrica 55 (1987) 703; D. W. K. Andrews, Econometrica 59 (1991) 817). For white
+    residuals it is about the usual ``s^2 (J'J)^-1`` (Seber & Wild, *Nonlinear Regression*,
+    1989, §2.1); for a smooth systematic residual (a model that misses something) it widens
+    the intervals instead of claiming a precision the fit does not have. With ``structure``
+    the :class:`ResidualStructure` is returned too.
+    """
+    jac, residual = np.asarray(result.jac), np.asarray(result.fun)
+    n, k = jac.shape
     try:
-        cov = np.linalg.inv(jac.T @ jac) * s2
+        bread = np.linalg.inv(jac.T @ jac)
     except np.linalg.LinAlgError:
-        return np.full(len(result.x), np.inf)
-    return Z95 * np.sqrt(np.clip(np.diag(cov), 0.0, None))
+        half = np.full(len(result.x), np.inf)
+        return (half, ResidualStructure(0.0, 2.0, 0, float(np.max(np.abs(residual))), 1.0)) if structure else half
+    lags, rho = _andrews_bandwidth(residual)
+    scores = jac * residual[:, None]
+    meat = scores.T @ scores
+    for lag in range(1, lags + 1):
+        gamma = scores[lag:].T @ scores[:-lag]
+        meat += (1.0 - lag / (lags + 1.0)) * (gamma + gamma.T)
+    scale = n / max(n - k, 1)
+    hac = np.clip(np.diag(bread @ meat @ bread) * scale, 0.0, None)
+    white = np.clip(np.diag(bread) * float(residual @ residual) / max(n - k, 1), 0.0, None)
+    half = Z95 * np.sqrt(np.maximum(hac, white))  # never narrower than the independent-noise interval
+    if not structure:
+        return half
+    dw = float(np.sum(np.diff(residual) ** 2) / max(float(residual @ residual), 1e-300))
+    ratio = np.sqrt(np.maximum(hac, white) / np.where(white > 0, white, 1.0))
+    return half, ResidualStructure(rho, dw, lags, float(np.max(np.abs(residual))), float(np.median(ratio)))
 
 
 # ---------------------------------------------------------------------------
@@ -139,6 +225,8 @@ class PulseFit:
     time: np.ndarray
     voltage: np.ndarray
     model: np.ndarray
+    residuals: ResidualStructure | None = None
+    ocv_error_V: float = 0.0
 
 
 def _thevenin_response(params: np.ndarray, current: np.ndarray, dt: np.ndarray, ocv: np.ndarray,
@@ -179,7 +267,7 @@ def fit_window(log: TestLog, window: Pulse, soc: np.ndarray, ocv_soc: np.ndarray
         return _thevenin_response(params, current, dt, ocv, n_rc) - voltage
 
     result = least_squares(residual, guess, bounds=(low, high), x_scale="jac", method="trf")
-    ci = _confidence(result)
+    ci, residuals = _confidence(result, structure=True)
     x = result.x
     taus = np.exp(x[3::2][:n_rc])
     order = np.argsort(taus)
@@ -188,7 +276,32 @@ def fit_window(log: TestLog, window: Pulse, soc: np.ndarray, ocv_soc: np.ndarray
     tau_ci = taus[order] * ci[3::2][:n_rc][order]  # delta method on ln tau
     temperature = float(np.mean(log.temperature[sl])) if log.temperature is not None else float("nan")
     return PulseFit(z0, temperature, float(x[0]), r0_step, rc_r, taus[order], float(ci[0]), rc_r_ci, tau_ci,
-                    float(x[1]), float(np.sqrt(np.mean(result.fun**2))), time, voltage, voltage + result.fun)
+                    float(x[1]), float(np.sqrt(np.mean(result.fun**2))), time, voltage, voltage + result.fun,
+                    residuals, ocv_interpolation_error(ocv_soc, ocv_voltage, float(np.min(z)), float(np.max(z))))
+
+
+def ocv_interpolation_error(ocv_soc: np.ndarray, ocv_voltage: np.ndarray, low: float, high: float) -> float:
+    """The error the OCV table's linear interpolation may make over a pulse window's SoC span [V].
+
+    The window's model reads the OCV at every sample's SoC from the table, so its local slope is
+    taken into account; what the table cannot give is its curvature between grid points. The bound
+    is ``h^2 |U''| / 8`` over the intervals the window touches (the error of linear interpolation,
+    e.g. Burden & Faires, *Numerical Analysis*, thm. 3.3), with ``|U''|`` from the second differences
+    of the table itself (so it measures the grid against its own curvature; 0 where the table is linear).
+    """
+    z, u = np.asarray(ocv_soc, float), np.asarray(ocv_voltage, float)
+    if len(z) < 3:
+        return 0.0
+    slopes = np.diff(u) / np.diff(z)
+    curvature = np.abs(np.diff(slopes)) / (0.5 * (z[2:] - z[:-2]))  # at the inner grid points
+    h = np.diff(z)
+    worst = 0.0
+    for i in range(len(h)):
+        if z[i + 1] < low or z[i] > high:
+            continue
+        near = [curvature[j] for j in (i - 1, i) if 0 <= j < len(curvature)]
+        worst = max(worst, h[i] ** 2 * max(near) / 8.0)
+    return float(worst)
 
 
 def fit_pulse_log(log: TestLog, capacity: float, ocv_soc: np.ndarray, ocv_voltage: np.ndarray, n_rc: int = 1,
@@ -305,6 +418,7 @@ class ThermalFit:
     sink_conductance_ci: float | None = None
     sink_temperature: np.ndarray | None = None
     sink_model: np.ndarray | None = None
+    residuals: ResidualStructure | None = None
 
     def steady_rise(self, power: float) -> float:
         """Steady temperature rise at ``power`` [W] of the one-node model [K]."""
@@ -359,9 +473,11 @@ def fit_thermal(log: TestLog, power: np.ndarray | None = None, ambient: float | 
 
         result = least_squares(lambda x: simulate(x) - t_cell, np.log([c_guess, g_guess]), x_scale="jac")
         c, g = np.exp(result.x)
-        ci = _confidence(result) * np.exp(result.x)
+        half, residuals = _confidence(result, structure=True)
+        ci = half * np.exp(result.x)
         return ThermalFit(float(c), float(g), float(ci[0]), float(ci[1]), float(c / g),
-                          float(np.sqrt(np.mean(result.fun**2))), log.time, t_cell, t_cell + result.fun)
+                          float(np.sqrt(np.mean(result.fun**2))), log.time, t_cell, t_cell + result.fun,
+                          residuals=residuals)
     t_sink = log.sink_temperature
 
     def simulate2(params):
@@ -376,9 +492,10 @@ def fit_thermal(log: TestLog, power: np.ndarray | None = None, ambient: float | 
 
     result = least_squares(residual2, np.log([c_guess, 2 * g_guess, 3 * c_guess, g_guess]), x_scale="jac")
     c, g, cs, gs = np.exp(result.x)
-    ci = _confidence(result) * np.exp(result.x)
+    half, residuals = _confidence(result, structure=True)
+    ci = half * np.exp(result.x)
     model = simulate2(result.x)
     n = len(t_cell)
     return ThermalFit(float(c), float(g), float(ci[0]), float(ci[1]), float(c / g),
                       float(np.sqrt(np.mean(result.fun**2))), log.time, t_cell, model[:, 0], float(cs), float(gs),
-                      float(ci[2]), float(ci[3]), t_sink, model[:, 1] if n else None)
+                      float(ci[2]), float(ci[3]), t_sink, model[:, 1] if n else None, residuals)

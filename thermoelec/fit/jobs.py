@@ -159,6 +159,7 @@ def fit_pulse_logs(paths: Sequence[str], mapping: LogMapping, cell_path: str, n_
         per_log.append(fitting.fit_pulse_log(log, cell.capacity, cell.ocv_soc, cell.ocv_voltage, n_rc, given))
     tables = fitting.tabulate_pulses(per_log)
     outcome = FitOutcome("pulse", paths)
+    outcome.notes += _voltage_limit_notes(paths, mapping, cell) + _pulse_residual_notes(per_log)
     outcome.tables = _base_tables(cell)
     outcome.tables.pop("cell.rc", None)
     soc = np.round(tables.soc, 4)
@@ -196,6 +197,64 @@ def fit_pulse_logs(paths: Sequence[str], mapping: LogMapping, cell_path: str, n_
                                        f"R0 ± {1e3 * f.r0_ci:.2g} mΩ; rms {1e3 * f.rms_V:.2f} mV"))
     outcome.figures += _pulse_figures(per_log, tables)
     return outcome
+
+
+#: A pulse window's OCV interpolation may err by this much before a note says the OCV grid is too coarse [V]
+#: (five times a cycler's 1 mV voltage resolution, a few percent of a 1C pulse's resistive step).
+OCV_GRID_TOLERANCE = 5e-3
+
+
+def _voltage_limit_notes(paths: Sequence[str], mapping: LogMapping, cell: CellData) -> list[str]:
+    """A warning for each log that leaves the cell file's voltage limits (when the file gives them)."""
+    notes = []
+    for path in paths:
+        log = read_log(path, mapping, ("current", "voltage"), ("temperature",), min_rows=50)
+        high, low = float(np.max(log.voltage)), float(np.min(log.voltage))
+        if cell.voltage_max is not None and high > cell.voltage_max:
+            notes.append(f"warning: {path} reaches {high:.4g} V, above the cell file's voltage_max "
+                         f"({cell.voltage_max:.4g} V): the fit extrapolates the cell outside its limits; check the "
+                         "test procedure (or the limits)")
+        if cell.voltage_min is not None and low < cell.voltage_min:
+            notes.append(f"warning: {path} falls to {low:.4g} V, below the cell file's voltage_min "
+                         f"({cell.voltage_min:.4g} V)")
+    return notes
+
+
+def _pulse_residual_notes(per_log) -> list[str]:
+    """Notes on the pulse windows: structured residuals (model mismatch), an OCV grid too coarse for a window."""
+    fits = [f for fits in per_log for f in fits]
+    notes = []
+    structured = [f for f in fits if f.residuals is not None and f.residuals.mismatch]
+    if structured:
+        lag1 = np.median([f.residuals.lag1 for f in structured])
+        notes.append(f"model mismatch in {len(structured)} of {len(fits)} pulse windows: their residuals are "
+                     f"autocorrelated (median lag-1 {lag1:.2f}); the intervals are Newey-West (HAC) intervals, "
+                     "widened for it; consider --rc 2")
+    coarse: dict[float, list] = {}
+    for f in fits:
+        if f.ocv_error_V > OCV_GRID_TOLERANCE:
+            coarse.setdefault(round(f.soc, 2), []).append(f)
+    for soc, group in sorted(coarse.items()):
+        temps = ", ".join(f"{_degc(f.temperature):.0f}" for f in group)
+        notes.append(f"warning: the OCV grid is too coarse for the pulses at SoC {soc:.2f} ({temps} degC): linear "
+                     f"interpolation between its points may err by up to "
+                     f"{1e3 * max(f.ocv_error_V for f in group):.1f} mV over the window (the OCV's curvature there), "
+                     "which the fitted R0 and RC absorb; fit the OCV on a finer grid (fit ocv --points)")
+    return notes
+
+
+def _thermal_residual_notes(result) -> list[str]:
+    """The residual structure of a thermal fit, and a model-mismatch note when it is systematic."""
+    r = result.residuals
+    if r is None:
+        return []
+    text = (f"residuals: lag-1 autocorrelation {r.lag1:.2f}, Durbin-Watson {r.durbin_watson:.2f}, largest "
+            f"{1e3 * r.largest:.0f} mK; intervals by the Newey-West (HAC) covariance over {r.bandwidth} lags, "
+            f"{r.inflation:.1f} times the independent-noise ones")
+    if r.mismatch:
+        text = ("model mismatch: the residuals are systematic, not noise (a lumped node, a heat input held between "
+                "samples or a heater that switched between them may explain it); " + text)
+    return [text]
 
 
 def _pulse_figures(per_log, tables) -> list[tuple[Figure, str]]:
@@ -252,6 +311,7 @@ def fit_thermal_log(path: str, mapping: LogMapping, cell_path: str | None = None
         ("time constant C / G", f"{result.time_constant:.5g} s", ""),
         ("rms residual", f"{1e3 * result.rms_K:.1f} mK", ""),
     ]
+    outcome.notes += _thermal_residual_notes(result)
     if two_node:
         outcome.parameters += [
             ("sink heat capacity", f"{result.sink_heat_capacity:.5g} J/K", f"± {result.sink_heat_capacity_ci:.2g} J/K"),

@@ -6,6 +6,6 @@ files, the command line). Imports only from :mod:`thermoelec.physics` and below.
 
 from thermoelec.inputs.csvfiles import check_increasing, numeric_column, read_csv_frame
 from thermoelec.inputs.errors import ScenarioError
-from thermoelec.inputs.units import to_si
+from thermoelec.inputs.units import from_si, to_si
 
-__all__ = ["ScenarioError", "check_increasing", "numeric_column", "read_csv_frame", "to_si"]
+__all__ = ["ScenarioError", "check_increasing", "from_si", "numeric_column", "read_csv_frame", "to_si"]

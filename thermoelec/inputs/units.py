@@ -11,7 +11,7 @@ import re
 from functools import lru_cache
 from typing import Any
 
-__all__ = ["to_si"]
+__all__ = ["from_si", "to_si"]
 
 _NUMBER = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
 
@@ -90,3 +90,42 @@ def _to_si(value: Any, default_unit: str, si_unit: str) -> float:
         return float(quantity.to(si_unit).magnitude)
     except pint.DimensionalityError:
         raise ValueError(f"{value!r} has the wrong dimension: expected a quantity in {default_unit}") from None
+
+
+@lru_cache(maxsize=4096)
+def _factor(si_unit: str, unit: str) -> tuple[float, float]:
+    """``(scale, offset)`` with ``value [unit] = scale * value [si_unit] + offset`` (offsets: degC, degF)."""
+    ureg = _registry()
+    zero = float(ureg.Quantity(0.0, si_unit).to(unit).magnitude)
+    one = float(ureg.Quantity(1.0, si_unit).to(unit).magnitude)
+    return one - zero, zero
+
+
+def from_si(value: float, si_unit: str, unit: str) -> float:
+    """An SI value in another unit of the same dimension (the reverse of :func:`to_si`, for listings).
+
+    Parameters
+    ----------
+    value : float
+        The value [``si_unit``].
+    si_unit : str
+        Its unit, as pint spells it (``"K"``, ``"C"``, ``""`` for dimensionless).
+    unit : str
+        The unit wanted (``"degC"``, ``"Ah"``).
+
+    Returns
+    -------
+    float
+        The value [``unit``].
+
+    Examples
+    --------
+    >>> round(from_si(253.15, "K", "degC"), 9)
+    -20.0
+    >>> round(from_si(9000.0, "C", "Ah"), 12)
+    2.5
+    """
+    if si_unit == unit:
+        return float(value)
+    scale, offset = _factor(si_unit, unit)
+    return float(value) * scale + offset

@@ -31,15 +31,21 @@ __all__ = [
     "FIGURE_NAMES",
     "MODE_COLOURS",
     "PACK_MAP",
+    "AxisRange",
     "EnergyPart",
     "OperatingState",
+    "OperatingView",
+    "axis_range",
     "comparison_overlay",
     "dashboard",
     "energy_chart",
     "energy_parts",
     "operating_region",
     "operating_states",
+    "operating_view",
     "save",
+    "segment_labels",
+    "title_of",
     "write_comparison_figure",
     "write_figures",
 ]
@@ -52,6 +58,26 @@ MODE_COLOURS: dict[str, str] = dict(zip(DEMAND_MODES, _MODE_PALETTE, strict=Fals
 STOP_EVENT_NAMES: frozenset[str] = frozenset(EVENT_NAMES[code] for code in STOP_EVENTS)
 #: Names of the CC-CV events the dashboard marks: the switch to CV, the cutoff, the duration cap.
 CCCV_EVENT_NAMES: frozenset[str] = frozenset((EVENT_NAMES[EV_CV_SWITCH], EVENT_NAMES[EV_CV_CUTOFF], CCCV_CAP_EVENT))
+#: A limit further than this share of the data's span beyond it is marked at the axis edge, not drawn [-].
+LIMIT_REACH = 0.5
+#: The least span of a temperature axis [K] and of a voltage axis [V]: a flat series is not magnified into noise.
+MIN_TEMPERATURE_SPAN, MIN_VOLTAGE_SPAN = 2.0, 0.2
+#: Segment names are written on the dashboard for runs at least this share of the mission long, at most this many.
+NAME_MIN_SHARE, NAME_MAX_LABELS = 0.04, 24
+
+
+def title_of(result: SimulationResult) -> str:
+    """The name of a result for titles: the scenario, the case, and any overrides beyond the case's."""
+    name = str(result.summary.get("scenario", "") or "thermoelec run")
+    case = result.metadata.get("case")
+    overrides = [str(o).replace("=", " = ", 1) for o in result.metadata.get("overrides", [])]
+    if case:
+        return f"{name} - case {case}"
+    if overrides:
+        shown = "; ".join(overrides[:3]) + ("; ..." if len(overrides) > 3 else "")
+        return f"{name} (with {shown})"
+    return name
+
 
 def _time_axis(times: np.ndarray) -> tuple[np.ndarray, str]:
     """Time in a readable unit for the axis."""
@@ -94,7 +120,8 @@ def dashboard(result: SimulationResult) -> Figure:
     Returns
     -------
     Figure
-        Six panels sharing the time axis (s, min or h by the mission's length).
+        Six panels sharing the time axis (s, min or h by the mission's length); the title names the
+        scenario and the case, and a stop is explained in words under it.
     """
     s = result.series
     t, t_label = _time_axis(s["time_s"])
@@ -102,16 +129,65 @@ def dashboard(result: SimulationResult) -> Figure:
     axes = fig.subplots(6, 1, sharex=True)
     ax_power, ax_current, ax_voltage, ax_soc, ax_temp, ax_heat = axes
     modes = result.demand_mode if result.demand_mode is not None else np.array(["current"] * len(t), dtype=object)
+    marker = "o" if len(t) < 3 else None  # a mission stopped at once has one row: show it as a point
     _shade_modes(axes, t, modes)
-    _draw_power(fig, ax_power, t, s, modes, result.demand_value)
-    _draw_electrical(ax_current, ax_voltage, ax_soc, t, s, result.limits)
-    _draw_thermal(ax_temp, ax_heat, t, s, result.limits)
+    _draw_power(fig, ax_power, t, s, modes, result.demand_value, marker)
+    _draw_electrical(ax_current, ax_voltage, ax_soc, t, s, result.limits, marker)
+    _draw_thermal(ax_temp, ax_heat, t, s, result.limits, marker)
+    _name_segments(ax_power, t, result.segment_name)
     ax_heat.set_xlabel(t_label)
+    if t[-1] <= t[0]:  # nothing ran: a unit span from the start, not one centred on it
+        ax_heat.set_xlim(t[0], t[0] + 1.0)
     _mark_events(axes, result.events, s["time_s"])
     summary = result.summary
-    verdict = "completed" if summary["completed"] else f"stopped: {summary['stop_reason']}"
-    fig.suptitle(f"{summary.get('scenario', '')} - {verdict} at {summary['duration_s']:.0f} s", fontsize=11)
+    state = "completed" if summary["completed"] else f"stopped: {summary['stop_reason']}"
+    title = f"{title_of(result)}\n{state} at {summary['duration_s']:.0f} s, verdict {summary.get('verdict', '?')}"
+    explanation = summary.get("stop_explanation")
+    if explanation:
+        title += "\n" + "\n".join(_wrap(explanation, 120))
+    fig.suptitle(title, fontsize=10)
     return fig
+
+
+def _wrap(text: str, width: int) -> list[str]:
+    """Words of ``text`` in lines of at most ``width`` characters."""
+    lines, line = [], ""
+    for word in text.split():
+        if line and len(line) + 1 + len(word) > width:
+            lines.append(line)
+            line = word
+        else:
+            line = f"{line} {word}".strip()
+    return [*lines, line] if line else lines
+
+
+def segment_labels(times: np.ndarray, names: np.ndarray | None) -> list[tuple[float, float, str]]:
+    """The named runs of segments to write on the dashboard: ``(start, end, name)`` [the times' unit].
+
+    Consecutive rows of one name make a run; runs shorter than :data:`NAME_MIN_SHARE` of the
+    mission are left unlabelled, and at most :data:`NAME_MAX_LABELS` (the longest) are kept, in
+    time order.
+
+    Parameters
+    ----------
+    times : array
+        Row times (any unit).
+    names : object array or None
+        Each row's segment name, empty where it has none.
+    """
+    if names is None or len(times) < 2 or not any(names):
+        return []
+    span = float(times[-1] - times[0]) or 1.0
+    runs = [(float(times[a]), float(times[b]), name) for a, b, name in _mode_runs(np.asarray(names, dtype=object))
+            if name and (times[b] - times[a]) >= NAME_MIN_SHARE * span]
+    kept = sorted(runs, key=lambda run: run[1] - run[0], reverse=True)[:NAME_MAX_LABELS]
+    return sorted(kept)
+
+
+def _name_segments(ax: Any, t: np.ndarray, names: np.ndarray | None) -> None:
+    for start, end, name in segment_labels(t, names):
+        ax.annotate(name, (0.5 * (start + end), 0.97), xycoords=("data", "axes fraction"), ha="center", va="top",
+                    fontsize=6, color="0.25", annotation_clip=True)
 
 
 def _shade_modes(axes: Sequence[Any], t: np.ndarray, modes: np.ndarray) -> None:
@@ -128,64 +204,138 @@ def _shade_modes(axes: Sequence[Any], t: np.ndarray, modes: np.ndarray) -> None:
 
 
 def _draw_power(fig: Figure, ax: Any, t: np.ndarray, s: Mapping[str, np.ndarray], modes: np.ndarray,
-                demand_value: np.ndarray | None) -> None:
+                demand_value: np.ndarray | None, marker: str | None = None) -> None:
     """Power to the load [W] and the demanded power; the figure's legend (modes and power lines)."""
-    ax.plot(t, s["power_W"], color="C1", lw=1.0, label="power to load")
+    ax.plot(t, s["power_W"], color="C1", lw=1.0, marker=marker, label="power to load")
     if demand_value is not None:
         demanded = np.where(modes == "power", demand_value, np.nan)
         if np.isfinite(demanded).any():
-            ax.plot(t, demanded, color="k", lw=0.8, ls="--", label="demanded power")
+            ax.plot(t, demanded, color="k", lw=0.8, ls="--", marker=marker, mfc="none", label="demanded power")
     ax.set_ylabel("power [W]")
     fig.legend(*ax.get_legend_handles_labels(), loc="outside lower center", fontsize=8, ncol=7)
 
 
+@dataclass(frozen=True)
+class AxisRange:
+    """A value axis set by the data: its limits, and the limit lines on it or off it.
+
+    Attributes
+    ----------
+    low, high : float
+        The axis range (data padded, on-scale limits included).
+    shown : tuple of float
+        Limits inside the range: drawn as lines.
+    off_scale : tuple of float
+        Limits beyond it: marked at the edge with their value.
+    """
+
+    low: float
+    high: float
+    shown: tuple[float, ...]
+    off_scale: tuple[float, ...]
+
+
+def axis_range(data: Sequence[np.ndarray], limits: Sequence[float], min_span: float) -> AxisRange:
+    """The range of a value axis from its data; a limit joins it only when near the data.
+
+    A limit within :data:`LIMIT_REACH` of the data's span (or of ``min_span``) of the data is
+    drawn and taken into the range; one further away would squash the data flat (a 4 K rise on a
+    15-62 degC axis), so it stays off the axis and is marked at the edge.
+
+    Parameters
+    ----------
+    data : sequence of arrays
+        The series drawn on the axis (NaN ignored).
+    limits : sequence of float
+        Limit values in the data's unit.
+    min_span : float
+        The least span of the axis, in the data's unit.
+    """
+    values = np.concatenate([np.asarray(d, dtype=float).ravel() for d in data]) if data else np.zeros(1)
+    values = values[np.isfinite(values)]
+    low, high = (float(values.min()), float(values.max())) if values.size else (0.0, 1.0)
+    reach = LIMIT_REACH * max(high - low, min_span)
+    shown = tuple(v for v in limits if low - reach <= v <= high + reach)
+    off = tuple(v for v in limits if v not in shown)
+    low, high = min([low, *shown]), max([high, *shown])
+    pad = 0.5 * max(min_span - (high - low), 0.0) + 0.06 * max(high - low, min_span)
+    return AxisRange(low - pad, high + pad, shown, off)
+
+
+def _limit_lines(ax: Any, scale: AxisRange, colour: str, label: str, unit: str) -> None:
+    """The limits of an axis: lines where on scale, an arrow and the value at the edge where not."""
+    for k, value in enumerate(scale.shown):
+        ax.axhline(value, color=colour, ls="--", lw=0.9, label=label if k == 0 else None)
+    for value in scale.off_scale:
+        above = value > scale.high
+        ax.annotate(f"{label} {value:.4g} {unit} (off scale)", (0.995, 0.97 if above else 0.03),
+                    xycoords="axes fraction", ha="right", va="top" if above else "bottom", fontsize=7,
+                    color=colour)
+        ax.annotate("", (0.999, 1.0 if above else 0.0), (0.999, 0.88 if above else 0.12), xycoords="axes fraction",
+                    arrowprops={"arrowstyle": "->", "color": colour, "lw": 0.9})
+    ax.set_ylim(scale.low, scale.high)
+
+
 def _draw_electrical(ax_current: Any, ax_voltage: Any, ax_soc: Any, t: np.ndarray, s: Mapping[str, np.ndarray],
-                     lim: Mapping[str, float]) -> None:
+                     lim: Mapping[str, float], marker: str | None = None) -> None:
     """Pack current [A], pack voltage [V] with the open-circuit voltage and the limits, SoC [-] (a resolved
     pack's as the band of its cells around the pack's)."""
-    ax_current.plot(t, s["current_A"], color="C0", lw=1.0)
+    ax_current.plot(t, s["current_A"], color="C0", lw=1.0, marker=marker)
     ax_current.axhline(0.0, color="0.3", lw=0.5)
     ax_current.set_ylabel("pack current [A]\n(+ discharge)")
 
-    ax_voltage.plot(t, s["voltage_V"], color="C2", lw=1.0, label="terminal")
-    ax_voltage.plot(t, s["ocv_V"], color="C2", lw=0.8, ls=":", label="open circuit")
+    ax_voltage.plot(t, s["voltage_V"], color="C2", lw=1.0, marker=marker, label="terminal")
+    ax_voltage.plot(t, s["ocv_V"], color="C2", lw=0.8, ls=":", marker=marker, label="open circuit")
     if lim:
-        ax_voltage.axhline(lim["voltage_min_V"], color="C3", ls="--", lw=0.9, label="limits (Ns x cell)")
-        ax_voltage.axhline(lim["voltage_max_V"], color="C3", ls="--", lw=0.9)
+        scale = axis_range([s["voltage_V"], s["ocv_V"]], [lim["voltage_min_V"], lim["voltage_max_V"]],
+                           MIN_VOLTAGE_SPAN)
+        _limit_lines(ax_voltage, scale, "C3", "limit (Ns x cell)", "V")
     ax_voltage.set_ylabel("pack voltage [V]")
     ax_voltage.legend(loc="lower left", fontsize=7, ncol=3)
 
     if "soc_min" in s:  # a resolved pack: its cells from the emptiest to the fullest, around the pack's SoC
         ax_soc.fill_between(t, s["soc_min"], s["soc_max"], color="C4", alpha=0.25, lw=0, label="cells: min..max")
-    ax_soc.plot(t, s["soc"], color="C4", lw=1.0, label="pack" if "soc_min" in s else None)
+    ax_soc.plot(t, s["soc"], color="C4", lw=1.0, marker=marker, label="pack" if "soc_min" in s else None)
     if "soc_min" in s:
         ax_soc.legend(loc="lower left", fontsize=7, ncol=2)
     ax_soc.set_ylabel("SoC [-]")
     ax_soc.set_ylim(-0.02, 1.02)
 
 
+def temperature_series(s: Mapping[str, np.ndarray]) -> list[np.ndarray]:
+    """The temperatures the dashboard draws [degC]: cell, sink, ambient, and the coolant where there is one
+    (a resolved pack's coldest cell too, the bottom of its band)."""
+    keys = ("cell_temperature_degC", "sink_temperature_degC", "ambient_temperature_degC", "coolant_temperature_degC",
+            "cell_temperature_min_degC")
+    return [s[key] for key in keys if key in s]
+
+
 def _draw_thermal(ax_temp: Any, ax_heat: Any, t: np.ndarray, s: Mapping[str, np.ndarray],
-                  lim: Mapping[str, float]) -> None:
+                  lim: Mapping[str, float], marker: str | None = None) -> None:
     """Cell, sink and ambient temperatures [degC] with the cell limit; heat flows [W].
 
     A resolved pack's cells are drawn as a band from the coldest to the hottest cell
-    with their mean; the line marked "cell" is then the hottest cell.
+    with their mean; the line of the cell temperature is then the hottest cell's.
     """
-    if "cell_temperature_min_degC" in s:
+    resolved = "cell_temperature_min_degC" in s
+    if resolved:
         ax_temp.fill_between(t, s["cell_temperature_min_degC"], s["cell_temperature_degC"], color="C3", alpha=0.2,
                              lw=0, label="cells: min..max")
         ax_temp.plot(t, s["cell_temperature_mean_degC"], color="C3", lw=0.8, ls=":", label="cells: mean")
-    ax_temp.plot(t, s["cell_temperature_degC"], color="C3", lw=1.2,
-                 label="hottest cell" if "cell_temperature_min_degC" in s else "cell")
-    ax_temp.plot(t, s["sink_temperature_degC"], color="C5", lw=1.0, label="sink")
-    ax_temp.plot(t, s["ambient_temperature_degC"], color="0.4", lw=0.9, ls="-.", label="ambient")
+    ax_temp.plot(t, s["cell_temperature_degC"], color="C3", lw=1.2, marker=marker,
+                 label="hottest cell" if resolved else "cell")
+    ax_temp.plot(t, s["sink_temperature_degC"], color="C5", lw=1.0, marker=marker, label="sink")
+    ax_temp.plot(t, s["ambient_temperature_degC"], color="0.4", lw=0.9, ls="-.", marker=marker, label="ambient")
+    if "coolant_temperature_degC" in s:
+        ax_temp.plot(t, s["coolant_temperature_degC"], color="C0", lw=0.8, ls=":", label="coolant out")
     if lim:
-        ax_temp.axhline(lim["cell_temperature_max_degC"], color="C3", ls="--", lw=0.9, label="cell limit")
+        scale = axis_range(temperature_series(s), [lim["cell_temperature_max_degC"]], MIN_TEMPERATURE_SPAN)
+        _limit_lines(ax_temp, scale, "C3", "cell limit", "degC")
     ax_temp.set_ylabel("temperature [degC]")
-    ax_temp.legend(loc="upper left", fontsize=7, ncol=4)
+    ax_temp.legend(loc="upper left", fontsize=7, ncol=5)
 
-    ax_heat.plot(t, s["heat_W"], color="C1", lw=1.0, label="generated")
-    ax_heat.plot(t, s["heat_to_ambient_W"], color="C9", lw=0.9, label="to ambient")
+    ax_heat.plot(t, s["heat_W"], color="C1", lw=1.0, marker=marker, label="generated")
+    ax_heat.plot(t, s["heat_to_ambient_W"], color="C9", lw=0.9, marker=marker, label="to ambient")
     for key, colour, label in (("heater_power_W", "C3", "heater"), ("heat_to_coolant_W", "C0", "to coolant")):
         if key in s and np.any(s[key] != 0.0):
             ax_heat.plot(t, s[key], color=colour, lw=0.9, ls="--", label=label)
@@ -211,8 +361,11 @@ def _mark_events(axes: Sequence[Any], events: Sequence[Mapping[str, Any]], times
             stop = name in STOP_EVENT_NAMES
             for ax in axes:
                 ax.axvline(te, color="C3" if stop else "C0", lw=1.2 if stop else 0.8, ls="-" if stop else "--")
-            ax_power.annotate(name.replace("_", " "), (te, 1.0), xycoords=("data", "axes fraction"),
-                              rotation=90, va="top", ha="right", fontsize=7, color="C3" if stop else "C0")
+            left, right = ax_power.get_xlim()
+            near_start = te - left < 0.03 * (right - left)  # a label left of a line at the axis start is clipped
+            ax_power.annotate(name.replace("_", " "), (te, 0.98), xycoords=("data", "axes fraction"),
+                              rotation=90, va="top", ha="left" if near_start else "right", fontsize=7,
+                              color="C3" if stop else "C0")
 
 
 # ---------------------------------------------------------------------------
@@ -220,17 +373,24 @@ def _mark_events(axes: Sequence[Any], events: Sequence[Mapping[str, Any]], times
 # ---------------------------------------------------------------------------
 
 
+#: The parts of a mission on the voltage-charge plane: a discharge, a charge from the load
+#: (regeneration) and a charge from a charger (CC-CV, a held voltage).
+ENERGY_DIRECTIONS = ("discharge", "regeneration", "charge")
+#: What each part's terminal curve delivers or takes in: its area's label.
+_TERMINAL_SIDE = {"discharge": "to the load", "regeneration": "fed in by the load", "charge": "from the charger"}
+
+
 @dataclass(frozen=True)
 class EnergyPart:
-    """The discharge or the charge part of a mission on the voltage-charge plane.
+    """A discharge, a regeneration or a charge part of a mission on the voltage-charge plane.
 
-    ``charge_Ah`` counts the charge moved in that direction only (rests and the
-    other direction add nothing), so the areas under the curves are energies:
-    under ``ocv_V`` the battery's (chemical) energy, under ``voltage_V`` the
-    load's (or the charger's), between them the energy dissipated.
+    ``charge_Ah`` counts the charge moved in that part only (rests and the other
+    parts add nothing), so the areas under the curves are energies: under
+    ``ocv_V`` the cells' (chemical) energy, under ``voltage_V`` the load's (or the
+    charger's), between them the energy dissipated.
     """
 
-    direction: str  # "discharge" | "charge"
+    direction: str  # one of ENERGY_DIRECTIONS
     charge_Ah: np.ndarray
     ocv_V: np.ndarray
     voltage_V: np.ndarray
@@ -244,17 +404,41 @@ class EnergyPart:
 
     @property
     def efficiency(self) -> float | None:
-        """Out over in: load over battery in discharge, battery over charger in charge."""
+        """Out over in: load over cells in discharge, cells over terminals in a charge."""
         num, den = (self.load_Wh, self.battery_Wh) if self.direction == "discharge" else \
             (self.battery_Wh, self.load_Wh)
         return num / den if den > 0 else None
 
+    @property
+    def terminal_label(self) -> str:
+        """What the terminal curve's area is: to the load, fed in by the load, from the charger."""
+        return _TERMINAL_SIDE[self.direction]
+
+    @property
+    def axis_range(self) -> tuple[float, float]:
+        """The voltage axis of the part [V]: from zero, so areas read as energies, to above its curves."""
+        return 0.0, 1.04 * float(max(np.max(self.ocv_V), np.max(self.voltage_V)))
+
+
+def _interval_parts(result: SimulationResult) -> dict[str, np.ndarray]:
+    """Which output intervals belong to each part (by the sign of the mean current and the segment's source)."""
+    s = result.series
+    times, current = s["time_s"], s["current_A"]
+    dt = np.diff(times)
+    mean_current = 0.5 * (current[:-1] + current[1:])
+    charging = (mean_current < 0) & (dt > 0)
+    charger = result.charger[1:] if result.charger is not None else np.ones(len(dt), dtype=bool)
+    return {"discharge": (mean_current > 0) & (dt > 0), "regeneration": charging & ~charger,
+            "charge": charging & charger}
+
 
 def energy_parts(result: SimulationResult) -> list[EnergyPart]:
-    """Discharge and charge parts of the mission (those that move charge), with their areas.
+    """Discharge, regeneration and charge parts of the mission (those that move charge), with their areas.
 
     The areas use the trapezoidal rule over the output rows on the charge axis,
-    so they are exactly the areas drawn by :func:`energy_chart`.
+    so they are exactly the areas drawn by :func:`energy_chart`; the regeneration and
+    charge parts add up to the summary's charge (``energy_charged_Wh``, split into
+    ``energy_regenerated_Wh`` and ``energy_from_charger_Wh``).
     """
     s = result.series
     times, current = s["time_s"], s["current_A"]
@@ -264,11 +448,10 @@ def energy_parts(result: SimulationResult) -> list[EnergyPart]:
     dt = np.diff(times)
     mean_current = 0.5 * (current[:-1] + current[1:])
     parts = []
-    for direction, sign in (("discharge", 1.0), ("charge", -1.0)):
-        moving = (sign * mean_current > 0) & (dt > 0)
+    for direction, moving in _interval_parts(result).items():
         if not moving.any():
             continue
-        dq = np.where(moving, sign * mean_current * dt / COULOMBS_PER_AH, 0.0)
+        dq = np.where(moving, np.abs(mean_current) * dt / COULOMBS_PER_AH, 0.0)
         x = np.concatenate([[0.0], np.cumsum(dq)])
         rows = np.zeros(len(times), dtype=bool)
         rows[:-1] |= moving
@@ -279,37 +462,47 @@ def energy_parts(result: SimulationResult) -> list[EnergyPart]:
     return parts
 
 
+def _energy_panel(ax: Any, loss_ax: Any, part: EnergyPart) -> None:
+    """One part: the areas from zero volts (each labelled once), and the voltage gap below, whose area is the loss."""
+    x = part.charge_Ah
+    lower = np.minimum(part.ocv_V, part.voltage_V)
+    upper = np.maximum(part.ocv_V, part.voltage_V)
+    inner = part.load_Wh if part.direction == "discharge" else part.battery_Wh
+    inner_label = (f"to the load {inner:.4g} Wh" if part.direction == "discharge"
+                   else f"stored in the cells {inner:.4g} Wh")
+    ax.fill_between(x, 0.0, lower, color="C0", alpha=0.25, lw=0, label=inner_label)
+    ax.fill_between(x, lower, upper, color="C3", alpha=0.6, lw=0, label=f"dissipated {part.dissipated_Wh:.4g} Wh")
+    ax.plot(x, part.ocv_V, color="k", lw=1.0, label=f"open circuit: from the cells {part.battery_Wh:.4g} Wh"
+            if part.direction == "discharge" else "open circuit")
+    terminal = "terminal" if part.direction == "discharge" else f"terminal: {part.terminal_label} {part.load_Wh:.4g} Wh"
+    ax.plot(x, part.voltage_V, color="C0", lw=1.0, label=terminal)
+    ax.set_ylim(*part.axis_range)
+    ax.set_ylabel("pack voltage [V]")
+    eff = part.efficiency
+    ax.set_title(f"{part.direction}: efficiency {eff:.2%}" if eff is not None else part.direction, fontsize=10)
+    ax.legend(loc="lower left", fontsize=7)
+    loss_ax.fill_between(x, 0.0, upper - lower, color="C3", alpha=0.6, lw=0)
+    loss_ax.set_ylim(0.0, 1.1 * float(max(np.max(upper - lower), 1e-9)))
+    loss_ax.set_ylabel("|U - V| [V]\n(area: loss)", fontsize=8)
+    loss_ax.set_xlabel(f"charge moved, {part.direction} [Ah]")
+
+
 def energy_chart(result: SimulationResult) -> Figure:
-    """Voltage against charge moved, with OCV and terminal curves and the energies shaded and labelled."""
+    """Voltage against charge moved from zero volts, a panel per part (discharge, regeneration, charge),
+    with the open-circuit and terminal curves, the energies shaded and labelled, and the voltage gap below."""
     parts = energy_parts(result)
-    fig = Figure(figsize=(6.5 * max(len(parts), 1), 5), layout="constrained")
-    axes = fig.subplots(1, max(len(parts), 1), squeeze=False)[0]
+    fig = Figure(figsize=(5.6 * max(len(parts), 1), 6), layout="constrained")
+    axes = fig.subplots(2, max(len(parts), 1), squeeze=False, height_ratios=(3, 1), sharex="col")
+    fig.suptitle(title_of(result), fontsize=10)
     if not parts:
-        axes[0].text(0.5, 0.5, "no charge moved", ha="center", va="center", transform=axes[0].transAxes)
+        text = "no charge moved"
+        if result.summary.get("stop_explanation"):
+            text += ":\n" + "\n".join(_wrap(result.summary["stop_explanation"], 70))
+        axes[0, 0].text(0.5, 0.5, text, ha="center", va="center", transform=axes[0, 0].transAxes, fontsize=8)
+        axes[1, 0].set_axis_off()
         return fig
-    for ax, part in zip(axes, parts, strict=True):
-        x = part.charge_Ah
-        lower = np.minimum(part.ocv_V, part.voltage_V)
-        upper = np.maximum(part.ocv_V, part.voltage_V)
-        ax.fill_between(x, 0.0, lower, color="C0", alpha=0.25, lw=0,
-                        label=(f"load energy {part.load_Wh:.4g} Wh" if part.direction == "discharge"
-                               else f"stored in the cells {part.battery_Wh:.4g} Wh"))
-        ax.fill_between(x, lower, upper, color="C3", alpha=0.45, lw=0,
-                        label=f"dissipated {part.dissipated_Wh:.4g} Wh")
-        ax.plot(x, part.ocv_V, color="k", lw=1.0,
-                label=f"open circuit (area: battery {part.battery_Wh:.4g} Wh)")
-        ax.plot(x, part.voltage_V, color="C0", lw=1.0,
-                label=(f"terminal (area: load {part.load_Wh:.4g} Wh)" if part.direction == "discharge"
-                       else f"terminal (area: from charger {part.load_Wh:.4g} Wh)"))
-        low = float(np.min(lower))
-        ax.set_ylim(low * 0.97, float(np.max(upper)) * 1.01)
-        ax.set_xlabel("charge discharged [Ah]" if part.direction == "discharge" else "charge charged [Ah]")
-        ax.set_ylabel("pack voltage [V]")
-        eff = part.efficiency
-        ax.set_title(f"{part.direction}: efficiency {eff:.2%}" if eff is not None else part.direction)
-        ax.legend(loc="lower left" if part.direction == "discharge" else "upper left", fontsize=8)
-        ax.text(0.99, 0.01, "shading starts at 0 V; axis cut", transform=ax.transAxes, ha="right", va="bottom",
-                fontsize=7, color="0.4")
+    for k, part in enumerate(parts):
+        _energy_panel(axes[0, k], axes[1, k], part)
     return fig
 
 
@@ -362,10 +555,17 @@ class OperatingState:
 
 
 def operating_states(result: SimulationResult) -> list[OperatingState]:
-    """The pack at the start, at its coldest and at the end of the mission."""
+    """The pack at the start, at its coldest, at its worst (lowest cell voltage while discharging) and at the end.
+
+    The worst state matters after a recharge: the end then shows a full, warm pack and hides it.
+    Instants that fall on one row are drawn once, their labels joined.
+    """
     s = result.series
     v_min = result.limits.get("voltage_min_V", 0.0)
-    chosen = {"start": 0, "coldest": int(np.argmin(s["cell_temperature_degC"])), "end": len(s["time_s"]) - 1}
+    discharging = np.flatnonzero(s["current_A"] > 0)
+    worst = int(discharging[np.argmin(s["cell_voltage_V"][discharging])]) if discharging.size else 0
+    chosen = {"start": 0, "coldest": int(np.argmin(s["cell_temperature_degC"])), "lowest voltage": worst,
+              "end": len(s["time_s"]) - 1}
     rows: dict[int, list[str]] = {}
     for label, row in chosen.items():
         rows.setdefault(row, []).append(label)
@@ -378,34 +578,97 @@ def operating_states(result: SimulationResult) -> list[OperatingState]:
     return states
 
 
-def operating_region(result: SimulationResult) -> Figure:
-    """Load power and dissipation against current at chosen instants, with the mission's operating points."""
+@dataclass(frozen=True)
+class OperatingView:
+    """What the operating-region chart shows: its states and axes, scaled to the mission.
+
+    Attributes
+    ----------
+    states : list of OperatingState
+        The instants drawn (:func:`operating_states`).
+    current_max : float
+        The current axis' end [A]: past the mission's currents and the minimum-voltage
+        boundaries, not out to the short circuit.
+    power_max : float
+        The power axis' end [W].
+    off_scale : list of str
+        What lies past the current axis (the maximum-power points and short circuits), to annotate at its edge.
+    """
+
+    states: list[OperatingState]
+    current_max: float
+    power_max: float
+    off_scale: list[str]
+
+
+#: The current axis of the operating region runs to this many times the mission's largest discharge current [-].
+CURRENT_AXIS_FACTOR = 2.5
+
+
+def operating_view(result: SimulationResult) -> OperatingView:
+    """The operating region scaled to the mission: :data:`CURRENT_AXIS_FACTOR` times its largest discharge
+    current (the nearest minimum-voltage boundary without a discharge), never past the short circuit; the power
+    axis to what the curves and the mission's points reach there. What lies beyond is listed in ``off_scale``."""
     s = result.series
+    states = operating_states(result)
+    discharging = s["current_A"] > 0
+    peak = float(np.max(s["current_A"][discharging])) if discharging.any() else 0.0
+    boundaries = [st.voltage_limit_current_A for st in states
+                  if 0 < st.voltage_limit_current_A < st.max_power_current_A]
+    wanted = CURRENT_AXIS_FACTOR * peak if peak > 0 else 1.2 * min(boundaries or
+                                                                    [st.max_power_current_A for st in states])
+    current_max = min(wanted, max(st.short_circuit_A for st in states))
+    power = []
+    for st in states:
+        current, load, _ = st.curves()
+        power.append(float(np.max(load[current <= current_max])))
+    if discharging.any():
+        power.append(float(np.max(s["power_W"][discharging])))
+    off = []
+    for st in states:
+        beyond = []
+        if st.voltage_limit_current_A > current_max and st.voltage_limit_current_A < st.max_power_current_A:
+            beyond.append(f"minimum voltage at {st.voltage_limit_current_A:.4g} A ({st.voltage_limit_power_W:.4g} W)")
+        if st.max_power_current_A > current_max:
+            beyond.append(f"maximum power {st.max_power_W:.4g} W at {st.max_power_current_A:.4g} A")
+        beyond.append(f"short circuit {st.short_circuit_A:.4g} A")
+        off.append(f"{st.label.split(' (')[0]}: " + ", ".join(beyond))
+    return OperatingView(states, current_max, 1.15 * max(power), off)
+
+
+def operating_region(result: SimulationResult) -> Figure:
+    """Load power and dissipation against current at chosen instants, with the mission's operating points,
+    scaled to the mission (:func:`operating_view`); what lies past the current axis is written at its edge."""
+    s = result.series
+    view = operating_view(result)
     fig = Figure(figsize=(9, 6), layout="constrained")
     ax = fig.subplots()
-    peak = 0.0
-    for k, state in enumerate(operating_states(result)):
+    for k, state in enumerate(view.states):
         colour = f"C{k}"
-        current, load, loss = state.curves()
+        current, load, loss = state.curves(400)
         ax.plot(current, load, color=colour, lw=1.3, label=f"load power, {state.label}")
-        ax.plot(current, loss, color=colour, lw=0.9, ls="--", label="internal dissipation" if k == 0 else None)
-        ax.plot(state.max_power_current_A, state.max_power_W, "o", color=colour, mfc="white", ms=7,
-                label="maximum power E²/4R at I_sc/2" if k == 0 else None)
-        peak = max(peak, state.max_power_W)
+        ax.plot(current, loss, color=colour, lw=0.9, ls="--",
+                label="internal dissipation R I² (dashed)" if k == 0 else None)
+        if state.max_power_current_A <= view.current_max:
+            ax.plot(state.max_power_current_A, state.max_power_W, "o", color=colour, mfc="white", ms=7,
+                    label="maximum power E²/4R at I_sc/2" if k == 0 else None)
         if 0 < state.voltage_limit_current_A < state.max_power_current_A:
             ax.plot(state.voltage_limit_current_A, state.voltage_limit_power_W, "s", color=colour, ms=6,
                     label="minimum-voltage boundary" if k == 0 else None)
             ax.axvline(state.voltage_limit_current_A, color=colour, lw=0.7, ls=":")
     discharging = s["current_A"] > 0
-    ax.scatter(s["current_A"][discharging], s["power_W"][discharging], s=4, color="k", alpha=0.4,
+    ax.scatter(s["current_A"][discharging], s["power_W"][discharging], s=5, color="0.45",
                label="mission operating points", zorder=3)
-    ax.set_xlim(left=0)
-    ax.set_ylim(0, 1.15 * peak)
+    if view.off_scale:
+        ax.text(0.99, 0.02, "beyond the axis (->):\n" + "\n".join(view.off_scale), transform=ax.transAxes,
+                ha="right", va="bottom", fontsize=7, color="0.3")
+    ax.set_xlim(0, view.current_max)
+    ax.set_ylim(0, view.power_max)
     ax.set_xlabel("pack current [A]")
     ax.set_ylabel("power [W]")
-    ax.set_title("operating region - right of a square the cells are below their minimum voltage;\n"
-                 "right of a circle (maximum power) lies the abuse side", fontsize=9)
-    ax.legend(fontsize=7, loc="upper right")
+    ax.set_title(f"{title_of(result)}\noperating region: right of a square the cells are below their minimum "
+                 "voltage,\nright of a circle (maximum power) lies the abuse side", fontsize=9)
+    ax.legend(fontsize=7, loc="upper left")
     return fig
 
 
@@ -429,7 +692,8 @@ def comparison_overlay(results: Mapping[str, SimulationResult]) -> Figure:
         ax_t.plot(t, s["ambient_temperature_degC"], color=colour, lw=0.7, ls=":")
         ax_z.plot(t, s["soc"], color=colour, lw=1.0, label=name)
         if not result.completed:
-            ax_v.plot(t[-1], s["voltage_V"][-1], "x", color=colour, ms=8)
+            ax_v.plot(t[-1], s["voltage_V"][-1], "x", color=colour, ms=8,
+                      label="stopped early" if not any(not r.completed for r in list(results.values())[:k]) else None)
     lim = longest.limits
     if lim:
         ax_v.axhline(lim["voltage_min_V"], color="C3", ls="--", lw=0.8)
@@ -441,7 +705,8 @@ def comparison_overlay(results: Mapping[str, SimulationResult]) -> Figure:
     ax_z.set_xlabel(t_label)
     ax_v.legend(fontsize=8)
     ax_t.legend(fontsize=7, ncol=2)
-    fig.suptitle("case comparison (x: stopped early)", fontsize=11)
+    stopped = [name for name, result in results.items() if not result.completed]
+    fig.suptitle("case comparison" + (f" (x: stopped early - {', '.join(stopped)})" if stopped else ""), fontsize=11)
     return fig
 
 

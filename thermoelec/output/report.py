@@ -15,10 +15,11 @@ from collections.abc import Iterable, Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
-from thermoelec.analysis.results import SimulationResult
-from thermoelec.output.tables import PACK_ROWS, SUMMARY_ROWS, format_value
+from thermoelec.analysis import verdict as _verdict
+from thermoelec.analysis.results import ENERGY_ROWS, NET_ENERGY_ROWS, SimulationResult
+from thermoelec.output.tables import PACK_ROWS, SUMMARY_ROWS, check_rows, format_value
 
-__all__ = ["CAUTIONS", "comparison_report", "fit_report", "limit_checks", "run_report", "write_report"]
+__all__ = ["CAUTIONS", "comparison_report", "fit_report", "limit_checks", "run_report", "verdict", "write_report"]
 
 #: The cautions printed in every report (and in the README).
 CAUTIONS = (
@@ -43,6 +44,8 @@ th{background:#f3f3f3;text-align:left} td.num{text-align:right;font-variant-nume
 .verdict.pass{background:#0a6b2d;color:#fff} .verdict.fail{background:#b00020;color:#fff}
 .caution{background:#fff7e0;border-left:4px solid #e0a000;padding:.6em 1em;margin:1em 0}
 .warn{background:#fdecea;border-left:4px solid #b00020;padding:.4em 1em}
+.note{background:#eef4fb;border-left:4px solid #3a6fb0;padding:.4em 1em}
+.stop{background:#fdecea;padding:.5em 1em} .default{color:#777}
 figure{margin:1em 0} figure img{max-width:100%;border:1px solid #ddd} figcaption{color:#555;font-size:.9em}
 code{background:#f3f3f3;padding:0 .2em}
 """
@@ -53,43 +56,20 @@ def _e(value: Any) -> str:
 
 
 # ---------------------------------------------------------------------------
-# Pass/fail against each limit
+# Pass/fail against each limit: rendered from the summary, computed once in analysis/verdict.py
 # ---------------------------------------------------------------------------
 
 
 def limit_checks(summary: Mapping[str, Any], limits: Mapping[str, float]) -> list[dict[str, Any]]:
-    """One row per limit: the limit, the worst value of the mission, the margin, pass or fail.
-
-    A limit that stopped the run fails even at zero margin: the mission did not
-    get through.
-    """
-    stop = summary["stop_reason"]
-    rows = [
-        {"check": "cell voltage >= voltage_min", "limit": limits["cell_voltage_min_V"],
-         "worst": summary["cell_voltage_min_V"], "margin": summary["voltage_margin_min_V"], "unit": "V",
-         "passed": stop != "voltage_min" and summary["voltage_margin_min_V"] >= -1e-9},
-        {"check": "cell voltage <= voltage_max", "limit": limits["cell_voltage_max_V"],
-         "worst": summary["cell_voltage_max_V"], "margin": summary["voltage_margin_max_V"], "unit": "V",
-         "passed": stop != "voltage_max" and summary["voltage_margin_max_V"] >= -1e-9},
-        {"check": "cell temperature <= cell_temperature_max", "limit": limits["cell_temperature_max_degC"],
-         "worst": summary["cell_temperature_max_degC"], "margin": summary["temperature_margin_K"], "unit": "degC",
-         "passed": stop != "temperature_max" and summary["temperature_margin_K"] > 0},
-        {"check": "demanded power deliverable (E^2 >= 4 R P)", "limit": None, "worst": summary["power_max_W"],
-         "margin": None, "unit": "W", "passed": stop != "power_limit"},
-        {"check": "SoC within 0..1", "limit": None, "worst": summary["soc_end"], "margin": None, "unit": "",
-         "passed": stop != "soc_limit"},
-        {"check": "no charging below charge_temperature_min", "limit": limits["charge_temperature_min_degC"],
-         "worst": summary["time_charging_below_limit_s"], "margin": None, "unit": "s below",
-         "passed": summary["time_charging_below_limit_s"] == 0},
-        {"check": "whole profile completed", "limit": None, "worst": summary["stop_reason"], "margin": None,
-         "unit": "", "passed": bool(summary["completed"])},
-    ]
-    return rows
+    """The checks of a summary (its ``checks``; computed by :func:`thermoelec.analysis.verdict.limit_checks`)."""
+    return list(summary["checks"]) if "checks" in summary else _verdict.limit_checks(summary, limits)
 
 
 def verdict(summary: Mapping[str, Any], limits: Mapping[str, float]) -> bool:
-    """True when every limit check passes."""
-    return all(row["passed"] for row in limit_checks(summary, limits))
+    """True when the summary's verdict is a pass."""
+    if "verdict" in summary:
+        return summary["verdict"] == _verdict.PASS
+    return _verdict.verdict(limit_checks(summary, limits)) == _verdict.PASS
 
 
 # ---------------------------------------------------------------------------
@@ -97,14 +77,16 @@ def verdict(summary: Mapping[str, Any], limits: Mapping[str, float]) -> bool:
 # ---------------------------------------------------------------------------
 
 
-def _table(header: Sequence[str], rows: Iterable[Sequence[str]], numeric_from: int = 1) -> str:
+def _table(header: Sequence[str], rows: Iterable[Sequence[str]], numeric_from: int = 1,
+           table_class: str = "") -> str:
     head = "".join(f"<th>{_e(h)}</th>" for h in header)
     body = []
     for row in rows:
         cells = "".join(f"<td class='num'>{c}</td>" if i >= numeric_from else f"<td>{c}</td>"
                         for i, c in enumerate(row))
         body.append(f"<tr>{cells}</tr>")
-    return f"<table><thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>"
+    cls = f" class='{table_class}'" if table_class else ""
+    return f"<table{cls}><thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>"
 
 
 def _pass_cell(passed: bool) -> str:
@@ -112,19 +94,72 @@ def _pass_cell(passed: bool) -> str:
 
 
 def _checks_table(summary: Mapping[str, Any], limits: Mapping[str, float]) -> str:
-    rows = []
-    for row in limit_checks(summary, limits):
-        unit = row["unit"]
-        rows.append([_e(row["check"]), _e(format_value(row["limit"], unit if unit != "s below" else "degC")),
-                     _e(format_value(row["worst"], unit)), _e(format_value(row["margin"],
-                                                                           "K" if unit == "degC" else unit)),
-                     _pass_cell(row["passed"])])
-    return _table(["limit", "value", "worst in mission", "margin", "result"], rows)
+    rows = [[_e(cell) for cell in row[:4]] + [_pass_cell(row[4] == "pass")]
+            for row in check_rows(limit_checks(summary, limits))]
+    return _table(["limit", "value", "worst in mission", "margin", "result"], rows, table_class="limits")
+
+
+def _rows_table(summary: Mapping[str, Any], rows: Iterable[tuple[str, str, str]], table_class: str = "") -> str:
+    return _table(["metric", "value"], [[_e(label.strip()), _e(format_value(summary.get(key), unit))]
+                                        for label, key, unit in rows], table_class=table_class)
 
 
 def _summary_table(summary: Mapping[str, Any]) -> str:
-    rows = [[_e(label), _e(format_value(summary.get(key), unit))] for label, key, unit in SUMMARY_ROWS]
-    return _table(["metric", "value"], rows)
+    energy = {key for _, key, _ in ENERGY_ROWS}
+    return _rows_table(summary, [row for row in SUMMARY_ROWS if row[1] not in energy] + list(NET_ENERGY_ROWS))
+
+
+def _notes(notes: Sequence[str]) -> str:
+    if not notes:
+        return ""
+    return "<div class='note'><ul>" + "".join(f"<li>{_e(n)}</li>" for n in notes) + "</ul></div>"
+
+
+def _stop(summary: Mapping[str, Any]) -> str:
+    text = summary.get("stop_explanation")
+    return f"<p class='stop'><strong>Why it stopped.</strong> {_e(text)}</p>" if text else ""
+
+
+def _events(events: Sequence[Mapping[str, Any]], empty: str = "No events.") -> str:
+    if not events:
+        return f"<p>{_e(empty)}</p>"
+    rows = [[_e(format_value(float(e["time_s"]), "s")), _e(e["event"]), _e(e.get("origin", "")),
+             _e(e.get("segment_name", "")), _e(e.get("state", ""))] for e in events]
+    return _table(["time", "event", "where", "segment", "state"], rows, numeric_from=9)
+
+
+def _soak(soak: Mapping[str, Any] | None) -> str:
+    if not soak:
+        return "<p>No soak before the mission.</p>"
+    rows = [("duration", "duration_s", "s"), ("stop", "stop_reason", ""),
+            ("cell temperature at its end", "cell_temperature_end_degC", "degC"),
+            ("sink temperature at its end", "sink_temperature_end_degC", "degC"),
+            ("SoC at its start", "soc_start", ""), ("SoC at its end", "soc_end", ""),
+            ("heater energy", "heater_energy_Wh", "Wh")]
+    drop = (soak["soc_start"] - soak["soc_end"]) if "soc_start" in soak else None
+    table = _rows_table({**soak, "soc_drop": drop}, [*rows, ("SoC drop", "soc_drop", "")])
+    return table + "<h3>Events of the soak</h3>" + _events(soak.get("events", []), "No events during the soak.")
+
+
+def overrides_text(overrides: Mapping[str, Any] | Sequence[str]) -> list[str]:
+    """Overrides as ``key = value`` lines, from a mapping or ``key=value`` strings."""
+    if isinstance(overrides, Mapping):
+        return [f"{k} = {_value_text(v)}" for k, v in overrides.items()]
+    return [" = ".join(part.strip() for part in str(item).split("=", 1)) for item in overrides]
+
+
+def _value_text(value: Any) -> str:
+    if isinstance(value, Mapping):
+        return "{" + ", ".join(f"{k} = {_value_text(v)}" for k, v in value.items()) + "}"
+    if isinstance(value, list):
+        return "[" + ", ".join(_value_text(v) for v in value) + "]"
+    return str(value)
+
+
+def _overrides(lines: Sequence[str]) -> str:
+    if not lines:
+        return "<p>No overrides: the scenario file as it is.</p>"
+    return "<ul class='overrides'>" + "".join(f"<li><code>{_e(line)}</code></li>" for line in lines) + "</ul>"
 
 
 def _pack_section(result: SimulationResult, figure: Any) -> str:
@@ -184,16 +219,24 @@ def _flatten(data: Any, prefix: str = "") -> list[tuple[str, Any]]:
     return [(prefix, data)]
 
 
-def _parameters(raw: Mapping[str, Any] | None) -> str:
+def _parameters(raw: Mapping[str, Any] | None, parameters: Sequence[Any] | None = None) -> str:
+    """The parameter table: the resolved parameters (key, value, unit, given / default) where known,
+    else the raw keys as given."""
+    if parameters:
+        rows = [[f"<code>{_e(p.key)}</code>", _e(p.value), _e(p.unit),
+                 f"<span class='default'>{_e(p.source)}</span>" if p.source.startswith("default") else _e(p.source)]
+                for p in parameters]
+        return _table(["key", "value", "unit", "source"], rows, numeric_from=9, table_class="parameters")
     if not raw:
         return "<p>(parameters not available: the run was given an SI problem, not a scenario)</p>"
-    rows = [[f"<code>{_e(k)}</code>", _e(json.dumps(v) if not isinstance(v, str) else v)]
+    rows = [[f"<code>{_e(k)}</code>", _e(_value_text(v))]
             for k, v in _flatten({k: v for k, v in raw.items() if k != "case"})]
     return _table(["key", "value"], rows, numeric_from=9)
 
 
 def _metadata(result: SimulationResult) -> str:
-    rows = [[_e(k), _e(v if isinstance(v, str) else json.dumps(v))] for k, v in result.metadata.items()]
+    rows = [[_e(k), "<br>".join(_e(line) for line in overrides_text(v)) if k == "overrides"
+             else _e(v if isinstance(v, str) else json.dumps(v))] for k, v in result.metadata.items()]
     rows += [[_e(f"solver {k}"), _e(format_value(float(v)))] for k, v in result.statistics.items()]
     rows.append(["report generated", _e(_dt.datetime.now(_dt.UTC).strftime("%Y-%m-%d %H:%M:%S UTC"))])
     return _table(["item", "value"], rows, numeric_from=9)
@@ -213,12 +256,38 @@ def _verdict_badge(passed: bool) -> str:
 # ---------------------------------------------------------------------------
 
 
+#: The stress indicators of the report: label, summary key, unit.
+STRESS_ROWS: tuple[tuple[str, str, str], ...] = (
+    ("time above the hot temperature", "time_above_hot_temperature_s", "s"),
+    ("hot temperature", "hot_temperature_degC", "degC"),
+    ("time above the temperature limit", "time_above_temperature_limit_s", "s"),
+    ("time charging below 0 degC", "time_charging_below_0degC_s", "s"),
+    ("time charging below 10 degC", "time_charging_below_10degC_s", "s"),
+    ("peak C-rate, discharge", "c_rate_discharge_max", ""),
+    ("peak C-rate, charge", "c_rate_charge_max", ""),
+    ("Arrhenius-equivalent time at the reference", "equivalent_time_at_reference_s", "s"),
+    ("reference temperature", "ageing_reference_temperature_degC", "degC"),
+    ("activation energy", "ageing_activation_energy_kJ_per_mol", "kJ/mol"),
+    ("acceleration factor (equivalent time / duration)", "ageing_acceleration_factor", ""),
+    ("Biot number of a cell", "biot_number", ""),
+)
+
+
+def _verdict_paragraph(result: SimulationResult) -> str:
+    summary = result.summary
+    return (f"<p id='verdict'>{_verdict_badge(verdict(summary, result.limits))} &nbsp; stop reason "
+            f"<code>{_e(summary['stop_reason'])}</code> after {summary['duration_s']:.0f} s; status {_e(result.status)}"
+            + (f": {_e(result.message)}" if result.message else "") + "</p>" + _stop(summary))
+
+
 def run_report(result: SimulationResult, raw: Mapping[str, Any] | None = None, description: str = "",
-               pngs: Mapping[str, bytes] | None = None) -> str:
+               pngs: Mapping[str, bytes] | None = None, parameters: Sequence[Any] | None = None) -> str:
     """The report of one run as HTML text.
 
     ``pngs`` maps figure names of :data:`thermoelec.output.figures.FIGURE_NAMES` to PNG
-    files already written, so they are embedded instead of drawn again.
+    files already written, so they are embedded instead of drawn again; ``parameters``
+    are the scenario's resolved parameters (:func:`thermoelec.scenario.parameters.resolved_parameters`),
+    listed with their units and sources (defaults marked), else the raw keys are listed.
     """
     from thermoelec.output import figures
     from thermoelec.output.pack_figures import pack_map
@@ -231,50 +300,54 @@ def run_report(result: SimulationResult, raw: Mapping[str, Any] | None = None, d
         return pngs[name] if name in pngs else drawn[name](result)
 
     summary = result.summary
-    passed = verdict(summary, result.limits)
-    stress = [(label, key, unit) for label, key, unit in (
-        ("time above the hot temperature", "time_above_hot_temperature_s", "s"),
-        ("hot temperature", "hot_temperature_degC", "degC"),
-        ("time above the temperature limit", "time_above_temperature_limit_s", "s"),
-        ("time charging below 0 degC", "time_charging_below_0degC_s", "s"),
-        ("time charging below 10 degC", "time_charging_below_10degC_s", "s"),
-        ("peak C-rate, discharge", "c_rate_discharge_max", ""),
-        ("peak C-rate, charge", "c_rate_charge_max", ""),
-        ("Arrhenius-equivalent time at the reference", "equivalent_time_at_reference_s", "s"),
-        ("reference temperature", "ageing_reference_temperature_degC", "degC"),
-        ("activation energy", "ageing_activation_energy_kJ_per_mol", "kJ/mol"),
-        ("acceleration factor (equivalent time / duration)", "ageing_acceleration_factor", ""),
-        ("Biot number of a cell", "biot_number", ""),
-    )]
     body = [
-        f"<h1>{_e(summary.get('scenario', 'thermoelec run'))}</h1>",
+        f"<h1>{_e(figures.title_of(result))}</h1>",
         f"<p>{_e(description)}</p>" if description else "",
-        f"<p>{_verdict_badge(passed)} &nbsp; stop reason <code>{_e(summary['stop_reason'])}</code> after "
-        f"{summary['duration_s']:.0f} s; status {_e(result.status)}"
-        + (f": {_e(result.message)}" if result.message else "") + "</p>",
+        _verdict_paragraph(result),
         _cautions(),
         "<h2>Limits</h2>", _checks_table(summary, result.limits),
-        "<h2>Warnings</h2>", _warnings(result.warnings),
+        "<h2>Notes and warnings</h2>", _notes(summary.get("notes", [])), _warnings(result.warnings),
+        "<h2>Energy</h2>", _rows_table(summary, ENERGY_ROWS, "energy"),
         "<h2>Summary</h2>", _summary_table(summary),
         _pack_section(result, figure) if result.cells is not None else "",
-        "<h2>Stress indicators</h2>",
-        _table(["indicator", "value"], [[_e(label), _e(format_value(summary.get(key), unit))]
-                                       for label, key, unit in stress]),
+        "<h2>Events</h2>", _events(summary.get("events", [])),
+        "<h2>Soak</h2>", _soak(summary.get("soak")),
+        "<h2>Stress indicators</h2>", _rows_table(summary, STRESS_ROWS),
         "<h2>Figures</h2>",
         _figure(figure("dashboard"), "Mission dashboard: demand, current, voltage with limits, SoC, "
                 "temperatures with the limit, heat; stops and mode switches marked."),
-        _figure(figure("energy"), "Energy chart: voltage against charge moved; the areas are the "
-                "battery, load and dissipated energies."),
+        _figure(figure("energy"), "Energy chart: voltage against charge moved, discharge, regeneration and charge "
+                "apart; the areas are the cells', the load's (or charger's) and the dissipated energies."),
         _figure(figure("operating_region"), "Operating region: load power and dissipation against current "
-                "at the start, the coldest instant and the end, with the mission's operating points."),
-        "<h2>Parameters</h2>", _parameters(raw),
+                "at the start, the coldest instant, the worst state and the end, with the mission's operating points."),
+        "<h2>Overrides</h2>", _overrides(overrides_text(result.metadata.get("overrides", []))),
+        "<h2>Parameters</h2>", _parameters(raw, parameters),
         "<h2>Run</h2>", _metadata(result),
     ]
-    return _document(f"thermoelec: {summary.get('scenario', '')}", "".join(body))
+    return _document(f"thermoelec: {figures.title_of(result)}", "".join(body))
+
+
+def _case_section(outcome: Any) -> list[str]:
+    from thermoelec.output import figures
+    from thermoelec.output.pack_figures import pack_map
+
+    result = outcome.result
+    return [
+        f"<h2>Case: {_e(outcome.name)}</h2>", _verdict_paragraph(result),
+        "<h3>Overrides</h3>", _overrides(overrides_text(outcome.overrides)),
+        "<h3>Limits</h3>", _checks_table(result.summary, result.limits),
+        "<h3>Notes and warnings</h3>", _notes(result.summary.get("notes", [])), _warnings(result.warnings),
+        "<h3>Events</h3>", _events(result.summary.get("events", [])),
+        "<h3>Soak</h3>", _soak(result.summary.get("soak")),
+        _figure(figures.dashboard(result), f"Mission dashboard, {outcome.name}."),
+        _figure(figures.energy_chart(result), f"Energy chart, {outcome.name}."),
+        *([_figure(pack_map(result), f"Pack map, {outcome.name}: the peak temperature of each cell.")]
+          if result.cells is not None else []),
+    ]
 
 
 def comparison_report(outcomes: Sequence[Any], raw: Mapping[str, Any] | None = None, title: str = "",
-                      description: str = "") -> str:
+                      description: str = "", parameters: Sequence[Any] | None = None) -> str:
     """The report of a case comparison as HTML text (``outcomes`` of :func:`thermoelec.analysis.compare.run_cases`)."""
     from thermoelec.analysis.compare import comparison_rows
     from thermoelec.output import figures
@@ -282,28 +355,21 @@ def comparison_report(outcomes: Sequence[Any], raw: Mapping[str, Any] | None = N
     metrics = [o.metrics() for o in outcomes]
     names = [o.name for o in outcomes]
     rows = [[_e(label.strip()), *(_e(format_value(m.get(key), unit)) for m in metrics)]
-            for label, key, unit in comparison_rows(outcomes)]
-    verdicts = [[_e("limits"), *(_verdict_badge(verdict(o.result.summary, o.result.limits)) for o in outcomes)]]
+            for label, key, unit in comparison_rows(outcomes) if key != "verdict"]
+    verdicts = [[_e("verdict"), *(_verdict_badge(verdict(o.result.summary, o.result.limits)) for o in outcomes)]]
     body = [
         f"<h1>{_e(title or 'case comparison')}</h1>",
         f"<p>{_e(description)}</p>" if description else "",
         _cautions(),
-        "<h2>Comparison</h2>", _table(["", *names], verdicts + rows),
+        "<h2>Comparison</h2>", _table(["", *names], verdicts + rows, table_class="comparison"),
         "<p>Energy to voltage cutoff: a discharge from the same start at the mission's mean discharge power "
         "until a limit stops it (the row below says which).</p>",
         _figure(figures.comparison_overlay({o.name: o.result for o in outcomes}),
                 "Voltage, cell temperature and SoC of every case."),
     ]
     for outcome in outcomes:
-        result = outcome.result
-        overrides = ", ".join(f"{k} = {v}" for k, v in outcome.overrides.items()) or "no changes"
-        body += [
-            f"<h2>Case: {_e(outcome.name)}</h2>", f"<p>Overrides: <code>{_e(overrides)}</code></p>",
-            _checks_table(result.summary, result.limits), "<h3>Warnings</h3>", _warnings(result.warnings),
-            _figure(figures.dashboard(result), f"Mission dashboard, {outcome.name}."),
-            _figure(figures.energy_chart(result), f"Energy chart, {outcome.name}."),
-        ]
-    body += ["<h2>Parameters of the base scenario</h2>", _parameters(raw)]
+        body += _case_section(outcome)
+    body += ["<h2>Parameters of the base scenario</h2>", _parameters(raw, parameters)]
     if outcomes:
         body += ["<h2>Run</h2>", _metadata(outcomes[0].result)]
     return _document(f"thermoelec comparison: {title}", "".join(body))

@@ -7,22 +7,24 @@ analysis/ and below only; never from fit/, the API or the command line.
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from typing import Any, TextIO
 
 from thermoelec.analysis.compare import CaseOutcome, comparison_rows
+from thermoelec.analysis.results import ENERGY_ROWS
 
-__all__ = ["PACK_ROWS", "SUMMARY_ROWS", "format_comparison", "format_value", "print_summary"]
+__all__ = ["PACK_ROWS", "SUMMARY_ROWS", "check_rows", "format_comparison", "format_value", "print_summary",
+           "verdict_line"]
 
 
 def format_value(value: Any, unit: str = "", digits: int = 4) -> str:
-    """A value for the terminal: 4 significant digits, units, yes/no, n/a."""
+    """A value for the terminal: 4 significant digits (no ``-0``), units, yes/no, n/a."""
     if value is None:
         return "n/a"
     if isinstance(value, bool):
         return "yes" if value else "no"
     if isinstance(value, float):
-        return f"{value:.{digits}g}{(' ' + unit) if unit else ''}"
+        return f"{value + 0.0:.{digits}g}{(' ' + unit) if unit else ''}"
     return f"{value}{(' ' + unit) if unit else ''}"
 
 
@@ -36,14 +38,11 @@ SUMMARY_ROWS = (
     ("minimum pack voltage", "voltage_min_V", "V"),
     ("cell voltage margin", "voltage_margin_min_V", "V"),
     ("peak current", "current_max_A", "A"),
-    ("energy to load", "energy_load_Wh", "Wh"),
-    ("energy from cells", "energy_battery_Wh", "Wh"),
-    ("energy dissipated", "energy_dissipated_Wh", "Wh"),
+    *ENERGY_ROWS,
     ("heat generated", "heat_generated_Wh", "Wh"),
     ("heat to ambient", "heat_to_ambient_Wh", "Wh"),
     ("heat to coolant", "heat_to_coolant_Wh", "Wh"),
     ("heater energy", "heater_energy_Wh", "Wh"),
-    ("efficiency", "efficiency", ""),
     ("charge throughput", "charge_throughput_Ah", "Ah"),
     ("final SoC", "soc_end", ""),
     ("peak C-rate discharge / charge", "c_rate_discharge_max", ""),
@@ -76,15 +75,40 @@ PACK_ROWS: tuple[tuple[str, str, str], ...] = (
 )
 
 
-def print_summary(summary: dict, stream: TextIO) -> None:
-    """A short table of the main metrics, then the warnings."""
-    rows = SUMMARY_ROWS + (PACK_ROWS if "pack_model" in summary else ())  # a resolved pack's cells
-    width = max(len(label) for label, _, _ in rows)
+def verdict_line(summary: Mapping[str, Any]) -> str:
+    """The verdict in one line: ``verdict: PASS`` or ``verdict: FAIL (voltage_min, completed)``."""
+    failed = [row["check"] for row in summary.get("checks", []) if not row["passed"]]
+    text = str(summary.get("verdict", "")).upper()
+    return f"verdict: {text}" + (f" ({', '.join(failed)})" if failed else "")
+
+
+def check_rows(checks: Sequence[Mapping[str, Any]]) -> list[list[str]]:
+    """The checks of a verdict as text cells: limit, its value, worst in the mission, margin, pass / FAIL."""
+    return [[row["description"], format_value(row["limit"], row["limit_unit"]), format_value(row["worst"], row["unit"]),
+             format_value(row["margin"], row["margin_unit"]), "pass" if row["passed"] else "FAIL"] for row in checks]
+
+
+def print_summary(summary: Mapping[str, Any], stream: TextIO) -> None:
+    """A short table of the main metrics (a resolved pack's cells too), the stop explained, notes and warnings;
+    the limits and the verdict last."""
+    metrics = SUMMARY_ROWS + (PACK_ROWS if "pack_model" in summary else ())  # a resolved pack's cells
+    width = max(len(label) for label, _, _ in metrics)
     print(f"scenario: {summary.get('scenario', '')}", file=stream)
-    for label, key, unit in rows:
+    for label, key, unit in metrics:
         print(f"  {label:<{width}}  {format_value(summary.get(key), unit)}", file=stream)
+    if summary.get("stop_explanation"):
+        print(f"  {summary['stop_explanation']}", file=stream)
+    for note in summary.get("notes", []):
+        print(f"  note: {note}", file=stream)
     for warning in summary.get("warnings", []):
         print(f"  warning: {warning}", file=stream)
+    rows = check_rows(summary.get("checks", []))
+    if rows:
+        print("  limits:", file=stream)
+        widths = [max(len(row[i]) for row in rows) for i in range(len(rows[0]))]
+        for row in rows:
+            print("    " + "  ".join(cell.ljust(w) for cell, w in zip(row, widths, strict=True)).rstrip(), file=stream)
+    print(verdict_line(summary), file=stream)
 
 
 def format_comparison(outcomes: Sequence[CaseOutcome]) -> str:

@@ -23,6 +23,7 @@ from thermoelec.engine.problem import Limits, Problem
 from thermoelec.engine.profile import Segment, expand_repeats, segments_from_series
 from thermoelec.inputs.errors import ScenarioError
 from thermoelec.physics.cell import Cell, Pack
+from thermoelec.physics.constants import ZERO_CELSIUS
 from thermoelec.physics.loads import LOAD_MODES
 from thermoelec.scenario.cache import ScenarioCache, file_version
 from thermoelec.scenario.resolved import resolved_pack
@@ -82,8 +83,48 @@ def build_problem(spec: ScenarioSpec, base_dir: Path, source: str, cache: Scenar
         initial_cell_temperature=t_cell, initial_sink_temperature=t_sink,
         limits=Limits(spec.limits.cell_temperature_max, spec.limits.charge_temperature_min),
         name=spec.scenario.name, stress=spec.stress.settings(),
-        ambient_profile=ambient_profile, soak=soak, resolved=resolved_pack(spec, source),
+        ambient_profile=ambient_profile, soak=soak,
+        initial_coolant_temperature=_initial_coolant_temperature(spec, t_cell, t_sink),
+        notes=_ambient_notes(spec, base_dir, cache, soak, t_cell), resolved=resolved_pack(spec, source),
     )
+
+
+def _initial_coolant_temperature(spec: ScenarioSpec, t_cell: float, t_sink: float) -> float | None:
+    """The coolant node's start [K]: ``thermal.coolant.initial_temperature``, else the sink's when a pump
+    starts off (coolant standing in the plate has taken the plate's temperature, so the plate carries no heat
+    until the pump starts), else None (the engine starts it at the inlet temperature: the coolant flows)."""
+    coolant, pump = spec.thermal.coolant, spec.thermal.pump
+    if coolant is None:
+        return None
+    if coolant.initial_temperature is not None:
+        return coolant.initial_temperature
+    if pump is not None and not pump.switch().initially_on(t_cell):
+        return t_sink
+    return None
+
+
+def _ambient_notes(spec: ScenarioSpec, base_dir: Path, cache: ScenarioCache, soak: tuple[Segment, ...],
+                   t_cell: float) -> tuple[str, ...]:
+    """A note for each profile file whose ambient column overrides the scenario's ``thermal.ambient_temperature``."""
+    given = spec.thermal.ambient_temperature
+    if given is None:
+        return ()
+    notes = []
+    for i, seg in enumerate(spec.profile.segment):
+        if seg.file is None:
+            continue
+        series = cache.read(read_profile_csv, base_dir / seg.file, f"profile.segment[{i + 1}].file")
+        if series.ambient is None:
+            continue
+        low, high = (float(np.min(series.ambient)) - ZERO_CELSIUS, float(np.max(series.ambient)) - ZERO_CELSIUS)
+        span = f"{low:.4g} degC" if low == high else f"{low:.4g}..{high:.4g} degC"
+        note = (f"profile.segment[{i + 1}].file ({seg.file}) has its own {AMBIENT_COLUMN} column ({span}): it "
+                f"overrides thermal.ambient_temperature ({given - ZERO_CELSIUS:.4g} degC) while the file runs")
+        if i == 0 and not soak and spec.thermal.initial_cell_temperature is None:
+            note += (f", and the mission starts at its first row's {t_cell - ZERO_CELSIUS:.4g} degC (set "
+                     "thermal.initial_cell_temperature to start otherwise)")
+        notes.append(note)
+    return tuple(notes)
 
 
 def _cell(spec: CellSpec) -> Cell:
@@ -150,8 +191,9 @@ def _make_profile_segments(spec: ScenarioSpec, base_dir: Path, source: str, cach
             if first_ambient is None and series.ambient is not None:
                 first_ambient = float(series.ambient[0])
             # a CSV's segments are shared by the profiles that name it (a sweep over another segment)
-            segments += cache.built(("series", file_version(path), seg.file), lambda s=series, n=seg.file: tuple(
+            rows = cache.built(("series", file_version(path), seg.file), lambda s=series, n=seg.file: tuple(
                 segments_from_series(s.time, s.mode, s.demand, s.ambient, n)))
+            segments += [replace(row, name=seg.name) for row in rows] if seg.name else rows
         elif seg.mode == "soak":
             soak.append(_segment_from_spec(seg, key_name, given or first_ambient))
         else:
@@ -173,7 +215,7 @@ def _segment_from_spec(spec: SegmentSpec, origin: str, default_ambient: float | 
     """A segment of the engine from a ``[[profile.segment]]`` table (no file)."""
     common = dict(voltage_below=spec.voltage_below, voltage_above=spec.voltage_above,
                   soc_below=spec.soc_below, soc_above=spec.soc_above, origin=origin,
-                  ambient_temperature=spec.ambient_temperature)
+                  ambient_temperature=spec.ambient_temperature, name=spec.name or "")
     if spec.mode == "soak":
         common["ambient_temperature"] = spec.ambient_temperature or default_ambient
         return Segment("rest", 0.0, spec.duration, **common)

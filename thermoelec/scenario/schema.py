@@ -15,6 +15,7 @@ modules (they build on this one) nor from the layers above.
 from __future__ import annotations
 
 import itertools
+from dataclasses import dataclass
 from typing import Annotated, Any, Literal
 
 import numpy as np
@@ -40,7 +41,7 @@ from thermoelec.physics.thermal import (
 )
 from thermoelec.scenario.series import AMBIENT_COLUMN
 
-__all__ = ["FORMAT_VERSION", "KeyedError", "ScenarioSpec", "SegmentSpec"]
+__all__ = ["FORMAT_VERSION", "KeyedError", "ScenarioSpec", "SegmentSpec", "Unit"]
 
 #: The scenario format this schema reads (the file's ``format`` key).
 FORMAT_VERSION = 1
@@ -101,32 +102,51 @@ def _positive_int(v: Any) -> int:
     return v
 
 
-Soc = Annotated[float, _quantity("", "")]
-Voltage = Annotated[float, _quantity("V")]
-Current = Annotated[float, _quantity("A")]
-Power = Annotated[float, _quantity("W")]
-Resistance = Annotated[float, _quantity("ohm")]
-Capacity = Annotated[float, _quantity("Ah", "C")]
-Mass = Annotated[float, _quantity("kg")]
-SpecificHeat = Annotated[float, _quantity("J/kg/K")]
-Temperature = Annotated[float, _quantity("degC", "K")]
-HeatCapacity = Annotated[float, _quantity("J/K")]
-Conductance = Annotated[float, _quantity("W/K")]
-Coefficient = Annotated[float, _quantity("W/m^2/K")]
-Area = Annotated[float, _quantity("m^2")]
-Energy = Annotated[float, _quantity("J/mol")]
-Length = Annotated[float, _quantity("m")]
-Speed = Annotated[float, _quantity("m/s")]
-MassFlow = Annotated[float, _quantity("kg/s")]
-Conductivity = Annotated[float, _quantity("W/m/K")]
-Capacitance = Annotated[float, _quantity("F")]
-Duration = Annotated[float, _quantity("s")]
-Dimensionless = Annotated[float, _quantity("", "")]
-SocList = Annotated[list[float], _quantity_list("", "")]
-VoltageList = Annotated[list[float], _quantity_list("V")]
-EntropicList = Annotated[list[float], _quantity_list("V/K")]
-TemperatureList = Annotated[list[float], _quantity_list("degC", "K")]
-ResistanceTable = Annotated[list[list[float]], _quantity_table("ohm")]
+@dataclass(frozen=True)
+class Unit:
+    """The unit of a key: of a bare number in the file (``display``, as pint spells it), after validation (``si``)."""
+
+    display: str
+    si: str
+
+
+def _scalar(default_unit: str, si_unit: str | None = None) -> Any:
+    """A float key in ``default_unit``, validated to ``si_unit`` (its :class:`Unit` kept for listings)."""
+    return Annotated[float, _quantity(default_unit, si_unit), Unit(default_unit, si_unit or default_unit)]
+
+
+def _listed(default_unit: str, si_unit: str | None = None) -> Any:
+    """A list-of-floats key in ``default_unit``, validated to ``si_unit``."""
+    return Annotated[list[float], _quantity_list(default_unit, si_unit), Unit(default_unit, si_unit or default_unit)]
+
+
+Soc = _scalar("", "")
+Voltage = _scalar("V")
+Current = _scalar("A")
+Power = _scalar("W")
+Resistance = _scalar("ohm")
+Capacity = _scalar("Ah", "C")
+Mass = _scalar("kg")
+SpecificHeat = _scalar("J/kg/K")
+Temperature = _scalar("degC", "K")
+HeatCapacity = _scalar("J/K")
+Conductance = _scalar("W/K")
+Coefficient = _scalar("W/m^2/K")
+Area = _scalar("m^2")
+Energy = _scalar("J/mol")
+Length = _scalar("m")
+Speed = _scalar("m/s")
+MassFlow = _scalar("kg/s")
+Conductivity = _scalar("W/m/K")
+Capacitance = _scalar("F")
+Duration = _scalar("s")
+Dimensionless = _scalar("", "")
+Kelvin = _scalar("K")
+SocList = _listed("", "")
+VoltageList = _listed("V")
+EntropicList = _listed("V/K")
+TemperatureList = _listed("degC", "K")
+ResistanceTable = Annotated[list[list[float]], _quantity_table("ohm"), Unit("ohm", "ohm")]
 Count = Annotated[int, BeforeValidator(_positive_int)]
 
 
@@ -570,6 +590,7 @@ class CoolantSpec(_Section):
     plate_conductance: Conductance | None = None
     conductance: Conductance | None = None
     heat_capacity: HeatCapacity = 0.0
+    initial_temperature: Temperature | None = None  # of the coolant node; default: build._initial_coolant_temperature
 
     @model_validator(mode="after")
     def _coolant(self):
@@ -585,6 +606,10 @@ class CoolantSpec(_Section):
         else:
             _positive(self.conductance, "conductance", allow_zero=True)
             _check(self.heat_capacity == 0.0, "heat_capacity needs a coolant flow (flow_rate)", "heat_capacity")
+        _check(self.initial_temperature is None or self.heat_capacity > 0.0,
+               "initial_temperature is that of the coolant node: it needs heat_capacity > 0", "initial_temperature")
+        _check(self.initial_temperature is None or self.initial_temperature > 0,
+               "initial_temperature is below absolute zero", "initial_temperature")
         _positive(self.specific_heat, "specific_heat")
         _positive(self.heat_capacity, "heat_capacity", allow_zero=True)
         return self
@@ -691,6 +716,7 @@ class ThermalSpec(_Section):
 
 
 class SegmentSpec(_Section):
+    name: str | None = None  # shown on the dashboard and in events
     mode: Literal[SEGMENT_MODES] | None = None  # the load modes and the composite ones (physics.loads)
     value: Any = None
     duration: Duration | None = None
@@ -709,6 +735,7 @@ class SegmentSpec(_Section):
         _positive(self.duration, "duration")
         _check(self.ambient_temperature is None or self.ambient_temperature > 0,
                "ambient_temperature is below absolute zero", "ambient_temperature")
+        _check(self.name is None or self.name.strip() != "", "name is empty: give a name or drop the key", "name")
         if self.file is not None:
             _check(self.mode is None and self.value is None and self.duration is None,
                    "a file segment takes its mode, values and times from the file: drop mode, value and duration")
@@ -793,7 +820,7 @@ class SolverSpec(_Section):
     output_interval: Duration = 1.0
     atol_soc: Dimensionless | None = None
     atol_voltage: Voltage | None = None
-    atol_temperature: Annotated[float, _quantity("K")] | None = None
+    atol_temperature: Kelvin | None = None
     max_steps: Count = 50_000
     scipy_method: Literal["LSODA", "BDF", "Radau", "RK45", "DOP853", "RK23"] = "LSODA"
 

@@ -21,11 +21,11 @@ re-exports the names the command line, the benchmarks and the tests use.
 """
 
 from thermoelec.analysis.metrics import METRICS
-from thermoelec.analysis.sweep.dataset import passes, sweep_dataset, write_series, write_sweep
+from thermoelec.analysis.sweep.dataset import passes, sweep_dataset, sweep_table, write_series, write_sweep
 from thermoelec.analysis.sweep.plan import SweepAxis, SweepPlan, iter_combinations, plan_sweep
 from thermoelec.analysis.sweep.run import KEPT_SERIES, decimate, run_chunk, run_sweep, solo_metrics
 from thermoelec.analysis.sweep.search import Criterion, design_search, parse_criterion
 
 __all__ = ["KEPT_SERIES", "METRICS", "Criterion", "SweepAxis", "SweepPlan", "decimate", "design_search",
            "iter_combinations", "parse_criterion", "passes", "plan_sweep", "run_chunk", "run_sweep", "solo_metrics",
-           "sweep_dataset", "write_series", "write_sweep"]
+           "sweep_dataset", "sweep_table", "write_series", "write_sweep"]

@@ -2,8 +2,10 @@
 
 Owns :func:`sweep_dataset` (one xarray Dataset: a dimension per swept key, or
 ``case`` for zip, a variable per metric of :data:`thermoelec.analysis.metrics.METRICS`),
-:func:`write_sweep` (``sweep.nc``), :func:`write_series` (``series.zarr``) and
-:func:`passes`. The heat maps are drawn by the output layer
+:func:`write_sweep` (``sweep.nc`` and ``sweep.csv``, one row per scenario:
+:func:`sweep_table`), :func:`write_series` (``series.zarr``) and :func:`passes`.
+A scenario that failed to solve or was invalid keeps NaN metrics, its status
+and its message. The heat maps are drawn by the output layer
 (:mod:`thermoelec.output.sweep_figures`). Imports from scenario/ and analysis/
 only; never from output/, fit/, the API or the command line.
 """
@@ -17,13 +19,14 @@ from typing import Any
 
 import numpy as np
 
-from thermoelec.analysis.metrics import METRICS, PACK_METRICS
+from thermoelec.analysis.metrics import METRICS, PACK_METRICS, VERDICT_KEYS
 from thermoelec.analysis.sweep.plan import SweepPlan
 from thermoelec.analysis.sweep.run import KEPT_SERIES
+from thermoelec.analysis.verdict import PASS
 from thermoelec.scenario import Scenario
 from thermoelec.version import __version__
 
-__all__ = ["passes", "sweep_dataset", "write_series", "write_sweep"]
+__all__ = ["passes", "sweep_dataset", "sweep_table", "write_series", "write_sweep"]
 
 
 def sweep_dataset(scenario: Scenario, plan: SweepPlan, rows: Sequence[Mapping[str, Any]]):
@@ -42,13 +45,18 @@ def sweep_dataset(scenario: Scenario, plan: SweepPlan, rows: Sequence[Mapping[st
         dim = "case" if plan.mode == "zip" else axis.path
         coords[axis.path] = (dim, np.array(axis.coords), {"units": axis.unit or "as in the scenario file"})
     data: dict[str, Any] = {}
+    ran = [r.get("status") == "ok" for r in rows]  # a failed or invalid scenario has no metrics: NaN, not numbers
     # a resolved pack's metrics where a row has them (a lumped sweep keeps the variables it had)
     pack = tuple(key for key in PACK_METRICS if any(key in r for r in rows))
     for key in METRICS + pack:
-        values = np.array([np.nan if r.get(key) is None else float(r[key]) for r in rows]).reshape(shape)
+        values = np.array([np.nan if not ok or r.get(key) is None else float(r[key])
+                           for r, ok in zip(rows, ran, strict=True)]).reshape(shape)
         data[key] = (dims, values, {"units": _unit_of(key)})
-    for key in ("status", "message", "stop_reason", "engine"):
-        data[key] = (dims, np.array([str(r.get(key) or "") for r in rows], dtype=object).reshape(shape))
+    for key in ("status", "message", "stop_reason", "engine", *VERDICT_KEYS):
+        data[key] = (dims, np.array([str(r.get(key) or "") if ok or key in ("status", "message") else ""
+                                     for r, ok in zip(rows, ran, strict=True)], dtype=object).reshape(shape))
+    data["verdict"] += ({"description": "pass / fail of every limit check (analysis.verdict); empty for a scenario "
+                                        "that failed to solve or was invalid"},)
     ds = xr.Dataset(data, coords=coords)
     ds.attrs.update(thermoelec_version=__version__, scenario_file=scenario.source, scenario_sha256=scenario.digest,
                     sweep_mode=plan.mode, scenarios=plan.size,
@@ -93,18 +101,40 @@ def write_series(plan: SweepPlan, rows: Sequence[Mapping[str, Any]], out: Path, 
 
 
 def passes(ds) -> Any:
-    """Pass / fail of every scenario: completed, solved, within every limit."""
-    ok = (ds["status"] == "ok") & (ds["completed"] == 1.0)
-    return ok & (ds["voltage_margin_min_V"] >= 0) & (ds["temperature_margin_K"] > 0)
+    """Pass / fail of every scenario: its verdict (:mod:`thermoelec.analysis.verdict`) is a pass."""
+    return ds["verdict"] == PASS
+
+
+def sweep_table(ds):
+    """One row per scenario: the swept keys' values, status, message, stop reason, verdict, failed checks,
+    engine and the metrics, a resolved pack's too (a pandas DataFrame, as ``sweep.csv`` holds it)."""
+    import pandas as pd
+
+    flat = {name: ds[name].values.ravel() for name in ds.data_vars}
+    dims = list(ds[METRICS[0]].dims)
+    index = np.indices([ds.sizes[d] for d in dims]).reshape(len(dims), -1)
+    columns: dict[str, Any] = {}
+    for coord in ds.coords:  # each swept key in its coordinate (a zip sweep: every key along ``case``)
+        axis = dims.index(ds[coord].dims[0])
+        unit = ds[coord].attrs.get("units", "")
+        columns[f"{coord} [{unit}]" if unit and unit != "as in the scenario file" else coord] = \
+            ds[coord].values[index[axis]]
+    pack = [key for key in PACK_METRICS if key in flat]  # a resolved pack's metrics, where the sweep has them
+    for key in ("status", "message", "stop_reason", *VERDICT_KEYS, "engine", *METRICS, *pack):
+        columns[key] = flat[key]
+    return pd.DataFrame(columns)
 
 
 def write_sweep(ds, out: Path) -> list[Path]:
-    """Write the sweep's dataset as ``out/sweep.nc`` (strings as variable-length text), atomically.
+    """Write the sweep's dataset as ``out/sweep.nc`` (strings as variable-length text) and its table as
+    ``out/sweep.csv`` (:func:`sweep_table`), each atomically.
 
     The heat maps are :func:`thermoelec.output.sweep_figures.write_sweep_figures`.
     """
-    path = out / "sweep.nc"
-    tmp = out / ".sweep.nc.tmp"
+    path, table = out / "sweep.nc", out / "sweep.csv"
+    tmp, tmp_table = out / ".sweep.nc.tmp", out / ".sweep.csv.tmp"
     ds.to_netcdf(tmp)
+    sweep_table(ds).to_csv(tmp_table, index=False, float_format="%.9g")
     os.replace(tmp, path)
-    return [path]
+    os.replace(tmp_table, table)
+    return [path, table]

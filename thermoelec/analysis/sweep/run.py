@@ -18,7 +18,6 @@ from __future__ import annotations
 import json
 import os
 import sys
-import time as _time
 from collections.abc import Callable, Mapping, Sequence
 from pathlib import Path
 from typing import Any
@@ -78,7 +77,9 @@ def solo_metrics(scenario: Scenario, overrides: Mapping[str, Any], keep_interval
         return {"status": "failed", "message": f"{type(exc).__name__}: {exc}"}
     names = METRICS + (PACK_METRICS if result.cells is not None else ())  # a resolved pack's too
     row: dict[str, Any] = {k: result.summary.get(k) for k in names}
-    row.update(status=result.status, message=result.message, stop_reason=result.summary["stop_reason"])
+    row.update(status=result.status, message=result.message, stop_reason=result.summary["stop_reason"],
+               verdict=result.summary["verdict"],
+               failed_checks=",".join(c["check"] for c in result.summary["checks"] if not c["passed"]))
     if keep_interval is not None:
         row["series"] = decimate(result.series, keep_interval)
     return row
@@ -125,27 +126,27 @@ def _write_atomic(path: Path, text: str) -> None:
 
 
 class Progress:
-    """Scenarios done, rate and ETA on one terminal line."""
+    """Scenarios done, rate and ETA as a tqdm bar on stderr: shown only on a terminal, after the first second."""
 
     def __init__(self, total: int, stream=sys.stderr, enabled: bool = True):
         self.total, self.done, self.stream, self.enabled = total, 0, stream, enabled
-        self.started = _time.perf_counter()
-        self._base = 0
+        self._bar = None
 
     def start_at(self, done: int) -> None:
-        self.done = self._base = done
+        self.done = done
+        if self.enabled:
+            from tqdm import tqdm
+
+            # disable=None: quiet when the stream is no terminal (a log file, a pipe, a test)
+            self._bar = tqdm(total=self.total, initial=done, unit="scenario", desc="sweep", file=self.stream,
+                             disable=None, delay=1.0, dynamic_ncols=True)
 
     def update(self, count: int) -> None:
         self.done += count
-        if not self.enabled:
-            return
-        elapsed = _time.perf_counter() - self.started
-        rate = (self.done - self._base) / elapsed if elapsed > 0 else 0.0
-        eta = (self.total - self.done) / rate if rate > 0 else float("inf")
-        print(f"\r  {self.done}/{self.total} scenarios, {rate:.1f}/s, ETA {eta:.0f} s ", end="", file=self.stream,
-              flush=True)
-        if self.done >= self.total:
-            print(file=self.stream)
+        if self._bar is not None:
+            self._bar.update(count)
+            if self.done >= self.total:
+                self._bar.close()
 
 
 def _checkpoint_folder(scenario: Scenario, plan: SweepPlan, out: Path, resume: bool, settings: str) -> Path:

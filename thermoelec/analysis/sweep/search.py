@@ -80,11 +80,13 @@ def _search_one(scenario: Scenario, fixed: dict[str, Any], path: str, low: float
         return {"value": math.nan, "status": "failed", "message": str(exc), "evaluations": evaluations}
     inner, m_inner, m_outer = (high, at_high, at_low) if greatest else (low, at_low, at_high)
     if m_inner <= 0:
-        return {"value": inner, "status": "at_bound", "message": "met already at the bound of the range",
-                "evaluations": evaluations}
+        bound = "upper" if greatest else "lower"
+        return {"value": inner, "status": "at_bound", "evaluations": evaluations,
+                "message": f"met at the {bound} bound: the criterion holds there already, so the "
+                           f"{'greatest' if greatest else 'least'} value lies at or {'above' if greatest else 'below'} "
+                           f"{inner:g} {unit}".rstrip()}
     if m_outer > 0:
-        return {"value": math.nan, "status": "not_met", "message": "not met anywhere in the range",
-                "evaluations": evaluations}
+        return {"value": math.nan, "status": "not_met", "message": "not met in range", "evaluations": evaluations}
     try:
         root = brentq(margin, low, high, xtol=tolerance * abs(high - low), rtol=1e-12)
     except (RuntimeError, ValueError) as exc:
