@@ -201,7 +201,8 @@ def main() -> None:
     if builds == 1000:
         print(f"  target < {SWEEP_TARGET:g} s: {'met' if wall < SWEEP_TARGET else 'NOT met'}")
     else:
-        print(f"  scaled to 1 000 builds: {1000 / per_second:.0f} s (target < {SWEEP_TARGET:g} s)")
+        print(f"  (target: 1 000 builds in < {SWEEP_TARGET:g} s; a run this small is mostly start-up: the full "
+              "run measures the target)")
 
 
 if __name__ == "__main__":
