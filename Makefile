@@ -57,6 +57,11 @@ demo: $(STAMP)
 	@echo "== a warehouse robot shift: still air, a fan, a cold plate, and a freezer aisle with a heater"
 	@$(BIN)/thermoelec compare scenarios/robot_cooling.toml --out $(DEMO)/robot-cooling
 	@echo
+	@echo "== a cargo robot's 14s4p pack, every cell resolved on a cold plate (coolant along the rows):"
+	@echo "   the hottest cell against the lumped estimate, and one cell 5 % short of capacity"
+	@$(BIN)/thermoelec run scenarios/cargo_robot_pack.toml --out $(DEMO)/cargo-robot-pack
+	@$(BIN)/thermoelec compare scenarios/cargo_robot_pack.toml --out $(DEMO)/cargo-robot-pack-compare
+	@echo
 	@echo "== the demo scooter cell fitted from its (invented) lab logs: OCV, pulses, heater test"
 	@$(BIN)/thermoelec fit ocv $(LOGS)/scooter_c20_discharge.csv $(LOGS)/scooter_c20_charge.csv \
 		--out $(DEMO)/fit/scooter_cell_ocv.toml
@@ -76,12 +81,14 @@ bench: $(STAMP)
 	$(BIN)/python benchmarks/bench_sweep.py
 	$(BIN)/python benchmarks/bench_sweep_scale.py
 	$(BIN)/python benchmarks/bench_sweep_figures.py
+	$(BIN)/python benchmarks/bench_pack.py
 
 bench-quick: $(STAMP)
 	$(BIN)/python benchmarks/bench_single_mission.py --quick
 	$(BIN)/python benchmarks/bench_sweep.py --quick
 	$(BIN)/python benchmarks/bench_sweep_scale.py --quick
 	$(BIN)/python benchmarks/bench_sweep_figures.py --quick
+	$(BIN)/python benchmarks/bench_pack.py --quick
 
 clean:
 	rm -rf $(VENV) out .pytest_cache .ruff_cache

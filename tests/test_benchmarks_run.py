@@ -48,3 +48,10 @@ def test_sweep_scale_benchmark_runs_quick():
 def test_sweep_figures_benchmark_runs_quick():
     out = _run("bench_sweep_figures.py", "--quick")
     assert "figures' share of the wall time" in out and "reference, --no-figures" in out
+
+
+@pytest.mark.slow
+def test_pack_benchmark_runs_quick():
+    out = _run("bench_pack.py", "--quick")
+    assert "target 14s4p on the batched engine" in out and "solve_ivp LSODA loop, per cell" in out
+    assert "thermoelec sweep --workers 2, end to end" in out

@@ -7,7 +7,8 @@ voltage cutoff in these conditions": a constant-power discharge from the same
 start, at the mission's mean discharge power, until a limit stops it.
 
 Owns the cases (:func:`case_list`, :func:`run_cases`), the comparison's rows
-(:data:`COMPARISON_ROWS`, :func:`comparison_table`, :func:`comparison_json`) and
+(:data:`COMPARISON_ROWS`, with :data:`PACK_COMPARISON_ROWS` for resolved packs:
+:func:`comparison_rows`; :func:`comparison_table`, :func:`comparison_json`) and
 the writing of its data files (:func:`write_comparison`). Imports from
 scenario/, engine/ and analysis/ only: the overlay figure and the report are
 drawn by output/ (:func:`thermoelec.output.figures.write_comparison_figure`), the
@@ -31,8 +32,9 @@ from thermoelec.analysis.simulate import simulate
 from thermoelec.physics.constants import JOULES_PER_WH
 from thermoelec.scenario import Scenario, ScenarioError
 
-__all__ = ["COMPARISON_ROWS", "CaseOutcome", "case_folders", "case_list", "case_scenarios", "comparison_json",
-           "comparison_table", "energy_to_cutoff", "run_cases", "write_comparison"]
+__all__ = ["COMPARISON_ROWS", "PACK_COMPARISON_ROWS", "CaseOutcome", "case_folders", "case_list", "case_scenarios",
+           "comparison_json", "comparison_rows", "comparison_table", "energy_to_cutoff", "run_cases",
+           "write_comparison"]
 
 #: Long enough that a limit, not the clock, ends the energy-to-cutoff discharge.
 CUTOFF_RUN_DURATION = "1000 h"
@@ -64,6 +66,22 @@ COMPARISON_ROWS: tuple[tuple[str, str, str], ...] = (
     ("Arrhenius time at reference", "equivalent_time_at_reference_s", "s"),
     ("warnings", "warning_count", ""),
 )
+#: Rows a comparison adds when one of its cases is a resolved pack (``n/a`` for a lumped case).
+PACK_COMPARISON_ROWS: tuple[tuple[str, str, str], ...] = (
+    ("peak of the mean cell temperature", "cell_temperature_mean_max_degC", "degC"),
+    ("hottest cell", "hottest_cell", ""),
+    ("cell-to-cell temperature spread", "cell_temperature_spread_max_K", "K"),
+    ("SoC spread at the end", "soc_spread_end", ""),
+    ("largest current share", "current_share_max", ""),
+    ("first cell at a limit", "first_limit_cell", ""),
+)
+
+
+def comparison_rows(outcomes: Sequence[CaseOutcome]) -> tuple[tuple[str, str, str], ...]:
+    """The rows of a comparison: :data:`COMPARISON_ROWS`, and :data:`PACK_COMPARISON_ROWS` when a case resolves
+    its cells."""
+    resolved = any(o.metrics().get("pack_model") == "resolved" for o in outcomes)
+    return COMPARISON_ROWS + (PACK_COMPARISON_ROWS if resolved else ())
 
 
 @dataclass
@@ -233,12 +251,12 @@ def run_cases(scenario: Scenario, cases: Sequence[tuple[str, Mapping[str, Any]]]
 
 
 def comparison_table(outcomes: Sequence[CaseOutcome]):
-    """Side-by-side table: one row per metric (:data:`COMPARISON_ROWS`), one column per case."""
+    """Side-by-side table: one row per metric (:func:`comparison_rows`), one column per case."""
     import pandas as pd
 
     metrics = [o.metrics() for o in outcomes]
     rows = []
-    for label, key, unit in COMPARISON_ROWS:
+    for label, key, unit in comparison_rows(outcomes):
         rows.append({"metric": label.strip(), "key": key, "unit": unit,
                      **{o.name: m.get(key) for o, m in zip(outcomes, metrics, strict=True)}})
     return pd.DataFrame(rows)

@@ -199,7 +199,7 @@ def first_error(exc: ValidationError, file: str, text: str | None, origins: Orig
     msg = _clean(err["msg"])
     cause = (err.get("ctx") or {}).get("error")
     if isinstance(cause, KeyedError) and cause.key:
-        loc = (*loc, cause.key)
+        loc = (*loc, *(cause.key if isinstance(cause.key, tuple) else (cause.key,)))
         msg = str(cause)
     if err["type"] == "extra_forbidden":
         msg = f"unknown key {loc[-1]!r}"

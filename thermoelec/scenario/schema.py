@@ -183,16 +183,18 @@ Count = Annotated[int, BeforeValidator(_positive_int)]
 class KeyedError(ValueError):
     """A validation error that knows which key of its section is at fault.
 
-    ``form`` tells a value that cannot be read as its key's kind (a wrong unit) from
-    one read well but out of range or at odds with another key (the default).
+    ``key`` is a key of the section, or a path below it as a tuple of keys and
+    0-based list indices (``("cell", 2, "cell")`` for ``cell[3].cell``). ``form``
+    tells a value that cannot be read as its key's kind (a wrong unit) from one
+    read well but out of range or at odds with another key (the default).
     """
 
-    def __init__(self, key: str | None, message: str, form: bool = False):
+    def __init__(self, key: str | tuple | None, message: str, form: bool = False):
         super().__init__(message)
         self.key, self.form = key, form
 
 
-def _check(condition: bool, message: str, key: str | None = None) -> None:
+def _check(condition: bool, message: str, key: str | tuple | None = None) -> None:
     """Raise ``message`` as a :class:`KeyedError` naming ``key`` unless ``condition`` holds."""
     if not condition:
         raise KeyedError(key, message)
@@ -392,14 +394,183 @@ class CellSpec(_Section):
 _GEOMETRY_KEYS = ("diameter", "length", "thickness", "width", "height")
 
 
+class LayoutSpec(_Section):
+    """Where the cells sit: a grid (``rows`` x ``columns``, numbered along the rows or down the
+    columns), or a list (``neighbours`` as pairs of cell numbers, ``wall`` cells, optional ``positions``)."""
+
+    rows: Count | None = None
+    columns: Count | None = None
+    fill: Literal["rows", "columns"] = "rows"
+    neighbours: list[list[int]] | None = None
+    wall: list[int] = []
+    positions: list[list[float]] | None = None
+
+    @model_validator(mode="after")
+    def _layout(self):
+        grid = self.rows is not None or self.columns is not None
+        _check(grid != (self.neighbours is not None),
+               "give rows and columns (a grid), or neighbours (a list of pairs of cells), not both",
+               "neighbours" if grid else "rows")
+        if grid:
+            _check(self.rows is not None and self.columns is not None, "a grid needs both rows and columns",
+                   "columns" if self.columns is None else "rows")
+            _check(not self.wall and self.positions is None,
+                   "a grid finds its wall cells and positions itself: drop wall and positions", "wall")
+        else:
+            for k, pair in enumerate(self.neighbours):
+                _check(len(pair) == 2 and pair[0] != pair[1], f"neighbours item {k + 1} must be two different cells",
+                       ("neighbours", k))
+        if self.positions is not None:
+            for k, xy in enumerate(self.positions):
+                _check(len(xy) == 2, f"positions item {k + 1} must be [x, y]", ("positions", k))
+        return self
+
+    def check_cells(self, n: int) -> None:
+        """Raise a :class:`KeyedError` (relative to ``[pack]``) unless the layout holds ``n`` cells."""
+        if self.rows is not None:
+            _check(self.rows * self.columns == n, f"the layout has {self.rows} x {self.columns} = "
+                   f"{self.rows * self.columns} places but the pack series x parallel = {n} cells", ("layout", "rows"))
+            return
+        for k, pair in enumerate(self.neighbours or []):
+            _check(all(1 <= c <= n for c in pair), f"neighbours item {k + 1} names a cell outside 1..{n}",
+                   ("layout", "neighbours", k))
+        for k, c in enumerate(self.wall):
+            _check(1 <= c <= n, f"wall item {k + 1} names a cell outside 1..{n}", ("layout", "wall", k))
+        if self.positions is not None:
+            _check(len(self.positions) == n, f"positions has {len(self.positions)} entries but the pack series x "
+                   f"parallel = {n} cells", ("layout", "positions"))
+
+
+class SpreadSpec(_Section):
+    """Relative standard deviations of the cells' capacity and resistances, truncated normal, seeded."""
+
+    capacity: Dimensionless = 0.0
+    r0: Dimensionless = 0.0
+    rc: Dimensionless = 0.0
+    seed: int = 0
+    truncation: Dimensionless = 3.0
+
+    @model_validator(mode="after")
+    def _spread(self):
+        _check(self.truncation > 0, f"truncation must be > 0 standard deviations, got {self.truncation:g}",
+               "truncation")
+        for key in ("capacity", "r0", "rc"):
+            value = getattr(self, key)
+            _check(value >= 0, f"{key} is a relative standard deviation and must be >= 0, got {value:g}", key)
+            _check(value * self.truncation < 1, f"{key} times truncation ({value * self.truncation:g}) must stay "
+                   "below 1: a cell's factor would reach zero", key)
+        _check(self.seed >= 0, f"seed must be >= 0, got {self.seed}", "seed")
+        return self
+
+
+#: The serpentine coolant paths of a grid layout (``physics.pack.serpentine_order``).
+COOLANT_PATHS = ("rows", "columns")
+
+
+def _coolant_order(v: Any) -> Any:
+    """``"rows"``, ``"columns"`` or a list of cell numbers (whole numbers)."""
+    if v is None or v in COOLANT_PATHS:
+        return v
+    if isinstance(v, list) and all(isinstance(c, int) and not isinstance(c, bool) for c in v):
+        return v
+    raise ValueError(f"expected {' or '.join(repr(p) for p in COOLANT_PATHS)} (a serpentine along the grid) or a "
+                     f"list of cell numbers in flow order, got {v!r}")
+
+
+class PackThermalSpec(_Section):
+    """The thermal paths of each cell of a resolved pack (per cell, W/K)."""
+
+    neighbour_conductance: Conductance = 0.0
+    cell_to_sink: Conductance | None = None
+    cell_to_ambient: Conductance | None = None
+    wall_to_ambient: Conductance = 0.0
+    coolant_order: Annotated[Any, BeforeValidator(_coolant_order)] = None
+    plate_conductance: Conductance | None = None
+
+    @model_validator(mode="after")
+    def _paths(self):
+        for key in ("neighbour_conductance", "cell_to_sink", "cell_to_ambient", "wall_to_ambient",
+                    "plate_conductance"):
+            _positive(getattr(self, key), key, allow_zero=True)
+        order = self.coolant_order
+        if isinstance(order, list):
+            _check(len(order) > 0, "coolant_order is empty", "coolant_order")
+            seen: set[int] = set()
+            for k, c in enumerate(order):
+                _check(c not in seen, f"coolant_order names cell {c} twice (items {order.index(c) + 1} and {k + 1})",
+                       ("coolant_order", k))
+                seen.add(c)
+        _check(self.plate_conductance is None or order is not None,
+               "plate_conductance is the conductance of each cell's segment of the coolant path: give "
+               "coolant_order", "plate_conductance")
+        return self
+
+
+class CellOverrideSpec(_Section):
+    """One cell of a resolved pack that differs: factors on the nominal cell (times its spread) and its own paths."""
+
+    cell: int
+    capacity_factor: Dimensionless = 1.0
+    r0_factor: Dimensionless = 1.0
+    rc_factor: Dimensionless = 1.0
+    tab_resistance: Resistance = 0.0
+    initial_soc: Soc | None = None
+    cell_to_sink: Conductance | None = None
+    cell_to_ambient: Conductance | None = None
+    plate_conductance: Conductance | None = None
+
+    @model_validator(mode="after")
+    def _cell(self):
+        for key in ("capacity_factor", "r0_factor", "rc_factor"):
+            _positive(getattr(self, key), key)
+        for key in ("tab_resistance", "cell_to_sink", "cell_to_ambient", "plate_conductance"):
+            _positive(getattr(self, key), key, allow_zero=True)
+        _check(self.initial_soc is None or 0.0 <= self.initial_soc <= 1.0,
+               f"initial_soc must lie within 0..1, got {self.initial_soc}", "initial_soc")
+        return self
+
+
+#: The keys of ``[pack]`` that belong to a resolved pack (``model = "resolved"``).
+RESOLVED_KEYS = ("layout", "spread", "thermal", "cell")
+
+
 class PackSpec(_Section):
     series: Count = 1
     parallel: Count = 1
     interconnect_resistance: Resistance = 0.0
+    model: Literal["lumped", "resolved"] = "lumped"
+    layout: LayoutSpec | None = None
+    spread: SpreadSpec | None = None
+    thermal: PackThermalSpec | None = None
+    cell: list[CellOverrideSpec] = []
 
     @model_validator(mode="after")
     def _pack(self):
         _positive(self.interconnect_resistance, "interconnect_resistance", allow_zero=True)
+        if self.model == "lumped":
+            for key in RESOLVED_KEYS:
+                _check(not getattr(self, key), f"pack.{key} describes the cells of a resolved pack: set "
+                       'pack.model = "resolved" (the default lumped pack has identical cells in one node)', key)
+            return self
+        n = self.series * self.parallel
+        if self.layout is not None:
+            self.layout.check_cells(n)
+        seen: dict[int, int] = {}
+        for k, override in enumerate(self.cell):
+            _check(1 <= override.cell <= n, f"cell {override.cell} is outside the pack's cells 1..{n} "
+                   f"(series x parallel = {self.series} x {self.parallel})", ("cell", k, "cell"))
+            _check(override.cell not in seen, f"cell {override.cell} is given twice (pack.cell items "
+                   f"{seen.get(override.cell, 0) + 1} and {k + 1})", ("cell", k, "cell"))
+            seen[override.cell] = k
+        order = self.thermal.coolant_order if self.thermal is not None else None
+        if isinstance(order, list):
+            for k, c in enumerate(order):
+                _check(1 <= c <= n, f"coolant_order names cell {c}, outside the pack's cells 1..{n}",
+                       ("thermal", "coolant_order", k))
+        elif order is not None:
+            _check(self.layout is None or self.layout.rows is not None,
+                   f'coolant_order = "{order}" follows the rows or columns of a grid layout: give the cells in '
+                   "flow order for a list layout", ("thermal", "coolant_order"))
         return self
 
 
@@ -758,4 +929,17 @@ class ScenarioSpec(_Section):
     stress: StressSpec = StressSpec()
     sweep: dict[str, Any] = {}
     case: list[CaseSpec] = []
+
+    @model_validator(mode="after")
+    def _resolved_coolant(self):
+        """A coolant path needs a coolant flow, and a massless one (it is quasi-steady along its path)."""
+        if self.pack.thermal is None or self.pack.thermal.coolant_order is None:
+            return self
+        coolant = self.thermal.coolant
+        key = ("pack", "thermal", "coolant_order")
+        _check(coolant is not None and coolant.flow_rate is not None,
+               "a coolant path needs [thermal.coolant] with flow_rate and plate_conductance", key)
+        _check(coolant.heat_capacity == 0.0, "a coolant path takes a massless coolant (its transit is quick "
+               "against the cells): drop thermal.coolant.heat_capacity", key)
+        return self
 

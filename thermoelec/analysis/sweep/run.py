@@ -34,7 +34,7 @@ import numpy as np
 
 from thermoelec.analysis.estimates import check_run
 from thermoelec.analysis.interrupts import deferred_signals
-from thermoelec.analysis.metrics import METRICS, batch_metrics
+from thermoelec.analysis.metrics import METRICS, PACK_METRICS, batch_metrics
 from thermoelec.analysis.simulate import simulate
 from thermoelec.analysis.sweep.checkpoint import Checkpoints, sweep_identity
 from thermoelec.analysis.sweep.plan import SweepPlan
@@ -63,7 +63,10 @@ def decimate(series: Mapping[str, np.ndarray], interval: float) -> dict[str, lis
 
 def solo_metrics(scenario: Scenario, overrides: Mapping[str, Any], keep_interval: float | None = None
                  ) -> dict[str, Any]:
-    """The :data:`METRICS` row of one scenario solved on its own back end (the summary's values).
+    """The metrics row of one scenario solved on its own back end (the summary's values).
+
+    :data:`~thermoelec.analysis.metrics.METRICS`, and for a resolved pack
+    :data:`~thermoelec.analysis.metrics.PACK_METRICS` too.
 
     Parameters
     ----------
@@ -88,7 +91,8 @@ def solo_metrics(scenario: Scenario, overrides: Mapping[str, Any], keep_interval
         return {"status": "invalid", "message": str(exc)}
     except Exception as exc:  # a scenario must never stop the sweep
         return {"status": "failed", "message": f"{type(exc).__name__}: {exc}"}
-    row: dict[str, Any] = {k: result.summary.get(k) for k in METRICS}
+    names = METRICS + (PACK_METRICS if result.cells is not None else ())  # a resolved pack's too
+    row: dict[str, Any] = {k: result.summary.get(k) for k in names}
     row.update(status=result.status, message=result.message, stop_reason=result.summary["stop_reason"],
                verdict=result.summary["verdict"],
                failed_checks=",".join(c["check"] for c in result.summary["checks"] if not c["passed"]))
@@ -108,8 +112,8 @@ def run_chunk(scenario: Scenario, plan: SweepPlan, indices: Sequence[int],
     """
     rows: dict[int, dict[str, Any]] = {}
     if engine == "batch" and keep_interval is None:
-        # a batch shares one state layout and one set of solver settings (a swept solver.rtol
-        # makes batches of its own)
+        # a batch shares one state layout (RC pairs, cells) and one set of solver settings (a swept
+        # solver.rtol makes batches of its own)
         groups: dict[tuple, list[tuple[int, Any]]] = {}
         for i in indices:
             try:
@@ -118,8 +122,8 @@ def run_chunk(scenario: Scenario, plan: SweepPlan, indices: Sequence[int],
                 problem = variant.problem()
             except ScenarioError:
                 continue  # recorded by the solo path below
-            groups.setdefault((problem.n_rc, variant.solver_options()), []).append((i, problem))
-        for (_, options), members in groups.items():
+            groups.setdefault((problem.n_rc, problem.n_cells, variant.solver_options()), []).append((i, problem))
+        for (_, _, options), members in groups.items():
             outcome = batch.solve_batch([problem for _, problem in members], options)
             for j, (i, problem) in enumerate(members):
                 if outcome.status[j] == "ok":

@@ -17,7 +17,7 @@ from typing import Any
 
 import numpy as np
 
-from thermoelec.analysis.metrics import METRICS
+from thermoelec.analysis.metrics import METRICS, PACK_METRICS
 from thermoelec.analysis.sweep.plan import SweepPlan
 from thermoelec.analysis.sweep.run import process_pool, solo_metrics
 from thermoelec.scenario import Scenario, ScenarioError
@@ -46,12 +46,13 @@ def parse_criterion(text: str) -> Criterion:
     Raises
     ------
     ScenarioError
-        When the text does not parse or names no metric of :data:`METRICS`.
+        When the text does not parse or names no metric of :data:`METRICS` (or, for a
+        resolved pack, of :data:`~thermoelec.analysis.metrics.PACK_METRICS`).
     """
     match = _CRITERION.match(text)
-    if not match or match.group(1) not in METRICS:
+    if not match or match.group(1) not in METRICS + PACK_METRICS:
         raise ScenarioError("--find", text, "expected METRIC <= VALUE or METRIC >= VALUE with a summary metric: "
-                            + ", ".join(METRICS))
+                            + ", ".join(METRICS + PACK_METRICS))
     return Criterion(match.group(1), match.group(2), float(match.group(3)))
 
 
@@ -65,8 +66,10 @@ def _search_one(scenario: Scenario, fixed: dict[str, Any], path: str, low: float
         nonlocal evaluations
         evaluations += 1
         row = solo_metrics(scenario, {**fixed, path: f"{x!r} {unit}".strip() if unit else x})
-        if row.get("status") != "ok" or row.get(criterion.metric) is None:
+        if row.get("status") != "ok":
             raise RuntimeError(row.get("message") or "the scenario failed")
+        if row.get(criterion.metric) is None:
+            raise RuntimeError(f"the scenario has no {criterion.metric} (a resolved pack's metric, or none counted)")
         value = float(row[criterion.metric])
         # a run stopped by a limit does not pass, whatever its metric says
         return criterion.margin(value) if row.get("completed") else abs(criterion.margin(value)) + 1.0
