@@ -89,10 +89,15 @@ def test_the_solo_summary_is_mission_metrics_of_its_rows():
     data = scenario(segments=[{"mode": "current", "value": "20 A", "duration": "120 s"}])
     result = thermoelec.simulate(data)
     s = result.series
+    discharging = s["current_A"] > 0
     extremes = Extremes(s["cell_temperature_degC"].max() + 273.15, s["sink_temperature_degC"].max() + 273.15,
                         s["voltage_V"].min(), s["cell_voltage_V"].min(), np.abs(s["current_A"]).max(),
                         result.summary["equivalent_time_at_reference_s"], s["cell_voltage_V"].max(),
-                        s["power_W"].max(), result.summary["time_charging_below_limit_s"])
+                        s["power_W"].max(), result.summary["time_charging_below_limit_s"],
+                        # one cell, no limits set, never charging, no derating
+                        cell_discharge_current_max=max(s["current_A"].max(), 0.0),
+                        charge_power_max=max(-s["power_W"].min(), 0.0),
+                        discharging_temperature_min=s["cell_temperature_degC"][discharging].min() + 273.15)
     again = mission_metrics(thermoelec.scenario_from_dict(data).problem(), result.states[0], result.states[-1],
                             extremes, s["time_s"][-1], result.stop_reason)
     for key in METRICS:

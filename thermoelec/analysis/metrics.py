@@ -51,6 +51,14 @@ METRICS: tuple[str, ...] = (
     "efficiency", "efficiency_discharge", "efficiency_charge", "efficiency_round_trip",
     "charge_throughput_Ah", "soc_end", "voltage_margin_min_V", "voltage_margin_max_V", "temperature_margin_K",
     "time_charging_below_limit_s", "equivalent_time_at_reference_s",
+    # the demand and the BMS's derating (0 without derating)
+    "energy_demanded_Wh", "energy_not_delivered_Wh", "energy_not_accepted_Wh", "time_derated_s",
+    "power_shortfall_max_W",
+    # the limits of the pack specification: worst values, and margins (None where a limit is not set)
+    "cell_discharge_current_max_A", "cell_charge_current_max_A", "charge_power_max_W",
+    "cell_temperature_min_discharging_degC", "cell_temperature_max_charging_degC",
+    "discharge_current_margin_A", "charge_current_margin_A", "discharge_power_margin_W", "charge_power_margin_W",
+    "discharge_temperature_margin_K", "charge_temperature_margin_K", "sink_temperature_margin_K",
 )
 #: The metrics a resolved pack adds (``pack.model = "resolved"``): the largest difference between the
 #: hottest and the coldest cell and when, the SoC spread at the end, the largest current of a cell over
@@ -141,6 +149,22 @@ class Extremes:
         The cell that reached the highest temperature, from 0 [-].
     hottest_time : float
         When it did [s].
+    cell_discharge_current_max, cell_charge_current_max : float
+        Largest discharge current of a cell, largest charge current of a cell (a magnitude) [A].
+    charge_power_max : float
+        Largest power into the terminals while charging (a magnitude) [W].
+    discharge_current_margin, charge_current_margin : float
+        Least margin to the cell current limits [A] (``inf`` without one).
+    discharge_power_margin, charge_power_margin : float
+        Least margin to the pack power limits [W] (``inf`` without one).
+    discharging_temperature_min : float
+        The coldest cell while the pack discharged [K] (``inf`` if it never did).
+    charging_temperature_max : float
+        The hottest cell while the pack charged [K] (``-inf`` if it never did).
+    derated_time : float
+        Time the delivered current differed from the demand's [s], the crossings interpolated.
+    shortfall_max : float
+        Largest difference between the demanded and the delivered power [W].
     """
 
     cell_temperature_max: float
@@ -157,6 +181,17 @@ class Extremes:
     current_share_max: float = 1.0
     hottest_cell: float = 0.0
     hottest_time: float = 0.0
+    cell_discharge_current_max: float = 0.0
+    cell_charge_current_max: float = 0.0
+    charge_power_max: float = 0.0
+    discharge_current_margin: float = math.inf
+    charge_current_margin: float = math.inf
+    discharge_power_margin: float = math.inf
+    charge_power_margin: float = math.inf
+    discharging_temperature_min: float = math.inf
+    charging_temperature_max: float = -math.inf
+    derated_time: float = 0.0
+    shortfall_max: float = 0.0
 
     @classmethod
     def from_batch(cls, extras: np.ndarray) -> Extremes:
@@ -251,7 +286,7 @@ def efficiencies(q: np.ndarray) -> dict[str, float | None]:
     }
 
 
-def pack_limits(problem: Problem) -> dict[str, float]:
+def pack_limits(problem: Problem) -> dict[str, Any]:
     """Pack-level limits and layout, for the verdict, plots and reports.
 
     Parameters
@@ -264,20 +299,39 @@ def pack_limits(problem: Problem) -> dict[str, float]:
     dict of str to float
         ``voltage_min_V`` and ``voltage_max_V`` (pack, Ns times the cell's) [V], the cell's
         ``cell_voltage_min_V`` and ``cell_voltage_max_V`` [V], ``cell_temperature_max_degC`` and
-        ``charge_temperature_min_degC`` [degC], ``series`` and ``parallel`` [-], ``capacity_Ah`` of a cell [Ah].
+        ``charge_temperature_min_degC`` [degC], ``series`` and ``parallel`` [-], ``capacity_Ah`` of a cell [Ah];
+        and for each limit of the pack specification that is set, its key with the value of a constant (None for
+        a table: ``discharge_current_max_A``, ``charge_current_max_A`` per cell [A], ``discharge_power_max_W``,
+        ``charge_power_max_W`` [W], ``discharge_temperature_min_degC``, ``charge_temperature_max_degC``,
+        ``sink_temperature_max_degC`` [degC]); ``derating`` (True) with a BMS's derating.
     """
-    ns, cell = problem.pack.series, problem.cell
-    return {
+    ns, cell, lim = problem.pack.series, problem.cell, problem.limits
+    limits: dict[str, Any] = {
         "voltage_min_V": ns * cell.voltage_min,
         "voltage_max_V": ns * cell.voltage_max,
         "cell_voltage_min_V": cell.voltage_min,
         "cell_voltage_max_V": cell.voltage_max,
-        "cell_temperature_max_degC": float(problem.limits.cell_temperature_max - ZERO_CELSIUS),
-        "charge_temperature_min_degC": float(problem.limits.charge_temperature_min - ZERO_CELSIUS),
+        "cell_temperature_max_degC": float(lim.cell_temperature_max - ZERO_CELSIUS),
+        "charge_temperature_min_degC": float(lim.charge_temperature_min - ZERO_CELSIUS),
         "series": ns,
         "parallel": problem.pack.parallel,
         "capacity_Ah": cell.capacity / COULOMBS_PER_AH,
     }
+    # the limits of the pack specification that are set: a constant's value, None for a table
+    for key, table in (("discharge_current_max_A", lim.discharge_current_max),
+                       ("charge_current_max_A", lim.charge_current_max),
+                       ("discharge_power_max_W", lim.discharge_power_max),
+                       ("charge_power_max_W", lim.charge_power_max)):
+        if table is not None:
+            limits[key] = table.values[0] if table.is_constant else None
+    for key, temperature in (("discharge_temperature_min_degC", lim.discharge_temperature_min),
+                             ("charge_temperature_max_degC", lim.charge_temperature_max),
+                             ("sink_temperature_max_degC", lim.sink_temperature_max)):
+        if temperature is not None:
+            limits[key] = float(temperature - ZERO_CELSIUS)
+    if problem.derating is not None:
+        limits["derating"] = True
+    return limits
 
 
 def mission_metrics(problem: Problem, start: np.ndarray, end: np.ndarray, extremes: Extremes, duration: float,
@@ -343,22 +397,68 @@ def mission_metrics(problem: Problem, start: np.ndarray, end: np.ndarray, extrem
         "temperature_margin_K": float(problem.limits.cell_temperature_max - extremes.cell_temperature_max),
         "time_charging_below_limit_s": float(extremes.cold_charging_time) + 0.0,
         "equivalent_time_at_reference_s": float(extremes.equivalent_time_at_reference),
+        **_demand_metrics(q, extremes),
+        **_limit_metrics(problem, extremes),
     }
     checks = limit_checks({**row, "stop_reason": stop_reason}, pack_limits(problem))
     row["verdict"] = verdict(checks)
     row["failed_checks"] = ",".join(failed_checks(checks))
     if problem.resolved is not None:
-        row.update({
-            "cell_temperature_spread_max_K": float(extremes.cell_temperature_spread_max),
-            "cell_temperature_spread_time_s": float(extremes.cell_temperature_spread_time),
-            "soc_spread_end": soc_spread,
-            # no share is counted while the group's mean cell current is below C/5 (physics.pack)
-            "current_share_max": float(extremes.current_share_max) if extremes.current_share_max > 0 else None,
-            "hottest_cell": int(extremes.hottest_cell) + 1,
-            "hottest_cell_time_s": float(extremes.hottest_time),
-            "first_limit_cell": None if stop_cell is None or stop_cell < 0 else int(stop_cell) + 1,
-        })
+        row.update(_pack_metrics(extremes, soc_spread, stop_cell))
     return row
+
+
+def _pack_metrics(extremes: Extremes, soc_spread: float, stop_cell: int | None) -> dict[str, Any]:
+    """The :data:`PACK_METRICS` of a resolved pack (cells numbered from 1)."""
+    return {
+        "cell_temperature_spread_max_K": float(extremes.cell_temperature_spread_max),
+        "cell_temperature_spread_time_s": float(extremes.cell_temperature_spread_time),
+        "soc_spread_end": soc_spread,
+        # no share is counted while the group's mean cell current is below C/5 (physics.pack)
+        "current_share_max": float(extremes.current_share_max) if extremes.current_share_max > 0 else None,
+        "hottest_cell": int(extremes.hottest_cell) + 1,
+        "hottest_cell_time_s": float(extremes.hottest_time),
+        "first_limit_cell": None if stop_cell is None or stop_cell < 0 else int(stop_cell) + 1,
+    }
+
+
+def _demand_metrics(q: np.ndarray, extremes: Extremes) -> dict[str, float]:
+    """What the demand asked and what the BMS's derating withheld (all zero without derating)."""
+    return {
+        "energy_demanded_Wh": _wh(q[L.Q_DEMAND_DISCHARGE]),
+        "energy_not_delivered_Wh": _wh(q[L.Q_SHORTFALL_DISCHARGE]),
+        "energy_not_accepted_Wh": _wh(q[L.Q_SHORTFALL_CHARGE]),
+        "time_derated_s": float(extremes.derated_time) + 0.0,
+        "power_shortfall_max_W": float(extremes.shortfall_max) + 0.0,
+    }
+
+
+def _limit_metrics(problem: Problem, extremes: Extremes) -> dict[str, float | None]:
+    """The worst values against the limits of the pack specification, and the margins to those set (else None)."""
+    lim = problem.limits
+
+    def margin(limit: Any, value: float) -> float | None:
+        return finite_or_none(value) if limit is not None else None
+
+    cold = finite_or_none(extremes.discharging_temperature_min - ZERO_CELSIUS)
+    hot = finite_or_none(extremes.charging_temperature_max - ZERO_CELSIUS)
+    return {
+        "cell_discharge_current_max_A": float(extremes.cell_discharge_current_max) + 0.0,
+        "cell_charge_current_max_A": float(extremes.cell_charge_current_max) + 0.0,
+        "charge_power_max_W": float(extremes.charge_power_max) + 0.0,
+        "cell_temperature_min_discharging_degC": cold,
+        "cell_temperature_max_charging_degC": hot,
+        "discharge_current_margin_A": margin(lim.discharge_current_max, extremes.discharge_current_margin),
+        "charge_current_margin_A": margin(lim.charge_current_max, extremes.charge_current_margin),
+        "discharge_power_margin_W": margin(lim.discharge_power_max, extremes.discharge_power_margin),
+        "charge_power_margin_W": margin(lim.charge_power_max, extremes.charge_power_margin),
+        "discharge_temperature_margin_K": None if lim.discharge_temperature_min is None or cold is None
+        else float(extremes.discharging_temperature_min - lim.discharge_temperature_min),
+        "charge_temperature_margin_K": None if lim.charge_temperature_max is None or hot is None
+        else float(lim.charge_temperature_max - extremes.charging_temperature_max),
+        "sink_temperature_margin_K": None if lim.sink_temperature_max is None
+        else float(lim.sink_temperature_max - extremes.sink_temperature_max),
+    }
 
 
 def batch_metrics(problem: Problem, outcome: BatchOutcome, i: int) -> dict[str, Any]:

@@ -20,6 +20,7 @@ as accurate as the states themselves and independent of the output interval.
 from __future__ import annotations
 
 import json
+import math
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -33,13 +34,21 @@ from thermoelec.analysis.stops import explain_stop
 from thermoelec.analysis.verdict import limit_checks
 from thermoelec.engine import layout as L
 from thermoelec.engine.driver import Trajectory
-from thermoelec.engine.events import CCCV_CAP_EVENT, CONTROL_EVENTS, EVENT_NAMES
+from thermoelec.engine.events import (
+    CCCV_CAP_EVENT,
+    CONTROL_EVENTS,
+    EV_HOLD_MAX,
+    EV_HOLD_MIN,
+    EV_HOLD_RELEASE,
+    EVENT_NAMES,
+)
 from thermoelec.engine.options import SolverOptions
 from thermoelec.engine.problem import Problem
 from thermoelec.physics.constants import JOULES_PER_WH, ZERO_CELSIUS
 from thermoelec.physics.loads import LOAD_MODES, MODE_CURRENT
 
-__all__ = ["CCCV_MODE", "DEMAND_MODES", "ENERGY_KEYS", "ENERGY_ROWS", "NET_ENERGY_ROWS", "REST_MODE", "SERIES_UNITS",
+__all__ = ["CCCV_MODE", "DEMAND_MODES", "DERATING_ROWS", "ENERGY_KEYS", "ENERGY_ROWS", "LIMIT_KEYS",
+           "NET_ENERGY_ROWS", "REST_MODE", "SERIES_UNITS",
            "THERMOSTAT_EVENTS", "SimulationResult",
            "build_result", "charger_segments"]
 
@@ -67,6 +76,8 @@ SERIES_UNITS: dict[str, str] = {
     "sink_to_air_conductance_W_per_K": "W/K",
     "reynolds_number": "1",
     "rayleigh_number": "1",
+    "power_demanded_W": "W",
+    "current_demanded_A": "A",
     **{k: unit for k, (unit, _) in pack_cells.PACK_SERIES_UNITS.items()},
 }
 SERIES_DESCRIPTIONS: dict[str, str] = {
@@ -92,6 +103,8 @@ SERIES_DESCRIPTIONS: dict[str, str] = {
     "sink_to_air_conductance_W_per_K": "sink-to-air convective conductance h*A (with a running fan)",
     "reynolds_number": "Reynolds number of the air flow over the sink (convection correlations only)",
     "rayleigh_number": "Rayleigh number of free convection at the sink (convection correlations only)",
+    "power_demanded_W": "power the demand asks at the terminals (power_W is what the derated pack delivers)",
+    "current_demanded_A": "pack current the demand asks (current_A is what the derated pack delivers)",
     **{k: meaning for k, (_, meaning) in pack_cells.PACK_SERIES_UNITS.items()},
 }
 
@@ -284,13 +297,17 @@ def build_result(problem: Problem, trajectory: Trajectory, options: SolverOption
     if problem.thermal.convection is not None:
         series["reynolds_number"] = alg[:, L.A_REYNOLDS]
         series["rayleigh_number"] = alg[:, L.A_RAYLEIGH]
+    if problem.derating is not None:  # the demand against what the derated pack delivers
+        series["power_demanded_W"] = alg[:, L.A_POWER_DEMANDED]
+        series["current_demanded_A"] = alg[:, L.A_CURRENT_DEMANDED]
     cells = coords = None
     if problem.resolved is not None:
         series.update(pack_cells.pack_series(alg))
         cells, coords = pack_cells.cell_series(problem, trajectory), pack_cells.cell_coordinates(problem)
     limits = pack_limits(problem)
     temperatures = _Temperatures(tc, alg[:, L.A_TEMPERATURE_LOW], ts)
-    summary = _summary(problem, trajectory, series, states, temperatures, options.output_interval, limits, cells)
+    summary = _summary(problem, trajectory, series, states, temperatures, options.output_interval, limits, cells,
+                       alg)
     stats = dict(trajectory.statistics)
     stats["wall_time_s"] = trajectory.wall_time
     codes = trajectory.demand_modes
@@ -383,7 +400,7 @@ def _soak_summary(problem: Problem, soak: Trajectory | None) -> dict[str, Any] |
 
 def _summary(problem: Problem, trajectory: Trajectory, series: dict[str, np.ndarray], states: np.ndarray,
              temperatures: _Temperatures, output_interval: float, limits: dict[str, float],
-             cells: dict[str, np.ndarray] | None) -> dict[str, Any]:
+             cells: dict[str, np.ndarray] | None, alg: np.ndarray) -> dict[str, Any]:
     """The summary of a solo run: :func:`mission_metrics` from the output rows, and what only a solo run has."""
     tc = temperatures.hottest
     times, current = series["time_s"], series["current_A"]
@@ -392,7 +409,7 @@ def _summary(problem: Problem, trajectory: Trajectory, series: dict[str, np.ndar
     stop = pack_cells.stop_event(trajectory) if cells is not None else None
     stop_cell = None if stop is None else stop["cell"]
     shared = mission_metrics(problem, states[0], states[-1],
-                             _row_extremes(series, temperatures, stress, cold_time, cells), float(times[-1]),
+                             _row_extremes(series, temperatures, stress, cold_time, cells, alg), float(times[-1]),
                              trajectory.stop_reason, trajectory.status, stop_cell=stop_cell)
     biot, biot_warnings = diagnostics.biot_check(problem)
     warnings = _warnings(problem, trajectory, series, states, temperatures, cold_time) + biot_warnings \
@@ -406,6 +423,8 @@ def _summary(problem: Problem, trajectory: Trajectory, series: dict[str, np.ndar
         "stop_explanation": explain_stop(problem, trajectory.stop_reason, trajectory.message, trajectory.events,
                                          series, trajectory.row_segments),
         **_energy_summary(problem, shared, trajectory, states, series),
+        **_derating_summary(problem, shared, trajectory),
+        **{key: shared[key] for key in LIMIT_KEYS},
         "soc_start": float(series["soc"][0]),
         "soc_end": shared["soc_end"],
         "time_charging_below_limit_s": shared["time_charging_below_limit_s"],
@@ -431,8 +450,29 @@ def _event(problem: Problem, event: dict[str, Any]) -> dict[str, Any]:
             **({"cell": event["cell"] + 1} if "cell" in event else {})}
 
 
+def _limit_extremes(times: np.ndarray, alg: np.ndarray) -> dict[str, float]:
+    """The extremes against the pack specification's limits and the derating, over the output rows of a solo run."""
+    current, power = alg[:, L.A_CURRENT], alg[:, L.A_VOLTAGE] * alg[:, L.A_CURRENT]
+    discharging, charging = current > 0.0, current < 0.0
+    return {
+        "cell_discharge_current_max": max(float(alg[:, L.A_CELL_CURRENT_HIGH].max()), 0.0),
+        "cell_charge_current_max": max(-float(alg[:, L.A_CELL_CURRENT_LOW].min()), 0.0),
+        "charge_power_max": max(-float(power.min()), 0.0),
+        "discharge_current_margin": float(alg[:, L.A_MARGIN_DISCHARGE_CURRENT].min()),
+        "charge_current_margin": float(alg[:, L.A_MARGIN_CHARGE_CURRENT].min()),
+        "discharge_power_margin": float(alg[:, L.A_MARGIN_DISCHARGE_POWER].min()),
+        "charge_power_margin": float(alg[:, L.A_MARGIN_CHARGE_POWER].min()),
+        "discharging_temperature_min": float(alg[discharging, L.A_TEMPERATURE_LOW].min()) if discharging.any()
+        else math.inf,
+        "charging_temperature_max": float(alg[charging, L.A_TEMPERATURE_HIGH].max()) if charging.any() else -math.inf,
+        # derated where the delivered current is not the demand's (it is the demand's exactly where not derated)
+        "derated_time": diagnostics.time_above(times, np.abs(alg[:, L.A_CURRENT_DEMANDED] - current), 0.0),
+        "shortfall_max": float(np.abs(alg[:, L.A_POWER_DEMANDED] - power).max()),
+    }
+
+
 def _row_extremes(series: dict[str, np.ndarray], temperatures: _Temperatures, stress: dict[str, Any],
-                  cold_time: float, cells: dict[str, np.ndarray] | None) -> Extremes:
+                  cold_time: float, cells: dict[str, np.ndarray] | None, alg: np.ndarray) -> Extremes:
     """The running extremes of a solo run, over its output rows (the Arrhenius time of ``stress``)."""
     return Extremes(
         cell_temperature_max=temperatures.hottest.max(),
@@ -445,6 +485,7 @@ def _row_extremes(series: dict[str, np.ndarray], temperatures: _Temperatures, st
         power_max=series["power_W"].max(),
         cold_charging_time=cold_time,
         **(pack_cells.row_extremes(series, cells) if cells is not None else {}),
+        **_limit_extremes(series["time_s"], alg),
     )
 
 
@@ -503,6 +544,45 @@ ENERGY_KEYS: tuple[str, ...] = (
     "energy_dissipated_charge_Wh",
     "energy_battery_Wh", "energy_load_Wh", "energy_dissipated_Wh",
 )
+
+
+#: What the BMS's derating cost the mission, as every table names it: label, key, unit.
+DERATING_ROWS: tuple[tuple[str, str, str], ...] = (
+    ("energy demanded (discharge)", "energy_demanded_Wh", "Wh"),
+    ("energy not delivered", "energy_not_delivered_Wh", "Wh"),
+    ("energy not accepted (charge refused)", "energy_not_accepted_Wh", "Wh"),
+    ("time derated", "time_derated_s", "s"),
+    ("  of it held at a voltage limit", "time_voltage_held_s", "s"),
+    ("largest shortfall", "power_shortfall_max_W", "W"),
+)
+#: The summary keys of the pack specification's limits: the worst values, and the margins (None where not set).
+LIMIT_KEYS: tuple[str, ...] = (
+    "cell_discharge_current_max_A", "cell_charge_current_max_A", "charge_power_max_W",
+    "cell_temperature_min_discharging_degC", "cell_temperature_max_charging_degC",
+    "discharge_current_margin_A", "charge_current_margin_A", "discharge_power_margin_W", "charge_power_margin_W",
+    "discharge_temperature_margin_K", "charge_temperature_margin_K", "sink_temperature_margin_K",
+)
+
+
+def _held_time(trajectory: Trajectory) -> float:
+    """Time the voltage limiter held the cells at a voltage limit [s]: from each hold to its release or the end."""
+    held, since = 0.0, None
+    for event in trajectory.events:
+        if event["event"] in (EVENT_NAMES[EV_HOLD_MIN], EVENT_NAMES[EV_HOLD_MAX]) and since is None:
+            since = event["time_s"]
+        elif event["event"] == EVENT_NAMES[EV_HOLD_RELEASE] and since is not None:
+            held, since = held + event["time_s"] - since, None
+    if since is not None and len(trajectory.times):
+        held += float(trajectory.times[-1]) - since
+    return held + 0.0
+
+
+def _derating_summary(problem: Problem, shared: dict[str, Any], trajectory: Trajectory) -> dict[str, Any]:
+    """Whether the BMS derated, what the demand asked and what the derating withheld (zero without derating)."""
+    row: dict[str, Any] = {"derating": problem.derating is not None}
+    for _, key, _ in DERATING_ROWS:
+        row[key] = _held_time(trajectory) if key == "time_voltage_held_s" else shared[key]
+    return row
 
 
 def _energy_summary(problem: Problem, shared: dict[str, Any], trajectory: Trajectory, states: np.ndarray,

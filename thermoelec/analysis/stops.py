@@ -1,6 +1,7 @@
 """Why a mission stopped, in words: which demand could not be met, where, and why at that state.
 
-Owns :func:`explain_stop`, the ``stop_explanation`` of a summary: the segment
+Owns :func:`explain_stop`, the ``stop_explanation`` of a summary (and
+:data:`STOP_EXPLANATIONS`, the reason of each stop reason): the segment
 (its dotted key and name), its demand, the time, the state (SoC, cell
 temperature) and the physical reason read from the pack as a source ``E``
 behind ``R`` at the stop — above the maximum-power point ``E²/(4R)`` (maximum
@@ -13,7 +14,7 @@ the command line.
 
 from __future__ import annotations
 
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from typing import Any
 
 import numpy as np
@@ -24,7 +25,7 @@ from thermoelec.engine.profile import Segment
 from thermoelec.physics.constants import ZERO_CELSIUS
 from thermoelec.physics.loads import LOAD_MODES, maximum_power
 
-__all__ = ["describe_segment", "explain_stop"]
+__all__ = ["STOP_EXPLANATIONS", "describe_segment", "explain_stop"]
 
 #: The stop event names of each stop reason, from the event registry.
 _STOP_NAMES: dict[str, frozenset[str]] = {}
@@ -67,37 +68,121 @@ def _voltage_limited_power(problem: Problem, emf: float, resistance: float) -> f
     return float(current * (emf - current * resistance))
 
 
-def _reason(problem: Problem, stop_reason: str, segment: Segment, series: Mapping[str, np.ndarray]) -> str:
-    """The physical reason of a limit stop at the last row."""
+def _source(series: Mapping[str, np.ndarray]) -> tuple[float, float, str]:
     emf, resistance = float(series["pack_emf_V"][-1]), float(series["pack_resistance_ohm"][-1])
+    return emf, resistance, f"the pack is a source of {emf:.4g} V behind {resistance:.4g} ohm"
+
+
+def _power_limit(problem: Problem, segment: Segment, series: Mapping[str, np.ndarray]) -> str:
+    emf, resistance, source = _source(series)
+    return (f"{source}, so it can deliver at most E^2/(4R) = {maximum_power(emf, resistance):.4g} W: "
+            f"the demand of {segment.value:.4g} W lies beyond the maximum-power point")
+
+
+def _voltage_min(problem: Problem, segment: Segment, series: Mapping[str, np.ndarray]) -> str:
+    emf, resistance, source = _source(series)
     cell = problem.cell
-    source = f"the pack is a source of {emf:.4g} V behind {resistance:.4g} ohm"
-    if stop_reason == "power_limit":
-        return (f"{source}, so it can deliver at most E^2/(4R) = {maximum_power(emf, resistance):.4g} W: "
-                f"the demand of {segment.value:.4g} W lies beyond the maximum-power point")
-    if stop_reason == "voltage_min":
-        v_cell = float(series["cell_voltage_V"][-1])
-        level = (f"is {v_cell:.4g} V, below voltage_min ({cell.voltage_min:.4g} V),"
-                 if v_cell < cell.voltage_min - 1e-6 else f"fell to voltage_min ({cell.voltage_min:.4g} V)")
-        text = f"each cell's terminal voltage {level} at {series['current_A'][-1]:.4g} A"
-        limited = _voltage_limited_power(problem, emf, resistance)
-        if segment.mode == "power" and limited is not None:
-            text += (f"; {source}, so with its cells at voltage_min it delivers at most {limited:.4g} W, "
-                     f"less than the {segment.value:.4g} W demanded")
-        else:
-            text += f"; {source}, and the demand's I R drop takes the cells below their limit"
-        return text
-    if stop_reason == "voltage_max":
-        return (f"each cell's terminal voltage rose to voltage_max ({cell.voltage_max:.4g} V) at "
-                f"{series['current_A'][-1]:.4g} A: the charge (or regeneration) pushes the cells above their "
-                "limit at that state")
-    if stop_reason == "temperature_max":
-        limit = problem.limits.cell_temperature_max - ZERO_CELSIUS
-        return f"the cell temperature reached cell_temperature_max ({limit:.4g} degC): the heat outran the cooling"
-    if stop_reason == "soc_limit":
-        full = series["soc"][-1] >= 0.5
-        return "the state of charge reached 1 (full)" if full else "the state of charge reached 0 (empty)"
-    return stop_reason
+    v_cell = float(series["cell_voltage_V"][-1])
+    level = (f"is {v_cell:.4g} V, below voltage_min ({cell.voltage_min:.4g} V),"
+             if v_cell < cell.voltage_min - 1e-6 else f"fell to voltage_min ({cell.voltage_min:.4g} V)")
+    text = f"each cell's terminal voltage {level} at {series['current_A'][-1]:.4g} A"
+    limited = _voltage_limited_power(problem, emf, resistance)
+    if segment.mode == "power" and limited is not None:
+        return text + (f"; {source}, so with its cells at voltage_min it delivers at most {limited:.4g} W, "
+                       f"less than the {segment.value:.4g} W demanded")
+    return text + f"; {source}, and the demand's I R drop takes the cells below their limit"
+
+
+def _voltage_max(problem: Problem, segment: Segment, series: Mapping[str, np.ndarray]) -> str:
+    return (f"each cell's terminal voltage rose to voltage_max ({problem.cell.voltage_max:.4g} V) at "
+            f"{series['current_A'][-1]:.4g} A: the charge (or regeneration) pushes the cells above their limit at "
+            "that state")
+
+
+def _temperature_max(problem: Problem, segment: Segment, series: Mapping[str, np.ndarray]) -> str:
+    limit = problem.limits.cell_temperature_max - ZERO_CELSIUS
+    return f"the cell temperature reached cell_temperature_max ({limit:.4g} degC): the heat outran the cooling"
+
+
+def _soc_limit(problem: Problem, segment: Segment, series: Mapping[str, np.ndarray]) -> str:
+    full = series["soc"][-1] >= 0.5
+    return "the state of charge reached 1 (full)" if full else "the state of charge reached 0 (empty)"
+
+
+def _at_stop(problem: Problem, series: Mapping[str, np.ndarray], table: Any) -> str:
+    """A limit table's value at the stop (at the SoC and the hottest cell's temperature)."""
+    if table.is_constant:
+        return f"{table.values[0]:.4g}"
+    soc, temperature = float(series["soc"][-1]), float(series["cell_temperature_degC"][-1]) + ZERO_CELSIUS
+    return f"{table(soc, temperature):.4g} (its table at SoC {soc:.3f}, {temperature - ZERO_CELSIUS:.1f} degC)"
+
+
+def _cell_current(problem: Problem, segment: Segment, series: Mapping[str, np.ndarray], direction: str) -> str:
+    table = getattr(problem.limits, f"{direction}_current_max")
+    cell = abs(float(series["current_A"][-1])) / problem.pack.parallel
+    which = "the cell nearest its limit (first_limit_cell)" if problem.resolved is not None else "each cell"
+    return (f"{which} reached {direction}_current_max, {_at_stop(problem, series, table)} A (a cell's mean share "
+            f"is {cell:.4g} A): the demand asks more {direction} current than the cells are specified for there")
+
+
+def _pack_power(problem: Problem, segment: Segment, series: Mapping[str, np.ndarray], direction: str) -> str:
+    table = getattr(problem.limits, f"{direction}_power_max")
+    power = abs(float(series["power_W"][-1]))
+    return (f"the {'power to the load' if direction == 'discharge' else 'charging power'} of {power:.4g} W "
+            f"reached {direction}_power_max, {_at_stop(problem, series, table)} W")
+
+
+def _discharge_temperature(problem: Problem, segment: Segment, series: Mapping[str, np.ndarray]) -> str:
+    limit = problem.limits.discharge_temperature_min - ZERO_CELSIUS
+    coldest = series.get("cell_temperature_min_degC", series["cell_temperature_degC"])
+    return (f"the coldest cell was at {float(coldest[-1]):.4g} degC, at or below discharge_temperature_min "
+            f"({limit:.4g} degC), as the pack was to discharge: warm it first (a soak, a heater)")
+
+
+def _charge_temperature(problem: Problem, segment: Segment, series: Mapping[str, np.ndarray]) -> str:
+    limit = problem.limits.charge_temperature_max - ZERO_CELSIUS
+    return (f"the hottest cell reached charge_temperature_max ({limit:.4g} degC) while the pack charged: let it "
+            "cool before charging, or charge slower")
+
+
+def _sink_temperature(problem: Problem, segment: Segment, series: Mapping[str, np.ndarray]) -> str:
+    limit = problem.limits.sink_temperature_max - ZERO_CELSIUS
+    return f"the sink (housing) reached sink_temperature_max ({limit:.4g} degC): the heat outran its cooling"
+
+
+def _nothing_deliverable(problem: Problem, segment: Segment, series: Mapping[str, np.ndarray]) -> str:
+    derating = problem.derating
+    current = float(series["current_A"][-1])
+    cutoff = derating.cutoff_current * problem.pack.parallel
+    asked = float(series.get("current_demanded_A", series["current_A"])[-1])
+    held = " with the cells held at voltage_min by the voltage limiter" if derating.voltage_limiter else ""
+    return (f"under the BMS's derating{held} the pack could deliver only {current:.4g} A, at or below its cutoff "
+            f"({cutoff:.4g} A), while {asked:.4g} A was demanded: nothing deliverable at SoC "
+            f"{float(series['soc'][-1]):.3f} (the charge left is out of reach at this demand and temperature)")
+
+
+#: The physical reason of each limit stop, by stop reason: ``reason(problem, segment, series) -> str`` at the last row.
+STOP_EXPLANATIONS: dict[str, Callable[[Problem, Segment, Mapping[str, np.ndarray]], str]] = {
+    "voltage_min": _voltage_min,
+    "voltage_max": _voltage_max,
+    "power_limit": _power_limit,
+    "temperature_max": _temperature_max,
+    "soc_limit": _soc_limit,
+    "discharge_current_max": lambda pb, seg, s: _cell_current(pb, seg, s, "discharge"),
+    "charge_current_max": lambda pb, seg, s: _cell_current(pb, seg, s, "charge"),
+    "discharge_power_max": lambda pb, seg, s: _pack_power(pb, seg, s, "discharge"),
+    "charge_power_max": lambda pb, seg, s: _pack_power(pb, seg, s, "charge"),
+    "discharge_temperature_min": _discharge_temperature,
+    "charge_temperature_max": _charge_temperature,
+    "sink_temperature_max": _sink_temperature,
+    "nothing_deliverable": _nothing_deliverable,
+}
+
+
+def _reason(problem: Problem, stop_reason: str, segment: Segment, series: Mapping[str, np.ndarray]) -> str:
+    """The physical reason of a limit stop at the last row (:data:`STOP_EXPLANATIONS`)."""
+    explain = STOP_EXPLANATIONS.get(stop_reason)
+    return explain(problem, segment, series) if explain is not None else stop_reason
 
 
 def explain_stop(problem: Problem, stop_reason: str, message: str, events: Sequence[Mapping[str, Any]],

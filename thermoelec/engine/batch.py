@@ -55,11 +55,13 @@ import numpy as np
 from thermoelec.engine import layout as L
 from thermoelec.engine import model as m
 from thermoelec.engine.events import (
+    ACTION_HOLD,
     ACTION_NEXT_PHASE,
     ACTION_STOP,
     ACTION_TOGGLE,
     EV_FAN,
     EVENT_ACTION,
+    EVENT_HOLD,
     EVENT_SCALES,
     N_EVENTS,
     STOP_EVENTS,
@@ -100,21 +102,30 @@ _ORDER_EXPONENT = -1.0 / 3.0
 # per-scenario running extremes and integrals written by the kernel (what the sweep metrics and verdict need)
 X_TC_MAX, X_TS_MAX, X_V_MIN, X_VCELL_MIN, X_I_ABS, X_ARRHENIUS, X_VCELL_MAX, X_P_MAX, X_COLD_CHARGE = \
     0, 1, 2, 3, 4, 5, 6, 7, 8
-X_SPREAD, X_SPREAD_TIME, X_SHARE, X_HOT_CELL, X_HOT_TIME, N_EXTRA = 9, 10, 11, 12, 13, 14
+X_SPREAD, X_SPREAD_TIME, X_SHARE, X_HOT_CELL, X_HOT_TIME = 9, 10, 11, 12, 13
+(X_I_DISCHARGE, X_I_CHARGE, X_P_CHARGE, X_M_DISCHARGE_I, X_M_CHARGE_I, X_M_DISCHARGE_P, X_M_CHARGE_P,
+ X_T_DISCHARGING, X_T_CHARGING, X_DERATED, X_SHORTFALL, N_EXTRA) = range(14, 26)
 #: The names of the extremes, by index: highest cell and sink temperature [K], lowest pack and cell
 #: voltage [V], largest current magnitude [A], Arrhenius-weighted time at the reference temperature [s]
 #: (of the hottest cell), highest cell voltage [V], highest power to the load [W], time charging below
 #: the charge temperature limit [s] (of the coldest cell; the crossing interpolated within a step, as over
 #: the output rows of a solo run); the largest difference between the hottest and the coldest cell [K]
 #: and when [s], the largest current share of a cell [-], the cell that reached the highest temperature
-#: (from 0) [-] and when [s] (0, 0, 1, 0 and the time of the peak for a lumped pack).
+#: (from 0) [-] and when [s] (0, 0, 1, 0 and the time of the peak for a lumped pack); against the limits of
+#: the pack specification the largest cell discharge and charge currents [A], the largest charging power [W],
+#: the least margins to the cell current limits [A] and the pack power limits [W], the coldest cell while
+#: discharging and the hottest while charging [K]; the time derated [s] (the crossings interpolated within a
+#: step) and the largest shortfall of the delivered power [W].
 EXTREMES = ("cell_temperature_max", "sink_temperature_max", "voltage_min", "cell_voltage_min", "current_abs_max",
             "equivalent_time_at_reference", "cell_voltage_max", "power_max", "cold_charging_time",
             "cell_temperature_spread_max", "cell_temperature_spread_time", "current_share_max", "hottest_cell",
-            "hottest_time")
+            "hottest_time", "cell_discharge_current_max", "cell_charge_current_max", "charge_power_max",
+            "discharge_current_margin", "charge_current_margin", "discharge_power_margin", "charge_power_margin",
+            "discharging_temperature_min", "charging_temperature_max", "derated_time", "shortfall_max")
 #: Their values before the first observation.
 _EXTRA_START = np.array([-np.inf, -np.inf, np.inf, np.inf, 0.0, 0.0, -np.inf, -np.inf, 0.0,
-                         0.0, 0.0, 0.0, 0.0, 0.0])
+                         0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, np.inf, np.inf, np.inf, np.inf, np.inf, -np.inf,
+                         0.0, 0.0])
 
 
 @numba.njit(cache=True, error_model="numpy")
@@ -169,7 +180,38 @@ def _observe(y, alg, extra, t, ts_index):
     extra[X_VCELL_MIN] = min(extra[X_VCELL_MIN], alg[L.A_CELL_VOLTAGE])
     extra[X_I_ABS] = max(extra[X_I_ABS], abs(alg[L.A_CURRENT]))
     extra[X_VCELL_MAX] = max(extra[X_VCELL_MAX], alg[L.A_CELL_VOLTAGE_HIGH])
-    extra[X_P_MAX] = max(extra[X_P_MAX], alg[L.A_VOLTAGE] * alg[L.A_CURRENT])
+    power = alg[L.A_VOLTAGE] * alg[L.A_CURRENT]
+    extra[X_P_MAX] = max(extra[X_P_MAX], power)
+    # the limits of the pack specification and the derating
+    extra[X_I_DISCHARGE] = max(extra[X_I_DISCHARGE], alg[L.A_CELL_CURRENT_HIGH])
+    extra[X_I_CHARGE] = max(extra[X_I_CHARGE], -alg[L.A_CELL_CURRENT_LOW])
+    extra[X_P_CHARGE] = max(extra[X_P_CHARGE], -power)
+    extra[X_M_DISCHARGE_I] = min(extra[X_M_DISCHARGE_I], alg[L.A_MARGIN_DISCHARGE_CURRENT])
+    extra[X_M_CHARGE_I] = min(extra[X_M_CHARGE_I], alg[L.A_MARGIN_CHARGE_CURRENT])
+    extra[X_M_DISCHARGE_P] = min(extra[X_M_DISCHARGE_P], alg[L.A_MARGIN_DISCHARGE_POWER])
+    extra[X_M_CHARGE_P] = min(extra[X_M_CHARGE_P], alg[L.A_MARGIN_CHARGE_POWER])
+    if alg[L.A_CURRENT] > 0.0:
+        extra[X_T_DISCHARGING] = min(extra[X_T_DISCHARGING], alg[L.A_TEMPERATURE_LOW])
+    elif alg[L.A_CURRENT] < 0.0:
+        extra[X_T_CHARGING] = max(extra[X_T_CHARGING], alg[L.A_TEMPERATURE_HIGH])
+    extra[X_SHORTFALL] = max(extra[X_SHORTFALL], abs(alg[L.A_POWER_DEMANDED] - power))
+
+
+@numba.njit(cache=True, error_model="numpy")
+def _derated_time(deficit0, deficit1, h):
+    """Time of a step of length h during which the delivered current differs from the demand's [s].
+
+    ``deficit`` is ``|I_demanded - I|`` at the step's ends [A]; a crossing of zero is
+    interpolated linearly within the step (the rule of
+    :func:`thermoelec.analysis.diagnostics.time_above` over output rows).
+    """
+    if deficit0 > 0.0 and deficit1 > 0.0:
+        return h
+    if deficit0 > 0.0:
+        return h * deficit0 / (deficit0 - deficit1)
+    if deficit1 > 0.0:
+        return h * deficit1 / (deficit1 - deficit0)
+    return 0.0
 
 
 @numba.njit(cache=True, error_model="numpy")
@@ -239,15 +281,17 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
     h = 0.05
     rate_prev = arrhenius_ageing_rate(hot0, ea, t_ref)
     cold_prev = cold0  # the coldest cell at the last accepted point (cold charging counts it)
-    current_prev = 0.0
+    current_prev = 0.0  # the current delivered at the last accepted point (a ramp starts from it)
+    hold = 0.0  # the voltage limiter's hold state
+    deficit_prev = 0.0  # |demanded - delivered| current at the last accepted point
     t = 0.0
     for seg in range(durations.size):
         t_end = t + durations[seg]
         phase = 0
         events = 0
         while True:
-            configure_phase(p, seg, phase, modes, values, ambients, setups, setup_index, default_ambient,
-                            default_table, switches, controls)
+            hold = configure_phase(p, seg, phase, modes, values, ambients, setups, setup_index, default_ambient,
+                                   default_table, switches, controls, hold, current_prev, t)
             p[L.H_TIME] = t
             m.evaluate_any(y, p, k[0], alg)  # the demand changed: a new first stage
             m.roots_from(y, g, p, alg)
@@ -260,6 +304,7 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
                 m.evaluate_any(y, p, k[0], alg)
             _observe(y, alg, extra, t, ts_index)
             current_prev = alg[L.A_CURRENT]  # the demand jumps at a phase start
+            deficit_prev = abs(alg[L.A_CURRENT_DEMANDED] - current_prev)
             if code < 0:
                 if t_end - t <= MIN_PHASE:
                     break
@@ -295,6 +340,9 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
                         rate_prev = rate_new
                         extra[X_COLD_CHARGE] += _cold_charging(cold_prev, alg[L.A_TEMPERATURE_LOW], current_prev,
                                                                alg[L.A_CURRENT], t_charge_min, high)
+                        deficit = abs(alg[L.A_CURRENT_DEMANDED] - alg[L.A_CURRENT])
+                        extra[X_DERATED] += _derated_time(deficit_prev, deficit, high)
+                        deficit_prev = deficit
                         current_prev = alg[L.A_CURRENT]
                         cold_prev = alg[L.A_TEMPERATURE_LOW]
                         for i in range(n):
@@ -307,6 +355,9 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
                     rate_prev = rate_new
                     extra[X_COLD_CHARGE] += _cold_charging(cold_prev, alg[L.A_TEMPERATURE_LOW], current_prev,
                                                            alg[L.A_CURRENT], t_charge_min, h_try)
+                    deficit = abs(alg[L.A_CURRENT_DEMANDED] - alg[L.A_CURRENT])
+                    extra[X_DERATED] += _derated_time(deficit_prev, deficit, h_try)
+                    deficit_prev = deficit
                     current_prev = alg[L.A_CURRENT]
                     cold_prev = alg[L.A_TEMPERATURE_LOW]
                     t += h_try
@@ -331,6 +382,8 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
                 return 1, code, t, int(alg[slot]) if slot >= 0 else -1
             if action == ACTION_TOGGLE:
                 controls[code - EV_FAN] = not controls[code - EV_FAN]
+            elif action == ACTION_HOLD:
+                hold = float(EVENT_HOLD[code])
             elif action == ACTION_NEXT_PHASE and phase + 1 < n_phases[seg]:
                 phase += 1
             else:
@@ -376,7 +429,8 @@ class BatchOutcome:
     states : float64 array, shape (n, n_states)
         State at the end (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
     extras : float64 array, shape (n, len(EXTREMES))
-        The running extremes of :data:`EXTREMES` [K, K, V, V, A, s, V, W, s, K, s, -, -, s].
+        The running extremes of :data:`EXTREMES` [K, K, V, V, A, s, V, W, s, K, s, -, -, s, A, A, W, A, A, W, W,
+        K, K, s, W].
     initial_states : float64 array, shape (n, n_states)
         Where each mission started, after its soak [-, V, K, J, C].
     stop_cell : int64 array, shape (n,)
@@ -406,7 +460,7 @@ def _plans(problems: list[Problem]) -> tuple[list[MissionPlan], np.ndarray]:
     for i, problem in enumerate(problems):
         cell = problem.cell
         limits = (cell.voltage_min, cell.voltage_max, cell.capacity, problem.pack.series, problem.pack.parallel,
-                  problem.limits.cell_temperature_max, problem.resolved is None)
+                  problem.limits, problem.derating, problem.resolved is None)
         for j, (segments, known) in enumerate(seen):
             if segments is problem.segments and known == limits:
                 which[i] = j
@@ -455,7 +509,8 @@ def solve_batch(problems: list[Problem], options: SolverOptions) -> BatchOutcome
     BatchOutcome
         Per scenario: ``ok`` or ``fallback`` (to be run on CVODE), stop reason,
         end time [s] and state [-, V, K, J, C], and the running extremes of
-        :data:`EXTREMES` [K, K, V, V, A, s, V, W, s, K, s, -, -, s], the cell at a stop's limit [-].
+        :data:`EXTREMES` [K, K, V, V, A, s, V, W, s, K, s, -, -, s, A, A, W, A, A, W, W, K, K, s, W], the
+        cell at a stop's limit [-].
     """
     n_rc, n_cells = problems[0].n_rc, problems[0].n_cells
     if any(p.n_rc != n_rc or p.n_cells != n_cells for p in problems):

@@ -29,16 +29,19 @@ import numpy as np
 
 from thermoelec.engine.backends import BACKENDS
 from thermoelec.engine.events import (
+    ACTION_HOLD,
     ACTION_NEXT_PHASE,
     ACTION_STOP,
     ACTION_TOGGLE,
     CCCV_CAP_EVENT,
     CONTROL_EVENTS,
     EVENT_ACTION,
+    EVENT_HOLD,
     EVENT_NAMES,
     STOP_EVENTS,
 )
 from thermoelec.engine.layout import (
+    A_CURRENT,
     CELL_OF_EVENT,
     H_AMBIENT_TABLE,
     H_MODE,
@@ -274,14 +277,21 @@ def _walk(plan: MissionPlan, problem: Problem, p: np.ndarray, kernels: Kernels, 
     temperatures = y[cell_state_indices(problem.n_rc, problem.n_cells)[1]]
     controls = initial_controls(switches, temperatures.max(), temperatures.min())
     default_ambient, default_table = problem.ambient_temperature, float(p[H_AMBIENT_TABLE])
+    # the voltage limiter's hold state, and the current a ramp starts from (the one delivered just before)
+    hold, delivered = 0.0, 0.0
+    ramped = problem.derating is not None and problem.derating.ramp_rate > 0.0
     t = 0.0
     for seg in range(plan.n_segments):
         t_seg_end = t + plan.durations[seg]
         phase = 0
         run.segment = seg
         while True:
-            configure_phase(p, seg, phase, plan.modes, plan.values, plan.ambients, plan.setups, plan.setup_index,
-                            default_ambient, default_table, switches, controls)
+            if ramped and run.phase_params:
+                p[H_TIME] = t
+                delivered = float(kernels.algebraics(y)[A_CURRENT])
+            hold = configure_phase(p, seg, phase, plan.modes, plan.values, plan.ambients, plan.setups,
+                                   plan.setup_index, default_ambient, default_table, switches, controls, hold,
+                                   delivered, t)
             p[H_TIME] = t
             t, y, fired, ended_by_time = _phase(kernels, backend, options, p, t, y, t_seg_end, run)
             if fired is None:
@@ -296,6 +306,9 @@ def _walk(plan: MissionPlan, problem: Problem, p: np.ndarray, kernels: Kernels, 
                 controls[c] = not controls[c]
                 event["state"] = "on" if controls[c] else "off"
                 continue  # the same phase goes on with the thermostat switched
+            if action == ACTION_HOLD:
+                hold = float(EVENT_HOLD[fired])
+                continue  # the same phase goes on, held at a voltage limit or let go
             if action == ACTION_STOP:
                 run.stop_reason = STOP_EVENTS[fired]
                 return seg

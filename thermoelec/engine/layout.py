@@ -44,8 +44,14 @@ import numpy as np
 
 from thermoelec.engine.events import (
     CONTROL_EVENTS,
+    EV_CHARGE_CURRENT,
+    EV_CHARGE_TEMPERATURE,
+    EV_DISCHARGE_CURRENT,
+    EV_DISCHARGE_TEMPERATURE,
     EV_FAN,
     EV_HEATER,
+    EV_HOLD_MAX,
+    EV_HOLD_MIN,
     EV_PUMP,
     EV_SOC_EMPTY,
     EV_SOC_FULL,
@@ -280,6 +286,13 @@ Q_THROUGHPUT = _quadratures.slot("throughput", "C", "∫ |I| dt")
 Q_HEATER = _quadratures.slot("heater", "J", "∫ heater power dt")
 Q_COOLANT = _quadratures.slot("heat_to_coolant", "J", "∫ heat carried away by the coolant dt")
 Q_RADIATION = _quadratures.slot("radiation", "J", "∫ net radiation from the sink dt (part of heat_to_ambient)")
+# what the demand asked at the terminals and what the BMS's derating withheld (0 without derating)
+Q_DEMAND_DISCHARGE = _quadratures.slot("demand_discharge", "J", "∫ demanded power dt while the demand discharges")
+Q_DEMAND_CHARGE = _quadratures.slot("demand_charge", "J", "∫ demanded power dt while the demand charges (negative)")
+Q_SHORTFALL_DISCHARGE = _quadratures.slot("shortfall_discharge", "J",
+                                          "∫ (demanded - delivered) power dt while the demand discharges")
+Q_SHORTFALL_CHARGE = _quadratures.slot("shortfall_charge", "J",
+                                       "∫ (delivered - demanded) power dt while the demand charges (charge refused)")
 N_QUADRATURES = _quadratures.size
 QUADRATURES: tuple[Slot, ...] = tuple(_quadratures.slots)
 
@@ -323,6 +336,25 @@ A_CELL_COLD = _algebraics.slot("cell_cold", "-", "the coldest cell")
 A_CELL_SOC_LOW = _algebraics.slot("cell_soc_low", "-", "the cell with the lowest SoC")
 A_CELL_SOC_HIGH = _algebraics.slot("cell_soc_high", "-", "the cell with the highest SoC")
 A_CELL_SHARE = _algebraics.slot("cell_share", "-", "the cell with the largest current share")
+# the demand and the BMS's derating ([derating]); without derating the delivered current is the demand's
+A_CURRENT_DEMANDED = _algebraics.slot("current_demanded", "A", "pack current the demand asks, before derating")
+A_POWER_DEMANDED = _algebraics.slot("power_demanded", "W",
+                                    "power the demand asks at the terminals (the delivered power where not derated)")
+A_CURRENT_ALLOWED = _algebraics.slot("current_allowed", "A", "the demand's current within the allowance tables")
+A_HOLD_DISCHARGE = _algebraics.slot("hold_discharge", "A", "pack current that holds the lowest cell at voltage_min")
+A_HOLD_CHARGE = _algebraics.slot("hold_charge", "A", "pack current that holds the highest cell at voltage_max")
+A_DELIVERABLE = _algebraics.slot("deliverable", "A", "most pack current the derating allows now (tables, hold)")
+# the limits of the pack specification ([limits]): margins, > 0 inside (the smallest over the cells)
+A_CELL_CURRENT_HIGH = _algebraics.slot("cell_current_high", "A", "largest cell current (discharge)")
+A_CELL_CURRENT_LOW = _algebraics.slot("cell_current_low", "A", "smallest cell current (most charge)")
+A_MARGIN_DISCHARGE_CURRENT = _algebraics.slot("margin_discharge_current", "A",
+                                              "discharge current limit minus the cell current, least over the cells")
+A_MARGIN_CHARGE_CURRENT = _algebraics.slot("margin_charge_current", "A",
+                                           "charge current limit minus the cell charge current, least over the cells")
+A_MARGIN_DISCHARGE_POWER = _algebraics.slot("margin_discharge_power", "W", "discharge power limit minus the power")
+A_MARGIN_CHARGE_POWER = _algebraics.slot("margin_charge_power", "W", "charge power limit minus the charging power")
+A_CELL_DISCHARGE_LIMIT = _algebraics.slot("cell_discharge_limit", "-", "the cell nearest its discharge current limit")
+A_CELL_CHARGE_LIMIT = _algebraics.slot("cell_charge_limit", "-", "the cell nearest its charge current limit")
 N_ALGEBRAICS = _algebraics.size
 ALGEBRAICS: tuple[Slot, ...] = tuple(_algebraics.slots)
 ALGEBRAIC_NAMES: tuple[str, ...] = tuple(slot.name for slot in ALGEBRAICS)
@@ -376,6 +408,37 @@ H_CELLS = _header.slot("cell_table", "-", "offset of the cell table, 0 for a lum
 H_EDGES = _header.slot("neighbour_list", "-", "offset of the neighbour list (resolved pack)")
 H_PATH = _header.slot("coolant_path", "-", "offset of the coolant path, 0: the coolant cools the sink node")
 H_WORK = _header.slot("work_block", "-", "offset of the work block the resolved kernel writes (resolved pack)")
+# the limits of the pack specification ([limits]): tables over cell temperature and SoC (resistance-law
+# blocks without an activation energy), read at each cell; flags for the kernels to skip what is absent
+H_LIMITS = _header.slot("limits", "-", "1 when a current or power limit table is given (its margins are computed)")
+H_LIMIT_DISCHARGE_CURRENT = _header.slot("limit_discharge_current", "-", "offset of the cell discharge current "
+                                         "limit's table [A], 0 for none")
+H_LIMIT_CHARGE_CURRENT = _header.slot("limit_charge_current", "-", "offset of the cell charge current limit's "
+                                      "table [A], 0 for none")
+H_LIMIT_DISCHARGE_POWER = _header.slot("limit_discharge_power", "-", "offset of the pack discharge power limit's "
+                                       "table [W], 0 for none")
+H_LIMIT_CHARGE_POWER = _header.slot("limit_charge_power", "-", "offset of the pack charge power limit's table [W], "
+                                    "0 for none")
+# the BMS's derating ([derating]): allowance tables as the limits', the voltage limiter, the ramp
+H_DERATE = _header.slot("derate", "-", "1 when the BMS derates: the demand is held within the allowances")
+H_DERATE_DISCHARGE_CURRENT = _header.slot("derate_discharge_current", "-", "offset of the allowed cell discharge "
+                                          "current's table [A], 0 for none")
+H_DERATE_CHARGE_CURRENT = _header.slot("derate_charge_current", "-", "offset of the allowed cell charge current's "
+                                       "table [A], 0 for none")
+H_DERATE_DISCHARGE_POWER = _header.slot("derate_discharge_power", "-", "offset of the allowed pack discharge "
+                                        "power's table [W], 0 for none")
+H_DERATE_CHARGE_POWER = _header.slot("derate_charge_power", "-", "offset of the allowed pack charge power's table "
+                                     "[W], 0 for none")
+H_CELL_VOLTAGE_MIN = _header.slot("cell_voltage_min", "V", "the cell's voltage_min (the voltage limiter holds it)")
+H_CELL_VOLTAGE_MAX = _header.slot("cell_voltage_max", "V", "the cell's voltage_max (the voltage limiter holds it)")
+H_HOLD_HYSTERESIS = _header.slot("hold_hysteresis", "A", "pack current by which the demand must fall below the "
+                                 "held current before the limiter lets go")
+H_CUTOFF = _header.slot("cutoff", "A", "pack current at or below which nothing counts as deliverable")
+H_RAMP_RATE = _header.slot("ramp_rate", "A/s", "fastest rise of the delivered pack current's magnitude, 0 for none")
+# the phase's hold state and ramp anchor (mission.configure_phase)
+H_HOLD = _header.slot("hold", "-", "hold state of the phase: 0 free, 1 cells held at voltage_min, -1 at voltage_max")
+H_RAMP_CURRENT = _header.slot("ramp_current", "A", "delivered pack current where the ramp starts")
+H_RAMP_TIME = _header.slot("ramp_time", "s", "time where the ramp starts")
 # root functions of the phase (events.EVENTS order)
 H_ACTIVE = _header.slot("active", "-", "root-function activity flags", N_EVENTS)
 H_THRESHOLD = _header.slot("threshold", "V|K|A|-", "root-function thresholds", N_EVENTS)
@@ -388,12 +451,16 @@ if len(CONTROL_FLAG_OF) != len(CONTROL_EVENTS) or CONTROL_EVENTS != tuple(range(
     raise ImportError("the thermostat events must be fan, heater, pump, one after the other")
 
 #: The root function whose cell is reported (the algebraic output that names it), by event code:
-#: a voltage limit names a cell of the group at the limit, the temperature limit the hottest cell,
-#: the SoC limits the emptiest or fullest cell, a thermostat the cell it senses.
+#: a voltage limit (or the limiter's hold) names a cell of the group at the limit, the temperature
+#: limits the hottest (or, discharging in the cold, the coldest) cell, the SoC limits the emptiest or
+#: fullest cell, a current limit the cell nearest it, a thermostat the cell it senses.
 CELL_OF_EVENT: dict[int, int] = {EV_VOLTAGE_MIN: A_CELL_LOW_VOLTAGE, EV_VOLTAGE_MAX: A_CELL_HIGH_VOLTAGE,
                                  EV_TEMPERATURE: A_CELL_HOT, EV_SOC_EMPTY: A_CELL_SOC_LOW,
                                  EV_SOC_FULL: A_CELL_SOC_HIGH, EV_FAN: A_CELL_HOT, EV_HEATER: A_CELL_COLD,
-                                 EV_PUMP: A_CELL_HOT}
+                                 EV_PUMP: A_CELL_HOT, EV_DISCHARGE_CURRENT: A_CELL_DISCHARGE_LIMIT,
+                                 EV_CHARGE_CURRENT: A_CELL_CHARGE_LIMIT, EV_DISCHARGE_TEMPERATURE: A_CELL_COLD,
+                                 EV_CHARGE_TEMPERATURE: A_CELL_HOT, EV_HOLD_MIN: A_CELL_LOW_VOLTAGE,
+                                 EV_HOLD_MAX: A_CELL_HIGH_VOLTAGE}
 
 #: :data:`CELL_OF_EVENT` as an array for the kernels: the algebraic slot naming the cell, -1 for none.
 EVENT_CELL_SLOT = np.array([CELL_OF_EVENT.get(k, -1) for k in range(N_EVENTS)], dtype=np.int64)

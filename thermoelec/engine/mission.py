@@ -30,16 +30,27 @@ import numpy as np
 
 from thermoelec.engine.events import (
     CONTROL_EVENTS,
+    EV_CHARGE_CURRENT,
+    EV_CHARGE_POWER,
+    EV_CHARGE_TEMPERATURE,
     EV_CV_CUTOFF,
     EV_CV_SWITCH,
+    EV_DISCHARGE_CURRENT,
+    EV_DISCHARGE_POWER,
+    EV_DISCHARGE_TEMPERATURE,
     EV_END_SOC_ABOVE,
     EV_END_SOC_BELOW,
     EV_END_VOLTAGE_ABOVE,
     EV_END_VOLTAGE_BELOW,
     EV_FAN,
     EV_HEATER,
+    EV_HOLD_MAX,
+    EV_HOLD_MIN,
+    EV_HOLD_RELEASE,
+    EV_NOTHING_DELIVERABLE,
     EV_POWER,
     EV_PUMP,
+    EV_SINK_TEMPERATURE,
     EV_SOC_EMPTY,
     EV_SOC_FULL,
     EV_TEMPERATURE,
@@ -52,7 +63,10 @@ from thermoelec.engine.layout import (
     H_ACTIVE,
     H_AMBIENT,
     H_AMBIENT_TABLE,
+    H_HOLD,
     H_MODE,
+    H_RAMP_CURRENT,
+    H_RAMP_TIME,
     H_THRESHOLD,
     H_VALUE,
     quadrature_index,
@@ -167,6 +181,7 @@ def event_setup(problem: Problem, segment: Segment, mode: int, value: float, kin
     if kind == KIND_CC and segment.cv_voltage <= ns * cell.voltage_max:
         active[EV_VOLTAGE_MAX] = False  # the CV switch comes first (at or before the cell limit)
     thresholds[EV_VOLTAGE_MIN], thresholds[EV_VOLTAGE_MAX] = cell.voltage_min, cell.voltage_max
+    _limit_setup(problem, load, value, active, thresholds)
     active[EV_POWER] = load.power_limited and value > 0.0
     active[EV_TEMPERATURE] = True
     thresholds[EV_TEMPERATURE] = problem.limits.cell_temperature_max
@@ -186,6 +201,38 @@ def event_setup(problem: Problem, segment: Segment, mode: int, value: float, kin
             active[event] = True
             thresholds[event] = threshold
     return np.concatenate([active, thresholds])
+
+
+def _limit_setup(problem: Problem, load, value: float, active: np.ndarray, thresholds: np.ndarray) -> None:
+    """The root functions of the pack specification's limits and of the BMS's voltage limiter in a phase.
+
+    A phase discharges when its demand is positive (a load resistance always), charges
+    when it is negative or a charger holds the terminal voltage: the temperature limits of
+    each direction act in its phases, the current and power limits wherever the current can
+    flow that way. The voltage limiter replaces the stops at the voltage limits by its holds
+    (not where the terminal voltage is imposed).
+    """
+    limits, derating = problem.limits, problem.derating
+    discharging = value > 0.0 and not load.imposes_voltage
+    charging = value < 0.0 or load.imposes_voltage
+    for event, table, direction in ((EV_DISCHARGE_CURRENT, limits.discharge_current_max, not charging),
+                                    (EV_CHARGE_CURRENT, limits.charge_current_max, not discharging),
+                                    (EV_DISCHARGE_POWER, limits.discharge_power_max, not charging),
+                                    (EV_CHARGE_POWER, limits.charge_power_max, not discharging)):
+        active[event] = table is not None and direction
+    for event, threshold, direction in ((EV_DISCHARGE_TEMPERATURE, limits.discharge_temperature_min, discharging),
+                                        (EV_CHARGE_TEMPERATURE, limits.charge_temperature_max, charging),
+                                        (EV_SINK_TEMPERATURE, limits.sink_temperature_max, True)):
+        if threshold is not None and direction:
+            active[event], thresholds[event] = True, threshold
+    if derating is None or load.imposes_voltage:
+        return
+    active[EV_NOTHING_DELIVERABLE] = True
+    if derating.voltage_limiter:  # hold the cells at their limits instead of stopping there
+        active[EV_HOLD_MIN], active[EV_HOLD_MAX] = active[EV_VOLTAGE_MIN], active[EV_VOLTAGE_MAX]
+        active[EV_HOLD_RELEASE] = True
+        thresholds[EV_HOLD_MIN], thresholds[EV_HOLD_MAX] = thresholds[EV_VOLTAGE_MIN], thresholds[EV_VOLTAGE_MAX]
+        active[EV_VOLTAGE_MIN] = active[EV_VOLTAGE_MAX] = False
 
 
 def cccv_cap(problem: Problem, segment: Segment) -> float:
@@ -239,7 +286,7 @@ def plan_mission(problem: Problem) -> MissionPlan:
         n_phases[s] = len(phases)
         for j, (mode, value, kind) in enumerate(phases):
             # what event_setup reads of the segment and the phase
-            key = (kind, mode, value > 0.0, seg.cv_voltage, seg.cutoff_current, seg.voltage_below,
+            key = (kind, mode, np.sign(value), seg.cv_voltage, seg.cutoff_current, seg.voltage_below,
                    seg.voltage_above, seg.soc_below, seg.soc_above)
             if key not in kinds:
                 kinds[key] = len(blocks)
@@ -310,14 +357,18 @@ def initial_controls(switches: np.ndarray, cell_temperature: float, coldest: flo
 
 @_jit
 def configure_phase(p, seg, phase, modes, values, ambients, setups, setup_index, default_ambient, default_table,
-                    switches, controls):
-    """Write one phase into the parameter vector ``p``: demand, ambient, root functions, thermostats.
+                    switches, controls, hold, ramp_current, time):
+    """Write one phase into the parameter vector ``p``: demand, ambient, root functions, thermostats, hold, ramp.
 
     The one writer of the per-phase slots, for both drivers. A segment with its
     own ambient (a CSV row, a soak) holds it and switches the ambient profile
     off; the others take ``default_ambient`` and the profile block at
     ``default_table`` (0: none). A present thermostat's root function waits for
-    its off threshold while it is on, for its on threshold while it is off.
+    its off threshold while it is on, for its on threshold while it is off. The
+    voltage limiter's hold state carries over from the phase before where the
+    phase has the limiter (else the phase is free), and the ramp starts from the
+    current delivered just before (``ramp_current`` at ``time``): re-anchored at a
+    switch within a phase, the ramp goes on as it was.
 
     Parameters
     ----------
@@ -345,6 +396,17 @@ def configure_phase(p, seg, phase, modes, values, ambients, setups, setup_index,
         Rows ``(present, on_at, off_at)`` of :func:`thermostat_switches` [-, K, K].
     controls : bool array, shape (3,)
         Which thermostats are on (read, not changed) [-].
+    hold : float
+        The voltage limiter's hold state so far (``events.HOLD_*``) [-].
+    ramp_current : float
+        The pack current delivered just before the phase (re)starts [A].
+    time : float
+        Time of the phase (re)start [s].
+
+    Returns
+    -------
+    float
+        The hold state of the phase: ``hold``, or free where the phase has no limiter [-].
     """
     p[H_MODE] = modes[seg, phase]
     p[H_VALUE] = values[seg, phase]
@@ -358,6 +420,12 @@ def configure_phase(p, seg, phase, modes, values, ambients, setups, setup_index,
             p[CONTROL_FLAG_OF[c]] = 1.0 if controls[c] else 0.0
             p[H_ACTIVE + event] = 1.0
             p[H_THRESHOLD + event] = switches[c, 2] if controls[c] else switches[c, 1]
+    if p[H_ACTIVE + EV_HOLD_RELEASE] == 0.0:
+        hold = 0.0
+    p[H_HOLD] = hold
+    p[H_RAMP_CURRENT] = ramp_current
+    p[H_RAMP_TIME] = time
+    return hold
 
 
 def soak_problem(problem: Problem) -> Problem | None:

@@ -31,16 +31,28 @@ from __future__ import annotations
 import numba
 import numpy as np
 
+from thermoelec.engine import limits as bms
 from thermoelec.engine.events import (
+    EV_CHARGE_CURRENT,
+    EV_CHARGE_POWER,
+    EV_CHARGE_TEMPERATURE,
     EV_CV_CUTOFF,
     EV_CV_SWITCH,
+    EV_DISCHARGE_CURRENT,
+    EV_DISCHARGE_POWER,
+    EV_DISCHARGE_TEMPERATURE,
     EV_END_SOC_ABOVE,
     EV_END_SOC_BELOW,
     EV_END_VOLTAGE_ABOVE,
     EV_END_VOLTAGE_BELOW,
     EV_FAN,
     EV_HEATER,
+    EV_HOLD_MAX,
+    EV_HOLD_MIN,
+    EV_HOLD_RELEASE,
+    EV_NOTHING_DELIVERABLE,
     EV_POWER,
+    EV_SINK_TEMPERATURE,
     EV_SOC_EMPTY,
     EV_SOC_FULL,
     EV_TEMPERATURE,
@@ -54,6 +66,10 @@ from thermoelec.engine.events import (
 )
 from thermoelec.engine.layout import (
     A_AMBIENT,
+    A_CELL_CHARGE_LIMIT,
+    A_CELL_CURRENT_HIGH,
+    A_CELL_CURRENT_LOW,
+    A_CELL_DISCHARGE_LIMIT,
     A_CELL_LOW_VOLTAGE,
     A_CELL_SHARE,
     A_CELL_VOLTAGE,
@@ -61,12 +77,21 @@ from thermoelec.engine.layout import (
     A_COOLANT,
     A_COOLANT_OUTLET,
     A_CURRENT,
+    A_CURRENT_ALLOWED,
+    A_CURRENT_DEMANDED,
     A_CURRENT_SHARE,
+    A_DELIVERABLE,
     A_EMF,
     A_ENTROPIC,
     A_HEAT,
     A_HEAT_AMBIENT,
     A_HEATER,
+    A_HOLD_CHARGE,
+    A_HOLD_DISCHARGE,
+    A_MARGIN_CHARGE_CURRENT,
+    A_MARGIN_CHARGE_POWER,
+    A_MARGIN_DISCHARGE_CURRENT,
+    A_MARGIN_DISCHARGE_POWER,
     A_OCV,
     A_POWER_MARGIN,
     A_R0,
@@ -91,6 +116,8 @@ from thermoelec.engine.layout import (
     H_AMBIENT_TABLE,
     H_CAPACITY,
     H_CCELL,
+    H_CELL_VOLTAGE_MAX,
+    H_CELL_VOLTAGE_MIN,
     H_CELLS,
     H_CONV_AREA,
     H_CONV_LENGTH,
@@ -100,6 +127,8 @@ from thermoelec.engine.layout import (
     H_COOL_MCP,
     H_COOL_UA,
     H_CSINK,
+    H_CUTOFF,
+    H_DERATE,
     H_EMISSIVITY,
     H_FAN_G,
     H_FAN_ON,
@@ -111,6 +140,8 @@ from thermoelec.engine.layout import (
     H_HEATER_FROM_PACK,
     H_HEATER_ON,
     H_HEATER_POWER,
+    H_HOLD,
+    H_HOLD_HYSTERESIS,
     H_MODE,
     H_NATURAL,
     H_NCELLS,
@@ -158,7 +189,13 @@ from thermoelec.engine.resolved import evaluate_pack
 from thermoelec.physics import cell as cellphys
 from thermoelec.physics import correlations
 from thermoelec.physics import thermal as thermphys
-from thermoelec.physics.loads import MODE_POWER, MODE_VOLTAGE, pack_current, power_deliverable_margin
+from thermoelec.physics.loads import (
+    MODE_POWER,
+    MODE_VOLTAGE,
+    current_for_voltage,
+    pack_current,
+    power_deliverable_margin,
+)
 
 __all__ = ["Kernels", "evaluate", "evaluate_any", "evaluate_rows", "roots", "trajectory_algebraics"]
 
@@ -176,6 +213,7 @@ _h_from_numbers = correlations.coefficient_from_numbers
 _conv_numbers = correlations.convection_numbers
 _radiation = thermphys.radiation_heat
 _effectiveness = thermphys.coolant_effectiveness
+_for_voltage = current_for_voltage
 
 
 @_inline
@@ -255,7 +293,16 @@ def evaluate(y, p, ydot, alg):
     # a heater fed from the pack is a constant-power load on its terminals (in voltage
     # mode the charger holding the terminals feeds it, so the cells do not see it)
     aux = heater if p[H_HEATER_FROM_PACK] == 1.0 else 0.0
-    current = pack_current(mode, value, emf, rtot, aux)
+    demanded = pack_current(mode, value, emf, rtot, aux)
+    current = allowed = demanded
+    hold_dis = hold_ch = deliverable = np.inf
+    if p[H_DERATE] == 1.0:  # the BMS's derating: allowances, voltage limiter, ramp
+        i_dis, i_ch, p_dis, p_ch = bms.allowances(p, z, tc, npar)
+        r_cells = rtot - ric
+        hold_dis = _for_voltage(emf, r_cells, ns * p[H_CELL_VOLTAGE_MIN])
+        hold_ch = _for_voltage(emf, r_cells, ns * p[H_CELL_VOLTAGE_MAX])
+        current, allowed, deliverable = bms.delivered_current(p, demanded, emf, rtot, i_dis, i_ch, p_dis, p_ch,
+                                                              hold_dis, hold_ch)
 
     icell = current / npar
     vcell = u - vsum - icell * r0
@@ -323,6 +370,7 @@ def evaluate(y, p, ydot, alg):
     ydot[q + Q_HEATER] = heater
     ydot[q + Q_COOLANT] = carried
     ydot[q + Q_RADIATION] = radiated
+    bms.demand_outputs(ydot, alg, q, mode, value, aux, emf, rtot, demanded, current, voltage)
 
     alg[A_CURRENT] = current
     alg[A_VOLTAGE] = voltage
@@ -336,6 +384,8 @@ def evaluate(y, p, ydot, alg):
     alg[A_ENTROPIC] = dudt
     alg[A_R0] = r0
     alg[A_POWER_MARGIN] = _power_margin(emf, rtot, value + aux) if mode == MODE_POWER else 1.0
+    if mode == MODE_POWER and current != demanded:  # derated: the margin of the power delivered, (E - 2 R I)^2
+        alg[A_POWER_MARGIN] = (emf - 2.0 * rtot * current) ** 2
     alg[A_AMBIENT] = ta
     alg[A_HEATER] = heater
     alg[A_COOLANT] = carried
@@ -344,6 +394,13 @@ def evaluate(y, p, ydot, alg):
     alg[A_COOLANT_OUTLET] = outlet
     alg[A_REYNOLDS] = reynolds
     alg[A_RAYLEIGH] = rayleigh
+    alg[A_CURRENT_ALLOWED] = allowed
+    alg[A_HOLD_DISCHARGE] = hold_dis
+    alg[A_HOLD_CHARGE] = hold_ch
+    alg[A_DELIVERABLE] = deliverable
+    alg[A_CELL_CURRENT_HIGH] = icell
+    alg[A_CELL_CURRENT_LOW] = icell
+    bms.limit_margins(p, z, tc, icell, icell, voltage * current, alg)
     # the extremes over the cells the root functions read: the one cell's values
     alg[A_CELL_VOLTAGE_HIGH] = vcell
     alg[A_TEMPERATURE_HIGH] = tc
@@ -355,6 +412,8 @@ def evaluate(y, p, ydot, alg):
     alg[A_CURRENT_SHARE] = 1.0
     for k in range(A_CELL_LOW_VOLTAGE, A_CELL_SHARE + 1):
         alg[k] = 0.0
+    alg[A_CELL_DISCHARGE_LIMIT] = 0.0
+    alg[A_CELL_CHARGE_LIMIT] = 0.0
 
 
 @_inline
@@ -484,6 +543,35 @@ def roots_from(y, g, p, alg):
             g[k] = z - thr
         elif k == EV_END_SOC_ABOVE:
             g[k] = thr - z
+        elif k == EV_DISCHARGE_CURRENT:
+            g[k] = alg[A_MARGIN_DISCHARGE_CURRENT]
+        elif k == EV_CHARGE_CURRENT:
+            g[k] = alg[A_MARGIN_CHARGE_CURRENT]
+        elif k == EV_DISCHARGE_POWER:
+            g[k] = alg[A_MARGIN_DISCHARGE_POWER]
+        elif k == EV_CHARGE_POWER:
+            g[k] = alg[A_MARGIN_CHARGE_POWER]
+        elif k == EV_DISCHARGE_TEMPERATURE:
+            g[k] = alg[A_TEMPERATURE_LOW] - thr
+        elif k == EV_CHARGE_TEMPERATURE:
+            g[k] = thr - alg[A_TEMPERATURE_HIGH]
+        elif k == EV_SINK_TEMPERATURE:
+            g[k] = thr - y[int(p[H_NCELLS]) * (2 + int(p[H_NRC]))]  # layout.sink_temperature_index
+        elif k == EV_HOLD_MIN:
+            g[k] = alg[A_CELL_VOLTAGE] - thr if p[H_HOLD] == 0.0 else 1.0
+        elif k == EV_HOLD_MAX:
+            g[k] = thr - alg[A_CELL_VOLTAGE_HIGH] if p[H_HOLD] == 0.0 else 1.0
+        elif k == EV_HOLD_RELEASE:
+            # held: the demand (within the allowances) falls below the held current by the hysteresis
+            if p[H_HOLD] == 1.0:
+                g[k] = alg[A_CURRENT_ALLOWED] + p[H_HOLD_HYSTERESIS] - alg[A_HOLD_DISCHARGE]
+            elif p[H_HOLD] == -1.0:
+                g[k] = alg[A_HOLD_CHARGE] - alg[A_CURRENT_ALLOWED] + p[H_HOLD_HYSTERESIS]
+            else:
+                g[k] = 1.0
+        elif k == EV_NOTHING_DELIVERABLE:
+            asked = alg[A_CURRENT_DEMANDED] if alg[A_CURRENT_DEMANDED] > 0.0 else 0.0
+            g[k] = alg[A_DELIVERABLE] - (asked if asked < p[H_CUTOFF] else p[H_CUTOFF])
         else:
             # a thermostat: the threshold is the one it switches at next; a cooling
             # switch (fan, pump) that is off and a heater that is on wait for the

@@ -19,16 +19,84 @@ from thermoelec.engine import layout as L
 from thermoelec.engine.profile import Segment
 from thermoelec.physics import correlations
 from thermoelec.physics.cell import Cell, Pack
-from thermoelec.physics.constants import ZERO_CELSIUS
+from thermoelec.physics.constants import SECONDS_PER_HOUR, ZERO_CELSIUS
 from thermoelec.physics.pack import ResolvedPack
+from thermoelec.physics.tables import interpolate_2d
 from thermoelec.physics.thermal import ThermalNetwork, coolant_effectiveness
 
-__all__ = ["Limits", "Problem", "StressSettings", "jacobian_bandwidth", "pack_parameters"]
+__all__ = ["Derating", "LimitTable", "Limits", "Problem", "StressSettings", "jacobian_bandwidth", "pack_parameters"]
+
+
+@dataclass(frozen=True)
+class LimitTable:
+    """A limit or an allowance over cell temperature and SoC: bilinear, held at its edge values.
+
+    A constant is a 1 x 1 table; a table over temperature has one SoC point, a table over
+    SoC one temperature point. Stored as tuples (compared by value: the mission plans of a
+    sweep's variants are shared when their limits agree). The engine writes it as a
+    resistance-law block without an activation energy (:func:`thermoelec.engine.layout.law_block`).
+
+    Attributes
+    ----------
+    soc : tuple of float
+        SoC grid, strictly increasing [-].
+    temperature : tuple of float
+        Temperature grid, strictly increasing [K].
+    values : tuple of float
+        The values row by row, one row of ``len(soc)`` per temperature [A or W].
+    """
+
+    soc: tuple[float, ...]
+    temperature: tuple[float, ...]
+    values: tuple[float, ...]
+
+    #: No Arrhenius factor on a limit (for the block format of a resistance law).
+    activation_energy = 0.0
+
+    @property
+    def reference_temperature(self) -> float:
+        """The block's reference temperature [K] (unused without an activation energy)."""
+        return ZERO_CELSIUS + 25.0
+
+    @classmethod
+    def constant(cls, value: float) -> LimitTable:
+        """A limit that is the same everywhere [A or W]."""
+        return cls((0.0,), (ZERO_CELSIUS + 25.0,), (float(value),))
+
+    @property
+    def is_constant(self) -> bool:
+        """True for a 1 x 1 table."""
+        return len(self.values) == 1
+
+    def __call__(self, soc: float, temperature: float) -> float:
+        """The value at ``soc`` [-] and ``temperature`` [K] [A or W]."""
+        return float(interpolate_2d(np.asarray(self.soc, float), np.asarray(self.temperature, float),
+                                    np.asarray(self.values, float), soc, temperature))
+
+    def scaled(self, factor: float) -> LimitTable:
+        """The table with every value times ``factor`` (a C-rate into amperes).
+
+        Parameters
+        ----------
+        factor : float
+            The factor [A per unit of the values, or -].
+
+        Returns
+        -------
+        LimitTable
+            The scaled table [A or W].
+        """
+        return LimitTable(self.soc, self.temperature, tuple(v * factor for v in self.values))
 
 
 @dataclass(frozen=True)
 class Limits:
-    """Operating limits of the cell temperature (the voltage limits are the cell's own).
+    """The operating limits of the pack specification (the voltage limits are the cell's own).
+
+    Each limit beyond the two temperature limits of every mission is optional (None: not
+    set); each set one is a root function of the mission (:data:`thermoelec.engine.events.LIMIT_EVENTS`,
+    its stop reason its name). Current limits are per cell, power limits for the pack; a
+    table is read at each cell's temperature and SoC, and the most restrictive cell binds.
 
     Attributes
     ----------
@@ -36,10 +104,72 @@ class Limits:
         The mission stops when the cell temperature rises to it (event ``temperature_max``) [K].
     charge_temperature_min : float
         Charging below it is reported after the run (by the results layer), not an event [K].
+    discharge_current_max, charge_current_max : LimitTable or None
+        Largest discharge, charge (a magnitude) current of a cell [A].
+    discharge_power_max, charge_power_max : LimitTable or None
+        Largest power to the load, into the terminals while charging (a magnitude) [W].
+    discharge_temperature_min : float or None
+        No discharge with the coldest cell below it [K].
+    charge_temperature_max : float or None
+        No charge with the hottest cell above it [K].
+    sink_temperature_max : float or None
+        The sink (housing) node stays below it [K].
     """
 
     cell_temperature_max: float = ZERO_CELSIUS + 60.0
     charge_temperature_min: float = ZERO_CELSIUS
+    discharge_current_max: LimitTable | None = None
+    charge_current_max: LimitTable | None = None
+    discharge_power_max: LimitTable | None = None
+    charge_power_max: LimitTable | None = None
+    discharge_temperature_min: float | None = None
+    charge_temperature_max: float | None = None
+    sink_temperature_max: float | None = None
+
+    @property
+    def tables(self) -> tuple[LimitTable | None, ...]:
+        """The current and power limits in the order of their header slots (discharge current, charge current,
+        discharge power, charge power)."""
+        return (self.discharge_current_max, self.charge_current_max, self.discharge_power_max, self.charge_power_max)
+
+
+@dataclass(frozen=True)
+class Derating:
+    """How the battery management system derates the demand instead of letting a limit stop the mission.
+
+    The demand's current is held within the allowances (:func:`thermoelec.physics.loads.derated_current`),
+    its rises ramped (:func:`~thermoelec.physics.loads.ramped_current`), and with the voltage
+    limiter a cell at its voltage limit is held there (:func:`~thermoelec.physics.loads.held_current`)
+    instead of stopping the mission. The mission stops only where the pack may deliver no more
+    than ``cutoff_current`` per cell while more is demanded (``nothing_deliverable``).
+
+    Attributes
+    ----------
+    discharge_current, charge_current : LimitTable or None
+        Allowed discharge, charge (a magnitude) current of a cell [A]; None: not limited.
+    discharge_power, charge_power : LimitTable or None
+        Allowed power of the pack to the load, into the terminals while charging [W].
+    ramp_rate : float
+        Fastest rise of a cell's current magnitude [A/s]; 0 for none.
+    voltage_limiter : bool
+        Hold a cell at its voltage limit instead of stopping.
+    cutoff_current : float
+        A cell current at or below which nothing counts as deliverable [A].
+    """
+
+    discharge_current: LimitTable | None = None
+    charge_current: LimitTable | None = None
+    discharge_power: LimitTable | None = None
+    charge_power: LimitTable | None = None
+    ramp_rate: float = 0.0
+    voltage_limiter: bool = True
+    cutoff_current: float = 0.0
+
+    @property
+    def tables(self) -> tuple[LimitTable | None, ...]:
+        """The allowances in the order of their header slots (discharge current, charge current, discharge power,
+        charge power)."""
+        return (self.discharge_current, self.charge_current, self.discharge_power, self.charge_power)
 
 
 @dataclass(frozen=True)
@@ -103,6 +233,9 @@ class Problem:
         Every cell with its own states, factors and thermal paths
         (:class:`thermoelec.physics.pack.ResolvedPack`); None for the lumped pack
         (identical cells in one node, the default).
+    derating : Derating or None
+        How the battery management system derates the demand; None: no derating (a
+        limit reached stops the mission).
     """
 
     cell: Cell
@@ -121,6 +254,7 @@ class Problem:
     soak: tuple[Segment, ...] = ()
     notes: tuple[str, ...] = ()
     resolved: ResolvedPack | None = None
+    derating: Derating | None = None
 
     @property
     def n_rc(self) -> int:
@@ -225,9 +359,45 @@ def pack_parameters(problem: Problem) -> np.ndarray:
     if problem.ambient_profile is not None:
         header[L.H_AMBIENT_TABLE] = L.HEADER + len(body)
         body += L.ambient_block(*problem.ambient_profile)
+    body += _limit_blocks(header, L.HEADER + len(body), problem)
     if problem.resolved is not None:
         body += _resolved_blocks(header, L.HEADER + len(body), problem)
     return np.concatenate([header, np.asarray(body, float)])
+
+
+#: The header slots of the limit tables and of the allowance tables, in the order of ``Limits.tables``.
+_LIMIT_SLOTS = (L.H_LIMIT_DISCHARGE_CURRENT, L.H_LIMIT_CHARGE_CURRENT, L.H_LIMIT_DISCHARGE_POWER,
+                L.H_LIMIT_CHARGE_POWER)
+_DERATE_SLOTS = (L.H_DERATE_DISCHARGE_CURRENT, L.H_DERATE_CHARGE_CURRENT, L.H_DERATE_DISCHARGE_POWER,
+                 L.H_DERATE_CHARGE_POWER)
+
+
+def _limit_blocks(header: np.ndarray, start: int, problem: Problem) -> list[float]:
+    """The limit and allowance tables from ``start``, their offsets, flags and the voltage limiter's constants into
+    ``header``. Current tables are per cell (the kernels scale them to the cell's share); power tables the pack's."""
+    c, pk = problem.cell, problem.pack
+    header[L.H_CELL_VOLTAGE_MIN], header[L.H_CELL_VOLTAGE_MAX] = c.voltage_min, c.voltage_max
+    body: list[float] = []
+    limits = problem.limits
+    for slot, table in zip(_LIMIT_SLOTS, limits.tables, strict=True):
+        if table is not None:
+            header[slot] = start + len(body)
+            header[L.H_LIMITS] = 1.0
+            body += L.law_block(table)
+    derating = problem.derating
+    if derating is None:
+        return body
+    header[L.H_DERATE] = 1.0
+    for slot, table in zip(_DERATE_SLOTS, derating.tables, strict=True):
+        if table is not None:
+            header[slot] = start + len(body)
+            body += L.law_block(table)
+    # the limiter lets go once the held current passes the demand by a hundred-thousandth of the 1 C current:
+    # small against any demand, large enough to keep its root function clear of zero where it switched
+    header[L.H_HOLD_HYSTERESIS] = 1e-5 * pk.parallel * c.capacity / SECONDS_PER_HOUR
+    header[L.H_CUTOFF] = pk.parallel * derating.cutoff_current
+    header[L.H_RAMP_RATE] = pk.parallel * derating.ramp_rate
+    return body
 
 
 def _resolved_blocks(header: np.ndarray, start: int, problem: Problem) -> list[float]:

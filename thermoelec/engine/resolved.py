@@ -37,6 +37,7 @@ import numba
 import numpy as np
 
 from thermoelec.engine import layout as L
+from thermoelec.engine import limits as bms
 from thermoelec.physics import cell as cellphys
 from thermoelec.physics import correlations
 from thermoelec.physics import pack as packphys
@@ -174,8 +175,8 @@ def _conduction_and_coolant(y, p, ydot, n, nrc, table, width, work):
 def evaluate_pack(y, p, ydot, alg):
     """Fill ``ydot`` and ``alg`` at state ``y`` for a resolved pack; per-cell values go to the work block of ``p``.
 
-    About 130 lines in one function with three inlined passes (group sums,
-    conduction and coolant, the sink), on purpose: it runs ~10^5 times a mission
+    About 160 lines in one function with inlined passes (group sums, the
+    derating's bounds, conduction and coolant, the sink), on purpose: it runs ~10^5 times a mission
     for every cell, and the cell loop carries a dozen running sums and extremes
     that a further split would pass back and forth.
 
@@ -227,7 +228,13 @@ def evaluate_pack(y, p, ydot, alg):
     value = p[L.H_VALUE]
     heater = p[L.H_HEATER_POWER] if p[L.H_HEATER_ON] == 1.0 else 0.0
     aux = heater if p[L.H_HEATER_FROM_PACK] == 1.0 else 0.0
-    current = pack_current(mode, value, emf, rtot, aux)
+    demanded = pack_current(mode, value, emf, rtot, aux)
+    current = allowed = demanded
+    hold_dis = hold_ch = deliverable = np.inf
+    if p[L.H_DERATE] == 1.0:  # the BMS's derating: each cell's allowances, the voltage limiter, the ramp
+        i_dis, i_ch, p_dis, p_ch, hold_dis, hold_ch = bms.pack_bounds(y, p, n, nrc, table, width, work, groups)
+        current, allowed, deliverable = bms.delivered_current(p, demanded, emf, rtot, i_dis, i_ch, p_dis, p_ch,
+                                                              hold_dis, hold_ch)
     voltage = emf - current * rtot
     v_low, v_high, g_low, g_high = np.inf, -np.inf, 0, 0
     for g in range(ns):
@@ -244,6 +251,9 @@ def evaluate_pack(y, p, ydot, alg):
     charge = capacity = u_sum = r_sum = dudt_sum = t_sum = 0.0
     t_high, t_low, z_low, z_high, share = -np.inf, np.inf, np.inf, -np.inf, 0.0
     c_hot = c_cold = c_low = c_high = c_share = 0
+    limits = p[L.H_LIMITS] == 1.0
+    i_high, i_low, m_dis, m_ch, lim_dis, lim_ch = -np.inf, np.inf, np.inf, np.inf, np.inf, np.inf
+    c_dis = c_ch = 0
     for c in range(n):
         b = c * nb
         rec = table + c * width
@@ -288,6 +298,16 @@ def evaluate_pack(y, p, ydot, alg):
             z_high, c_high = z, c
         if counted and icell * npar / current > share:
             share, c_share = icell * npar / current, c
+        i_high = max(i_high, icell)
+        i_low = min(i_low, icell)
+        if limits:  # the pack specification's limits, each cell at its own state
+            d_i, c_i, d_p, c_p = bms.cell_current_margins(p, z, tc, icell)
+            if d_i < m_dis:
+                m_dis, c_dis = d_i, c
+            if c_i < m_ch:
+                m_ch, c_ch = c_i, c
+            lim_dis = min(lim_dis, d_p)
+            lim_ch = min(lim_ch, c_p)
 
     carried, outlet = _conduction_and_coolant(y, p, ydot, n, nrc, table, width, work)
     for c in range(n):
@@ -328,6 +348,7 @@ def evaluate_pack(y, p, ydot, alg):
     ydot[q0 + L.Q_HEATER] = heater
     ydot[q0 + L.Q_COOLANT] = carried
     ydot[q0 + L.Q_RADIATION] = radiated
+    bms.demand_outputs(ydot, alg, q0, mode, value, aux, emf, rtot, demanded, current, voltage)
 
     alg[L.A_CURRENT] = current
     alg[L.A_VOLTAGE] = voltage
@@ -341,6 +362,8 @@ def evaluate_pack(y, p, ydot, alg):
     alg[L.A_ENTROPIC] = dudt_sum / n
     alg[L.A_R0] = r_sum / n
     alg[L.A_POWER_MARGIN] = power_deliverable_margin(emf, rtot, value + aux) if mode == MODE_POWER else 1.0
+    if mode == MODE_POWER and current != demanded:  # derated: the margin of the power delivered, (E - 2 R I)^2
+        alg[L.A_POWER_MARGIN] = (emf - 2.0 * rtot * current) ** 2
     alg[L.A_AMBIENT] = ta
     alg[L.A_HEATER] = heater
     alg[L.A_COOLANT] = carried
@@ -364,6 +387,17 @@ def evaluate_pack(y, p, ydot, alg):
     alg[L.A_CELL_SOC_LOW] = c_low
     alg[L.A_CELL_SOC_HIGH] = c_high
     alg[L.A_CELL_SHARE] = c_share
+    alg[L.A_CURRENT_ALLOWED] = allowed
+    alg[L.A_HOLD_DISCHARGE] = hold_dis
+    alg[L.A_HOLD_CHARGE] = hold_ch
+    alg[L.A_DELIVERABLE] = deliverable
+    alg[L.A_CELL_CURRENT_HIGH] = i_high
+    alg[L.A_CELL_CURRENT_LOW] = i_low
+    alg[L.A_MARGIN_DISCHARGE_CURRENT] = m_dis
+    alg[L.A_MARGIN_CHARGE_CURRENT] = m_ch
+    bms.power_margins(lim_dis, lim_ch, voltage * current, alg)
+    alg[L.A_CELL_DISCHARGE_LIMIT] = c_dis
+    alg[L.A_CELL_CHARGE_LIMIT] = c_ch
 
 
 #: Per-cell values :func:`pack_cell_values` returns, in order: current [A], heat [W], group voltage [V],

@@ -30,9 +30,12 @@ __all__ = [
     "current_for_power",
     "current_for_resistance",
     "current_for_voltage",
+    "derated_current",
+    "held_current",
     "maximum_power",
     "pack_current",
     "power_deliverable_margin",
+    "ramped_current",
     "terminal_voltage_with_auxiliary_load",
     "voltage_limited_power",
 ]
@@ -334,3 +337,160 @@ def pack_current(mode: int, value: float, emf: float, resistance: float, auxilia
             return v_aux / value + auxiliary_power / v_aux
         return current_for_resistance(emf, resistance, value)
     return current_for_voltage(emf, resistance, value)
+
+
+@register_jitable
+def derated_current(current: float, emf: float, resistance: float, discharge_current: float,
+                    charge_current: float, discharge_power: float, charge_power: float) -> float:
+    """The demand's pack current held within a BMS's current and power allowances.
+
+    A discharge (``I > 0``) is limited to ``I_d`` and, where its power
+    ``P(I) = E I - R I²`` would pass ``P_d``, to the current that delivers ``P_d``
+    (the lower root of ``R I² - E I + P_d = 0``, :func:`current_for_power`); a charge
+    (``I < 0``) likewise to ``-I_c`` and to the current that takes ``P_c`` in.
+    The sign of the demand is kept; no allowance gives more than the demand. Give
+    ``inf`` for an allowance the BMS does not set.
+
+    Parameters
+    ----------
+    current : float
+        The demand's pack current [A], > 0 discharging.
+    emf : float
+        Source voltage behind the pack resistance [V].
+    resistance : float
+        Pack series resistance [Ω], > 0.
+    discharge_current : float
+        Allowed discharge current of the pack [A], >= 0.
+    charge_current : float
+        Allowed charge current of the pack, a magnitude [A], >= 0.
+    discharge_power : float
+        Allowed power to the load [W], >= 0.
+    charge_power : float
+        Allowed power into the terminals while charging, a magnitude [W], >= 0.
+
+    Returns
+    -------
+    float
+        The delivered pack current [A]: between 0 and the demand.
+
+    References
+    ----------
+    Circuit theory (common practice): a constant-power load on a source behind a resistance,
+    as in :func:`current_for_power`; the allowances as a battery management system sets them
+    (G. L. Plett, *Battery Management Systems*, Vol. II, Artech House (2016), ch. 7, from memory).
+
+    Examples
+    --------
+    A 40 A demand on 3.7 V behind 20 mohm, allowed 35 A and 100 W: the power allowance binds
+    (35 A would give 105 W), so the current is the lower root for 100 W:
+
+    >>> round(float(derated_current(40.0, 3.7, 0.02, 35.0, 10.0, 100.0, 50.0)), 6)
+    32.865698
+    """
+    if current > 0.0:
+        if current > discharge_current:
+            current = discharge_current
+        if emf * current - resistance * current * current > discharge_power:
+            current = current_for_power(emf, resistance, discharge_power)
+    elif current < 0.0:
+        if current < -charge_current:
+            current = -charge_current
+        if resistance * current * current - emf * current > charge_power:
+            current = current_for_power(emf, resistance, -charge_power)
+    return current
+
+
+@register_jitable
+def held_current(current: float, hold: float, hold_discharge: float, hold_charge: float) -> float:
+    """The pack current under a voltage limiter that holds the cells at their voltage limit.
+
+    Held at the minimum voltage (``hold = 1``) the pack delivers at most the
+    current that keeps its lowest cell there, ``I = min(I_demand, I_hold,min)``; held at the
+    maximum (``hold = -1``) it takes at most the charge that keeps its highest cell
+    there, ``I = max(I_demand, I_hold,max)``; free (``hold = 0``) the demand's current.
+    The sign of the demand is kept: where holding the limit would take a current the
+    other way (the cells already past their limit at no current), the pack delivers none.
+    With the cells' source ``E`` behind ``R``, the current that holds them at ``V_lim``
+    is ``(E - V_lim) / R`` (:func:`current_for_voltage`).
+
+    Parameters
+    ----------
+    current : float
+        The demand's pack current (after any allowance) [A], > 0 discharging.
+    hold : float
+        Hold state: 0 free, 1 held at the minimum voltage, -1 at the maximum [-].
+    hold_discharge : float
+        Pack current that holds the lowest cell at its minimum voltage [A].
+    hold_charge : float
+        Pack current that holds the highest cell at its maximum voltage [A] (< 0 to charge).
+
+    Returns
+    -------
+    float
+        The delivered pack current [A].
+
+    References
+    ----------
+    Kirchhoff's laws (circuit theory, common practice); the voltage limit held by the battery
+    management system instead of a cutoff, as a constant-voltage charger holds its limit.
+
+    Examples
+    --------
+    Held at the minimum voltage: a 40 A demand gets the 35 A that holds the cells there:
+
+    >>> held_current(40.0, 1.0, 35.0, -60.0)
+    35.0
+    """
+    if hold == 1.0 and current > hold_discharge:
+        return hold_discharge if hold_discharge > 0.0 else 0.0
+    if hold == -1.0 and current < hold_charge:
+        return hold_charge if hold_charge < 0.0 else 0.0
+    return current
+
+
+@register_jitable
+def ramped_current(current: float, start_current: float, rate: float, elapsed: float) -> float:
+    """The pack current with its rises limited to a ramp rate since ``start_current``.
+
+    The magnitude of the current rises at most at ``rate`` from where it was
+    (``start_current``, counted from zero when its sign differs): a discharge is at
+    most ``max(I_0, 0) + r t``, a charge at least ``min(I_0, 0) - r t``; a fall of
+    the magnitude is never delayed. ``rate = 0`` means no ramp.
+
+    Parameters
+    ----------
+    current : float
+        The current otherwise delivered [A], > 0 discharging.
+    start_current : float
+        The delivered current where the ramp starts [A].
+    rate : float
+        Fastest rise of the magnitude [A/s], >= 0; 0 for none.
+    elapsed : float
+        Time since the ramp started [s], >= 0.
+
+    Returns
+    -------
+    float
+        The delivered current [A].
+
+    References
+    ----------
+    A slew-rate limit, as battery management systems and motor drives apply to current steps
+    (common practice).
+
+    Examples
+    --------
+    A step from 10 A to 40 A ramped at 5 A/s, 2 s after the step:
+
+    >>> ramped_current(40.0, 10.0, 5.0, 2.0)
+    20.0
+    """
+    if rate <= 0.0:
+        return current
+    if current > 0.0:
+        ceiling = (start_current if start_current > 0.0 else 0.0) + rate * elapsed
+        return current if current < ceiling else ceiling
+    if current < 0.0:
+        floor = (start_current if start_current < 0.0 else 0.0) - rate * elapsed
+        return current if current > floor else floor
+    return current

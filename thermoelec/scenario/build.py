@@ -19,7 +19,7 @@ from pathlib import Path
 
 import numpy as np
 
-from thermoelec.engine.problem import Limits, Problem
+from thermoelec.engine.problem import Problem
 from thermoelec.engine.profile import Segment, expand_repeats, segments_from_series
 from thermoelec.inputs.errors import ScenarioError
 from thermoelec.physics.cell import Cell, Pack
@@ -81,7 +81,8 @@ def build_problem(spec: ScenarioSpec, base_dir: Path, source: str, cache: Scenar
         segments=segments,
         ambient_temperature=ambient, initial_soc=spec.cell.initial_soc,
         initial_cell_temperature=t_cell, initial_sink_temperature=t_sink,
-        limits=Limits(spec.limits.cell_temperature_max, spec.limits.charge_temperature_min),
+        limits=spec.limits.limits(spec.cell.capacity),
+        derating=None if spec.derating is None else spec.derating.derating(spec.cell.capacity),
         name=spec.scenario.name, stress=spec.stress.settings(),
         ambient_profile=ambient_profile, soak=soak,
         initial_coolant_temperature=_initial_coolant_temperature(spec, t_cell, t_sink),

@@ -28,7 +28,7 @@ from thermoelec.inputs.units import from_si
 from thermoelec.physics.loads import LOAD_MODES
 from thermoelec.scenario.loading import Scenario
 from thermoelec.scenario.overrides import split_path
-from thermoelec.scenario.schema import SegmentSpec, Unit
+from thermoelec.scenario.schema import LimitTableSpec, SegmentSpec, Unit
 
 __all__ = ["DERIVED_DEFAULTS", "Parameter", "format_number", "resolved_parameters"]
 
@@ -38,6 +38,7 @@ DERIVED_DEFAULTS: dict[str, str] = {
     "thermal.initial_cell_temperature": "the ambient at t = 0",
     "thermal.initial_sink_temperature": "the initial cell temperature",
     "thermal.coolant.initial_temperature": "the sink's while a pump starts off, else the inlet",
+    "derating.cutoff_current": "a twentieth of the cell's 1 C current",
 }
 #: Sections listed apart (the sweep's axes and the comparison's cases are no parameters of one run).
 _SKIPPED = ("sweep", "case")
@@ -118,7 +119,9 @@ def _leaves(model: BaseModel, prefix: str) -> Iterator[tuple[str, Any, Unit | No
             continue
         key = f"{prefix}.{name}" if prefix else name
         value = getattr(model, name)
-        if isinstance(value, BaseModel):
+        if isinstance(value, LimitTableSpec) and value.value is not None:  # a constant limit: the key's own value
+            yield key, value.value, _unit_of(type(value), "value")
+        elif isinstance(value, BaseModel):
             yield from _leaves(value, key)
         elif isinstance(value, list) and value and isinstance(value[0], BaseModel):
             for i, item in enumerate(value, start=1):
@@ -137,6 +140,8 @@ def _derived(problem: Problem, key: str) -> float | None:
         "thermal.initial_cell_temperature": problem.initial_cell_temperature,
         "thermal.initial_sink_temperature": problem.initial_sink_temperature,
     }
+    if key == "derating.cutoff_current" and problem.derating is not None:
+        return problem.derating.cutoff_current
     if key == "thermal.coolant.initial_temperature" and problem.thermal.coolant is not None:
         return problem.initial_coolant_temperature or problem.thermal.coolant.inlet_temperature
     return values.get(key)

@@ -16,17 +16,17 @@ from __future__ import annotations
 
 import itertools
 from dataclasses import dataclass
-from typing import Annotated, Any, Literal
+from typing import Annotated, Any, ClassVar, Literal
 
 import numpy as np
 from pydantic import BaseModel, BeforeValidator, ConfigDict, create_model, model_validator
 
 from thermoelec.engine.backends import BACKENDS
 from thermoelec.engine.options import SolverOptions
-from thermoelec.engine.problem import StressSettings
+from thermoelec.engine.problem import Derating, Limits, LimitTable, StressSettings
 from thermoelec.inputs.units import to_si
 from thermoelec.physics.cell import CellGeometry, RCPair, ResistanceLaw
-from thermoelec.physics.constants import ZERO_CELSIUS
+from thermoelec.physics.constants import SECONDS_PER_HOUR, ZERO_CELSIUS
 from thermoelec.physics.correlations import FORCED_CORRELATION_NAMES, NATURAL_CORRELATION_NAMES
 from thermoelec.physics.loads import LOAD_MODES, SEGMENT_MODES
 from thermoelec.physics.thermal import (
@@ -41,7 +41,8 @@ from thermoelec.physics.thermal import (
 )
 from thermoelec.scenario.series import AMBIENT_COLUMN
 
-__all__ = ["FORMAT_VERSION", "MIN_RTOL", "CellFileSpec", "KeyedError", "ScenarioSpec", "SegmentSpec", "Unit"]
+__all__ = ["FORMAT_VERSION", "MIN_RTOL", "CellFileSpec", "CurrentLimitSpec", "DeratingSpec", "KeyedError",
+           "LimitTableSpec", "LimitsSpec", "PowerLimitSpec", "RateLimitSpec", "ScenarioSpec", "SegmentSpec", "Unit"]
 
 #: The scenario format this schema reads (the file's ``format`` key).
 FORMAT_VERSION = 1
@@ -834,16 +835,200 @@ class ProfileSpec(_Section):
         return self
 
 
+class LimitTableSpec(_Section):
+    """A limit or an allowance over cell temperature and SoC, in one of four forms: ``value`` (a
+    constant; a bare quantity for the key stands for it), ``temperature`` + ``values`` (one value per
+    temperature), ``soc`` + ``values`` (one per SoC), or ``soc`` + ``temperature`` + ``values`` (one row
+    over SoC per temperature). Bilinear between the breakpoints, held at the edge values beyond them;
+    every value >= 0."""
+
+    #: The unit of a bare number (set by each kind of limit).
+    unit: ClassVar[str] = ""
+    value: float | None = None  # each kind of limit gives its unit (and the values' unit) to these two
+    values: list[list[float]] | None = None
+    soc: SocList | None = None
+    temperature: TemperatureList | None = None
+
+    @model_validator(mode="before")
+    @classmethod
+    def _constant(cls, data: Any) -> Any:
+        """A bare quantity for the key is the table's ``value`` (read here, so its error names the key)."""
+        if isinstance(data, dict):
+            return data
+        value = to_si(data, cls.unit, cls.unit)
+        if value < 0.0:
+            raise ValueError(f"a limit must be >= 0 (a negative allowance is none at all: give 0), got {data!r}")
+        return {"value": value}
+
+    @model_validator(mode="after")
+    def _table(self):
+        value, values = self.value, self.values
+        if value is not None:
+            _check(values is None and self.soc is None and self.temperature is None,
+                   "give value (a constant), or a table of values over temperature and / or soc, not both", "value")
+            _check(value >= 0.0, f"the limit must be >= 0, got {value:g} {self.unit}".rstrip(), "value")
+            return self
+        _check(values is not None and (self.soc is not None or self.temperature is not None),
+               "give value (a constant), or values with temperature and / or soc (a table)", "values")
+        for axis in ("soc", "temperature"):
+            grid = getattr(self, axis)
+            if grid is not None:
+                _check(all(b > a for a, b in itertools.pairwise(grid)),
+                       f"{axis} breakpoints must be strictly increasing", axis)
+        if self.soc is not None:
+            _check(self.soc[0] >= 0.0 and self.soc[-1] <= 1.0, "soc values must lie within 0..1", "soc")
+        _table_rows(values, self.soc, self.temperature)
+        for r, row in enumerate(values):
+            for k, x in enumerate(row):
+                where = f"row {r + 1}, item {k + 1}" if len(values) > 1 else f"item {k + 1}"
+                _check(x >= 0.0, f"values {where} is {x:g}: a limit must be >= 0 (a negative allowance is none "
+                       "at all: give 0)", "values")
+        return self
+
+    def table(self) -> LimitTable:
+        """The limit for the engine, in SI units (one row per temperature)."""
+        value, values = self.value, self.values
+        if value is not None:
+            return LimitTable.constant(value)
+        rows = _table_rows(values, self.soc, self.temperature)
+        soc = tuple(self.soc) if self.soc is not None else (0.0,)
+        temperature = tuple(self.temperature) if self.temperature is not None else (REFERENCE_TEMPERATURE,)
+        return LimitTable(soc, temperature, tuple(float(x) for row in rows for x in row))
+
+
+def _table_rows(values: list[list[float]], soc: list[float] | None, temperature: list[float] | None) -> list:
+    """A limit table's values as one row over SoC per temperature; :class:`KeyedError` where the sizes disagree."""
+    if soc is None:  # over temperature: one value per temperature
+        flat = [x for row in values for x in row]
+        _check(len(values) == 1 and len(flat) == len(temperature),
+               f"values needs one value per temperature ({len(temperature)}), got {len(flat)}", "values")
+        return [[x] for x in flat]
+    if temperature is None:  # over SoC: one row
+        _check(len(values) == 1 and len(values[0]) == len(soc),
+               f"values needs one value per soc point ({len(soc)}), got {sum(len(r) for r in values)}", "values")
+        return values
+    _check(len(values) == len(temperature), f"values has {len(values)} rows but temperature has "
+           f"{len(temperature)} values: give one row over soc per temperature", "values")
+    for r, row in enumerate(values):
+        _check(len(row) == len(soc), f"values row {r + 1} has {len(row)} values but soc has {len(soc)}", "values")
+    return values
+
+
+class CurrentLimitSpec(LimitTableSpec):
+    """A current of one cell [A] over its temperature and SoC."""
+
+    unit: ClassVar[str] = "A"
+    value: Current | None = None
+    values: Annotated[list[list[float]], _quantity_table("A"), Unit("A", "A")] | None = None
+
+
+class RateLimitSpec(LimitTableSpec):
+    """A C-rate of one cell (its current over its capacity in Ah) [1/h] over its temperature and SoC."""
+
+    unit: ClassVar[str] = ""
+    value: Dimensionless | None = None
+    values: Annotated[list[list[float]], _quantity_table(""), Unit("", "")] | None = None
+
+
+class PowerLimitSpec(LimitTableSpec):
+    """A power of the pack [W] over the cells' temperature and SoC (read at each cell, the least binds)."""
+
+    unit: ClassVar[str] = "W"
+    value: Power | None = None
+    values: Annotated[list[list[float]], _quantity_table("W"), Unit("W", "W")] | None = None
+
+
+def _current_or_rate(spec: BaseModel, current: str, rate: str, capacity: float) -> LimitTable | None:
+    """A current limit given in amperes or as a C-rate (times the cell's capacity [C]), for the engine [A]."""
+    if getattr(spec, current) is not None:
+        return getattr(spec, current).table()
+    if getattr(spec, rate) is not None:
+        return getattr(spec, rate).table().scaled(capacity / SECONDS_PER_HOUR)
+    return None
+
+
 class LimitsSpec(_Section):
     cell_temperature_max: Temperature = ZERO_CELSIUS + 60.0  # 60 degC, common practice for Li-ion cells
     charge_temperature_min: Temperature = ZERO_CELSIUS  # no charging below 0 degC (lithium plating; common practice)
+    discharge_current_max: CurrentLimitSpec | None = None
+    discharge_c_rate_max: RateLimitSpec | None = None
+    charge_current_max: CurrentLimitSpec | None = None
+    charge_c_rate_max: RateLimitSpec | None = None
+    discharge_power_max: PowerLimitSpec | None = None
+    charge_power_max: PowerLimitSpec | None = None
+    discharge_temperature_min: Temperature | None = None
+    charge_temperature_max: Temperature | None = None
+    sink_temperature_max: Temperature | None = None
 
     @model_validator(mode="after")
     def _limits(self):
         _check(self.charge_temperature_min < self.cell_temperature_max,
                f"charge_temperature_min ({self.charge_temperature_min - ZERO_CELSIUS:.4g} degC) must be below "
                f"cell_temperature_max ({self.cell_temperature_max - ZERO_CELSIUS:.4g} degC)", "charge_temperature_min")
+        for direction in ("discharge", "charge"):
+            _check(getattr(self, f"{direction}_current_max") is None or getattr(self, f"{direction}_c_rate_max")
+                   is None, f"give {direction}_current_max or {direction}_c_rate_max, not both",
+                   f"{direction}_c_rate_max")
+        if self.discharge_temperature_min is not None:
+            _check(self.discharge_temperature_min < self.cell_temperature_max,
+                   f"discharge_temperature_min ({self.discharge_temperature_min - ZERO_CELSIUS:.4g} degC) must be "
+                   f"below cell_temperature_max ({self.cell_temperature_max - ZERO_CELSIUS:.4g} degC)",
+                   "discharge_temperature_min")
+        if self.charge_temperature_max is not None:
+            _check(self.charge_temperature_max > self.charge_temperature_min,
+                   f"charge_temperature_max ({self.charge_temperature_max - ZERO_CELSIUS:.4g} degC) must be above "
+                   f"charge_temperature_min ({self.charge_temperature_min - ZERO_CELSIUS:.4g} degC)",
+                   "charge_temperature_max")
         return self
+
+    def limits(self, capacity: float) -> Limits:
+        """The engine's limits, C-rates in amperes for a cell of ``capacity`` [C]."""
+        return Limits(
+            self.cell_temperature_max, self.charge_temperature_min,
+            discharge_current_max=_current_or_rate(self, "discharge_current_max", "discharge_c_rate_max", capacity),
+            charge_current_max=_current_or_rate(self, "charge_current_max", "charge_c_rate_max", capacity),
+            discharge_power_max=None if self.discharge_power_max is None else self.discharge_power_max.table(),
+            charge_power_max=None if self.charge_power_max is None else self.charge_power_max.table(),
+            discharge_temperature_min=self.discharge_temperature_min,
+            charge_temperature_max=self.charge_temperature_max, sink_temperature_max=self.sink_temperature_max)
+
+
+#: The default cutoff of the derating, a twentieth of the 1 C current (where a CC-CV charge ends too; common practice).
+DEFAULT_CUTOFF_C_RATE = 1.0 / 20.0
+
+
+class DeratingSpec(_Section):
+    """The battery management system's derating: allowances over the cells' state, a ramp, the voltage limiter."""
+
+    discharge_current: CurrentLimitSpec | None = None
+    discharge_c_rate: RateLimitSpec | None = None
+    charge_current: CurrentLimitSpec | None = None
+    charge_c_rate: RateLimitSpec | None = None
+    discharge_power: PowerLimitSpec | None = None
+    charge_power: PowerLimitSpec | None = None
+    ramp_rate: Annotated[float, _quantity("A/s"), Unit("A/s", "A/s")] | None = None
+    voltage_limiter: bool = True
+    cutoff_current: Current | None = None
+
+    @model_validator(mode="after")
+    def _derating(self):
+        for direction in ("discharge", "charge"):
+            _check(getattr(self, f"{direction}_current") is None or getattr(self, f"{direction}_c_rate") is None,
+                   f"give {direction}_current or {direction}_c_rate, not both", f"{direction}_c_rate")
+        _positive(self.ramp_rate, "ramp_rate")
+        _positive(self.cutoff_current, "cutoff_current", allow_zero=True)
+        return self
+
+    def derating(self, capacity: float) -> Derating:
+        """The engine's derating, C-rates in amperes for a cell of ``capacity`` [C]; the cutoff C/20 by default."""
+        cutoff = self.cutoff_current if self.cutoff_current is not None else \
+            DEFAULT_CUTOFF_C_RATE * capacity / SECONDS_PER_HOUR
+        return Derating(
+            discharge_current=_current_or_rate(self, "discharge_current", "discharge_c_rate", capacity),
+            charge_current=_current_or_rate(self, "charge_current", "charge_c_rate", capacity),
+            discharge_power=None if self.discharge_power is None else self.discharge_power.table(),
+            charge_power=None if self.charge_power is None else self.charge_power.table(),
+            ramp_rate=self.ramp_rate or 0.0, voltage_limiter=self.voltage_limiter, cutoff_current=cutoff)
 
 
 class StressSpec(_Section):
@@ -925,6 +1110,7 @@ class ScenarioSpec(_Section):
     thermal: ThermalSpec
     profile: ProfileSpec
     limits: LimitsSpec = LimitsSpec()
+    derating: DeratingSpec | None = None
     solver: SolverSpec = SolverSpec()
     stress: StressSpec = StressSpec()
     sweep: dict[str, Any] = {}
