@@ -6,6 +6,9 @@ commands:
   sweep SCENARIO --out DIR     run every combination of swept keys, or search for the least (greatest) value
                                of one key that meets a criterion
   fit {ocv,pulse,thermal} LOG  fit cell or thermal parameters to test logs and write a cell file
+  capability SCENARIO --out DIR
+                               the largest constant power and current for 2 s, 10 s, 30 s pulses (--pulse)
+                               over SoC x temperature, discharge and charge, and the limit that binds each
   check SCENARIO               validate a scenario without running it: its parameters with defaults and
                                units, and what its profile asks of the pack
   new FILE                     write a commented template scenario to start from
@@ -398,6 +401,99 @@ def _print_search(found) -> None:
         print(f"  {where}: {said}")
 
 
+def _axis(text: str | None, unit: str, option: str, default, low: float | None = None,
+          high: float | None = None):
+    """A capability grid's axis from a comma-separated list of quantities (each checked), or its default [SI]."""
+    import numpy as np
+
+    if text is None:
+        return np.asarray(default, float)
+    items = [item.strip() for item in str(text).split(",")]
+    if not any(items):
+        raise ScenarioError(option, str(text), "the list is empty: give at least one value")
+    if not all(items):
+        raise ScenarioError(option, str(text), "an item of the list is empty")
+    values = [_quantity_option(item, unit, option, positive=low == 0.0 and unit == "s") for item in items]
+    for item, value in zip(items, values, strict=True):
+        if (low is not None and value < low) or (high is not None and value > high):
+            raise ScenarioError(option, item, f"must lie within {low:g}..{high:g}")
+    if len(set(values)) < len(values):
+        raise ScenarioError(option, str(text), "a value is given twice")
+    return np.sort(np.asarray(values, float))
+
+
+def _capability_grid(args: argparse.Namespace, problem):
+    """The grid of ``capability``: the options' axes where given, the cell's defaults elsewhere (all checked)."""
+    from thermoelec.analysis.capability import DEFAULT_PULSES, CapabilityGrid, default_grid
+
+    grid = default_grid(problem)
+    durations = _axis(args.pulse, "s", "--pulse", DEFAULT_PULSES, low=0.0)
+    temperatures = _axis(args.temperature, "degC", "--temperature", grid.temperatures)
+    socs = _axis(args.soc, "", "--soc", grid.socs, low=0.0, high=1.0)
+    return CapabilityGrid(durations, temperatures, socs)
+
+
+def _capability(args: argparse.Namespace) -> int:
+    from thermoelec.analysis.capability import capability
+    from thermoelec.analysis.estimates import check_capability
+    from thermoelec.engine.pulse import PULSE_KINDS
+
+    out = check_output_path(args.out)
+    scenario = _load(args)
+    # the profile is not used: a rest stands in for it (a long mission's segments are not built)
+    problem = scenario.with_overrides({"profile": {"segment": [{"mode": "rest", "duration": "1 s"}]}},
+                                      origin="capability").problem()
+    grid = _capability_grid(args, problem)
+    check_capability(scenario, grid.size * len(PULSE_KINDS), float(grid.durations.max()))
+    with hold(out, args.command_line) as folder:
+        _notes(folder)
+        with _progress(f"solving {grid.size * len(PULSE_KINDS)} capabilities of {scenario.name}", not args.quiet):
+            result = capability(problem, grid, scenario.solver_options(),
+                                {"scenario_file": scenario.source, "scenario_sha256": scenario.digest})
+        try:
+            with _progress("writing results and figures", not args.quiet), folder.transaction() as stage:
+                _write_capability(result, scenario, stage, not args.no_figures)
+        except OSError as exc:
+            print(f"thermoelec: cannot write results to {out}: {exc.strerror or exc}", file=sys.stderr)
+            return EXIT_FAILURE
+    if not args.quiet:
+        _print_capability(result, out)
+    return EXIT_OK
+
+
+def _write_capability(result, scenario, out: Path, figures: bool) -> None:
+    """The data first (a plotting problem loses nothing), then the heat maps and the report."""
+    result.write(out)
+    if figures:
+        from thermoelec.output.capability_figures import write_capability_figures
+        from thermoelec.output.report import capability_report, write_report
+        from thermoelec.scenario.parameters import resolved_parameters
+
+        pngs = {p.stem: p.read_bytes() for p in write_capability_figures(result, out) if p.suffix == ".png"}
+        write_report(capability_report(result, scenario.raw, scenario.spec.scenario.description, pngs,
+                                       resolved_parameters(scenario)), out)
+
+
+def _print_capability(result, out: Path) -> None:
+    """Each duration's four capabilities at the state nearest 25 degC and SoC 0.5, with the limits that bind."""
+    import numpy as np
+
+    from thermoelec.engine.pulse import PULSE_KINDS
+    from thermoelec.output.tables import format_value
+    from thermoelec.physics.constants import ZERO_CELSIUS
+
+    g = result.grid
+    ti = int(np.argmin(np.abs(g.temperatures - ZERO_CELSIUS - 25.0)))
+    zi = int(np.argmin(np.abs(g.socs - 0.5)))
+    print(f"capability of {result.metadata.get('scenario', '')} in {out}/ ({g.size} entries: "
+          f"{len(g.durations)} durations x {len(g.temperatures)} temperatures x {len(g.socs)} SoC)")
+    print(f"at {g.temperatures[ti] - ZERO_CELSIUS:g} degC, SoC {g.socs[zi]:g} (the limit that binds):")
+    for d, duration in enumerate(g.durations):
+        cells = [f"{kind.name.replace('_', ' ')} {format_value(float(result.values[kind.name][d, ti, zi]), kind.unit)}"
+                 f" ({result.binding[kind.name][d, ti, zi]})" for kind in PULSE_KINDS]
+        print(f"  {duration:g} s: " + ", ".join(cells))
+
+
 def _check(args: argparse.Namespace) -> int:
     from thermoelec.analysis.demand import profile_demand
     from thermoelec.analysis.estimates import check_run
@@ -600,6 +696,30 @@ def _add_run_parsers(sub) -> None:
     new.set_defaults(handler=_new)
 
 
+def _add_capability_parser(sub) -> None:
+    cap = sub.add_parser("capability", help="pulse power and current capability over SoC x temperature",
+                         description="The largest constant power and current the pack delivers and accepts for "
+                                     "pulses of each duration, from rest at each SoC and temperature, inside every "
+                                     "limit of [limits] and the voltage limits through the whole pulse (RC pairs "
+                                     "and self-heating included); the limit that binds each. Writes capability.csv "
+                                     "(tidy), capability.nc, a heat map per duration and report.html. The "
+                                     "scenario's profile is not used.")
+    cap.add_argument("scenario", help="scenario file (TOML)")
+    cap.add_argument("--out", required=True, help="output folder (created if missing)")
+    cap.add_argument("--pulse", metavar="DURATIONS", help="pulse durations, e.g. '2 s,10 s,30 s' (the default), "
+                                                          "bare numbers in s, each > 0")
+    cap.add_argument("--temperature", metavar="TEMPERATURES",
+                     help="temperatures at the pulse start, e.g. '-20 degC,0 degC,25 degC' (bare numbers in degC; "
+                          "default: the R0 and RC tables' temperatures, else -20, 0, 25, 45 degC)")
+    cap.add_argument("--soc", metavar="SOCS", help="SoC at the pulse start, e.g. '0.2,0.5,0.8' (default: the OCV "
+                                                   "table's points)")
+    cap.add_argument("--set", action="append", metavar="KEY=VALUE", help="override a scenario value by dotted path")
+    cap.add_argument("--quiet", action="store_true", help="print no table and no progress")
+    cap.add_argument("--no-figures", action="store_true", help="write no heat maps and no report (faster)")
+    _budget_options(cap, scenarios=True)
+    cap.set_defaults(handler=_capability)
+
+
 def _add_sweep_parser(sub) -> None:
     sw = sub.add_parser("sweep", help="run every combination of swept keys, or search for the least cooling",
                         description="Run every combination of the swept keys ([sweep] or --sweep): sweep.nc and "
@@ -640,6 +760,7 @@ def build_parser() -> argparse.ArgumentParser:
     sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
     _add_run_parsers(sub)
     _add_sweep_parser(sub)
+    _add_capability_parser(sub)
     _add_fit_parsers(sub)
     return parser
 

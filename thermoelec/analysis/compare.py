@@ -27,7 +27,7 @@ from typing import Any
 
 import numpy as np
 
-from thermoelec.analysis.results import ENERGY_ROWS, SimulationResult
+from thermoelec.analysis.results import DERATING_ROWS, ENERGY_ROWS, SimulationResult
 from thermoelec.analysis.simulate import simulate
 from thermoelec.physics.constants import JOULES_PER_WH
 from thermoelec.scenario import Scenario, ScenarioError
@@ -78,10 +78,11 @@ PACK_COMPARISON_ROWS: tuple[tuple[str, str, str], ...] = (
 
 
 def comparison_rows(outcomes: Sequence[CaseOutcome]) -> tuple[tuple[str, str, str], ...]:
-    """The rows of a comparison: :data:`COMPARISON_ROWS`, and :data:`PACK_COMPARISON_ROWS` when a case resolves
-    its cells."""
+    """The rows of a comparison: :data:`COMPARISON_ROWS`, :data:`~thermoelec.analysis.results.DERATING_ROWS` when a
+    case derates, and :data:`PACK_COMPARISON_ROWS` when a case resolves its cells."""
     resolved = any(o.metrics().get("pack_model") == "resolved" for o in outcomes)
-    return COMPARISON_ROWS + (PACK_COMPARISON_ROWS if resolved else ())
+    derated = any(o.metrics().get("derating") for o in outcomes)
+    return COMPARISON_ROWS + (DERATING_ROWS if derated else ()) + (PACK_COMPARISON_ROWS if resolved else ())
 
 
 @dataclass

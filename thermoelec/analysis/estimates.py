@@ -28,8 +28,9 @@ from thermoelec.inputs.errors import ScenarioError
 from thermoelec.scenario import Scenario
 from thermoelec.scenario.series import read_profile_csv
 
-__all__ = ["BASE_MEMORY", "BYTES_PER_ROW", "BYTES_PER_SCENARIO", "BYTES_PER_SEGMENT", "RunEstimate",
-           "check_compare", "check_run", "check_sweep", "estimate_run", "format_bytes"]
+__all__ = ["BASE_MEMORY", "BYTES_PER_PULSE", "BYTES_PER_ROW", "BYTES_PER_SCENARIO", "BYTES_PER_SEGMENT",
+           "RunEstimate", "check_capability", "check_compare", "check_run", "check_sweep", "estimate_run",
+           "format_bytes"]
 
 #: Memory of a command before its data: the interpreter and its libraries [B] (measured, see above).
 BASE_MEMORY = 3.0e8
@@ -43,6 +44,9 @@ BYTES_PER_SEGMENT = 3200.0
 BYTES_PER_SCENARIO = 3000.0
 #: Copies of the kept series a sweep holds at once while writing ``series.zarr`` [-].
 SERIES_COPIES = 3
+#: Memory per capability of a grid entry: the root finder's arrays, the dataset and the table [B] (an upper
+#: bound: the 10 x 11 x 3 grid of the drone demo, 1 320 capabilities, adds about 0.3 MB to the process).
+BYTES_PER_PULSE = 2000.0
 
 
 @dataclass(frozen=True)
@@ -269,4 +273,46 @@ def check_sweep(scenario: Scenario, size: int, variants: Sequence[Scenario], kee
                 f"of memory, over the budget of {format_bytes(budgets.memory)}"
                 + (" (the kept series alone: a longer --keep-series interval takes less)" if keep_interval else "")
                 + f": raise it with --max-memory '{format_bytes(total * 1.1)}'")
+    return total
+
+
+def check_capability(scenario: Scenario, entries: int, longest: float, budgets: Budgets | None = None) -> float:
+    """Refuse a capability grid over its budgets: its capabilities as scenarios, its longest pulse as rows, memory.
+
+    Parameters
+    ----------
+    scenario : Scenario
+        The scenario (its solver's output interval counts a pulse's rows).
+    entries : int
+        Capabilities to solve for: the grid's entries times the four kinds [-].
+    longest : float
+        The longest pulse [s].
+    budgets : Budgets, optional
+        The limits; those in force by default.
+
+    Returns
+    -------
+    float
+        The estimated peak memory [B].
+
+    Raises
+    ------
+    ScenarioError
+        With the estimate and the option that raises the budget.
+    """
+    budgets = budgets or current()
+    if entries > budgets.scenarios:
+        _refuse(scenario, "capability", "the capability grid", f"has {entries:.3g} capabilities to solve for, over "
+                f"the budget of {budgets.scenarios:.3g}: give fewer durations, temperatures or SoC points, or raise "
+                f"the budget with --max-scenarios {round_up(entries)}")
+    rows = longest / scenario.spec.solver.output_interval
+    if not rows <= budgets.rows:
+        _refuse(scenario, "solver.output_interval", "a pulse", f"of {_duration(longest)} would span {rows:.3g} "
+                f"output intervals, over the budget of {budgets.rows:.3g} rows: give shorter pulses, or raise the "
+                f"budget with --max-rows {round_up(rows)}")
+    total = BASE_MEMORY + entries * BYTES_PER_PULSE
+    if not total <= budgets.memory:
+        _refuse(scenario, "capability", "the capability grid", f"would take about {format_bytes(total)} of memory, "
+                f"over the budget of {format_bytes(budgets.memory)}: raise it with --max-memory "
+                f"'{format_bytes(total * 1.1)}'")
     return total

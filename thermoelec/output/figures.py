@@ -32,12 +32,14 @@ __all__ = [
     "MODE_COLOURS",
     "PACK_MAP",
     "AxisRange",
+    "DemandView",
     "EnergyPart",
     "OperatingState",
     "OperatingView",
     "axis_range",
     "comparison_overlay",
     "dashboard",
+    "demand_delivery",
     "energy_chart",
     "energy_parts",
     "operating_region",
@@ -131,7 +133,7 @@ def dashboard(result: SimulationResult) -> Figure:
     modes = result.demand_mode if result.demand_mode is not None else np.array(["current"] * len(t), dtype=object)
     marker = "o" if len(t) < 3 else None  # a mission stopped at once has one row: show it as a point
     _shade_modes(axes, t, modes)
-    _draw_power(fig, ax_power, t, s, modes, result.demand_value, marker)
+    _draw_power(fig, ax_power, t, result, modes, marker)
     _draw_electrical(ax_current, ax_voltage, ax_soc, t, s, result.limits, marker)
     _draw_thermal(ax_temp, ax_heat, t, s, result.limits, marker)
     _name_segments(ax_power, t, result.segment_name)
@@ -203,11 +205,52 @@ def _shade_modes(axes: Sequence[Any], t: np.ndarray, modes: np.ndarray) -> None:
                 ax.axvline(t[first], color="0.6", lw=0.6)
 
 
-def _draw_power(fig: Figure, ax: Any, t: np.ndarray, s: Mapping[str, np.ndarray], modes: np.ndarray,
-                demand_value: np.ndarray | None, marker: str | None = None) -> None:
-    """Power to the load [W] and the demanded power; the figure's legend (modes and power lines)."""
+@dataclass(frozen=True)
+class DemandView:
+    """The demand against what a derated pack delivered, for the dashboard.
+
+    Attributes
+    ----------
+    demanded : array
+        Power the demand asked at the terminals, each row [W].
+    delivered : array
+        Power the pack delivered [W].
+    withheld : bool array
+        Rows where the delivered power falls short of the demand (the gap is shaded).
+    """
+
+    demanded: np.ndarray
+    delivered: np.ndarray
+    withheld: np.ndarray
+
+
+def demand_delivery(result: SimulationResult) -> DemandView | None:
+    """The demanded and the delivered power of a derated mission (None without derating).
+
+    Parameters
+    ----------
+    result : SimulationResult
+        A simulated mission; with a BMS's derating its series carry ``power_demanded_W`` [W].
+    """
+    s = result.series
+    if "power_demanded_W" not in s:
+        return None
+    demanded, delivered = s["power_demanded_W"], s["power_W"]
+    return DemandView(demanded, delivered, np.abs(demanded - delivered) > 1e-9 * np.maximum(np.abs(demanded), 1.0))
+
+
+def _draw_power(fig: Figure, ax: Any, t: np.ndarray, result: SimulationResult, modes: np.ndarray,
+                marker: str | None = None) -> None:
+    """Power to the load [W] and the demanded power (with a derating, the gap it withheld shaded); the figure's
+    legend (modes and power lines)."""
+    s, demand_value = result.series, result.demand_value
     ax.plot(t, s["power_W"], color="C1", lw=1.0, marker=marker, label="power to load")
-    if demand_value is not None:
+    view = demand_delivery(result)
+    if view is not None:
+        ax.plot(t, view.demanded, color="k", lw=0.8, ls="--", marker=marker, mfc="none", label="demanded power")
+        ax.fill_between(t, view.demanded, view.delivered, where=view.withheld, color="C3", alpha=0.3, lw=0,
+                        label="not delivered (BMS derating)")
+    elif demand_value is not None:
         demanded = np.where(modes == "power", demand_value, np.nan)
         if np.isfinite(demanded).any():
             ax.plot(t, demanded, color="k", lw=0.8, ls="--", marker=marker, mfc="none", label="demanded power")
@@ -280,7 +323,10 @@ def _draw_electrical(ax_current: Any, ax_voltage: Any, ax_soc: Any, t: np.ndarra
                      lim: Mapping[str, float], marker: str | None = None) -> None:
     """Pack current [A], pack voltage [V] with the open-circuit voltage and the limits, SoC [-] (a resolved
     pack's as the band of its cells around the pack's)."""
-    ax_current.plot(t, s["current_A"], color="C0", lw=1.0, marker=marker)
+    ax_current.plot(t, s["current_A"], color="C0", lw=1.0, marker=marker, label="delivered")
+    if "current_demanded_A" in s:  # a derated mission: the demand's current beside the delivered one
+        ax_current.plot(t, s["current_demanded_A"], color="k", lw=0.8, ls="--", label="demanded")
+        ax_current.legend(loc="lower left", fontsize=7, ncol=2)
     ax_current.axhline(0.0, color="0.3", lw=0.5)
     ax_current.set_ylabel("pack current [A]\n(+ discharge)")
 

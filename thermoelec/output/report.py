@@ -15,11 +15,14 @@ from collections.abc import Iterable, Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
+import numpy as np
+
 from thermoelec.analysis import verdict as _verdict
-from thermoelec.analysis.results import ENERGY_ROWS, NET_ENERGY_ROWS, SimulationResult
+from thermoelec.analysis.results import DERATING_ROWS, ENERGY_ROWS, NET_ENERGY_ROWS, SimulationResult
 from thermoelec.output.tables import PACK_ROWS, SUMMARY_ROWS, check_rows, format_value
 
-__all__ = ["CAUTIONS", "comparison_report", "fit_report", "limit_checks", "run_report", "verdict", "write_report"]
+__all__ = ["CAPABILITY_CAUTION", "CAUTIONS", "capability_report", "comparison_report", "fit_report", "limit_checks",
+           "run_report", "verdict", "write_report"]
 
 #: The cautions printed in every report (and in the README).
 CAUTIONS = (
@@ -180,6 +183,15 @@ def _pack_section(result: SimulationResult, figure: Any) -> str:
     ])
 
 
+def _derating_section(summary: Mapping[str, Any]) -> str:
+    """What the BMS's derating cost the mission (nothing without a derating)."""
+    if not summary.get("derating"):
+        return ""
+    return ("<h2>Derating</h2><p>The battery management system held the demand within its allowances (and, with "
+            "the voltage limiter, the cells at their voltage limits instead of stopping): the dashboard shades "
+            "what it did not deliver.</p>" + _rows_table(summary, DERATING_ROWS, "derating"))
+
+
 def _warnings(warnings: Sequence[str]) -> str:
     if not warnings:
         return "<p>No warnings.</p>"
@@ -308,6 +320,7 @@ def run_report(result: SimulationResult, raw: Mapping[str, Any] | None = None, d
         "<h2>Limits</h2>", _checks_table(summary, result.limits),
         "<h2>Notes and warnings</h2>", _notes(summary.get("notes", [])), _warnings(result.warnings),
         "<h2>Energy</h2>", _rows_table(summary, ENERGY_ROWS, "energy"),
+        _derating_section(summary),
         "<h2>Summary</h2>", _summary_table(summary),
         _pack_section(result, figure) if result.cells is not None else "",
         "<h2>Events</h2>", _events(summary.get("events", [])),
@@ -335,7 +348,7 @@ def _case_section(outcome: Any) -> list[str]:
     return [
         f"<h2>Case: {_e(outcome.name)}</h2>", _verdict_paragraph(result),
         "<h3>Overrides</h3>", _overrides(overrides_text(outcome.overrides)),
-        "<h3>Limits</h3>", _checks_table(result.summary, result.limits),
+        "<h3>Limits</h3>", _checks_table(result.summary, result.limits), _derating_section(result.summary),
         "<h3>Notes and warnings</h3>", _notes(result.summary.get("notes", [])), _warnings(result.warnings),
         "<h3>Events</h3>", _events(result.summary.get("events", [])),
         "<h3>Soak</h3>", _soak(result.summary.get("soak")),
@@ -373,6 +386,74 @@ def comparison_report(outcomes: Sequence[Any], raw: Mapping[str, Any] | None = N
     if outcomes:
         body += ["<h2>Run</h2>", _metadata(outcomes[0].result)]
     return _document(f"thermoelec comparison: {title}", "".join(body))
+
+
+#: The caution of a capability report, besides :data:`CAUTIONS`.
+CAPABILITY_CAUTION = (
+    "A pulse capability here is computed from rest at a uniform temperature, with the model's parameters and the "
+    "limits given; it is no rating. A pack's published pulse limits come from tests of its cells and pack under the "
+    "cell maker's conditions: do not ask the pack for more than those, whatever this table says, and derate for "
+    "ageing, spread between cells and repeated pulses.")
+
+
+def _capability_headline(result: Any) -> str:
+    """Per duration and capability: its value at the state nearest 25 degC and SoC 0.5, its range, what binds most."""
+    from thermoelec.engine.pulse import PULSE_KINDS
+    from thermoelec.physics.constants import ZERO_CELSIUS
+
+    g = result.grid
+    ti = int(np.argmin(np.abs(g.temperatures - ZERO_CELSIUS - 25.0)))
+    zi = int(np.argmin(np.abs(g.socs - 0.5)))
+    rows = []
+    for d, duration in enumerate(g.durations):
+        for kind in PULSE_KINDS:
+            values, binding = result.values[kind.name][d], result.binding[kind.name][d]
+            names, counts = np.unique(binding.astype(str), return_counts=True)
+            rows.append([_e(f"{duration:g} s"), _e(kind.name.replace("_", " ")),
+                         _e(format_value(float(values[ti, zi]), kind.unit)), _e(binding[ti, zi]),
+                         _e(f"{format_value(float(np.nanmin(values)))} .. {format_value(float(np.nanmax(values)))} "
+                            f"{kind.unit}"), _e(names[int(np.argmax(counts))])])
+    state = f"{g.temperatures[ti] - ZERO_CELSIUS:g} degC, SoC {g.socs[zi]:g}"
+    return (f"<p>At {_e(state)} (the grid's state nearest 25 degC and SoC 0.5), and over the whole grid:</p>"
+            + _table(["pulse", "capability", f"at {state}", "binding limit there", "over the grid",
+                      "binding most often"], rows, numeric_from=2))
+
+
+def capability_report(result: Any, raw: Mapping[str, Any] | None = None, description: str = "",
+                      pngs: Mapping[str, bytes] | None = None, parameters: Sequence[Any] | None = None) -> str:
+    """The report of ``thermoelec capability`` as HTML text (``result`` a
+    :class:`thermoelec.analysis.capability.Capability`; ``pngs`` the heat maps already written, by file stem)."""
+    from thermoelec.output.capability_figures import capability_map, figure_stem
+
+    pngs = pngs or {}
+    g = result.grid
+    name = result.metadata.get("scenario", "")
+    body = [
+        f"<h1>{_e(name)}: pulse capability</h1>",
+        f"<p>{_e(description)}</p>" if description else "",
+        "<div class='caution'><strong>Cautions.</strong><ul>"
+        + "".join(f"<li>{_e(c)}</li>" for c in (CAPABILITY_CAUTION, *CAUTIONS)) + "</ul></div>",
+        "<h2>Method</h2><p>For each pulse duration, temperature and SoC: the largest constant power and the largest "
+        "constant current the pack delivers (discharge) and accepts (charge) for the whole pulse, simulated from "
+        "rest (RC pairs relaxed; cells, sink and ambient at the temperature), with the RC pairs charging and the "
+        "cells heating, inside the cells' voltage limits and every limit of the pack specification; the limit met "
+        "just beyond it binds. Charging below limits.charge_temperature_min is none at all. The demands are "
+        "solved for together by a bracketing root finder on the batched solver.</p>",
+        f"<p>Grid: {len(g.durations)} durations ({', '.join(f'{d:g} s' for d in g.durations)}) x "
+        f"{len(g.temperatures)} temperatures x {len(g.socs)} SoC points; capability.csv and capability.nc hold "
+        "every entry and its binding limit.</p>",
+        "<h2>Capability</h2>", _capability_headline(result),
+        "<h2>Heat maps</h2>",
+    ]
+    for i, duration in enumerate(g.durations):
+        stem = figure_stem(float(duration))
+        body.append(_figure(pngs[stem] if stem in pngs else capability_map(result, i),
+                            f"{duration:g} s pulses: discharge and charge, power and current, over temperature and "
+                            "SoC; the mark in each cell is the limit that binds it."))
+    rows = [[_e(k), _e(v)] for k, v in result.metadata.items()]
+    body += ["<h2>Parameters</h2>", _parameters(raw, parameters),
+             "<h2>Run</h2>", _table(["item", "value"], rows, numeric_from=9)]
+    return _document(f"thermoelec capability: {name}", "".join(body))
 
 
 def fit_report(outcome: Any) -> str:

@@ -11,7 +11,7 @@ from collections.abc import Mapping, Sequence
 from typing import Any, TextIO
 
 from thermoelec.analysis.compare import CaseOutcome, comparison_rows
-from thermoelec.analysis.results import ENERGY_ROWS
+from thermoelec.analysis.results import DERATING_ROWS, ENERGY_ROWS
 
 __all__ = ["PACK_ROWS", "SUMMARY_ROWS", "check_rows", "format_comparison", "format_value", "print_summary",
            "verdict_line"]
@@ -91,7 +91,8 @@ def check_rows(checks: Sequence[Mapping[str, Any]]) -> list[list[str]]:
 def print_summary(summary: Mapping[str, Any], stream: TextIO) -> None:
     """A short table of the main metrics (a resolved pack's cells too), the stop explained, notes and warnings;
     the limits and the verdict last."""
-    metrics = SUMMARY_ROWS + (PACK_ROWS if "pack_model" in summary else ())  # a resolved pack's cells
+    metrics = SUMMARY_ROWS + (DERATING_ROWS if summary.get("derating") else ()) \
+        + (PACK_ROWS if "pack_model" in summary else ())  # what a derating cost, a resolved pack's cells
     width = max(len(label) for label, _, _ in metrics)
     print(f"scenario: {summary.get('scenario', '')}", file=stream)
     for label, key, unit in metrics:
