@@ -97,8 +97,10 @@ def test_maximum_power_point_sits_at_half_the_short_circuit_current():
     peak = int(np.argmax(load))
     assert current[peak] == pytest.approx(state.max_power_current_A, rel=1e-3)
     assert load[peak] == pytest.approx(loss[peak], rel=1e-3)  # 50 % efficiency at maximum power
-    # the minimum-voltage boundary: V = V_min at I = (E - V_min)/R
-    assert state.voltage_limit_current_A == pytest.approx((3.7 - 1.0) / 0.025, rel=1e-12)
+    # the minimum-voltage boundary: the cell at V_min, I = (E - V_min)/(R - R_ic) (the cell's terminals lie inside
+    # the interconnect, as the engine's voltage limit reads them), P = (E - R I) I at the pack's terminals
+    assert state.voltage_limit_current_A == pytest.approx((3.7 - 1.0) / 0.020, rel=1e-12)
+    assert state.voltage_limit_power_W == pytest.approx(135.0 * (3.7 - 0.025 * 135.0), rel=1e-12)
 
 
 def test_operating_region_is_scaled_to_the_mission_with_its_worst_state(drone, ebike):
@@ -130,11 +132,20 @@ def test_operating_region_draws_the_maximum_power_points_on_its_axis():
                     segments=[{"mode": "current", "value": "20 A", "duration": "10 s"}])
     result = simulate(data)
     view = figures.operating_view(result)
-    assert view.current_max == pytest.approx(2.5 * 20.0, rel=1e-9)
+    # 2.5 times the mission's peak, or as far as a pulse capability from rest on the usable side of its state's
+    # maximum-power current (87 A) reaches: the 2 s pulse runs to the cells' voltage limit, (3.7 - 1.0) / 20 mohm =
+    # 135 A, past it (written at the edge); the 30 s pulse stops earlier, on the cells' heating
+    state = view.states[0]
+    pulses = view.pulses[0]
+    assert pulses.current[0] == pytest.approx((3.7 - 1.0) / 0.020, rel=1e-6) and pulses.binding[0] == "voltage_min"
+    usable = pulses.current[pulses.current < state.max_power_current_A]
+    assert usable.size and set(pulses.binding[pulses.current < state.max_power_current_A]) == {"temperature_max"}
+    assert view.current_max == pytest.approx(max(2.5 * 20.0, 1.05 * usable.max()), rel=1e-9)
+    assert any("pulse capability" in text and "135 A" in text for text in view.off_scale)
     fig = figures.operating_region(result)
     circles = [line for line in fig.axes[0].lines if line.get_marker() == "o"]
     assert circles == []  # off scale: written at the edge instead
-    assert all("maximum power" in text for text in view.off_scale)
+    assert all("maximum power" in text for text in view.off_scale if "pulse" not in text)
 
 
 def test_dashboard_marks_limits_and_the_stop():

@@ -229,8 +229,8 @@ def _upper_bounds(pulses: PulseSet, kinds: np.ndarray, ti: np.ndarray, zi: np.nd
 
 
 def capability(problem: Problem, grid: CapabilityGrid, options: SolverOptions,
-               metadata: dict[str, Any] | None = None) -> Capability:
-    """The four capabilities of a pack over a grid, solved together on the batched solver.
+               metadata: dict[str, Any] | None = None, kinds: tuple[str, ...] | None = None) -> Capability:
+    """The capabilities of a pack over a grid, solved together on the batched solver.
 
     Parameters
     ----------
@@ -242,6 +242,9 @@ def capability(problem: Problem, grid: CapabilityGrid, options: SolverOptions,
         Tolerances of the pulses [-, and per state -, V, K, J, C].
     metadata : dict, optional
         What the outputs should carry besides the version and the tolerance.
+    kinds : tuple of str, optional
+        Names of :data:`~thermoelec.engine.pulse.PULSE_KINDS` to solve for (default all four;
+        the others are left NaN, bound by :data:`BINDING_NONE`).
 
     Returns
     -------
@@ -253,6 +256,8 @@ def capability(problem: Problem, grid: CapabilityGrid, options: SolverOptions,
     pulses = prepare_pulses(problem, grid.temperatures, grid.socs, options)
     shape = (len(PULSE_KINDS), *grid.shape)
     k, d, ti, zi = (a.ravel() for a in np.indices(shape))
+    wanted = np.array([kinds is None or PULSE_KINDS[j].name in kinds for j in k])
+    k, d, ti, zi = k[wanted], d[wanted], ti[wanted], zi[wanted]
     durations = grid.durations[d]
     values, binding, end_power = np.zeros(k.size), np.full(k.size, BINDING_NONE, dtype=object), np.zeros(k.size)
     charging = np.array([PULSE_KINDS[j].sign < 0 for j in k])
@@ -273,6 +278,7 @@ def capability(problem: Problem, grid: CapabilityGrid, options: SolverOptions,
     at_low, low_events, _ = run_pulses(pulses, low, ti[todo], zi[todo], k[todo], durations[todo])
     none = ~(at_low > 0.0)
     binding[todo[none]] = [_limit_name(e) for e in low_events[none]]
+    values[todo[np.isnan(at_low)]] = np.nan
     search = np.flatnonzero(~none)
     if search.size:
         res = elementwise.find_root(margin, (low[search], high[search]), args=(search.astype(float),),
@@ -289,12 +295,16 @@ def capability(problem: Problem, grid: CapabilityGrid, options: SolverOptions,
     info = {"thermoelec_version": __version__, "rtol": options.rtol, "scenario": problem.name,
             "method": "batched pulses, scipy.optimize.elementwise.find_root (Chandrupatla) on the pulse margin",
             **(metadata or {})}
-    return Capability(grid, *(_by_kind(a, shape) for a in (values, binding, end_power)), info)
+    return Capability(grid, *(_by_kind(a, wanted, shape, fill) for a, fill in
+                              ((values, np.nan), (binding, BINDING_NONE), (end_power, np.nan))), info)
 
 
-def _by_kind(flat: np.ndarray, shape: tuple[int, ...]) -> dict[str, np.ndarray]:
-    """A flat array over (kind, duration, temperature, SoC) as one array per kind."""
-    full = flat.reshape(shape)
+def _by_kind(flat: np.ndarray, wanted: np.ndarray, shape: tuple[int, ...], fill: Any) -> dict[str, np.ndarray]:
+    """The solved entries (``wanted`` of the full (kind, duration, temperature, SoC) grid) as one array per kind,
+    ``fill`` where not solved for."""
+    full = np.full(int(np.prod(shape)), fill, dtype=flat.dtype)
+    full[wanted] = flat
+    full = full.reshape(shape)
     return {kind.name: full[j] for j, kind in enumerate(PULSE_KINDS)}
 
 
@@ -319,13 +329,16 @@ def state_pulses(problem: Problem, states: list[tuple[float, float]], durations:
         Per state: ``duration_s``, ``current_A`` (the largest constant current of each
         pulse), ``power_W`` (the power to the load at its end), ``binding`` (its limit).
     """
+    socs = np.unique([soc for soc, _ in states])
+    temperatures = np.unique([temperature for _, temperature in states])
+    grid = CapabilityGrid(np.asarray(durations, float), temperatures, socs)
+    result = capability(problem, grid, options, kinds=("discharge_current",))
     out = []
     for soc, temperature in states:
-        grid = CapabilityGrid(np.asarray(durations, float), np.array([temperature]), np.array([soc]))
-        result = capability(problem, grid, options)
-        out.append({"duration_s": grid.durations, "current_A": result.values["discharge_current"][:, 0, 0],
-                    "power_W": result.end_power["discharge_current"][:, 0, 0],
-                    "binding": result.binding["discharge_current"][:, 0, 0]})
+        ti, zi = int(np.searchsorted(temperatures, temperature)), int(np.searchsorted(socs, soc))
+        out.append({"duration_s": grid.durations, "current_A": result.values["discharge_current"][:, ti, zi],
+                    "power_W": result.end_power["discharge_current"][:, ti, zi],
+                    "binding": result.binding["discharge_current"][:, ti, zi]})
     return out
 
 

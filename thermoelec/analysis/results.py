@@ -169,6 +169,9 @@ class SimulationResult:
         :data:`thermoelec.analysis.cells.CELL_SERIES_UNITS`; None for a lumped pack.
     cell_coords : dict or None
         The coordinates of the ``cell`` dimension (:func:`thermoelec.analysis.cells.cell_coordinates`).
+    problem : Problem or None
+        The engine problem simulated (SI): what further analysis of the result starts from (the
+        operating-region chart's pulse capabilities).
     """
 
     series: dict[str, np.ndarray]
@@ -186,6 +189,7 @@ class SimulationResult:
     charger: np.ndarray | None = None
     cells: dict[str, np.ndarray] | None = None
     cell_coords: dict[str, tuple] | None = None
+    problem: Problem | None = None
 
     @property
     def verdict(self) -> str:
@@ -324,7 +328,8 @@ def build_result(problem: Problem, trajectory: Trajectory, options: SolverOption
                             message=trajectory.message, statistics=stats, events=events,
                             metadata=dict(metadata or {}), states=states, demand_mode=demand_mode,
                             demand_value=demand_value, limits=limits, segment_name=names[rows],
-                            charger=charger_segments(problem)[rows], cells=cells, cell_coords=coords)
+                            charger=charger_segments(problem)[rows], cells=cells, cell_coords=coords,
+                            problem=problem)
 
 
 def charger_segments(problem: Problem) -> np.ndarray:

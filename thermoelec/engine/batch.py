@@ -302,7 +302,8 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
                 code = m.start_check(y, p, alg, scratch, g, g_ahead, START_PROBE, IMPOSED_VOLTAGE_SLACK)
                 p[L.H_TIME] = t
                 m.evaluate_any(y, p, k[0], alg)
-            _observe(y, alg, extra, t, ts_index)
+            if code < 0 or EVENT_ACTION[code] != ACTION_HOLD:  # a hold at once: the instant before it is no state
+                _observe(y, alg, extra, t, ts_index)
             current_prev = alg[L.A_CURRENT]  # the demand jumps at a phase start
             deficit_prev = abs(alg[L.A_CURRENT_DEMANDED] - current_prev)
             if code < 0:

@@ -332,6 +332,10 @@ def _phase(kernels: Kernels, backend, options: SolverOptions, p: np.ndarray, t: 
     ``run.status`` and ends it with no event.
     """
     code = kernels.phase_start(y, START_PROBE, IMPOSED_VOLTAGE_SLACK, t_end - t, REACH_FACTOR)
+    if code >= 0 and EVENT_ACTION[code] == ACTION_HOLD:
+        # the voltage limiter acts at once: the phase restarts held (or let go) before any time passes, so the
+        # instant before it (the demand past a cell's limit) is no state of the mission and gets no row
+        return t, y, code, False
     phase_id = run.start_phase(t, y, p)
     if code >= 0:
         return t, y, code, False

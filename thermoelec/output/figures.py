@@ -21,10 +21,12 @@ from typing import Any
 import numpy as np
 from matplotlib.figure import Figure
 
+from thermoelec.analysis.capability import DEFAULT_PULSES, state_pulses
 from thermoelec.analysis.results import DEMAND_MODES, THERMOSTAT_EVENTS, SimulationResult
 from thermoelec.engine.events import CCCV_CAP_EVENT, EV_CV_CUTOFF, EV_CV_SWITCH, EVENT_NAMES, STOP_EVENTS
+from thermoelec.engine.options import SolverOptions
 from thermoelec.output.pack_figures import pack_map
-from thermoelec.physics.constants import COULOMBS_PER_AH, SECONDS_PER_HOUR
+from thermoelec.physics.constants import COULOMBS_PER_AH, SECONDS_PER_HOUR, ZERO_CELSIUS
 from thermoelec.physics.loads import maximum_power, voltage_limited_power
 
 __all__ = [
@@ -36,6 +38,7 @@ __all__ = [
     "EnergyPart",
     "OperatingState",
     "OperatingView",
+    "PulseCurve",
     "axis_range",
     "comparison_overlay",
     "dashboard",
@@ -45,6 +48,7 @@ __all__ = [
     "operating_region",
     "operating_states",
     "operating_view",
+    "pulse_curves",
     "save",
     "segment_labels",
     "title_of",
@@ -563,8 +567,9 @@ class OperatingState:
 
     ``P_load(I) = E I - R I²`` and ``P_loss(I) = R I²``; the maximum power
     ``E²/(4R)`` sits at half the short-circuit current ``E/R`` (maximum power
-    transfer); the minimum pack voltage bounds the usable side at
-    ``I_v = (E - V_min)/R``.
+    transfer); the cells' minimum voltage bounds the usable side at
+    ``I_v = (E - Ns V_min)/(R - R_ic)``: the cells' terminals are inside the
+    interconnect, so its drop does not count against their limit.
     """
 
     label: str
@@ -572,6 +577,7 @@ class OperatingState:
     emf_V: float
     resistance_ohm: float
     voltage_min_V: float
+    interconnect_ohm: float = 0.0
 
     @property
     def short_circuit_A(self) -> float:
@@ -587,11 +593,14 @@ class OperatingState:
 
     @property
     def voltage_limit_current_A(self) -> float:
-        return (self.emf_V - self.voltage_min_V) / self.resistance_ohm
+        return (self.emf_V - self.voltage_min_V) / (self.resistance_ohm - self.interconnect_ohm)
 
     @property
     def voltage_limit_power_W(self) -> float:
-        return float(voltage_limited_power(self.emf_V, self.resistance_ohm, self.voltage_min_V))
+        if self.interconnect_ohm == 0.0:
+            return float(voltage_limited_power(self.emf_V, self.resistance_ohm, self.voltage_min_V))
+        current = self.voltage_limit_current_A
+        return float(current * (self.emf_V - self.resistance_ohm * current))
 
     def curves(self, points: int = 200) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """Current [A], load power [W] and internal dissipation [W] from 0 to the short circuit."""
@@ -615,13 +624,65 @@ def operating_states(result: SimulationResult) -> list[OperatingState]:
     rows: dict[int, list[str]] = {}
     for label, row in chosen.items():
         rows.setdefault(row, []).append(label)
+    interconnect = result.problem.pack.interconnect_resistance if result.problem is not None else 0.0
     states = []
     for row, labels in rows.items():
         label = ", ".join(labels)
         states.append(OperatingState(
             f"{label} ({s['cell_temperature_degC'][row]:.1f} degC, SoC {s['soc'][row]:.2f})",
-            float(s["time_s"][row]), float(s["pack_emf_V"][row]), float(s["pack_resistance_ohm"][row]), v_min))
+            float(s["time_s"][row]), float(s["pack_emf_V"][row]), float(s["pack_resistance_ohm"][row]), v_min,
+            interconnect))
     return states
+
+
+@dataclass(frozen=True)
+class PulseCurve:
+    """The pulse capability from rest at one operating state: for each duration the largest constant current.
+
+    Attributes
+    ----------
+    label : str
+        The state (as :class:`OperatingState` names it).
+    durations : array
+        Pulse durations [s].
+    current : array
+        The largest constant current of each pulse [A].
+    power : array
+        The power to the load at its end [W].
+    binding : object array
+        The limit that binds each.
+    """
+
+    label: str
+    durations: np.ndarray
+    current: np.ndarray
+    power: np.ndarray
+    binding: np.ndarray
+
+
+def pulse_curves(result: SimulationResult, states: Sequence[OperatingState] | None = None) -> list[PulseCurve]:
+    """The discharge pulse capability (2 s, 10 s, 30 s from rest) at each operating state's SoC and temperature.
+
+    Computed on the batched solver (:func:`thermoelec.analysis.capability.state_pulses`) from the
+    result's problem; none for a result without one.
+
+    Parameters
+    ----------
+    result : SimulationResult
+        A simulated mission (its ``problem``, series ``soc`` and ``cell_temperature_degC``).
+    states : sequence of OperatingState, optional
+        The states (default :func:`operating_states`).
+    """
+    if result.problem is None:
+        return []
+    states = operating_states(result) if states is None else states
+    s = result.series
+    rows = [int(np.flatnonzero(s["time_s"] == state.time_s)[-1]) for state in states]
+    at = [(float(s["soc"][r]), float(s["cell_temperature_degC"][r]) + ZERO_CELSIUS) for r in rows]
+    options = SolverOptions(rtol=float(result.metadata.get("rtol", 1e-6)))
+    found = state_pulses(result.problem, at, DEFAULT_PULSES, options)
+    return [PulseCurve(state.label, f["duration_s"], f["current_A"], f["power_W"], f["binding"])
+            for state, f in zip(states, found, strict=True)]
 
 
 @dataclass(frozen=True)
@@ -639,12 +700,15 @@ class OperatingView:
         The power axis' end [W].
     off_scale : list of str
         What lies past the current axis (the maximum-power points and short circuits), to annotate at its edge.
+    pulses : list of PulseCurve
+        The pulse capability at each state (:func:`pulse_curves`), empty without the result's problem.
     """
 
     states: list[OperatingState]
     current_max: float
     power_max: float
     off_scale: list[str]
+    pulses: list[PulseCurve]
 
 
 #: The current axis of the operating region runs to this many times the mission's largest discharge current [-].
@@ -661,8 +725,13 @@ def operating_view(result: SimulationResult) -> OperatingView:
     peak = float(np.max(s["current_A"][discharging])) if discharging.any() else 0.0
     boundaries = [st.voltage_limit_current_A for st in states
                   if 0 < st.voltage_limit_current_A < st.max_power_current_A]
+    pulses = pulse_curves(result, states)
+    # the pulse capabilities on the usable side of their state's maximum-power point join the axis
+    usable = [c.current[c.current < st.max_power_current_A] for c, st in zip(pulses, states, strict=True)]
+    reached = [float(np.nanmax(u)) for u in usable if np.isfinite(u).any()]
     wanted = CURRENT_AXIS_FACTOR * peak if peak > 0 else 1.2 * min(boundaries or
                                                                     [st.max_power_current_A for st in states])
+    wanted = max([wanted, *(1.05 * r for r in reached)])
     current_max = min(wanted, max(st.short_circuit_A for st in states))
     power = []
     for st in states:
@@ -679,7 +748,11 @@ def operating_view(result: SimulationResult) -> OperatingView:
             beyond.append(f"maximum power {st.max_power_W:.4g} W at {st.max_power_current_A:.4g} A")
         beyond.append(f"short circuit {st.short_circuit_A:.4g} A")
         off.append(f"{st.label.split(' (')[0]}: " + ", ".join(beyond))
-    return OperatingView(states, current_max, 1.15 * max(power), off)
+    for st, curve in zip(states, pulses, strict=True):
+        far = [f"{d:g} s at {c:.4g} A" for d, c in zip(curve.durations, curve.current, strict=True) if c > current_max]
+        if far:
+            off.append(f"{st.label.split(' (')[0]}: pulse capability " + ", ".join(far))
+    return OperatingView(states, current_max, 1.15 * max(power), off, pulses)
 
 
 def operating_region(result: SimulationResult) -> Figure:
@@ -702,6 +775,7 @@ def operating_region(result: SimulationResult) -> Figure:
             ax.plot(state.voltage_limit_current_A, state.voltage_limit_power_W, "s", color=colour, ms=6,
                     label="minimum-voltage boundary" if k == 0 else None)
             ax.axvline(state.voltage_limit_current_A, color=colour, lw=0.7, ls=":")
+    _draw_pulses(ax, view)
     discharging = s["current_A"] > 0
     ax.scatter(s["current_A"][discharging], s["power_W"][discharging], s=5, color="0.45",
                label="mission operating points", zorder=3)
@@ -713,9 +787,29 @@ def operating_region(result: SimulationResult) -> Figure:
     ax.set_xlabel("pack current [A]")
     ax.set_ylabel("power [W]")
     ax.set_title(f"{title_of(result)}\noperating region: right of a square the cells are below their minimum "
-                 "voltage,\nright of a circle (maximum power) lies the abuse side", fontsize=9)
+                 "voltage,\nright of a circle (maximum power) lies the abuse side; triangles and diamonds: the "
+                 "pulse capability from rest", fontsize=9)
     ax.legend(fontsize=7, loc="upper left")
     return fig
+
+
+#: Markers of the pulse durations on the operating region, in the order of the durations.
+_PULSE_MARKERS = ("^", "D", "v", "P", "X")
+
+
+def _draw_pulses(ax: Any, view: OperatingView) -> None:
+    """Each state's pulse capability: the largest constant current of each pulse from rest and the power at its
+    end, joined by a dotted line (the longer the pulse, the lower the current), each duration its marker."""
+    for k, curve in enumerate(view.pulses):
+        ok = np.isfinite(curve.current) & np.isfinite(curve.power) & (curve.current <= view.current_max)
+        if not ok.any():
+            continue
+        ax.plot(curve.current[ok], curve.power[ok], color=f"C{k}", lw=0.9, ls=":",
+                label="pulse capability from rest (constant current)" if k == 0 else None)
+        for j in np.flatnonzero(ok):
+            marker = _PULSE_MARKERS[j % len(_PULSE_MARKERS)]
+            ax.plot(curve.current[j], curve.power[j], marker, color=f"C{k}", ms=6, mfc="white",
+                    label=f"{curve.durations[j]:g} s pulse" if k == 0 else None)
 
 
 # ---------------------------------------------------------------------------
