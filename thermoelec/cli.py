@@ -257,7 +257,8 @@ def _sweep(args: argparse.Namespace) -> int:
             to_si(f"{low} {unit}".strip(), unit or "", unit or "")
         except ValueError as exc:
             raise ScenarioError("--between", args.between[0], str(exc)) from None
-        plan = sweep.plan_sweep(scenario, args.sweep or []) if (scenario.spec.sweep or args.sweep) else None
+        plan = _plan(sweep, scenario, args) if (scenario.spec.sweep or args.sweep or scenario.spec.option
+                                                or args.samples is not None) else None
         scenario.with_overrides({args.over: f"{low} {unit}".strip() if unit else low})  # the key must exist
         found = sweep.design_search(scenario, plan, args.over, low, high, unit, criterion, args.greatest,
                                     args.tolerance, args.workers)
@@ -271,10 +272,10 @@ def _sweep(args: argparse.Namespace) -> int:
             _print_search(found)
             print(f"search results in {out}/")
         return EXIT_OK
-    plan = sweep.plan_sweep(scenario, args.sweep or [])
+    plan = _plan(sweep, scenario, args)
     if not args.quiet:
-        dims = " x ".join(f"{a.path} ({len(a.values)})" for a in plan.axes)
-        print(f"sweep of {scenario.name}: {plan.size} scenarios, {plan.mode} over {dims}")
+        dims = " x ".join(f"{d.name} ({d.size})" for d in plan.dims)
+        print(f"sweep of {scenario.name}: {plan.size} scenarios over {dims}")
     keep = None
     if args.keep_series is not None:
         keep = _quantity_option(args.keep_series, "s", "--keep-series")
@@ -296,6 +297,21 @@ def _sweep(args: argparse.Namespace) -> int:
         print(f"{passed} of {plan.size} pass; {ds.attrs['failed']} failed to solve or were invalid; "
               f"results in {out}/sweep.nc and {out}/sweep.csv")
     return EXIT_OK
+
+
+def _plan(sweep, scenario, args: argparse.Namespace):
+    """The sweep's plan from the scenario and the sweep command's options."""
+    options = None if args.options is None else [] if args.options.strip() == "none" else \
+        [g.strip() for g in args.options.split(",") if g.strip()]
+    percentiles = None
+    if args.percentiles is not None:
+        try:
+            percentiles = [float(p) for p in args.percentiles.split(",") if p.strip()]
+        except ValueError:
+            raise ScenarioError("--percentiles", args.percentiles, "expected numbers within 0..100, "
+                                "e.g. 1,99") from None
+    return sweep.plan_sweep(scenario, args.sweep or [], samples=args.samples, seed=args.seed,
+                            method=args.sampling, options=options, percentiles=percentiles)
 
 
 def _print_search(found) -> None:
@@ -480,6 +496,14 @@ def _add_sweep_parser(sub) -> None:
     sw.add_argument("--between", nargs=2, metavar=("LOW", "HIGH"), help="its range, e.g. '0.1 W/K' '10 W/K'")
     sw.add_argument("--greatest", action="store_true", help="the greatest value meeting it (default: the least)")
     sw.add_argument("--tolerance", type=float, default=1e-3, help="search tolerance, a fraction of the range")
+    sw.add_argument("--options", metavar="GROUP,...", help="the option groups swept ([[option.GROUP]]; default: "
+                    "every group of the scenario; 'none' for none)")
+    sw.add_argument("--samples", type=int, help="samples of the keys with distributions (per combination of "
+                    "the others)")
+    sw.add_argument("--seed", type=int, help="seed of the sample design (default 0: reproducible)")
+    sw.add_argument("--sampling", choices=("latin_hypercube", "sobol", "saltelli", "random"),
+                    help="sample design (default latin_hypercube; saltelli adds Sobol' sensitivity indices)")
+    sw.add_argument("--percentiles", metavar="P,...", help="percentiles reported besides 5, 50 and 95")
     sw.add_argument("--no-figures", action="store_true", help="write no figures")
     sw.add_argument("--quiet", action="store_true", help="print nothing")
     sw.set_defaults(handler=_sweep)

@@ -41,7 +41,8 @@ from thermoelec.physics.thermal import (
 )
 from thermoelec.scenario.series import AMBIENT_COLUMN
 
-__all__ = ["FORMAT_VERSION", "KeyedError", "ScenarioSpec", "SegmentSpec", "Unit"]
+__all__ = ["FORMAT_VERSION", "KeyedError", "OptionSpec", "ReviewSpec", "ScenarioSpec", "SegmentSpec", "Unit",
+           "key_kind"]
 
 #: The scenario format this schema reads (the file's ``format`` key).
 FORMAT_VERSION = 1
@@ -675,6 +676,34 @@ class CaseSpec(BaseModel):
     name: str
 
 
+class OptionSpec(BaseModel):
+    """One option of a design group (``[[option.cooling]]``): a name, dotted keys to values, and attributes.
+
+    The attributes (``cost``, ``added_mass``: numbers with or without a unit) are read, with the
+    names and the overrides, by :mod:`thermoelec.scenario.options`.
+    """
+
+    model_config = ConfigDict(extra="allow", frozen=True)
+    name: str
+    description: str = ""
+    attributes: dict[str, Any] = {}
+
+    @model_validator(mode="after")
+    def _option(self):
+        _check(self.name.strip() != "", "name is empty: every option needs a name", "name")
+        return self
+
+
+class ReviewSpec(_Section):
+    """The design-review question of a sweep (``[review]``); read by :mod:`thermoelec.analysis.sweep.review`."""
+
+    requirement: str | None = None  # "METRIC >= VALUE at KEY = VALUE", e.g. "temperature_margin_K >= 2 at ..."
+    group: str | None = None  # the option group compared (default: the only one)
+    over: str = "thermal.ambient_temperature"  # the key whose highest passing value is reported
+    rank_by: str | None = None  # an attribute; the least first
+    refine: bool = False  # refine each highest passing value by the design search
+
+
 class ScenarioSpec(_Section):
     format: Literal[FORMAT_VERSION]
     scenario: ScenarioInfo
@@ -687,4 +716,62 @@ class ScenarioSpec(_Section):
     stress: StressSpec = StressSpec()
     sweep: dict[str, Any] = {}
     case: list[CaseSpec] = []
+    option: dict[str, list[OptionSpec]] = {}
+    review: ReviewSpec | None = None
 
+
+
+
+def _leaf_types(annotation: Any) -> list[Any]:
+    """The alternatives of an annotation, Optional and Annotated unwrapped."""
+    import types
+    import typing
+
+    origin = typing.get_origin(annotation)
+    if origin is Annotated:
+        return _leaf_types(typing.get_args(annotation)[0])
+    if origin in (typing.Union, types.UnionType):
+        return [t for a in typing.get_args(annotation) if a is not type(None) for t in _leaf_types(a)]
+    return [annotation]
+
+
+def key_kind(parts: list[str | int]) -> str | None:
+    """What the schema takes at a key path (``['thermal', 'fan', 'air_speed']``, list items as ints).
+
+    Returns
+    -------
+    str or None
+        ``"number"``, ``"text"`` (a name, a file, a choice), ``"table"``, ``"list"`` or ``"other"``;
+        None for a path the schema does not declare.
+    """
+    import typing
+
+    node: Any = ScenarioSpec
+    for part in parts:
+        alternatives = _leaf_types(node)
+        if isinstance(part, int):
+            lists = [a for a in alternatives if typing.get_origin(a) is list]
+            if not lists:
+                return None
+            node = typing.get_args(lists[0])[0]
+            continue
+        models = [a for a in alternatives if isinstance(a, type) and issubclass(a, BaseModel)]
+        if not models or part not in models[0].model_fields:
+            return None
+        node = models[0].model_fields[part].annotation
+    kinds = set()
+    for leaf in _leaf_types(node):
+        if leaf in (float, int) or leaf is Any:
+            kinds.add("number")
+        elif leaf is str or typing.get_origin(leaf) is typing.Literal:
+            kinds.add("text")
+        elif isinstance(leaf, type) and issubclass(leaf, BaseModel):
+            kinds.add("table")
+        elif typing.get_origin(leaf) is list:
+            kinds.add("list")
+        else:
+            kinds.add("other")
+    for kind in ("number", "text", "table", "list"):
+        if kind in kinds:
+            return kind
+    return "other"
