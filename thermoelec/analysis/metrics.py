@@ -45,8 +45,8 @@ METRICS: tuple[str, ...] = (
     "completed", "duration_s", "cell_temperature_max_degC", "cell_temperature_rise_K", "sink_temperature_max_degC",
     "voltage_min_V", "cell_voltage_min_V", "cell_voltage_max_V", "current_max_A", "power_max_W",
     "energy_battery_Wh", "energy_load_Wh", "energy_dissipated_Wh",
-    "energy_discharged_Wh", "energy_battery_discharged_Wh", "energy_dissipated_discharge_Wh",
-    "energy_charged_Wh", "energy_battery_charged_Wh", "energy_dissipated_charge_Wh",
+    "energy_discharged_Wh", "energy_to_load_Wh", "energy_auxiliary_Wh", "energy_battery_discharged_Wh",
+    "energy_dissipated_discharge_Wh", "energy_charged_Wh", "energy_battery_charged_Wh", "energy_dissipated_charge_Wh",
     "heat_generated_Wh", "heat_to_ambient_Wh",
     "efficiency", "efficiency_discharge", "efficiency_charge", "efficiency_round_trip",
     "charge_throughput_Ah", "soc_end", "voltage_margin_min_V", "voltage_margin_max_V", "temperature_margin_K",
@@ -82,6 +82,12 @@ class Extremes:
     cold_charging_time : float
         Time spent charging below the charge temperature limit [s], the crossings
         interpolated over the output rows (solo) or the accepted steps (batch).
+    auxiliary_energy : float
+        Energy the running auxiliaries (fans, pumps, a pack-fed heater) drew at the pack
+        terminals [J]; their power is constant within a phase, so both paths sum it exactly.
+    auxiliary_energy_discharge : float
+        The part of it while the pack discharged (mean current of a row interval or a step
+        positive) [J].
     """
 
     cell_temperature_max: float
@@ -93,6 +99,8 @@ class Extremes:
     cell_voltage_max: float
     power_max: float
     cold_charging_time: float
+    auxiliary_energy: float = 0.0
+    auxiliary_energy_discharge: float = 0.0
 
     @classmethod
     def from_batch(cls, extras: np.ndarray) -> Extremes:
@@ -253,6 +261,10 @@ def mission_metrics(problem: Problem, start: np.ndarray, end: np.ndarray, extrem
     """
     q = end[L.quadrature_index(problem.n_rc):]
     cell_temperature_start = start[L.cell_temperature_index(problem.n_rc)]
+    energies = energy_totals(q)
+    # what the load itself received: the terminals' discharge less the auxiliaries' draw meanwhile
+    energies["energy_to_load_Wh"] = energies["energy_discharged_Wh"] - _wh(extremes.auxiliary_energy_discharge) + 0.0
+    energies["energy_auxiliary_Wh"] = _wh(extremes.auxiliary_energy)
     row = {
         "completed": status == "ok" and stop_reason == "end_of_profile",
         "duration_s": float(duration),
@@ -264,7 +276,7 @@ def mission_metrics(problem: Problem, start: np.ndarray, end: np.ndarray, extrem
         "cell_voltage_max_V": float(extremes.cell_voltage_max),
         "current_max_A": float(extremes.current_abs_max),
         "power_max_W": float(extremes.power_max),
-        **energy_totals(q),
+        **energies,
         "heat_generated_Wh": _wh(q[L.Q_HEAT]),
         "heat_to_ambient_Wh": _wh(q[L.Q_HEAT_AMBIENT]),
         **efficiencies(q),

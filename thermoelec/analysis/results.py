@@ -61,6 +61,7 @@ SERIES_UNITS: dict[str, str] = {
     "pack_emf_V": "V",
     "coolant_temperature_degC": "degC",
     "heater_power_W": "W",
+    "auxiliary_power_W": "W",
     "heat_to_coolant_W": "W",
     "heat_radiated_W": "W",
     "sink_to_air_conductance_W_per_K": "W/K",
@@ -85,6 +86,7 @@ SERIES_DESCRIPTIONS: dict[str, str] = {
     "pack_emf_V": "source voltage behind the series resistance, Ns*(U - sum of RC voltages)",
     "coolant_temperature_degC": "coolant temperature leaving the cold plate (the inlet without a coolant loop)",
     "heater_power_W": "heater power on the cells",
+    "auxiliary_power_W": "power the running fans, pumps and pack-fed heater draw at the pack terminals",
     "heat_to_coolant_W": "heat carried away by the coolant",
     "heat_radiated_W": "net radiation from the sink to the surroundings (part of heat_to_ambient_W)",
     "sink_to_air_conductance_W_per_K": "sink-to-air convective conductance h*A (with a running fan)",
@@ -258,6 +260,7 @@ def build_result(problem: Problem, trajectory: Trajectory, options: SolverOption
         "pack_resistance_ohm": alg[:, L.A_RESISTANCE],
         "pack_emf_V": alg[:, L.A_EMF],
         "heater_power_W": alg[:, L.A_HEATER],
+        "auxiliary_power_W": alg[:, L.A_AUXILIARY],
         "heat_to_coolant_W": alg[:, L.A_COOLANT],
         "heat_radiated_W": alg[:, L.A_RADIATION],
         "sink_to_air_conductance_W_per_K": alg[:, L.A_SINK_CONDUCTANCE],
@@ -391,9 +394,22 @@ def _event(problem: Problem, event: dict[str, Any]) -> dict[str, Any]:
             **({"segment_name": name} if name else {}), **({"state": event["state"]} if "state" in event else {})}
 
 
+def auxiliary_energies(series: dict[str, np.ndarray]) -> tuple[float, float]:
+    """The energy the auxiliaries drew at the terminals over a run, and the part of it while the pack
+    discharged [J]: their power is constant within a phase and a phase boundary is a repeated row, so the
+    trapezoid over the output rows is exact; an interval discharges when its mean current is positive."""
+    times, power, current = series["time_s"], series["auxiliary_power_W"], series["current_A"]
+    if len(times) < 2:
+        return 0.0, 0.0
+    energy = 0.5 * (power[:-1] + power[1:]) * np.diff(times)
+    discharging = 0.5 * (current[:-1] + current[1:]) > 0.0
+    return float(np.sum(energy)), float(np.sum(energy[discharging]))
+
+
 def _row_extremes(series: dict[str, np.ndarray], states: np.ndarray, stress: dict[str, Any], n_rc: int,
                   cold_time: float) -> Extremes:
     """The running extremes of a solo run, over its output rows (the Arrhenius time of ``stress``)."""
+    auxiliary, auxiliary_discharge = auxiliary_energies(series)
     return Extremes(
         cell_temperature_max=states[:, L.cell_temperature_index(n_rc)].max(),
         sink_temperature_max=states[:, L.sink_temperature_index(n_rc)].max(),
@@ -404,6 +420,8 @@ def _row_extremes(series: dict[str, np.ndarray], states: np.ndarray, stress: dic
         cell_voltage_max=series["cell_voltage_V"].max(),
         power_max=series["power_W"].max(),
         cold_charging_time=cold_time,
+        auxiliary_energy=auxiliary,
+        auxiliary_energy_discharge=auxiliary_discharge,
     )
 
 
@@ -436,7 +454,9 @@ def _extremes_summary(problem: Problem, trajectory: Trajectory, shared: dict[str
 #: The energies of a mission as every table shows them (terminal, comparison, report): label, key, unit; each
 #: direction apart, load side and cell side, with its losses and efficiency; the contract's net values not among them.
 ENERGY_ROWS: tuple[tuple[str, str, str], ...] = (
-    ("energy discharged to the load", "energy_discharged_Wh", "Wh"),
+    ("energy discharged at the terminals", "energy_discharged_Wh", "Wh"),
+    ("  to the load", "energy_to_load_Wh", "Wh"),
+    ("energy to the auxiliaries (fans, pumps, pack heater)", "energy_auxiliary_Wh", "Wh"),
     ("energy drawn from the cells", "energy_battery_discharged_Wh", "Wh"),
     ("energy lost in discharge", "energy_dissipated_discharge_Wh", "Wh"),
     ("energy charged at the terminals", "energy_charged_Wh", "Wh"),
@@ -457,7 +477,8 @@ NET_ENERGY_ROWS: tuple[tuple[str, str, str], ...] = (
 )
 #: The energy keys of the summary in its order: each direction apart, then the contract's net values.
 ENERGY_KEYS: tuple[str, ...] = (
-    "energy_discharged_Wh", "energy_battery_discharged_Wh", "energy_dissipated_discharge_Wh",
+    "energy_discharged_Wh", "energy_to_load_Wh", "energy_auxiliary_Wh", "energy_battery_discharged_Wh",
+    "energy_dissipated_discharge_Wh",
     "energy_charged_Wh", "energy_regenerated_Wh", "energy_from_charger_Wh", "energy_battery_charged_Wh",
     "energy_dissipated_charge_Wh",
     "energy_battery_Wh", "energy_load_Wh", "energy_dissipated_Wh",

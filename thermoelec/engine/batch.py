@@ -98,16 +98,18 @@ _E1, _E2, _E3, _E4 = 2 / 9 - 7 / 24, 1 / 3 - 1 / 4, 4 / 9 - 1 / 3, -1 / 8
 _ORDER_EXPONENT = -1.0 / 3.0
 
 # per-scenario running extremes and integrals written by the kernel (what the sweep metrics and verdict need)
-X_TC_MAX, X_TS_MAX, X_V_MIN, X_VCELL_MIN, X_I_ABS, X_ARRHENIUS, X_VCELL_MAX, X_P_MAX, X_COLD_CHARGE, N_EXTRA = \
-    0, 1, 2, 3, 4, 5, 6, 7, 8, 9
+(X_TC_MAX, X_TS_MAX, X_V_MIN, X_VCELL_MIN, X_I_ABS, X_ARRHENIUS, X_VCELL_MAX, X_P_MAX, X_COLD_CHARGE, X_AUX,
+ X_AUX_DISCHARGE, N_EXTRA) = range(12)
 #: The names of the extremes, by index: highest cell and sink temperature [K], lowest pack and cell
 #: voltage [V], largest current magnitude [A], Arrhenius-weighted time at the reference temperature [s],
 #: highest cell voltage [V], highest power to the load [W], time charging below the charge
-#: temperature limit [s] (the crossing interpolated within a step, as over the output rows of a solo run).
+#: temperature limit [s] (the crossing interpolated within a step, as over the output rows of a solo run),
+#: the energy the auxiliaries drew at the terminals [J], and the part of it while the pack discharged [J].
 EXTREMES = ("cell_temperature_max", "sink_temperature_max", "voltage_min", "cell_voltage_min", "current_abs_max",
-            "equivalent_time_at_reference", "cell_voltage_max", "power_max", "cold_charging_time")
+            "equivalent_time_at_reference", "cell_voltage_max", "power_max", "cold_charging_time",
+            "auxiliary_energy", "auxiliary_energy_discharge")
 #: Their values before the first observation.
-_EXTRA_START = np.array([-np.inf, -np.inf, np.inf, np.inf, 0.0, 0.0, -np.inf, -np.inf, 0.0])
+_EXTRA_START = np.array([-np.inf, -np.inf, np.inf, np.inf, 0.0, 0.0, -np.inf, -np.inf, 0.0, 0.0, 0.0])
 
 
 @numba.njit(cache=True, error_model="numpy")
@@ -174,6 +176,15 @@ def _cold_charging(tc0, tc1, i0, i1, t_min, h):
         return 0.0
     share = (t_min - tc0) / (tc1 - tc0)
     return h * share if below0 else h * (1.0 - share)
+
+
+@numba.njit(cache=True, error_model="numpy")
+def _auxiliary_energy(extra, aux, i0, i1, h):
+    """Energy the auxiliaries draw over a step of length h [J]: their power is constant within a phase
+    (the thermostats switch at phase boundaries); discharging when the step's mean current is positive."""
+    extra[X_AUX] += aux * h
+    if 0.5 * (i0 + i1) > 0.0:
+        extra[X_AUX_DISCHARGE] += aux * h
 
 
 @numba.njit(cache=True, error_model="numpy")
@@ -275,6 +286,7 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
                         rate_prev = rate_new
                         extra[X_COLD_CHARGE] += _cold_charging(y[tc_index], trial[tc_index], current_prev,
                                                                alg[L.A_CURRENT], t_charge_min, high)
+                        _auxiliary_energy(extra, alg[L.A_AUXILIARY], current_prev, alg[L.A_CURRENT], high)
                         current_prev = alg[L.A_CURRENT]
                         for i in range(n):
                             y[i] = trial[i]
@@ -286,6 +298,7 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
                     rate_prev = rate_new
                     extra[X_COLD_CHARGE] += _cold_charging(y[tc_index], out[tc_index], current_prev,
                                                            alg[L.A_CURRENT], t_charge_min, h_try)
+                    _auxiliary_energy(extra, alg[L.A_AUXILIARY], current_prev, alg[L.A_CURRENT], h_try)
                     current_prev = alg[L.A_CURRENT]
                     t += h_try
                     for i in range(n):
@@ -352,7 +365,7 @@ class BatchOutcome:
     states : float64 array, shape (n, n_states)
         State at the end (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
     extras : float64 array, shape (n, len(EXTREMES))
-        The running extremes of :data:`EXTREMES` [K, K, V, V, A, s, V, W, s].
+        The running extremes of :data:`EXTREMES` [K, K, V, V, A, s, V, W, s, J, J].
     initial_states : float64 array, shape (n, n_states)
         Where each mission started, after its soak [-, V, K, J, C].
     """
@@ -427,7 +440,7 @@ def solve_batch(problems: list[Problem], options: SolverOptions) -> BatchOutcome
     BatchOutcome
         Per scenario: ``ok`` or ``fallback`` (to be run on CVODE), stop reason,
         end time [s] and state [-, V, K, J, C], and the running extremes of
-        :data:`EXTREMES` [K, K, V, V, A, s, V, W, s].
+        :data:`EXTREMES` [K, K, V, V, A, s, V, W, s, J, J].
     """
     n_rc = problems[0].n_rc
     if any(p.n_rc != n_rc for p in problems):

@@ -40,7 +40,7 @@ MAX_FACETS = 12
 FACET_COLUMNS = 4
 #: Readable names of the metrics drawn (others get their key with spaces).
 METRIC_NAMES = {"cell_temperature_max_degC": "peak cell temperature", "energy_discharged_Wh":
-                "energy discharged to the load"}
+                "energy discharged at the terminals", "energy_to_load_Wh": "energy to the load"}
 
 
 def axis_label(path: str, unit: str = "") -> str:
