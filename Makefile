@@ -57,6 +57,10 @@ demo: $(STAMP)
 	@echo "== a warehouse robot shift: still air, a fan, a cold plate, and a freezer aisle with a heater"
 	@$(BIN)/thermoelec compare scenarios/robot_cooling.toml --out $(DEMO)/robot-cooling
 	@echo
+	@echo "== a sidewalk delivery robot: four battery-bay cooling options x ambient x route, and the cheapest that"
+	@echo "   passes at 45 degC with 2 K of margin on every route (the design review)"
+	@$(BIN)/thermoelec sweep scenarios/delivery_robot_options.toml --out $(DEMO)/robot-options
+	@echo
 	@echo "== the demo scooter cell fitted from its (invented) lab logs: OCV, pulses, heater test"
 	@$(BIN)/thermoelec fit ocv $(LOGS)/scooter_c20_discharge.csv $(LOGS)/scooter_c20_charge.csv \
 		--out $(DEMO)/fit/scooter_cell_ocv.toml
@@ -69,7 +73,8 @@ demo: $(STAMP)
 	@echo "== a courier e-scooter run on the fitted cell (scenarios/cells/scooter_cell.toml), cool and hot"
 	@$(BIN)/thermoelec compare scenarios/scooter_commute.toml --out $(DEMO)/scooter-compare
 	@echo
-	@echo "open $(DEMO)/*/report.html and $(DEMO)/fit/*_report.html in a browser for the figures and the verdicts"
+	@echo "open $(DEMO)/*/report.html, $(DEMO)/robot-options/design_report.html and $(DEMO)/fit/*_report.html in a"
+	@echo "browser for the figures and the verdicts"
 
 bench: $(STAMP)
 	$(BIN)/python benchmarks/bench_single_mission.py

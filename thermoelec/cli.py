@@ -130,7 +130,7 @@ def _compare(args: argparse.Namespace) -> int:
     from thermoelec.analysis.compare import case_list, run_cases, write_comparison
 
     scenario = load_scenario(args.scenario, _overrides(args.set or []))
-    cases = case_list(scenario, _cases(args.case or []))
+    cases = case_list(scenario, _cases(args.case or []), args.options)
     with _progress(f"simulating {len(cases)} cases of {scenario.name}", not args.quiet):
         outcomes = run_cases(scenario, cases)
     out = Path(args.out)
@@ -273,6 +273,11 @@ def _sweep(args: argparse.Namespace) -> int:
             print(f"search results in {out}/")
         return EXIT_OK
     plan = _plan(sweep, scenario, args)
+    requirement = _requirement(scenario, args)
+    if requirement is not None:
+        from thermoelec.analysis.sweep.review import with_requirement_point
+
+        plan = with_requirement_point(plan, requirement, "--require" if args.require else scenario.source)
     if not args.quiet:
         dims = " x ".join(f"{d.name} ({d.size})" for d in plan.dims)
         print(f"sweep of {scenario.name}: {plan.size} scenarios over {dims}")
@@ -296,7 +301,46 @@ def _sweep(args: argparse.Namespace) -> int:
         passed = int(sweep.passes(ds).sum())
         print(f"{passed} of {plan.size} pass; {ds.attrs['failed']} failed to solve or were invalid; "
               f"results in {out}/sweep.nc and {out}/sweep.csv")
+    if plan.option_dims:
+        _review(scenario, plan, ds, requirement, args, out)
     return EXIT_OK
+
+
+def _requirement(scenario, args: argparse.Namespace):
+    """The design review's requirement: --require, else [review] requirement, else None."""
+    from thermoelec.analysis.sweep.review import parse_requirement
+
+    review = scenario.spec.review
+    if args.require:
+        return parse_requirement(args.require, "--require")
+    if review is not None and review.requirement:
+        return parse_requirement(review.requirement, f"{scenario.source}: review.requirement")
+    return None
+
+
+def _review(scenario, plan, ds, requirement, args: argparse.Namespace, out: Path) -> None:
+    """The design review of a sweep over options: review.nc, review.csv, figures, design_report.html, the answer."""
+    from thermoelec.analysis.sweep.review import design_review, write_review
+
+    spec = scenario.spec.review
+    group = spec.group if spec else None
+    over = spec.over if spec else "thermal.ambient_temperature"
+    rank_by = args.rank_by or (spec.rank_by if spec else None)
+    refine = args.refine or (spec.refine if spec else False)
+    with _progress("reviewing the options", not args.quiet):
+        review = design_review(scenario, plan, ds, requirement, group, over, rank_by, refine, args.tolerance)
+        write_review(review, out)
+        from thermoelec.output.review import write_review_outputs
+
+        write_review_outputs(review, ds, out, scenario.name, scenario.spec.scenario.description,
+                             figures=not args.no_figures)
+    if not args.quiet:
+        from thermoelec.analysis.sweep.review import review_table
+
+        print(review_table(review).drop(columns=[c for c in ("hardest_case", "highest_passing_message",
+                                                             "refined_message") if c in review]).to_string(index=False))
+        print(review.attrs["statement"])
+        print(f"design review in {out}/review.csv, {out}/review.nc and {out}/design_report.html")
 
 
 def _plan(sweep, scenario, args: argparse.Namespace):
@@ -453,6 +497,8 @@ def _add_run_parsers(sub) -> None:
     compare.add_argument("--case", action="append", nargs="+", metavar="NAME KEY=VALUE",
                          help="an extra case: its name, then dotted-path overrides; may repeat")
     compare.add_argument("--set", action="append", metavar="KEY=VALUE", help="override a value in every case")
+    compare.add_argument("--options", metavar="GROUP", help="compare the options of an option group "
+                         "([[option.GROUP]]) instead of the [[case]] tables")
     compare.add_argument("--quiet", action="store_true", help="print no table and no progress")
     compare.add_argument("--no-figures", action="store_true", help="write no figures and no report (faster)")
     compare.set_defaults(handler=_compare)
@@ -504,6 +550,12 @@ def _add_sweep_parser(sub) -> None:
     sw.add_argument("--sampling", choices=("latin_hypercube", "sobol", "saltelli", "random"),
                     help="sample design (default latin_hypercube; saltelli adds Sobol' sensitivity indices)")
     sw.add_argument("--percentiles", metavar="P,...", help="percentiles reported besides 5, 50 and 95")
+    sw.add_argument("--require", metavar="REQUIREMENT", help="the design review's requirement, e.g. "
+                    "'temperature_margin_K >= 2 at thermal.ambient_temperature = 45 degC' (replaces [review]'s)")
+    sw.add_argument("--rank-by", metavar="ATTRIBUTE", help="the option attribute that ranks the options meeting "
+                    "the requirement, the least first (default: the group's first)")
+    sw.add_argument("--refine", action="store_true", help="refine each option's highest passing value by the "
+                    "design search")
     sw.add_argument("--no-figures", action="store_true", help="write no figures")
     sw.add_argument("--quiet", action="store_true", help="print nothing")
     sw.set_defaults(handler=_sweep)
