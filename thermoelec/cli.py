@@ -301,9 +301,40 @@ def _sweep(args: argparse.Namespace) -> int:
         passed = int(sweep.passes(ds).sum())
         print(f"{passed} of {plan.size} pass; {ds.attrs['failed']} failed to solve or were invalid; "
               f"results in {out}/sweep.nc and {out}/sweep.csv")
-    if plan.option_dims:
+    if plan.sampling is not None:
+        _uncertainty(scenario, plan, ds, args, out)
+    elif plan.option_dims:
         _review(scenario, plan, ds, requirement, args, out)
     return EXIT_OK
+
+
+def _uncertainty(scenario, plan, ds, args: argparse.Namespace, out: Path) -> None:
+    """The statistics of a sampled sweep: uncertainty.nc / .csv, figures, uncertainty_report.html, a summary."""
+    from thermoelec.analysis.sweep.uncertainty import uncertainty_dataset, write_uncertainty
+    from thermoelec.physics.constants import ZERO_CELSIUS
+
+    with _progress("computing the statistics", not args.quiet):
+        u = uncertainty_dataset(plan, ds)
+        write_uncertainty(u, out)
+        from thermoelec.output.uncertainty import write_uncertainty_outputs
+
+        spec = scenario.spec
+        limits = {"cell_temperature_max_degC": spec.limits.cell_temperature_max - ZERO_CELSIUS,
+                  "cell_voltage_min_V": spec.cell.voltage_min}
+        write_uncertainty_outputs(u, ds, out, limits, scenario.name, spec.scenario.description,
+                                  figures=not args.no_figures)
+    if not args.quiet:
+        import numpy as np
+
+        overall = u["pass_probability"].sel(check="overall")
+        low, high = u["pass_probability_low"].sel(check="overall"), u["pass_probability_high"].sel(check="overall")
+        worst = np.unravel_index(int(np.argmin(overall.values)), overall.shape) if overall.ndim else ()
+        at = dict(zip(overall.dims, worst, strict=True))
+        p95 = u["cell_temperature_max_degC"].sel(percentile=95.0).isel(at)
+        print(f"{u.attrs['samples_per_point']} samples per point ({u.attrs['sampling']}, seed {u.attrs['seed']}); "
+              f"least likely to pass: {float(overall.isel(at)):.4f} (95 % interval {float(low.isel(at)):.4f}.."
+              f"{float(high.isel(at)):.4f}), P95 of the peak cell temperature there {float(p95):.4g} degC")
+        print(f"statistics in {out}/uncertainty.nc, {out}/uncertainty.csv and {out}/uncertainty_report.html")
 
 
 def _requirement(scenario, args: argparse.Namespace):
