@@ -11,6 +11,7 @@ Imports from analysis/ and the output layer's own pieces only.
 from __future__ import annotations
 
 import datetime as _dt
+import json
 import math
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
@@ -159,10 +160,9 @@ def uncertainty_report(u, ds, figures: Sequence[tuple[Figure, str]] = (), title:
     body = [f"<h1>Uncertainty: {_e(title)}</h1>"]
     if description:
         body.append(f"<p>{_e(description)}</p>")
-    body.append(f"<p>{_e(u.attrs.get('samples_per_point'))} samples per point by {_e(u.attrs.get('sampling_description'))}"
-                f", seed {_e(u.attrs.get('seed'))}; intervals: {_e(u.attrs.get('interval'))}.</p>")
-    import json
-
+    body.append(f"<p>{_e(u.attrs.get('samples_per_point'))} samples per point by "
+                f"{_e(u.attrs.get('sampling_description'))}, seed {_e(u.attrs.get('seed'))}; intervals: "
+                f"{_e(u.attrs.get('interval'))}.</p>")
     inputs = json.loads(u.attrs.get("distributions") or "{}")
     body.append("<h2>Sampled inputs</h2>" + _table(["key", "distribution"], [[f"<code>{_e(k)}</code>", _e(v)]
                                                                             for k, v in inputs.items()], 9))
