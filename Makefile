@@ -81,12 +81,16 @@ bench: $(STAMP)
 	$(BIN)/python benchmarks/bench_sweep.py
 	$(BIN)/python benchmarks/bench_sweep_scale.py
 	$(BIN)/python benchmarks/bench_sweep_figures.py
+	$(BIN)/python benchmarks/bench_uncertainty.py
+	$(BIN)/python benchmarks/bench_options.py
 
 bench-quick: $(STAMP)
 	$(BIN)/python benchmarks/bench_single_mission.py --quick
 	$(BIN)/python benchmarks/bench_sweep.py --quick
 	$(BIN)/python benchmarks/bench_sweep_scale.py --quick
 	$(BIN)/python benchmarks/bench_sweep_figures.py --quick
+	$(BIN)/python benchmarks/bench_uncertainty.py --quick
+	$(BIN)/python benchmarks/bench_options.py --quick
 
 clean:
 	rm -rf $(VENV) out .pytest_cache .ruff_cache

@@ -48,3 +48,15 @@ def test_sweep_scale_benchmark_runs_quick():
 def test_sweep_figures_benchmark_runs_quick():
     out = _run("bench_sweep_figures.py", "--quick")
     assert "figures' share of the wall time" in out and "reference, --no-figures" in out
+
+
+@pytest.mark.slow
+def test_uncertainty_benchmark_runs_quick():
+    out = _run("bench_uncertainty.py", "--quick")
+    assert "sampling and statistics add" in out and "reference, the same scenarios zipped" in out
+
+
+@pytest.mark.slow
+def test_options_benchmark_runs_quick():
+    out = _run("bench_options.py", "--quick")
+    assert "options and review add" in out and "reference, the same plain grid" in out
