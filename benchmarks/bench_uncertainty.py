@@ -73,12 +73,11 @@ def main() -> None:
         mission = write_mission(seconds, folder)
         zipped = zipped_copy(mission, samples, folder)
         common = ["--workers", str(args.workers), "--quiet", "--no-figures"]
-        sampled = [*THERMOELEC, "sweep", str(mission), *common, "--samples", str(samples)]
-        for item in DISTRIBUTIONS:
-            sampled += ["--sweep", item]
+        items = [part for item in DISTRIBUTIONS for part in ("--sweep", item)]
+        sampled = [*THERMOELEC, "sweep", str(mission), *common, "--samples", str(samples), *items]
         plain = [*THERMOELEC, "sweep", str(zipped), *common]
         timed([*THERMOELEC, "sweep", str(mission), "--out", str(folder / "warm"), "--quiet", "--no-figures",
-               "--workers", "1", "--samples", "4", *sum((["--sweep", d] for d in DISTRIBUTIONS), [])])
+               "--workers", "1", "--samples", "4", *items])
         best_sampled = best_plain = float("inf")
         for k in range(args.repeats):
             best_plain = min(best_plain, timed([*plain, "--out", str(folder / f"plain{k}")]))

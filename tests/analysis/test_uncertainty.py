@@ -53,7 +53,7 @@ def run(data: dict, tmp_path, name: str = "o", **kwargs):
 
 def test_sampled_percentiles_of_the_rise_match_the_analytic_normal(tmp_path):
     n = 2000
-    plan, ds, u = run(rise_scenario({**NORMAL_R0, "samples": n}), tmp_path)
+    _, ds, u = run(rise_scenario({**NORMAL_R0, "samples": n}), tmp_path)
     scale = CURRENT ** 2 / G
     mean, sd = scale * MEAN, scale * STD
     assert (mean, mean - Z95 * sd, mean + Z95 * sd) == pytest.approx((4.0, 3.67103, 4.32897), abs=5e-6)
