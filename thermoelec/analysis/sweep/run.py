@@ -204,6 +204,7 @@ def run_sweep(scenario: Scenario, plan: SweepPlan, out: Path, workers: int | Non
         One row per scenario in plan order (:func:`run_chunk`).
     """
     chunk_dir = _checkpoint_folder(scenario, plan, out, resume, f"/series:{keep_interval}/engine:{engine}")
+    scenario = scenario.for_variants()  # the plan has read the sweep's tables: no variant copies them again
     workers = workers or os.cpu_count() or 1
     chunk = chunk_size or max(1, min(256, plan.size // (4 * workers) or 1))
     chunks = _chunks(plan.size, chunk)

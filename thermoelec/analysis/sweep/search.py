@@ -208,6 +208,7 @@ def design_search(scenario: Scenario, plan: SweepPlan | None, path: str, low: fl
     import xarray as xr
 
     others, samples = _search_plans(scenario, plan, path, criterion)
+    scenario = scenario.for_variants()
     combos = [others.overrides(i) for i in range(others.size)] if others.dims else [{}]
     shape = others.shape if others.dims else (1,)
     args = [(scenario, c, path, low, high, unit, criterion, greatest, tolerance, samples) for c in combos]
