@@ -140,6 +140,63 @@ def _spearman(x: np.ndarray, y: np.ndarray) -> float:
         return float(spearmanr(x[ok], y[ok]).statistic)
 
 
+def _percentiles(stacked, grid_dims: list[str], percentiles: np.ndarray, independent: np.ndarray) -> dict[str, Any]:
+    """Each metric's percentiles over the samples that ran, per grid point."""
+    data = {}
+    for metric in METRICS:
+        values = stacked[metric].values[..., independent].astype(float)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)  # a grid point where no sample ran: NaN
+            q = np.nanpercentile(values, percentiles, axis=-1)
+        data[metric] = (["percentile", *grid_dims], q, {"units": stacked[metric].attrs.get("units", "")})
+    return data
+
+
+def _probabilities(stacked, grid_dims: list[str], checks: list[str], independent: np.ndarray) -> dict[str, Any]:
+    """The pass probability of each check and overall with its interval, per grid point."""
+    verdicts = stacked["verdict"].values[..., independent]
+    failed = stacked["failed_checks"].values[..., independent]
+    ran = stacked["status"].values[..., independent] == "ok"
+    n = int(independent.sum())
+    counts = np.empty((len(checks), *verdicts.shape[:-1]), dtype=int)
+    counts[0] = (verdicts == PASS).sum(axis=-1)
+    for c, check in enumerate(checks[1:], start=1):
+        passed = ran & ~np.vectorize(lambda text, name=check: name in str(text).split(","))(failed)
+        counts[c] = passed.sum(axis=-1)
+    low, high = clopper_pearson(counts, n)
+    return {"passes": (["check", *grid_dims], counts), "samples": ((), n),
+            "pass_probability": (["check", *grid_dims], counts / n,
+                                 {"description": "share of the samples that pass (a failed or invalid run does not)"}),
+            "pass_probability_low": (["check", *grid_dims], low, {"interval": INTERVAL}),
+            "pass_probability_high": (["check", *grid_dims], high, {"interval": INTERVAL})}
+
+
+def _sensitivities(stacked, grid_dims: list[str], sampling, independent: np.ndarray) -> dict[str, Any]:
+    """Spearman correlations and their ranking, and with the Saltelli design the Sobol' indices."""
+    d = len(sampling.distributions)
+    x = sampling.values()
+    grid_shape = tuple(stacked.sizes[g] for g in grid_dims)
+    rho = np.full((d, len(SENSITIVITY_METRICS), *grid_shape), np.nan)
+    for m, metric in enumerate(SENSITIVITY_METRICS):
+        y = stacked[metric].values.astype(float)
+        for index in np.ndindex(*grid_shape):
+            for j in range(d):
+                rho[(j, m, *index)] = _spearman(x[independent, j], y[index][independent])
+    rank = np.argsort(np.argsort(-np.nan_to_num(np.abs(rho), nan=-1.0), axis=0), axis=0) + 1
+    dims = ["input", "metric", *grid_dims]
+    data = {"spearman": (dims, rho, {"description": "Spearman rank correlation of the metric with the input"}),
+            "sensitivity_rank": (dims, rank, {"description": "1: the input with the largest |Spearman| there"})}
+    if sampling.method == "saltelli":
+        first, total = np.full_like(rho, np.nan), np.full_like(rho, np.nan)
+        for index in np.ndindex(*grid_shape):
+            y = np.array([stacked[metric].values[index].astype(float) for metric in SENSITIVITY_METRICS])
+            first[(slice(None), slice(None), *index)], total[(slice(None), slice(None), *index)] = \
+                sobol_from_blocks(y, sampling.samples, d)
+        data["sobol_first"] = (dims, first, {"method": "Saltelli 2010 (scipy)"})
+        data["sobol_total"] = (dims, total, {"method": "Jansen 1999 (scipy)"})
+    return data
+
+
 def uncertainty_dataset(plan: SweepPlan, ds):
     """The statistics of a sampled sweep's dataset (see the module's description) as an xarray Dataset.
 
@@ -165,60 +222,17 @@ def uncertainty_dataset(plan: SweepPlan, ds):
     sampling = plan.sampling
     if sampling is None:
         raise ValueError("the sweep has no samples")
-    d = len(sampling.distributions)
-    inputs = [dist.path for dist in sampling.distributions]
     grid_dims = [name for name in plan.dim_names if name != "sample"]
-    blocks = sampling.blocks()
-    independent = np.isin(blocks, ["A", "B"]) if sampling.method == "saltelli" else np.ones(sampling.size, bool)
-    x = sampling.values()
+    independent = np.isin(sampling.blocks(), ["A", "B"]) if sampling.method == "saltelli" \
+        else np.ones(sampling.size, bool)
     stacked = ds.transpose(*grid_dims, "sample")
-    grid_shape = tuple(ds.sizes[g] for g in grid_dims)
-    percentiles = np.array(sampling.percentiles)
-    data: dict[str, Any] = {}
-    for metric in METRICS:
-        values = stacked[metric].values[..., independent].astype(float)
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore", RuntimeWarning)  # a grid point where no sample ran: NaN
-            q = np.nanpercentile(values, percentiles, axis=-1) if values.size else np.full((len(percentiles),), np.nan)
-        data[metric] = (["percentile", *grid_dims], q, {"units": ds[metric].attrs.get("units", "")})
     checks = ["overall", *(c.name for c in LIMIT_CHECKS)]
-    verdicts = stacked["verdict"].values[..., independent]
-    failed = stacked["failed_checks"].values[..., independent]
-    ran = stacked["status"].values[..., independent] == "ok"
-    n = int(independent.sum())
-    counts = np.empty((len(checks), *grid_shape), dtype=int)
-    counts[0] = (verdicts == PASS).sum(axis=-1)
-    for c, check in enumerate(checks[1:], start=1):
-        passed = ran & ~np.vectorize(lambda text, name=check: name in str(text).split(","))(failed)
-        counts[c] = passed.sum(axis=-1)
-    low, high = clopper_pearson(counts, n)
-    data["passes"] = (["check", *grid_dims], counts)
-    data["samples"] = ((), n)
-    data["pass_probability"] = (["check", *grid_dims], counts / n,
-                                {"description": "share of the samples that pass (a failed or invalid run does not)"})
-    data["pass_probability_low"] = (["check", *grid_dims], low, {"interval": INTERVAL})
-    data["pass_probability_high"] = (["check", *grid_dims], high, {"interval": INTERVAL})
-    rho = np.full((d, len(SENSITIVITY_METRICS), *grid_shape), np.nan)
-    for m, metric in enumerate(SENSITIVITY_METRICS):
-        y = stacked[metric].values.astype(float)
-        for index in np.ndindex(*grid_shape):
-            for j in range(d):
-                rho[(j, m, *index)] = _spearman(x[independent, j], y[index][independent])
-    rank = np.argsort(np.argsort(-np.nan_to_num(np.abs(rho), nan=-1.0), axis=0), axis=0) + 1
-    data["spearman"] = (["input", "metric", *grid_dims], rho,
-                        {"description": "Spearman rank correlation of the metric with the sampled input"})
-    data["sensitivity_rank"] = (["input", "metric", *grid_dims], rank,
-                                {"description": "1: the input with the largest |Spearman| for the metric"})
-    if sampling.method == "saltelli":
-        first = np.full_like(rho, np.nan)
-        total = np.full_like(rho, np.nan)
-        for index in np.ndindex(*grid_shape):
-            y = np.array([stacked[metric].values[index].astype(float) for metric in SENSITIVITY_METRICS])
-            s1, st = sobol_from_blocks(y, sampling.samples, d)
-            first[(slice(None), slice(None), *index)] = s1
-            total[(slice(None), slice(None), *index)] = st
-        data["sobol_first"] = (["input", "metric", *grid_dims], first, {"method": "Saltelli 2010 (scipy)"})
-        data["sobol_total"] = (["input", "metric", *grid_dims], total, {"method": "Jansen 1999 (scipy)"})
+    data: dict[str, Any] = {}
+    data.update(_percentiles(stacked, grid_dims, np.array(sampling.percentiles), independent))
+    data.update(_probabilities(stacked, grid_dims, checks, independent))
+    data.update(_sensitivities(stacked, grid_dims, sampling, independent))
+    inputs = [dist.path for dist in sampling.distributions]
+    percentiles = np.array(sampling.percentiles)
     coords: dict[str, Any] = {"percentile": ("percentile", percentiles, {"units": "%"}),
                               "check": ("check", np.array(checks, dtype=object)),
                               "input": ("input", np.array(inputs, dtype=object)),
