@@ -60,6 +60,10 @@ demo: $(STAMP)
 	@echo "== a sidewalk delivery robot: four battery-bay cooling options x ambient x route, and the cheapest that"
 	@echo "   passes at 45 degC with 2 K of margin on every route (the design review)"
 	@$(BIN)/thermoelec sweep scenarios/delivery_robot_options.toml --out $(DEMO)/robot-options
+	@echo "== a cargo robot's 14s4p pack, every cell resolved on a cold plate (coolant along the rows):"
+	@echo "   the hottest cell against the lumped estimate, and one cell 5 % short of capacity"
+	@$(BIN)/thermoelec run scenarios/cargo_robot_pack.toml --out $(DEMO)/cargo-robot-pack
+	@$(BIN)/thermoelec compare scenarios/cargo_robot_pack.toml --out $(DEMO)/cargo-robot-pack-compare
 	@echo
 	@echo "== the demo scooter cell fitted from its (invented) lab logs: OCV, pulses, heater test"
 	@$(BIN)/thermoelec fit ocv $(LOGS)/scooter_c20_discharge.csv $(LOGS)/scooter_c20_charge.csv \
@@ -83,6 +87,7 @@ bench: $(STAMP)
 	$(BIN)/python benchmarks/bench_sweep_figures.py
 	$(BIN)/python benchmarks/bench_uncertainty.py
 	$(BIN)/python benchmarks/bench_options.py
+	$(BIN)/python benchmarks/bench_pack.py
 
 bench-quick: $(STAMP)
 	$(BIN)/python benchmarks/bench_single_mission.py --quick
@@ -91,6 +96,7 @@ bench-quick: $(STAMP)
 	$(BIN)/python benchmarks/bench_sweep_figures.py --quick
 	$(BIN)/python benchmarks/bench_uncertainty.py --quick
 	$(BIN)/python benchmarks/bench_options.py --quick
+	$(BIN)/python benchmarks/bench_pack.py --quick
 
 clean:
 	rm -rf $(VENV) out .pytest_cache .ruff_cache

@@ -20,7 +20,8 @@ import thermoelec
 
 SCENARIOS = Path(__file__).resolve().parents[1] / "scenarios"
 SNAPSHOT = Path(__file__).resolve().parent / "data" / "demo_summaries.json"
-DEMOS = ("drone_delivery", "ebike_route", "robot_cooling", "scooter_commute", "delivery_robot_options")
+DEMOS = ("drone_delivery", "ebike_route", "robot_cooling", "scooter_commute", "cargo_robot_pack",
+         "delivery_robot_options")
 
 
 def _plain(value: Any) -> Any:

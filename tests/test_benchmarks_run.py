@@ -60,3 +60,7 @@ def test_uncertainty_benchmark_runs_quick():
 def test_options_benchmark_runs_quick():
     out = _run("bench_options.py", "--quick")
     assert "options and review add" in out and "reference, the same plain grid" in out
+def test_pack_benchmark_runs_quick():
+    out = _run("bench_pack.py", "--quick")
+    assert "target 14s4p on the batched engine" in out and "solve_ivp LSODA loop, per cell" in out
+    assert "thermoelec sweep --workers 2, end to end" in out

@@ -11,21 +11,28 @@ commands:
   new FILE                     write a commented template scenario to start from
 
 Exit status: 0 when the run finished (whatever its verdict says), 2 for invalid
-input (one message naming the file and the key), 1 for anything else (a solver
-failure still writes what was computed). "thermoelec COMMAND --help" for each.
+input (one message naming the file and the key), for work over its budget
+(--max-rows, --max-memory, --max-scenarios) and for an output folder in use by
+another command; 130 after SIGINT (Ctrl-C), 143 after SIGTERM; 1 for anything
+else (a solver failure still writes what was computed). Outputs are put in
+place whole or not at all. "thermoelec COMMAND --help" for each.
 """
 
 from __future__ import annotations
 
 import argparse
 import os
+import shlex
 import sys
 import threading
 from collections.abc import Iterator
 from contextlib import contextmanager
 from pathlib import Path
 
+from thermoelec.analysis.interrupts import Interrupted, termination_signals
+from thermoelec.analysis.transaction import check_output_path, hold, write_text_atomic
 from thermoelec.inputs import ScenarioError, to_si
+from thermoelec.inputs.budgets import DEFAULT_BUDGETS, Budgets, using
 from thermoelec.output.tables import print_summary
 from thermoelec.scenario import load_scenario, parse_value
 from thermoelec.version import __version__
@@ -41,6 +48,16 @@ def _overrides(pairs: list[str]) -> dict:
             raise ScenarioError("--set", pair, "expected KEY=VALUE, for example thermal.ambient_temperature='-20 degC'")
         overrides[key.strip()] = parse_value(value.strip())
     return overrides
+
+
+def _load(args: argparse.Namespace, extra: dict | None = None):
+    """The scenario of a command, its ``--set`` overrides named as such in messages."""
+    return load_scenario(args.scenario, {**_overrides(args.set or []), **(extra or {})}, overrides_from="--set")
+
+
+def _notes(folder) -> None:
+    for note in folder.notes:
+        print(f"thermoelec: note: {note}", file=sys.stderr)
 
 
 #: A task shows its progress only when it takes longer than this [s] (and stderr is a terminal).
@@ -89,21 +106,22 @@ def _write_run(result, scenario, out: Path, figures: bool) -> None:
 
 
 def _run(args: argparse.Namespace) -> int:
+    from thermoelec.analysis.estimates import check_run
     from thermoelec.api import simulate
 
-    overrides = _overrides(args.set or [])
-    if args.backend:
-        overrides["solver.backend"] = args.backend
-    scenario = load_scenario(args.scenario, overrides)
-    with _progress(f"simulating {scenario.name}", not args.quiet):
-        result = simulate(scenario)
-    out = Path(args.out)
-    try:
-        with _progress("writing results and figures", not args.quiet):
-            _write_run(result, scenario, out, not args.no_figures)
-    except OSError as exc:
-        print(f"thermoelec: cannot write results to {out}: {exc.strerror or exc}", file=sys.stderr)
-        return EXIT_FAILURE
+    out = check_output_path(args.out)
+    scenario = _load(args, {"solver.backend": args.backend} if args.backend else None)
+    check_run(scenario)
+    with hold(out, args.command_line) as folder:
+        _notes(folder)
+        with _progress(f"simulating {scenario.name}", not args.quiet):
+            result = simulate(scenario)
+        try:
+            with _progress("writing results and figures", not args.quiet), folder.transaction() as stage:
+                _write_run(result, scenario, stage, not args.no_figures)
+        except OSError as exc:
+            print(f"thermoelec: cannot write results to {out}: {exc.strerror or exc}", file=sys.stderr)
+            return EXIT_FAILURE
     if not args.quiet:
         print(f"results in {out}/", file=sys.stdout)
         print_summary(result.summary, sys.stdout)
@@ -127,28 +145,24 @@ def _cases(tokens: list[list[str]]) -> list[tuple[str, dict]]:
 
 
 def _compare(args: argparse.Namespace) -> int:
-    from thermoelec.analysis.compare import case_list, run_cases, write_comparison
+    from thermoelec.analysis.compare import case_list, case_scenarios, run_cases
+    from thermoelec.analysis.estimates import check_compare
 
-    scenario = load_scenario(args.scenario, _overrides(args.set or []))
+    out = check_output_path(args.out)
+    scenario = _load(args)
     cases = case_list(scenario, _cases(args.case or []), args.options)
-    with _progress(f"simulating {len(cases)} cases of {scenario.name}", not args.quiet):
-        outcomes = run_cases(scenario, cases)
-    out = Path(args.out)
-    try:
-        with _progress("writing results and figures", not args.quiet):
-            write_comparison(outcomes, out)
-            if not args.no_figures:
-                from thermoelec.output.figures import write_comparison_figure
-                from thermoelec.output.report import comparison_report, write_report
-                from thermoelec.scenario.parameters import resolved_parameters
-
-                write_comparison_figure({o.name: o.result for o in outcomes}, out)
-                write_report(comparison_report(outcomes, scenario.raw, scenario.name,
-                                               scenario.spec.scenario.description,
-                                               resolved_parameters(scenario)), out)
-    except OSError as exc:
-        print(f"thermoelec: cannot write results to {out}: {exc.strerror or exc}", file=sys.stderr)
-        return EXIT_FAILURE
+    variants = case_scenarios(scenario, cases)  # every case validated before any is computed
+    check_compare(scenario, variants, [name for name, _ in cases])
+    with hold(out, args.command_line) as folder:
+        _notes(folder)
+        with _progress(f"simulating {len(cases)} cases of {scenario.name}", not args.quiet):
+            outcomes = run_cases(scenario, cases, variants)
+        try:
+            with _progress("writing results and figures", not args.quiet), folder.transaction() as stage:
+                _write_comparison(outcomes, scenario, stage, not args.no_figures)
+        except OSError as exc:
+            print(f"thermoelec: cannot write results to {out}: {exc.strerror or exc}", file=sys.stderr)
+            return EXIT_FAILURE
     if not args.quiet:
         _print_comparison(scenario.name, outcomes, out)
     failed = [o.name for o in outcomes if o.result.status != "ok"]
@@ -157,6 +171,20 @@ def _compare(args: argparse.Namespace) -> int:
               f"are in {out}/cases/)", file=sys.stderr)
         return EXIT_FAILURE
     return EXIT_OK
+
+
+def _write_comparison(outcomes, scenario, out: Path, figures: bool) -> None:
+    from thermoelec.analysis.compare import write_comparison
+
+    write_comparison(outcomes, out)
+    if figures:
+        from thermoelec.output.figures import write_comparison_figure
+        from thermoelec.output.report import comparison_report, write_report
+        from thermoelec.scenario.parameters import resolved_parameters
+
+        write_comparison_figure({o.name: o.result for o in outcomes}, out)
+        write_report(comparison_report(outcomes, scenario.raw, scenario.name, scenario.spec.scenario.description,
+                                       resolved_parameters(scenario)), out)
 
 
 def _print_comparison(name: str, outcomes, out: Path) -> None:
@@ -178,19 +206,25 @@ def _print_comparison(name: str, outcomes, out: Path) -> None:
         print(f"{outcome.name}: {verdict_line(outcome.result.summary)}")
 
 
-def _quantity_option(text: str, unit: str, option: str) -> float:
+def _quantity_option(text: str, unit: str, option: str, positive: bool = False) -> float:
     """A command-line quantity (``'68 g'``, ``'-10 degC'``, a bare number in ``unit``) in SI."""
     si = {"degC": "K"}.get(unit, unit)
     try:
-        return to_si(parse_value(text), unit, si)
+        value = to_si(parse_value(text), unit, si)
     except ValueError as exc:
         raise ScenarioError(option, text, str(exc)) from None
+    if positive and not value > 0:
+        raise ScenarioError(option, text, "must be > 0")
+    if si == "K" and not value > 0:
+        raise ScenarioError(option, text, "is at or below absolute zero")
+    return value
 
 
 def _fit(args: argparse.Namespace) -> int:
     from thermoelec.fit import jobs as fit
     from thermoelec.fit.logs import read_mapping
 
+    out = _fit_output(args.out)
     columns = {}
     for pair in args.column or []:
         key, sep, value = pair.partition("=")
@@ -201,19 +235,37 @@ def _fit(args: argparse.Namespace) -> int:
 
     with _progress(f"fitting {args.kind}", not args.quiet):
         outcome = _fit_outcome(args, fit, mapping)
-    try:
-        written = outcome.write(args.out)
-    except OSError as exc:
-        print(f"thermoelec: cannot write {args.out}: {exc.strerror or exc}", file=sys.stderr)
-        return EXIT_FAILURE
+    outcome.check()  # nonsense refused (exit 2), the doubtful warned of; never a file the loader rejects
+    with hold(out.parent, args.command_line, manifest=False) as folder:  # shared with other fits' files
+        _notes(folder)
+        try:
+            with folder.transaction() as stage:
+                written = [out.parent / path.name for path in outcome.write(stage / out.name)]
+        except OSError as exc:
+            print(f"thermoelec: cannot write {args.out}: {exc.strerror or exc}", file=sys.stderr)
+            return EXIT_FAILURE
+    for warning in outcome.warnings:
+        print(f"thermoelec: warning: {warning}", file=sys.stderr)
     if not args.quiet:
         width = max(len(name) for name, _, _ in outcome.parameters)
         for name, value, interval in outcome.parameters:
             print(f"  {name:<{width}}  {value}  {interval}")
         for note in outcome.notes:
-            print(f"  note: {note}")
+            if note.removeprefix("warning: ") not in outcome.warnings:  # those went to stderr already
+                print(f"  note: {note}")
         print("wrote " + ", ".join(str(path) for path in written))
     return EXIT_OK
+
+
+def _fit_output(text: str) -> Path:
+    """The cell file ``fit`` writes: a file name in a folder that can be written."""
+    if not str(text).strip():
+        raise ScenarioError("--out", "", "the cell file's name is empty")
+    out = Path(text)
+    if out.is_dir() or str(text).endswith(("/", os.sep)):
+        raise ScenarioError("--out", str(text), "is a folder: give the cell file to write, e.g. out/cell.toml")
+    check_output_path(out.parent)
+    return out
 
 
 def _fit_outcome(args: argparse.Namespace, fit, mapping):
@@ -230,111 +282,146 @@ def _fit_outcome(args: argparse.Namespace, fit, mapping):
     if len(args.logs) != 1:
         raise ScenarioError("fit thermal", "LOG", "give one heating-and-cooling log")
     ambient = None if args.ambient is None else _quantity_option(args.ambient, "degC", "--ambient")
-    mass = None if args.mass is None else _quantity_option(args.mass, "kg", "--mass")
+    mass = None if args.mass is None else _quantity_option(args.mass, "kg", "--mass", positive=True)
     return fit.fit_thermal_log(args.logs[0], mapping, args.cell, ambient, mass)
+
+
+def _search(args: argparse.Namespace, scenario, out: Path) -> int:
+    """``sweep --find``: the design search, written as a unit into ``out``."""
+    from thermoelec.analysis import sweep
+
+    criterion = sweep.parse_criterion(args.find)
+    if not args.over or not args.between:
+        raise ScenarioError("--find", args.find, "give --over KEY and --between LOW HIGH")
+    bounds = []
+    for text in args.between:
+        value = parse_value(text)
+        parts = str(value).split(None, 1) if isinstance(value, str) else [value]
+        try:
+            bounds.append((float(parts[0]), parts[1] if len(parts) > 1 else ""))
+        except ValueError:
+            raise ScenarioError("--between", text, "expected a quantity such as '0.2 W/K'") from None
+    (low, unit), (high, unit_high) = bounds
+    if unit != unit_high or not low < high:
+        raise ScenarioError("--between", " ".join(args.between), "LOW < HIGH in the same unit")
+    try:
+        to_si(f"{low} {unit}".strip(), unit or "", unit or "")
+    except ValueError as exc:
+        raise ScenarioError("--between", args.between[0], str(exc)) from None
+    plan = _plan(sweep, scenario, args) if (scenario.spec.sweep or args.sweep or scenario.spec.option
+                                            or args.samples is not None) else None
+    for bound in (low, high):  # the key must exist and take both ends
+        scenario.with_overrides({args.over: f"{bound} {unit}".strip() if unit else bound}, origin="--between")
+    with hold(out, args.command_line) as folder:
+        _notes(folder)
+        found = sweep.design_search(scenario, plan, args.over, low, high, unit, criterion, args.greatest,
+                                    args.tolerance, args.workers)
+        with folder.transaction() as stage:
+            found.to_netcdf(stage / "search.nc")
+            if not args.no_figures:
+                from thermoelec.output.sweep_figures import write_search_figure
+
+                write_search_figure(found, stage)
+    if not args.quiet:
+        _print_search(found)
+        print(f"search results in {out}/")
+    return EXIT_OK
 
 
 def _sweep(args: argparse.Namespace) -> int:
     from thermoelec.analysis import sweep
-    scenario = load_scenario(args.scenario, _overrides(args.set or []))
-    out = Path(args.out)
-    if args.find:
-        criterion = sweep.parse_criterion(args.find)
-        if not args.over or not args.between:
-            raise ScenarioError("--find", args.find, "give --over KEY and --between LOW HIGH")
-        bounds = []
-        for text in args.between:
-            value = parse_value(text)
-            parts = str(value).split(None, 1) if isinstance(value, str) else [value]
-            try:
-                bounds.append((float(parts[0]), parts[1] if len(parts) > 1 else ""))
-            except ValueError:
-                raise ScenarioError("--between", text, "expected a quantity such as '0.2 W/K'") from None
-        (low, unit), (high, unit_high) = bounds
-        if unit != unit_high or not low < high:
-            raise ScenarioError("--between", " ".join(args.between), "LOW < HIGH in the same unit")
-        try:
-            to_si(f"{low} {unit}".strip(), unit or "", unit or "")
-        except ValueError as exc:
-            raise ScenarioError("--between", args.between[0], str(exc)) from None
-        plan = _plan(sweep, scenario, args) if (scenario.spec.sweep or args.sweep or scenario.spec.option
-                                                or args.samples is not None) else None
-        scenario.with_overrides({args.over: f"{low} {unit}".strip() if unit else low})  # the key must exist
-        found = sweep.design_search(scenario, plan, args.over, low, high, unit, criterion, args.greatest,
-                                    args.tolerance, args.workers)
-        out.mkdir(parents=True, exist_ok=True)
-        found.to_netcdf(out / "search.nc")
-        if not args.no_figures:
-            from thermoelec.output.sweep_figures import write_search_figure
+    from thermoelec.analysis.estimates import check_sweep
 
-            write_search_figure(found, out)
-        if not args.quiet:
-            _print_search(found)
-            print(f"search results in {out}/")
-        return EXIT_OK
-    plan = _plan(sweep, scenario, args)
+    out = check_output_path(args.out)
+    scenario = _load(args)
+    if args.find:
+        return _search(args, scenario, out)
+    plan = _plan(sweep, scenario, args, check=False)
     requirement = _requirement(scenario, args)
     if requirement is not None:
         from thermoelec.analysis.sweep.review import with_requirement_point
 
         plan = with_requirement_point(plan, requirement, "--require" if args.require else scenario.source)
+    keep = None if args.keep_series is None else _quantity_option(args.keep_series, "s", "--keep-series",
+                                                                   positive=True)
+    check_sweep(scenario, plan.size, sweep.check_values(scenario, plan), keep, args.engine == "solo",
+                args.workers or os.cpu_count() or 1)
     if not args.quiet:
         dims = " x ".join(f"{d.name} ({d.size})" for d in plan.dims)
         print(f"sweep of {scenario.name}: {plan.size} scenarios over {dims}")
-    keep = None
-    if args.keep_series is not None:
-        keep = _quantity_option(args.keep_series, "s", "--keep-series")
-        if keep <= 0:
-            raise ScenarioError("--keep-series", args.keep_series, "the interval must be > 0")
-    rows = sweep.run_sweep(scenario, plan, out, args.workers, args.scheduler, args.resume, args.chunk_size,
-                           progress=not args.quiet, keep_interval=keep, engine=args.engine)
-    ds = sweep.sweep_dataset(scenario, plan, rows)
-    sweep.write_sweep(ds, out)
-    if not args.no_figures:
-        from thermoelec.output.sweep_figures import write_sweep_figures
+    with hold(out, args.command_line) as folder:
+        _notes(folder)
+        if args.resume and not args.force and not sweep.Checkpoints(out / "chunks").finished():
+            print(f"thermoelec: note: no finished chunks in {out}/chunks/: the sweep starts from the beginning",
+                  file=sys.stderr)
+        try:
+            rows = sweep.run_sweep(scenario, plan, out, args.workers, args.scheduler, args.resume, args.chunk_size,
+                                   progress=not args.quiet, keep_interval=keep, engine=args.engine,
+                                   force=args.force)
+        except Interrupted as exc:
+            _resume_hint(exc, out, args.command_line)
+            raise
+        ds = sweep.sweep_dataset(scenario, plan, rows)
+        with folder.transaction() as stage:
+            sweep.write_sweep(ds, stage)
+            if not args.no_figures:
+                from thermoelec.output.sweep_figures import write_sweep_figures
 
-        with _progress("drawing the sweep's maps", not args.quiet):
-            write_sweep_figures(ds, out)
-    if keep is not None:
-        sweep.write_series(plan, rows, out)
+                with _progress("drawing the sweep's maps", not args.quiet):
+                    write_sweep_figures(ds, stage)
+            if keep is not None:
+                sweep.write_series(plan, rows, stage)
+            answer: list[str] = []
+            if plan.sampling is not None:
+                answer = _uncertainty(scenario, plan, ds, args, stage, out)
+            elif plan.option_dims:
+                answer = _review(scenario, plan, ds, requirement, args, stage, out)
+        sweep.Checkpoints(out / "chunks").discard()  # the dataset holds them now
     if not args.quiet:
         passed = int(sweep.passes(ds).sum())
         print(f"{passed} of {plan.size} pass; {ds.attrs['failed']} failed to solve or were invalid; "
               f"results in {out}/sweep.nc and {out}/sweep.csv")
-    if plan.sampling is not None:
-        _uncertainty(scenario, plan, ds, args, out)
-    elif plan.option_dims:
-        _review(scenario, plan, ds, requirement, args, out)
+        for line in answer:
+            print(line)
     return EXIT_OK
 
 
-def _uncertainty(scenario, plan, ds, args: argparse.Namespace, out: Path) -> None:
-    """The statistics of a sampled sweep: uncertainty.nc / .csv, figures, uncertainty_report.html, a summary."""
+def _resume_hint(exc: Interrupted, out: Path, command_line: str) -> None:
+    """How to go on after an interrupted sweep: what is kept, the command that resumes it."""
+    from thermoelec.analysis import sweep
+
+    kept = sweep.Checkpoints(out / "chunks").finished()
+    argv = [a for a in shlex.split(command_line)[1:] if a not in ("--resume", "--force")]
+    print(f"\nthermoelec: {exc.name}: {kept} finished scenarios are kept in {out}/chunks/; resume with:\n  "
+          f"{shlex.join(['thermoelec', *argv, '--resume'])}", file=sys.stderr)
+
+
+def _uncertainty(scenario, plan, ds, args: argparse.Namespace, stage: Path, out: Path) -> list[str]:
+    """The statistics of a sampled sweep written into ``stage`` (uncertainty.nc / .csv, figures,
+    uncertainty_report.html); returns the lines that summarise them."""
+    import numpy as np
+
     from thermoelec.analysis.sweep.uncertainty import uncertainty_dataset, write_uncertainty
+    from thermoelec.output.uncertainty import write_uncertainty_outputs
     from thermoelec.physics.constants import ZERO_CELSIUS
 
     with _progress("computing the statistics", not args.quiet):
         u = uncertainty_dataset(plan, ds)
-        write_uncertainty(u, out)
-        from thermoelec.output.uncertainty import write_uncertainty_outputs
-
+        write_uncertainty(u, stage)
         spec = scenario.spec
         limits = {"cell_temperature_max_degC": spec.limits.cell_temperature_max - ZERO_CELSIUS,
                   "cell_voltage_min_V": spec.cell.voltage_min}
-        write_uncertainty_outputs(u, ds, out, limits, scenario.name, spec.scenario.description,
+        write_uncertainty_outputs(u, ds, stage, limits, scenario.name, spec.scenario.description,
                                   figures=not args.no_figures)
-    if not args.quiet:
-        import numpy as np
-
-        overall = u["pass_probability"].sel(check="overall")
-        low, high = u["pass_probability_low"].sel(check="overall"), u["pass_probability_high"].sel(check="overall")
-        worst = np.unravel_index(int(np.argmin(overall.values)), overall.shape) if overall.ndim else ()
-        at = dict(zip(overall.dims, worst, strict=True))
-        p95 = u["cell_temperature_max_degC"].sel(percentile=95.0).isel(at)
-        print(f"{u.attrs['samples_per_point']} samples per point ({u.attrs['sampling']}, seed {u.attrs['seed']}); "
-              f"least likely to pass: {float(overall.isel(at)):.4f} (95 % interval {float(low.isel(at)):.4f}.."
-              f"{float(high.isel(at)):.4f}), P95 of the peak cell temperature there {float(p95):.4g} degC")
-        print(f"statistics in {out}/uncertainty.nc, {out}/uncertainty.csv and {out}/uncertainty_report.html")
+    overall = u["pass_probability"].sel(check="overall")
+    low, high = u["pass_probability_low"].sel(check="overall"), u["pass_probability_high"].sel(check="overall")
+    worst = np.unravel_index(int(np.argmin(overall.values)), overall.shape) if overall.ndim else ()
+    at = dict(zip(overall.dims, worst, strict=True))
+    p95 = u["cell_temperature_max_degC"].sel(percentile=95.0).isel(at)
+    return [f"{u.attrs['samples_per_point']} samples per point ({u.attrs['sampling']}, seed {u.attrs['seed']}); "
+            f"least likely to pass: {float(overall.isel(at)):.4f} (95 % interval {float(low.isel(at)):.4f}.."
+            f"{float(high.isel(at)):.4f}), P95 of the peak cell temperature there {float(p95):.4g} degC",
+            f"statistics in {out}/uncertainty.nc, {out}/uncertainty.csv and {out}/uncertainty_report.html"]
 
 
 def _requirement(scenario, args: argparse.Namespace):
@@ -349,9 +436,11 @@ def _requirement(scenario, args: argparse.Namespace):
     return None
 
 
-def _review(scenario, plan, ds, requirement, args: argparse.Namespace, out: Path) -> None:
-    """The design review of a sweep over options: review.nc, review.csv, figures, design_report.html, the answer."""
-    from thermoelec.analysis.sweep.review import design_review, write_review
+def _review(scenario, plan, ds, requirement, args: argparse.Namespace, stage: Path, out: Path) -> list[str]:
+    """The design review of a sweep over options written into ``stage`` (review.nc, review.csv, figures,
+    design_report.html); returns the lines of the answer."""
+    from thermoelec.analysis.sweep.review import design_review, review_table, write_review
+    from thermoelec.output.review import write_review_outputs
 
     spec = scenario.spec.review
     group = spec.group if spec else None
@@ -360,21 +449,16 @@ def _review(scenario, plan, ds, requirement, args: argparse.Namespace, out: Path
     refine = args.refine or (spec.refine if spec else False)
     with _progress("reviewing the options", not args.quiet):
         review = design_review(scenario, plan, ds, requirement, group, over, rank_by, refine, args.tolerance)
-        write_review(review, out)
-        from thermoelec.output.review import write_review_outputs
-
-        write_review_outputs(review, ds, out, scenario.name, scenario.spec.scenario.description,
+        write_review(review, stage)
+        write_review_outputs(review, ds, stage, scenario.name, scenario.spec.scenario.description,
                              figures=not args.no_figures)
-    if not args.quiet:
-        from thermoelec.analysis.sweep.review import review_table
-
-        print(review_table(review).drop(columns=[c for c in ("hardest_case", "highest_passing_message",
-                                                             "refined_message") if c in review]).to_string(index=False))
-        print(review.attrs["statement"])
-        print(f"design review in {out}/review.csv, {out}/review.nc and {out}/design_report.html")
+    table = review_table(review).drop(columns=[c for c in ("hardest_case", "highest_passing_message",
+                                                           "refined_message") if c in review])
+    return [table.to_string(index=False), review.attrs["statement"],
+            f"design review in {out}/review.csv, {out}/review.nc and {out}/design_report.html"]
 
 
-def _plan(sweep, scenario, args: argparse.Namespace):
+def _plan(sweep, scenario, args: argparse.Namespace, check: bool = True):
     """The sweep's plan from the scenario and the sweep command's options."""
     options = None if args.options is None else [] if args.options.strip() == "none" else \
         [g.strip() for g in args.options.split(",") if g.strip()]
@@ -386,7 +470,7 @@ def _plan(sweep, scenario, args: argparse.Namespace):
             raise ScenarioError("--percentiles", args.percentiles, "expected numbers within 0..100, "
                                 "e.g. 1,99") from None
     return sweep.plan_sweep(scenario, args.sweep or [], samples=args.samples, seed=args.seed,
-                            method=args.sampling, options=options, percentiles=percentiles)
+                            method=args.sampling, options=options, percentiles=percentiles, check=check)
 
 
 def _print_search(found) -> None:
@@ -406,9 +490,11 @@ def _print_search(found) -> None:
 
 def _check(args: argparse.Namespace) -> int:
     from thermoelec.analysis.demand import profile_demand
+    from thermoelec.analysis.estimates import check_run
     from thermoelec.scenario.parameters import resolved_parameters
 
-    scenario = load_scenario(args.scenario, _overrides(args.set or []))
+    scenario = _load(args)
+    check_run(scenario)  # what run would refuse, check refuses (before building a billion segments)
     problem = scenario.problem()  # reads the profile files: a bad CSV is reported as run reports it
     if args.quiet:
         return EXIT_OK
@@ -458,12 +544,64 @@ def _new(args: argparse.Namespace) -> int:
         raise ScenarioError(str(path), "", "the file exists; give another name or --force to overwrite it")
     try:
         path.parent.mkdir(parents=True, exist_ok=True)
-        path.write_text(TEMPLATE)
+        write_text_atomic(path, TEMPLATE)
     except OSError as exc:
         print(f"thermoelec: cannot write {path}: {exc.strerror or exc}", file=sys.stderr)
         return EXIT_FAILURE
     print(f"wrote {path}: edit it, then thermoelec check {path}")
     return EXIT_OK
+
+
+def _at_least(low: int):
+    """An argparse type: a whole number >= ``low`` (``4e7`` accepted for 40000000)."""
+    def parse(text: str) -> int:
+        try:
+            value = float(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
+        if not value.is_integer() or value < low:
+            raise argparse.ArgumentTypeError(f"{text!r}: expected a whole number >= {low}")
+        return int(value)
+
+    parse.__name__ = f"whole number >= {low}"
+    return parse
+
+
+_positive_int = _at_least(1)
+
+
+def _fraction(text: str) -> float:
+    """An argparse type: a number strictly between 0 and 1."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+    if not 0.0 < value < 1.0:
+        raise argparse.ArgumentTypeError(f"{text!r}: expected a fraction of the range, between 0 and 1")
+    return value
+
+
+def _memory(text: str) -> float:
+    """An argparse type: a memory size (``'8 GB'``, ``'512 MiB'``, a bare number in GB) [B]."""
+    try:
+        value = to_si(parse_value(text), "GB", "B")
+    except ValueError as exc:
+        raise argparse.ArgumentTypeError(str(exc)) from None
+    if not value > 0:
+        raise argparse.ArgumentTypeError(f"{text!r}: expected a size > 0, e.g. '8 GB'")
+    return value
+
+
+def _budget_options(parser: argparse.ArgumentParser, scenarios: bool = False) -> None:
+    """The options that raise a command's budgets (:class:`thermoelec.inputs.budgets.Budgets`)."""
+    group = parser.add_argument_group("budgets", "refuse work that would exceed these, before starting")
+    group.add_argument("--max-rows", type=_positive_int, default=DEFAULT_BUDGETS.rows, metavar="N",
+                       help=f"output rows of one run, rows of one CSV file (default {DEFAULT_BUDGETS.rows:.3g})")
+    group.add_argument("--max-memory", type=_memory, default=DEFAULT_BUDGETS.memory, metavar="SIZE",
+                       help=f"estimated peak memory (default {DEFAULT_BUDGETS.memory / 1e9:g} GB)")
+    if scenarios:
+        group.add_argument("--max-scenarios", type=_positive_int, default=DEFAULT_BUDGETS.scenarios, metavar="N",
+                           help=f"scenarios of a sweep (default {DEFAULT_BUDGETS.scenarios:.3g})")
 
 
 def _add_fit_parsers(sub) -> None:
@@ -476,6 +614,7 @@ def _add_fit_parsers(sub) -> None:
                              "sink_temperature, power)")
     common.add_argument("--charge-positive", action="store_true", help="the logs count charge current as positive")
     common.add_argument("--quiet", action="store_true", help="print nothing")
+    _budget_options(common)
     fitting = sub.add_parser("fit", help="fit cell or thermal parameters to test logs and write a cell file",
                              description="Fit cell or thermal parameters to test logs; each kind writes a cell "
                                          "file and a report beside it. 'thermoelec fit KIND --help' for each.")
@@ -484,7 +623,7 @@ def _add_fit_parsers(sub) -> None:
                            description="OCV and capacity from a slow (C/20 or slower) full discharge and full "
                                        "charge, in that order: writes cell.capacity and [cell.ocv].")
     ocv.add_argument("logs", nargs="+", metavar="LOG", help="the slow discharge log, then the slow charge log")
-    ocv.add_argument("--points", type=int, default=21, help="SoC points of the OCV table (default 21)")
+    ocv.add_argument("--points", type=_at_least(2), default=21, help="SoC points of the OCV table (default 21, >= 2)")
     ocv.add_argument("--cell", help="a cell file with the resistances, to turn the half-gap into a hysteresis")
     pulse = kinds.add_parser("pulse", parents=[common], help="R0 and RC pairs from pulse-test logs",
                              description="R0 and RC pairs over SoC and temperature from pulse (HPPC-style) logs, "
@@ -502,7 +641,7 @@ def _add_fit_parsers(sub) -> None:
     thermal.add_argument("logs", nargs="+", metavar="LOG", help="the heating-and-cooling log (one)")
     thermal.add_argument("--cell", help="a cell file to extend (its mass gives the specific heat)")
     thermal.add_argument("--ambient", help="ambient temperature, if not in the log, e.g. '22 degC'")
-    thermal.add_argument("--mass", help="cell mass, for the specific heat, e.g. '68 g'")
+    thermal.add_argument("--mass", help="cell mass (> 0), for the specific heat, e.g. '68 g'")
     for kind in (ocv, pulse, thermal):
         kind.set_defaults(handler=_fit, points=21, rc=1, temperature=None, arrhenius=False, ambient=None, mass=None)
 
@@ -518,6 +657,7 @@ def _add_run_parsers(sub) -> None:
     run.add_argument("--backend", choices=("cvode", "scipy"), help="solver back end (overrides [solver])")
     run.add_argument("--quiet", action="store_true", help="print no summary and no progress")
     run.add_argument("--no-figures", action="store_true", help="write no figures and no report (faster)")
+    _budget_options(run)
     run.set_defaults(handler=_run)
     compare = sub.add_parser("compare", help="run the scenario's [[case]] variants side by side",
                              description="Run the scenario's [[case]] variants (and --case ones) side by side: "
@@ -532,6 +672,7 @@ def _add_run_parsers(sub) -> None:
                          "([[option.GROUP]]) instead of the [[case]] tables")
     compare.add_argument("--quiet", action="store_true", help="print no table and no progress")
     compare.add_argument("--no-figures", action="store_true", help="write no figures and no report (faster)")
+    _budget_options(compare)
     compare.set_defaults(handler=_compare)
     check = sub.add_parser("check", help="validate a scenario without running it",
                            description="Validate a scenario (and the CSV files it names) without running it; "
@@ -541,6 +682,7 @@ def _add_run_parsers(sub) -> None:
     check.add_argument("scenario", help="scenario file (TOML)")
     check.add_argument("--set", action="append", metavar="KEY=VALUE", help="override a value by dotted path")
     check.add_argument("--quiet", action="store_true", help="print nothing: the exit status says it")
+    _budget_options(check)
     check.set_defaults(handler=_check)
     new = sub.add_parser("new", help="write a commented template scenario",
                          description="Write a commented template scenario (every required key, the common "
@@ -559,10 +701,13 @@ def _add_sweep_parser(sub) -> None:
     sw.add_argument("--out", required=True, help="output folder (created if missing)")
     sw.add_argument("--sweep", action="append", metavar="KEY=V1,V2,...", help="a swept key (replaces [sweep]'s)")
     sw.add_argument("--set", action="append", metavar="KEY=VALUE", help="override a value in every scenario")
-    sw.add_argument("--workers", type=int, help="local worker processes (default: the number of cores)")
+    sw.add_argument("--workers", type=_positive_int, help="local worker processes (default: the number of cores)")
     sw.add_argument("--scheduler", help="address of a dask.distributed scheduler to run the chunks on")
-    sw.add_argument("--resume", action="store_true", help="skip the chunks already finished in --out")
-    sw.add_argument("--chunk-size", type=int, help="scenarios per task")
+    sw.add_argument("--resume", action="store_true",
+                    help="continue the sweep in --out: keep its finished chunks (refused if anything changed)")
+    sw.add_argument("--force", action="store_true", help="discard the finished chunks in --out and start again")
+    sw.add_argument("--chunk-size", type=_positive_int,
+                    help="scenarios per task (default: a sixteenth of the plan, 16 to 256, whatever the workers)")
     sw.add_argument("--engine", choices=("batch", "solo"), default="batch",
                     help="batch: the batched Runge-Kutta solver where it applies (default); solo: every scenario "
                          "on its own back end")
@@ -572,7 +717,7 @@ def _add_sweep_parser(sub) -> None:
     sw.add_argument("--over", metavar="KEY", help="the key the search varies, e.g. thermal.sink_to_ambient")
     sw.add_argument("--between", nargs=2, metavar=("LOW", "HIGH"), help="its range, e.g. '0.1 W/K' '10 W/K'")
     sw.add_argument("--greatest", action="store_true", help="the greatest value meeting it (default: the least)")
-    sw.add_argument("--tolerance", type=float, default=1e-3, help="search tolerance, a fraction of the range")
+    sw.add_argument("--tolerance", type=_fraction, default=1e-3, help="search tolerance, a fraction of the range")
     sw.add_argument("--options", metavar="GROUP,...", help="the option groups swept ([[option.GROUP]]; default: "
                     "every group of the scenario; 'none' for none)")
     sw.add_argument("--samples", type=int, help="samples of the keys with distributions (per combination of "
@@ -589,6 +734,7 @@ def _add_sweep_parser(sub) -> None:
                     "design search")
     sw.add_argument("--no-figures", action="store_true", help="write no figures")
     sw.add_argument("--quiet", action="store_true", help="print nothing")
+    _budget_options(sw, scenarios=True)
     sw.set_defaults(handler=_sweep)
 
 
@@ -607,12 +753,20 @@ def build_parser() -> argparse.ArgumentParser:
 def main(argv: list[str] | None = None) -> int:
     """Entry point; returns the exit status."""
     parser = build_parser()
+    argv = sys.argv[1:] if argv is None else list(argv)
     args = parser.parse_args(argv)
+    args.command_line = shlex.join(["thermoelec", *argv])
+    budgets = Budgets(*(getattr(args, f"max_{name}", getattr(DEFAULT_BUDGETS, name))
+                        for name in ("rows", "memory", "scenarios")))
     try:
-        return args.handler(args)
+        with termination_signals(), using(budgets):
+            return args.handler(args)
     except ScenarioError as exc:
         print(f"thermoelec: invalid input: {exc}", file=sys.stderr)
         return EXIT_INVALID
+    except Interrupted as exc:
+        print(f"thermoelec: interrupted by {exc.name} (outputs are put in place whole or not at all)", file=sys.stderr)
+        return exc.exit_status
     except KeyboardInterrupt:
         print("thermoelec: interrupted", file=sys.stderr)
         return 130

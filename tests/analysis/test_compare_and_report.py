@@ -93,7 +93,7 @@ def test_compare_prints_the_table(tmp_path, capsys):
     ([], "case"),  # the scenario has no [[case]] and none is given
     (["--case", "a", "thermal.ambient_temperature=0 degC", "--case", "a", "thermal.ambient_temperature=5 degC"],
      "case"),
-    (["--case", "bad", "thermal.ambient_temperature=5 V"], "case 1 (bad): thermal.ambient_temperature"),
+    (["--case", "bad", "thermal.ambient_temperature=5 V"], '--case "bad": thermal.ambient_temperature'),
     (["--case", "thermal.ambient_temperature=5 degC"], "thermal.ambient_temperature=5 degC"),
 ])
 def test_compare_bad_cases_exit_2(tmp_path, capsys, extra, key):

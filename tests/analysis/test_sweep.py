@@ -201,11 +201,11 @@ def test_resume_after_sigkill_gives_the_same_dataset(tmp_path):
     proc = subprocess.Popen(_sweep_command(path, broken, "--workers", "1", "--engine", "solo"),
                             start_new_session=True)
     deadline = time.time() + 120
-    while time.time() < deadline and len(list((broken / "chunks").glob("chunk_*.json"))) < 4:
+    while time.time() < deadline and len(list((broken / "chunks").glob("rows_*.json"))) < 4:
         time.sleep(0.01)
     os.killpg(proc.pid, signal.SIGKILL)
     proc.wait()
-    finished = len(list((broken / "chunks").glob("chunk_*.json")))
+    finished = len(list((broken / "chunks").glob("rows_*.json")))
     assert 4 <= finished < 12 and not (broken / "sweep.nc").exists()
     subprocess.run(_sweep_command(path, broken, "--workers", "1", "--engine", "solo", "--resume"), check=True)
     a, b = xr.open_dataset(whole / "sweep.nc"), xr.open_dataset(broken / "sweep.nc")
@@ -215,10 +215,11 @@ def test_resume_after_sigkill_gives_the_same_dataset(tmp_path):
 
 def test_resume_refuses_another_sweep(tmp_path, capsys):
     path = write_scenario(tmp_path, {"thermal.sink_to_ambient": ["0.1 W/K", "1 W/K"]})
-    assert cli.main(["sweep", str(path), "--out", str(tmp_path / "o"), "--quiet", "--workers", "1"]) == 0
+    sweep.run_sweep(load(path), sweep.plan_sweep(load(path)), tmp_path / "o", workers=1, progress=False)
     other = write_scenario(tmp_path, {"thermal.sink_to_ambient": ["0.2 W/K", "1 W/K"]})
     code = cli.main(["sweep", str(other), "--out", str(tmp_path / "o"), "--quiet", "--workers", "1", "--resume"])
-    assert code == 2 and "different sweep" in capsys.readouterr().err
+    err = capsys.readouterr().err
+    assert code == 2 and "the plan" in err and "changed" in err
 
 
 def test_local_cluster_survives_a_killed_worker(tmp_path):
@@ -233,7 +234,7 @@ def test_local_cluster_survives_a_killed_worker(tmp_path):
         pids = list(client.run(os.getpid).values())
 
         def kill_one() -> None:
-            while len(list((out / "chunks").glob("chunk_*.json"))) < 2:
+            while len(list((out / "chunks").glob("rows_*.json"))) < 2:
                 time.sleep(0.02)
             os.kill(pids[0], signal.SIGKILL)
 

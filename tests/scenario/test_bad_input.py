@@ -223,3 +223,70 @@ def test_bad_ambient_profile(tmp_path, capsys, content, key):
     assert code == 2 and "Traceback" not in err
     assert "air.csv" in err and key in err
     assert len([line for line in err.splitlines() if line.strip()]) == 1
+
+
+#: Unit strings the unit parser (pint) fails on in every way it can: a tokenizer error, a division by
+#: zero, a bare assertion, a syntax error, a power it would evaluate for ever, an offset unit in a product,
+#: an overflow; each must be the input error, quoting the string.
+UNIT_FAILURES = ["2.5 (Ah", "2.5 Ah)", "2.5 Ah)(", "2.5 Ah/0", "2.5 Ah**", "2.5 ^", "2.5 Ah +", "2.5 /", "2.5 ..",
+                 "2.5 ()", "2.5 */Ah", "2.5 10**10**10", "2.5 (Ah)**2", "2.5 Ah**99", "2.5 degC*m", "1e300 MAh",
+                 "2.5 Ahh", "2.5 " + "m" * 300, "2.5 V"]
+
+
+@pytest.mark.parametrize("text", UNIT_FAILURES)
+def test_every_unit_parser_failure_is_an_input_error_quoting_the_string(tmp_path, capsys, text):
+    code, path = run_cli(tmp_path, BASE.replace('capacity = "2.5 Ah"', f'capacity = "{text}"'))
+    line = assert_one_clear_message(capsys, code, path, "cell.capacity")
+    assert repr(text) in line or "longer than" in line, line
+
+
+@pytest.mark.parametrize("text", ["5 (A", "5 A/0", "5 A**"])
+def test_a_unit_failure_in_a_set_names_the_flag(tmp_path, capsys, text):
+    (tmp_path / "route.csv").write_text(ROUTE)
+    scenario = tmp_path / "s.toml"
+    scenario.write_text(BASE)
+    code = cli.main(["run", str(scenario), "--out", str(tmp_path / "o"), "--set", f"profile.segment[1].value={text}"])
+    line = assert_one_clear_message(capsys, code, "--set profile.segment[1].value=", "profile.segment[1].value")
+    assert repr(text) in line
+
+
+def test_a_bad_value_in_an_included_file_is_reported_at_its_own_line(tmp_path, capsys):
+    # the scenario file holds a valid capacity at line 5; the included file's mass is the fault
+    (tmp_path / "cell.toml").write_text('[cell]\n# the cell\nmass = "-45 g"\n')
+    code, path = run_cli(tmp_path, BASE.replace("format = 1", 'format = 1\ninclude = "cell.toml"')
+                         .replace('mass = "0.045 kg"\n', ""))
+    line = assert_one_clear_message(capsys, code, "cell.toml, line 3", "cell.mass")
+    assert path not in line
+
+
+@pytest.mark.parametrize("old, new, key", [
+    ('ambient_temperature = "20 degC"', 'ambient_temperature = "-300 degC"', "thermal.ambient_temperature"),
+    ("[thermal]", '[limits]\ncell_temperature_max = "-280 degC"\n[thermal]', "limits.cell_temperature_max"),
+    ("[thermal]", '[limits]\ncharge_temperature_min = "70 degC"\n[thermal]', "limits.charge_temperature_min"),
+    ("", '[thermal.coolant]\ninlet_temperature = "-500 degC"\nconductance = 1\n', "thermal.coolant.inlet_temperature"),
+    ('value = "25 mohm"', 'soc = [0, 1]\ntemperature = ["-300 degC", "25 degC"]\nvalues = [[0.02, 0.02], [0.02, 0.02]]',
+     "cell.r0.temperature"),
+    ("[[profile.segment]]\nfile", "[solver]\nrtol = 1e-20\n[[profile.segment]]\nfile", "solver.rtol"),
+    ("[[profile.segment]]\nfile", "[solver]\nmax_steps = 100000000000000000000\n[[profile.segment]]\nfile",
+     "solver.max_steps"),
+    ("[thermal]", '[stress]\nactivation_energy = "1e9 J/mol"\n[thermal]', "stress.activation_energy"),
+    ("format = 1", 'format = 1\ninclude = ""', "include"),
+    ("format = 1", 'format = 1\ninclude = "."', "include"),
+])
+def test_absurd_values_are_refused(tmp_path, capsys, old, new, key):
+    code, path = run_cli(tmp_path, BASE.replace(old, new, 1) if old else BASE + new)  # no old text: a table added
+    assert_one_clear_message(capsys, code, path, key)
+
+
+@pytest.mark.parametrize("route, key", [
+    ("time_s, time_s,current_A\n0,0,1\n10,10,2\n", "time_s"),
+    ("time_s,current_A\n0,1\n10,\n", "current_A"),
+])
+def test_a_repeated_column_or_an_empty_field_is_named(tmp_path, capsys, route, key):
+    code, _ = run_cli(tmp_path, BASE, route=route)
+    assert_one_clear_message(capsys, code, "route.csv", key)
+
+
+def test_a_csv_with_a_byte_order_mark_reads(tmp_path, capsys):
+    code, _ = run_cli(tmp_path, BASE, route="\ufeff" + ROUTE)
+    assert code == 0, capsys.readouterr().err

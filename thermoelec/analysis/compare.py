@@ -7,7 +7,8 @@ voltage cutoff in these conditions": a constant-power discharge from the same
 start, at the mission's mean discharge power, until a limit stops it.
 
 Owns the cases (:func:`case_list`, :func:`run_cases`), the comparison's rows
-(:data:`COMPARISON_ROWS`, :func:`comparison_table`, :func:`comparison_json`) and
+(:data:`COMPARISON_ROWS`, with :data:`PACK_COMPARISON_ROWS` for resolved packs:
+:func:`comparison_rows`; :func:`comparison_table`, :func:`comparison_json`) and
 the writing of its data files (:func:`write_comparison`). Imports from
 scenario/, engine/ and analysis/ only: the overlay figure and the report are
 drawn by output/ (:func:`thermoelec.output.figures.write_comparison_figure`), the
@@ -32,8 +33,9 @@ from thermoelec.physics.constants import JOULES_PER_WH
 from thermoelec.scenario import Scenario, ScenarioError
 from thermoelec.scenario.options import option_groups
 
-__all__ = ["COMPARISON_ROWS", "CaseOutcome", "case_list", "comparison_json", "comparison_table", "energy_to_cutoff",
-           "run_cases", "write_comparison"]
+__all__ = ["COMPARISON_ROWS", "PACK_COMPARISON_ROWS", "CaseOutcome", "case_folders", "case_list", "case_scenarios",
+           "comparison_json", "comparison_rows", "comparison_table", "energy_to_cutoff", "run_cases",
+           "write_comparison"]
 
 #: Long enough that a limit, not the clock, ends the energy-to-cutoff discharge.
 CUTOFF_RUN_DURATION = "1000 h"
@@ -65,6 +67,22 @@ COMPARISON_ROWS: tuple[tuple[str, str, str], ...] = (
     ("Arrhenius time at reference", "equivalent_time_at_reference_s", "s"),
     ("warnings", "warning_count", ""),
 )
+#: Rows a comparison adds when one of its cases is a resolved pack (``n/a`` for a lumped case).
+PACK_COMPARISON_ROWS: tuple[tuple[str, str, str], ...] = (
+    ("peak of the mean cell temperature", "cell_temperature_mean_max_degC", "degC"),
+    ("hottest cell", "hottest_cell", ""),
+    ("cell-to-cell temperature spread", "cell_temperature_spread_max_K", "K"),
+    ("SoC spread at the end", "soc_spread_end", ""),
+    ("largest current share", "current_share_max", ""),
+    ("first cell at a limit", "first_limit_cell", ""),
+)
+
+
+def comparison_rows(outcomes: Sequence[CaseOutcome]) -> tuple[tuple[str, str, str], ...]:
+    """The rows of a comparison: :data:`COMPARISON_ROWS`, and :data:`PACK_COMPARISON_ROWS` when a case resolves
+    its cells."""
+    resolved = any(o.metrics().get("pack_model") == "resolved" for o in outcomes)
+    return COMPARISON_ROWS + (PACK_COMPARISON_ROWS if resolved else ())
 
 
 @dataclass
@@ -94,6 +112,31 @@ class CaseOutcome:
 def slug(name: str) -> str:
     """A folder name for a case."""
     return re.sub(r"[^A-Za-z0-9]+", "-", name).strip("-").lower() or "case"
+
+
+def case_folders(names: Sequence[str]) -> list[str]:
+    """One folder name per case, all different: names that differ only in case or punctuation
+    (``Cold start``, ``cold-start``) get ``cold-start`` and ``cold-start-2``.
+
+    Parameters
+    ----------
+    names : sequence of str
+        The case names, in order.
+
+    Returns
+    -------
+    list of str
+        Folder names under ``cases/``, in the same order.
+    """
+    folders: list[str] = []
+    for name in names:
+        base = folder = slug(name)
+        n = 1
+        while folder in folders:
+            n += 1
+            folder = f"{base}-{n}"
+        folders.append(folder)
+    return folders
 
 
 def case_list(scenario: Scenario, extra: Sequence[tuple[str, Mapping[str, Any]]] = (),
@@ -167,14 +210,59 @@ def energy_to_cutoff(case: Scenario, mission: SimulationResult) -> SimulationRes
     return simulate(case.with_overrides(overrides))
 
 
-def run_cases(scenario: Scenario, cases: Sequence[tuple[str, Mapping[str, Any]]]) -> list[CaseOutcome]:
-    """Simulate every case (mission and energy-to-cutoff run)."""
-    outcomes = []
+def case_scenarios(scenario: Scenario, cases: Sequence[tuple[str, Mapping[str, Any]]]) -> list[Scenario]:
+    """Every case validated, before any is computed (an invalid last case is found first).
+
+    Parameters
+    ----------
+    scenario : Scenario
+        The base scenario; its ``[[case]]`` tables come first in ``cases``.
+    cases : sequence of (str, mapping)
+        Names and dotted-path overrides (:func:`case_list`).
+
+    Returns
+    -------
+    list of Scenario
+        One per case, in order.
+
+    Raises
+    ------
+    ScenarioError
+        At the first invalid case, naming it (``[[case]] 2 "cold start"`` of the file, or ``--case``).
+    """
+    in_file = len(scenario.spec.case)
+    variants = []
     for index, (name, overrides) in enumerate(cases, start=1):
+        origin = f'{scenario.source}: [[case]] {index} "{name}"' if index <= in_file else f'--case "{name}"'
         try:
-            case = scenario.with_overrides(overrides)
+            variants.append(scenario.with_overrides(overrides, origin=origin))
         except ScenarioError as exc:
-            raise ScenarioError(exc.file, f"case {index} ({name}): {exc.key}", exc.message, exc.line) from None
+            where = exc.file if exc.file != scenario.source else origin
+            raise ScenarioError(where, exc.key, exc.message, exc.line if where == exc.file else None) from None
+    return variants
+
+
+def run_cases(scenario: Scenario, cases: Sequence[tuple[str, Mapping[str, Any]]],
+              variants: Sequence[Scenario] | None = None) -> list[CaseOutcome]:
+    """Simulate every case (mission and energy-to-cutoff run), all validated first.
+
+    Parameters
+    ----------
+    scenario : Scenario
+        The base scenario.
+    cases : sequence of (str, mapping)
+        Names and overrides (:func:`case_list`).
+    variants : sequence of Scenario, optional
+        The cases already validated (:func:`case_scenarios`).
+
+    Returns
+    -------
+    list of CaseOutcome
+        In order.
+    """
+    variants = case_scenarios(scenario, cases) if variants is None else variants
+    outcomes = []
+    for (name, overrides), case in zip(cases, variants, strict=True):
         result = simulate(case)
         result.metadata["case"] = name
         outcomes.append(CaseOutcome(name, dict(overrides), result, energy_to_cutoff(case, result)))
@@ -182,12 +270,12 @@ def run_cases(scenario: Scenario, cases: Sequence[tuple[str, Mapping[str, Any]]]
 
 
 def comparison_table(outcomes: Sequence[CaseOutcome]):
-    """Side-by-side table: one row per metric (:data:`COMPARISON_ROWS`), one column per case."""
+    """Side-by-side table: one row per metric (:func:`comparison_rows`), one column per case."""
     import pandas as pd
 
     metrics = [o.metrics() for o in outcomes]
     rows = []
-    for label, key, unit in COMPARISON_ROWS:
+    for label, key, unit in comparison_rows(outcomes):
         rows.append({"metric": label.strip(), "key": key, "unit": unit,
                      **{o.name: m.get(key) for o, m in zip(outcomes, metrics, strict=True)}})
     return pd.DataFrame(rows)
@@ -204,14 +292,17 @@ def _jsonable(value: Any) -> Any:
 def comparison_json(outcomes: Sequence[CaseOutcome]) -> str:
     """Every case's overrides and metrics as JSON text."""
     cases = []
-    for outcome in outcomes:
+    folders = case_folders([o.name for o in outcomes])
+    for outcome, folder in zip(outcomes, folders, strict=True):
         metrics = {k: _jsonable(v) for k, v in outcome.metrics().items() if k != "events"}
-        cases.append({"name": outcome.name, "overrides": outcome.overrides, "metrics": metrics})
+        cases.append({"name": outcome.name, "folder": f"cases/{folder}", "overrides": outcome.overrides,
+                      "metrics": metrics})
     return json.dumps({"cases": cases}, indent=2, allow_nan=False)
 
 
 def write_comparison(outcomes: Sequence[CaseOutcome], out_dir: Path) -> list[Path]:
-    """Write ``comparison.csv``, ``comparison.json`` and each case's results (``cases/<name>/``).
+    """Write ``comparison.csv``, ``comparison.json`` and each case's results (``cases/<name>/``, one
+    folder per case: :func:`case_folders`).
 
     The overlay figure and the report are the output layer's
     (:func:`thermoelec.output.figures.write_comparison_figure`, :mod:`thermoelec.output.report`).
@@ -220,6 +311,6 @@ def write_comparison(outcomes: Sequence[CaseOutcome], out_dir: Path) -> list[Pat
     written = [out_dir / "comparison.csv", out_dir / "comparison.json"]
     comparison_table(outcomes).to_csv(written[0], index=False)
     written[1].write_text(comparison_json(outcomes) + "\n")
-    for outcome in outcomes:
-        written += outcome.result.write(out_dir / "cases" / slug(outcome.name))
+    for outcome, folder in zip(outcomes, case_folders([o.name for o in outcomes]), strict=True):
+        written += outcome.result.write(out_dir / "cases" / folder)
     return written

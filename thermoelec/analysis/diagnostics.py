@@ -103,7 +103,7 @@ def arrhenius_equivalent_time(times: np.ndarray, temperatures: np.ndarray, activ
 
 
 def stress_indicators(problem: Problem, times: np.ndarray, current: np.ndarray,
-                      cell_temperature: np.ndarray) -> dict[str, Any]:
+                      cell_temperature: np.ndarray, coldest: np.ndarray | None = None) -> dict[str, Any]:
     """Ageing and abuse stress of a mission: time hot, cold charging, C-rates, Arrhenius time.
 
     Parameters
@@ -111,11 +111,14 @@ def stress_indicators(problem: Problem, times: np.ndarray, current: np.ndarray,
     problem : Problem
         The simulated problem (limits, stress settings, capacity, layout).
     times, current, cell_temperature : arrays
-        Output rows [s], pack current [A] (> 0 discharging), cell temperature [K].
+        Output rows [s], pack current [A] (> 0 discharging), cell temperature [K] (of the
+        hottest cell of a resolved pack: the times hot and the Arrhenius time are its).
+    coldest : array, optional
+        Temperature of the coldest cell [K], for the times charging cold (default ``cell_temperature``).
     """
     stress = problem.stress
     charging = 0.5 * (current[:-1] + current[1:]) < 0.0 if len(current) > 1 else np.zeros(0, bool)
-    cold = -cell_temperature  # time below T  ==  time "above" -T
+    cold = -(cell_temperature if coldest is None else coldest)  # time below T  ==  time "above" -T
     capacity_ah = problem.cell.capacity / COULOMBS_PER_AH
     cell_current = current / problem.pack.parallel
     duration = float(times[-1] - times[0]) if len(times) else 0.0
@@ -174,8 +177,10 @@ def biot_check(problem: Problem) -> tuple[float | None, list[str]]:
 
     The surface coefficient is the cells' total conductance to sink and ambient
     spread over the outer surface of all cells, ``h = (G_cs + G_ca) / (N A)``,
-    and ``L_c = V / A`` (Incropera et al., 6th ed., §5.1). Without the cell
-    geometry and conductivity the check is not made.
+    and ``L_c = V / A`` (Incropera et al., 6th ed., §5.1). In a resolved pack it
+    is the best-cooled cell's: its own paths to sink, ambient, coolant and
+    neighbours over its surface. Without the cell geometry and conductivity the
+    check is not made.
     """
     geometry = problem.cell.geometry
     if geometry is None:
@@ -185,12 +190,20 @@ def biot_check(problem: Problem) -> tuple[float | None, list[str]]:
     volume = geometry.volume()
     conductance = problem.thermal.cell_to_sink + problem.thermal.cell_to_ambient
     coefficient = conductance / (n_cells * area)
+    rp = problem.resolved
+    if rp is not None:
+        each = rp.cell_to_sink + rp.cell_to_ambient + rp.plate_conductance
+        for (i, j), g in zip(rp.layout.neighbours, rp.neighbour_conductance, strict=True):
+            each[i] += g
+            each[j] += g
+        coefficient = float(each.max()) / area
     bi = float(biot_number(coefficient, volume, area, geometry.thermal_conductivity))
     if bi < LUMPED_BIOT_LIMIT:
         return bi, []
     return bi, [
         f"Biot number {bi:.3g} >= {LUMPED_BIOT_LIMIT} ({geometry.shape} cell, h = {coefficient:.3g} W/m^2/K from "
-        f"cell_to_sink + cell_to_ambient over the cells' surface, L_c = V/A = {1e3 * volume / area:.3g} mm, "
+        f"{'the best-cooled cell' if rp is not None else 'cell_to_sink + cell_to_ambient'} over the cells' surface, "
+        f"L_c = V/A = {1e3 * volume / area:.3g} mm, "
         f"k = {geometry.thermal_conductivity:.3g} W/m/K): one lumped cell node does not hold; the cell core runs "
         "hotter than the reported cell temperature"]
 

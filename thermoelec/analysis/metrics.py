@@ -36,8 +36,8 @@ from thermoelec.engine.batch import EXTREMES, BatchOutcome
 from thermoelec.engine.problem import Problem
 from thermoelec.physics.constants import COULOMBS_PER_AH, JOULES_PER_WH, ZERO_CELSIUS
 
-__all__ = ["METRICS", "VERDICT_KEYS", "Extremes", "batch_metrics", "efficiencies", "energy_totals", "mission_metrics",
-           "pack_limits", "round_trip_efficiency"]
+__all__ = ["METRICS", "PACK_METRICS", "VERDICT_KEYS", "Extremes", "batch_metrics", "efficiencies", "energy_totals",
+           "metric_names", "mission_metrics", "pack_limits", "pack_soc", "round_trip_efficiency"]
 
 #: Summary metrics kept per scenario of a sweep (the numeric keys of the output contract and a few more: the
 #: energies apart, the efficiencies and what the verdict of :mod:`thermoelec.analysis.verdict` reads).
@@ -52,6 +52,54 @@ METRICS: tuple[str, ...] = (
     "charge_throughput_Ah", "soc_end", "voltage_margin_min_V", "voltage_margin_max_V", "temperature_margin_K",
     "time_charging_below_limit_s", "equivalent_time_at_reference_s",
 )
+#: The metrics a resolved pack adds (``pack.model = "resolved"``): the largest difference between the
+#: hottest and the coldest cell and when, the SoC spread at the end, the largest current of a cell over
+#: its group's mean, the hottest cell (numbered from 1) and when it peaked, the cell at the limit that
+#: stopped the mission (None when none did). A lumped pack's rows do not have them.
+PACK_METRICS: tuple[str, ...] = (
+    "cell_temperature_spread_max_K", "cell_temperature_spread_time_s", "soc_spread_end", "current_share_max",
+    "hottest_cell", "hottest_cell_time_s", "first_limit_cell",
+)
+
+
+def metric_names(problem: Problem) -> tuple[str, ...]:
+    """The metrics of a problem's rows: :data:`METRICS`, and :data:`PACK_METRICS` for a resolved pack.
+
+    Parameters
+    ----------
+    problem : Problem
+        The problem.
+
+    Returns
+    -------
+    tuple of str
+        Metric names in order.
+    """
+    return METRICS + (PACK_METRICS if problem.resolved is not None else ())
+
+
+def pack_soc(problem: Problem, state: np.ndarray) -> tuple[float, float]:
+    """The pack's SoC (capacity-weighted over the cells) and the spread of the cells' SoC in a state.
+
+    Parameters
+    ----------
+    problem : Problem
+        The problem (its resolved pack's capacities).
+    state : array
+        A state vector (``layout``) [-, V, K, J, C].
+
+    Returns
+    -------
+    soc : float
+        The pack's SoC [-] (the one cell's for a lumped pack).
+    spread : float
+        Highest minus lowest cell SoC [-] (0 for a lumped pack).
+    """
+    if problem.resolved is None:
+        return float(state[0]), 0.0
+    z = state[L.cell_state_indices(problem.n_rc, problem.n_cells)[0]]
+    q = problem.resolved.capacity_factor
+    return float(np.sum(q * z) / np.sum(q)), float(z.max() - z.min())
 #: Text kept per scenario of a sweep besides the numbers: the verdict and the checks it failed.
 VERDICT_KEYS: tuple[str, ...] = ("verdict", "failed_checks")
 
@@ -73,15 +121,26 @@ class Extremes:
     current_abs_max : float
         Largest pack current magnitude [A].
     equivalent_time_at_reference : float
-        Arrhenius-weighted time at the ageing reference temperature [s]: a trapezoid over
-        the output rows on the solo path, over the accepted steps in the batch.
+        Arrhenius-weighted time at the ageing reference temperature [s] (of the hottest
+        cell): a trapezoid over the output rows on the solo path, over the accepted steps
+        in the batch.
     cell_voltage_max : float
         Highest cell terminal voltage [V].
     power_max : float
         Highest power to the load [W].
     cold_charging_time : float
-        Time spent charging below the charge temperature limit [s], the crossings
-        interpolated over the output rows (solo) or the accepted steps (batch).
+        Time spent charging below the charge temperature limit [s] (of the coldest cell),
+        the crossings interpolated over the output rows (solo) or the accepted steps (batch).
+    cell_temperature_spread_max : float
+        Largest difference between the hottest and the coldest cell [K] (0 for a lumped pack).
+    cell_temperature_spread_time : float
+        When it was largest [s].
+    current_share_max : float
+        Largest current of one cell over its group's mean [-] (1 for a lumped pack).
+    hottest_cell : float
+        The cell that reached the highest temperature, from 0 [-].
+    hottest_time : float
+        When it did [s].
     auxiliary_energy : float
         Energy the running auxiliaries (fans, pumps, a pack-fed heater) drew at the pack
         terminals [J]; their power is constant within a phase, so both paths sum it exactly.
@@ -99,6 +158,11 @@ class Extremes:
     cell_voltage_max: float
     power_max: float
     cold_charging_time: float
+    cell_temperature_spread_max: float = 0.0
+    cell_temperature_spread_time: float = 0.0
+    current_share_max: float = 1.0
+    hottest_cell: float = 0.0
+    hottest_time: float = 0.0
     auxiliary_energy: float = 0.0
     auxiliary_energy_discharge: float = 0.0
 
@@ -224,9 +288,18 @@ def pack_limits(problem: Problem) -> dict[str, float]:
     }
 
 
+def _energies(q: np.ndarray, extremes: Extremes) -> dict[str, float]:
+    """:func:`energy_totals`, and the load's and the auxiliaries' shares [Wh]: what the load itself received is
+    the terminals' discharge less the auxiliaries' draw meanwhile."""
+    energies = energy_totals(q)
+    energies["energy_to_load_Wh"] = energies["energy_discharged_Wh"] - _wh(extremes.auxiliary_energy_discharge) + 0.0
+    energies["energy_auxiliary_Wh"] = _wh(extremes.auxiliary_energy)
+    return energies
+
+
 def mission_metrics(problem: Problem, start: np.ndarray, end: np.ndarray, extremes: Extremes, duration: float,
-                    stop_reason: str, status: str = "ok") -> dict[str, Any]:
-    """The :data:`METRICS` of one mission (and the energy parts of :func:`energy_totals`).
+                    stop_reason: str, status: str = "ok", stop_cell: int | None = None) -> dict[str, Any]:
+    """The metrics of one mission (:func:`metric_names`; and the energy parts of :func:`energy_totals`).
 
     Parameters
     ----------
@@ -243,6 +316,8 @@ def mission_metrics(problem: Problem, start: np.ndarray, end: np.ndarray, extrem
         Why the mission ended (``end_of_profile`` or a stop reason of ``engine.events``).
     status : str
         ``"ok"`` or ``"failed"`` (a failed run is never ``completed``).
+    stop_cell : int, optional
+        The cell (from 0) at the limit that stopped a resolved pack's mission.
 
     Returns
     -------
@@ -251,7 +326,8 @@ def mission_metrics(problem: Problem, start: np.ndarray, end: np.ndarray, extrem
         voltages [V], currents [A], power [W], energies [Wh], efficiencies [-], charge [Ah],
         times [s]; then the :data:`VERDICT_KEYS`: ``verdict`` (``"pass"`` / ``"fail"``, from
         :func:`thermoelec.analysis.verdict.limit_checks`) and ``failed_checks`` (their names,
-        comma-separated).
+        comma-separated); then those of :data:`PACK_METRICS` for a resolved pack (cells
+        numbered from 1).
 
     Notes
     -----
@@ -259,12 +335,10 @@ def mission_metrics(problem: Problem, start: np.ndarray, end: np.ndarray, extrem
     integrate it differently by nature (see :class:`Extremes`), so they agree to the
     resolution of the output rows only.
     """
-    q = end[L.quadrature_index(problem.n_rc):]
-    cell_temperature_start = start[L.cell_temperature_index(problem.n_rc)]
-    energies = energy_totals(q)
-    # what the load itself received: the terminals' discharge less the auxiliaries' draw meanwhile
-    energies["energy_to_load_Wh"] = energies["energy_discharged_Wh"] - _wh(extremes.auxiliary_energy_discharge) + 0.0
-    energies["energy_auxiliary_Wh"] = _wh(extremes.auxiliary_energy)
+    q = end[L.quadrature_index(problem.n_rc, problem.n_cells):]
+    cell_temperature_start = start[L.cell_state_indices(problem.n_rc, problem.n_cells)[1]].max()
+    soc_end, soc_spread = pack_soc(problem, end)
+    energies = _energies(q, extremes)
     row = {
         "completed": status == "ok" and stop_reason == "end_of_profile",
         "duration_s": float(duration),
@@ -281,7 +355,7 @@ def mission_metrics(problem: Problem, start: np.ndarray, end: np.ndarray, extrem
         "heat_to_ambient_Wh": _wh(q[L.Q_HEAT_AMBIENT]),
         **efficiencies(q),
         "charge_throughput_Ah": float(q[L.Q_THROUGHPUT]) / COULOMBS_PER_AH,
-        "soc_end": float(end[0]),
+        "soc_end": soc_end,
         "voltage_margin_min_V": float(extremes.cell_voltage_min - problem.cell.voltage_min),
         "voltage_margin_max_V": float(problem.cell.voltage_max - extremes.cell_voltage_max),
         "temperature_margin_K": float(problem.limits.cell_temperature_max - extremes.cell_temperature_max),
@@ -291,6 +365,17 @@ def mission_metrics(problem: Problem, start: np.ndarray, end: np.ndarray, extrem
     checks = limit_checks({**row, "stop_reason": stop_reason}, pack_limits(problem))
     row["verdict"] = verdict(checks)
     row["failed_checks"] = ",".join(failed_checks(checks))
+    if problem.resolved is not None:
+        row.update({
+            "cell_temperature_spread_max_K": float(extremes.cell_temperature_spread_max),
+            "cell_temperature_spread_time_s": float(extremes.cell_temperature_spread_time),
+            "soc_spread_end": soc_spread,
+            # no share is counted while the group's mean cell current is below C/5 (physics.pack)
+            "current_share_max": float(extremes.current_share_max) if extremes.current_share_max > 0 else None,
+            "hottest_cell": int(extremes.hottest_cell) + 1,
+            "hottest_cell_time_s": float(extremes.hottest_time),
+            "first_limit_cell": None if stop_cell is None or stop_cell < 0 else int(stop_cell) + 1,
+        })
     return row
 
 
@@ -313,7 +398,9 @@ def batch_metrics(problem: Problem, outcome: BatchOutcome, i: int) -> dict[str, 
         Arrhenius-equivalent time is the kernel's trapezoid over accepted steps, not
         over output rows as in the solo summary.
     """
+    stop_cell = None if outcome.stop_cell is None else int(outcome.stop_cell[i])
     row = mission_metrics(problem, outcome.initial_states[i], outcome.states[i],
-                          Extremes.from_batch(outcome.extras[i]), outcome.duration[i], outcome.stop_reason[i])
+                          Extremes.from_batch(outcome.extras[i]), outcome.duration[i], outcome.stop_reason[i],
+                          stop_cell=stop_cell)
     row.update(status="ok", message="", stop_reason=outcome.stop_reason[i])
     return row

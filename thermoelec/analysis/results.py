@@ -26,8 +26,9 @@ from typing import Any
 
 import numpy as np
 
+from thermoelec.analysis import cells as pack_cells
 from thermoelec.analysis import diagnostics
-from thermoelec.analysis.metrics import Extremes, mission_metrics, pack_limits
+from thermoelec.analysis.metrics import Extremes, mission_metrics, pack_limits, pack_soc
 from thermoelec.analysis.stops import explain_stop
 from thermoelec.analysis.verdict import limit_checks
 from thermoelec.engine import layout as L
@@ -67,6 +68,7 @@ SERIES_UNITS: dict[str, str] = {
     "sink_to_air_conductance_W_per_K": "W/K",
     "reynolds_number": "1",
     "rayleigh_number": "1",
+    **{k: unit for k, (unit, _) in pack_cells.PACK_SERIES_UNITS.items()},
 }
 SERIES_DESCRIPTIONS: dict[str, str] = {
     "time_s": "time since the mission start",
@@ -92,6 +94,7 @@ SERIES_DESCRIPTIONS: dict[str, str] = {
     "sink_to_air_conductance_W_per_K": "sink-to-air convective conductance h*A (with a running fan)",
     "reynolds_number": "Reynolds number of the air flow over the sink (convection correlations only)",
     "rayleigh_number": "Rayleigh number of free convection at the sink (convection correlations only)",
+    **{k: meaning for k, (_, meaning) in pack_cells.PACK_SERIES_UNITS.items()},
 }
 
 #: Names of the load modes in the order of their codes in the engine.
@@ -132,7 +135,8 @@ class SimulationResult:
     statistics : dict
         Solver counters summed over all phases, and the wall time [s].
     events : list of dict
-        Located events (stops, CC-CV switches, segment end conditions) with times [s].
+        Located events (stops, CC-CV switches, segment end conditions) with times [s]; in a
+        resolved pack a cell limit or thermostat names its ``cell`` (from 1).
     metadata : dict
         Package version, scenario hash, back end and tolerances.
     states : array
@@ -149,6 +153,11 @@ class SimulationResult:
     charger : bool array or None
         Each row's segment is a charger's (CC-CV, or a held terminal voltage): charge there comes
         from a charger; elsewhere from the load (regeneration).
+    cells : dict of str to array or None
+        A resolved pack's per-cell series, shape ``(rows, cells)``, keys and units in
+        :data:`thermoelec.analysis.cells.CELL_SERIES_UNITS`; None for a lumped pack.
+    cell_coords : dict or None
+        The coordinates of the ``cell`` dimension (:func:`thermoelec.analysis.cells.cell_coordinates`).
     """
 
     series: dict[str, np.ndarray]
@@ -164,6 +173,8 @@ class SimulationResult:
     limits: dict[str, float] = field(default_factory=dict)
     segment_name: np.ndarray | None = None
     charger: np.ndarray | None = None
+    cells: dict[str, np.ndarray] | None = None
+    cell_coords: dict[str, tuple] | None = None
 
     @property
     def verdict(self) -> str:
@@ -196,14 +207,21 @@ class SimulationResult:
         """The time series as an xarray Dataset with ``units`` attributes and run metadata.
 
         The dimension ``time`` holds the output times [s]; a time repeats at each
-        jump of the demand (values just before and just after).
+        jump of the demand (values just before and just after). A resolved pack adds
+        the dimension ``cell``: the per-cell series (``time x cell``) with each cell's
+        number, group, place in its group and position as coordinates.
         """
         import xarray as xr
 
         data = {k: ("time", self.series[k], {"units": SERIES_UNITS[k], "long_name": SERIES_DESCRIPTIONS[k]})
                 for k in SERIES_UNITS if k != "time_s" and k in self.series}
-        ds = xr.Dataset(data, coords={"time": ("time", self.series["time_s"],
-                                                {"units": "s", "long_name": SERIES_DESCRIPTIONS["time_s"]})})
+        coords = {"time": ("time", self.series["time_s"], {"units": "s", "long_name": SERIES_DESCRIPTIONS["time_s"]})}
+        if self.cells is not None:
+            for k, values in self.cells.items():
+                unit, meaning = pack_cells.CELL_SERIES_UNITS[k]
+                data[k] = (("time", "cell"), values, {"units": unit, "long_name": meaning})
+            coords.update(self.cell_coords or {})
+        ds = xr.Dataset(data, coords=coords)
         attrs: dict[str, Any] = {}
         for key, value in self.metadata.items():
             attrs[key] = value if isinstance(value, (int, float, str)) else json.dumps(value)
@@ -233,13 +251,12 @@ class SimulationResult:
 
 def build_result(problem: Problem, trajectory: Trajectory, options: SolverOptions,
                  metadata: dict[str, Any] | None = None) -> SimulationResult:
-    """Series and summary metrics from a raw trajectory."""
-    n_rc = problem.n_rc
+    """Series and summary metrics from a raw trajectory (a resolved pack's per-cell series too)."""
     ns = problem.pack.series
     states = trajectory.states
     alg = trajectory.algebraics()
-    tc = states[:, L.cell_temperature_index(n_rc)]
-    ts = states[:, L.sink_temperature_index(n_rc)]
+    tc = alg[:, L.A_TEMPERATURE_HIGH]  # the hottest cell (the one cell of a lumped pack)
+    ts = states[:, L.sink_temperature_index(problem.n_rc, problem.n_cells)]
     ambient = alg[:, L.A_AMBIENT]
     current = alg[:, L.A_CURRENT]
     voltage = alg[:, L.A_VOLTAGE]
@@ -248,7 +265,7 @@ def build_result(problem: Problem, trajectory: Trajectory, options: SolverOption
         "current_A": current,
         "voltage_V": voltage,
         "power_W": voltage * current,
-        "soc": states[:, 0],
+        "soc": alg[:, L.A_SOC],
         "ocv_V": ns * alg[:, L.A_OCV],
         "cell_temperature_degC": _celsius(tc),
         "sink_temperature_degC": _celsius(ts),
@@ -270,8 +287,13 @@ def build_result(problem: Problem, trajectory: Trajectory, options: SolverOption
     if problem.thermal.convection is not None:
         series["reynolds_number"] = alg[:, L.A_REYNOLDS]
         series["rayleigh_number"] = alg[:, L.A_RAYLEIGH]
+    cells = coords = None
+    if problem.resolved is not None:
+        series.update(pack_cells.pack_series(alg))
+        cells, coords = pack_cells.cell_series(problem, trajectory), pack_cells.cell_coordinates(problem)
     limits = pack_limits(problem)
-    summary = _summary(problem, trajectory, series, states, options.output_interval, limits)
+    temperatures = _Temperatures(tc, alg[:, L.A_TEMPERATURE_LOW], ts)
+    summary = _summary(problem, trajectory, series, states, temperatures, options.output_interval, limits, cells)
     stats = dict(trajectory.statistics)
     stats["wall_time_s"] = trajectory.wall_time
     codes = trajectory.demand_modes
@@ -282,11 +304,13 @@ def build_result(problem: Problem, trajectory: Trajectory, options: SolverOption
     cccv = np.array([seg.mode == CCCV_MODE for seg in problem.segments], dtype=bool)
     demand_mode[cccv[rows]] = CCCV_MODE  # its CC and CV phases are one charge
     names = np.array([seg.name for seg in problem.segments], dtype=object)
+    # cells are numbered from 1 in every output (from 0 in the engine)
+    events = [{**e, "cell": e["cell"] + 1} if "cell" in e else e for e in trajectory.events]
     return SimulationResult(series=series, summary=summary, status=trajectory.status,
-                            message=trajectory.message, statistics=stats, events=trajectory.events,
+                            message=trajectory.message, statistics=stats, events=events,
                             metadata=dict(metadata or {}), states=states, demand_mode=demand_mode,
                             demand_value=demand_value, limits=limits, segment_name=names[rows],
-                            charger=charger_segments(problem)[rows])
+                            charger=charger_segments(problem)[rows], cells=cells, cell_coords=coords)
 
 
 def charger_segments(problem: Problem) -> np.ndarray:
@@ -330,49 +354,62 @@ def _charge_sources(problem: Problem, trajectory: Trajectory, series: dict[str, 
     return charged_wh * share + 0.0, charged_wh * (1.0 - share) + 0.0
 
 
+@dataclass(frozen=True)
+class _Temperatures:
+    """Temperatures of the output rows [K]: the hottest and the coldest cell (the one cell of a lumped
+    pack), the sink."""
+
+    hottest: np.ndarray
+    coldest: np.ndarray
+    sink: np.ndarray
+
+
 def _soak_summary(problem: Problem, soak: Trajectory | None) -> dict[str, Any] | None:
-    """What the soak before the mission did: its end state, stop and heater energy."""
+    """What the soak before the mission did: its end state (the hottest cell's temperature), stop and heater energy."""
     if soak is None:
         return None
-    n_rc = problem.n_rc
+    n_rc, n_cells = problem.n_rc, problem.n_cells
     end = soak.states[-1]
     return {
         "duration_s": float(soak.times[-1]),
         "stop_reason": soak.stop_reason,
-        "soc_start": float(soak.states[0][0]),
+        "soc_start": pack_soc(problem, soak.states[0])[0],
         "status": soak.status,
-        "cell_temperature_end_degC": float(_celsius(end[L.cell_temperature_index(n_rc)])),
-        "sink_temperature_end_degC": float(_celsius(end[L.sink_temperature_index(n_rc)])),
-        "soc_end": float(end[0]),
-        "heater_energy_Wh": float(end[L.quadrature_index(n_rc) + L.Q_HEATER]) / JOULES_PER_WH,
+        "cell_temperature_end_degC": float(_celsius(end[L.cell_state_indices(n_rc, n_cells)[1]].max())),
+        "sink_temperature_end_degC": float(_celsius(end[L.sink_temperature_index(n_rc, n_cells)])),
+        "soc_end": pack_soc(problem, end)[0],
+        "heater_energy_Wh": float(end[L.quadrature_index(n_rc, n_cells) + L.Q_HEATER]) / JOULES_PER_WH,
         "events": [{"time_s": float(e["time_s"]), "event": e["event"], **({"state": e["state"]} if "state" in e
                                                                          else {})} for e in soak.events],
     }
 
 
-def _summary(problem: Problem, trajectory: Trajectory, series: dict[str, np.ndarray],
-             states: np.ndarray, output_interval: float, limits: dict[str, float]) -> dict[str, Any]:
+def _summary(problem: Problem, trajectory: Trajectory, series: dict[str, np.ndarray], states: np.ndarray,
+             temperatures: _Temperatures, output_interval: float, limits: dict[str, float],
+             cells: dict[str, np.ndarray] | None) -> dict[str, Any]:
     """The summary of a solo run: :func:`mission_metrics` from the output rows, and what only a solo run has."""
-    n_rc = problem.n_rc
-    tc = states[:, L.cell_temperature_index(n_rc)]
+    tc = temperatures.hottest
     times, current = series["time_s"], series["current_A"]
-    stress = diagnostics.stress_indicators(problem, times, current, tc)
-    cold_time = _cold_charging_time(problem, times, current, tc)
-    shared = mission_metrics(problem, states[0], states[-1], _row_extremes(series, states, stress, n_rc, cold_time),
-                             float(times[-1]), trajectory.stop_reason, trajectory.status)
+    stress = diagnostics.stress_indicators(problem, times, current, tc, temperatures.coldest)
+    cold_time = _cold_charging_time(problem, times, current, temperatures.coldest)
+    stop = pack_cells.stop_event(trajectory) if cells is not None else None
+    stop_cell = None if stop is None else stop["cell"]
+    shared = mission_metrics(problem, states[0], states[-1],
+                             _row_extremes(series, temperatures, stress, cold_time, cells), float(times[-1]),
+                             trajectory.stop_reason, trajectory.status, stop_cell=stop_cell)
     biot, biot_warnings = diagnostics.biot_check(problem)
-    warnings = _warnings(problem, trajectory, series, states, cold_time) + biot_warnings \
+    warnings = _warnings(problem, trajectory, series, states, temperatures, cold_time) + biot_warnings \
         + diagnostics.plausibility_warnings(problem.cell) + diagnostics.resolution_warnings(problem, output_interval) \
         + diagnostics.correlation_warnings(problem, series)
     checks = limit_checks({**shared, "stop_reason": trajectory.stop_reason}, limits)
     return {
         "scenario": problem.name,
         "verdict": shared["verdict"],
-        **_extremes_summary(problem, trajectory, shared, series, tc),
+        **_extremes_summary(problem, trajectory, shared, series, temperatures.coldest),
         "stop_explanation": explain_stop(problem, trajectory.stop_reason, trajectory.message, trajectory.events,
                                          series, trajectory.row_segments),
         **_energy_summary(problem, shared, trajectory, states, series),
-        "soc_start": float(states[0, 0]),
+        "soc_start": float(series["soc"][0]),
         "soc_end": shared["soc_end"],
         "time_charging_below_limit_s": shared["time_charging_below_limit_s"],
         **stress,
@@ -381,6 +418,7 @@ def _summary(problem: Problem, trajectory: Trajectory, series: dict[str, np.ndar
         "segments_total": len(problem.segments),
         "events": [_event(problem, e) for e in trajectory.events],
         "soak": _soak_summary(problem, trajectory.soak),
+        **(pack_cells.pack_summary(problem, trajectory, shared, series, cells) if cells is not None else {}),
         "checks": checks,
         "notes": list(problem.notes),
         "warnings": warnings,
@@ -388,10 +426,12 @@ def _summary(problem: Problem, trajectory: Trajectory, series: dict[str, np.ndar
 
 
 def _event(problem: Problem, event: dict[str, Any]) -> dict[str, Any]:
-    """An event for the summary: time, name, origin, the segment's name if it has one, a thermostat's state."""
+    """An event for the summary: time, name, origin, the segment's name if it has one, a thermostat's state,
+    a resolved pack's cell (from 1)."""
     name = problem.segments[event["segment"]].name if 0 <= event.get("segment", -1) < len(problem.segments) else ""
     return {"time_s": float(event["time_s"]), "event": event["event"], "origin": event["origin"],
-            **({"segment_name": name} if name else {}), **({"state": event["state"]} if "state" in event else {})}
+            **({"segment_name": name} if name else {}), **({"state": event["state"]} if "state" in event else {}),
+            **({"cell": event["cell"] + 1} if "cell" in event else {})}
 
 
 def auxiliary_energies(series: dict[str, np.ndarray]) -> tuple[float, float]:
@@ -406,27 +446,28 @@ def auxiliary_energies(series: dict[str, np.ndarray]) -> tuple[float, float]:
     return float(np.sum(energy)), float(np.sum(energy[discharging]))
 
 
-def _row_extremes(series: dict[str, np.ndarray], states: np.ndarray, stress: dict[str, Any], n_rc: int,
-                  cold_time: float) -> Extremes:
+def _row_extremes(series: dict[str, np.ndarray], temperatures: _Temperatures, stress: dict[str, Any],
+                  cold_time: float, cells: dict[str, np.ndarray] | None) -> Extremes:
     """The running extremes of a solo run, over its output rows (the Arrhenius time of ``stress``)."""
     auxiliary, auxiliary_discharge = auxiliary_energies(series)
     return Extremes(
-        cell_temperature_max=states[:, L.cell_temperature_index(n_rc)].max(),
-        sink_temperature_max=states[:, L.sink_temperature_index(n_rc)].max(),
+        cell_temperature_max=temperatures.hottest.max(),
+        sink_temperature_max=temperatures.sink.max(),
         voltage_min=series["voltage_V"].min(),
         cell_voltage_min=series["cell_voltage_V"].min(),
         current_abs_max=np.abs(series["current_A"]).max(),
         equivalent_time_at_reference=stress["equivalent_time_at_reference_s"],
-        cell_voltage_max=series["cell_voltage_V"].max(),
+        cell_voltage_max=series.get("cell_voltage_max_V", series["cell_voltage_V"]).max(),  # the highest cell's
         power_max=series["power_W"].max(),
         cold_charging_time=cold_time,
         auxiliary_energy=auxiliary,
         auxiliary_energy_discharge=auxiliary_discharge,
+        **(pack_cells.row_extremes(series, cells) if cells is not None else {}),
     )
 
 
 def _extremes_summary(problem: Problem, trajectory: Trajectory, shared: dict[str, Any],
-                      series: dict[str, np.ndarray], tc: np.ndarray) -> dict[str, Any]:
+                      series: dict[str, np.ndarray], coldest: np.ndarray) -> dict[str, Any]:
     """Completion, temperature, voltage, current and power extremes and margins, in the summary's order."""
     current = series["current_A"]
     return {
@@ -434,7 +475,7 @@ def _extremes_summary(problem: Problem, trajectory: Trajectory, shared: dict[str
         "stop_reason": trajectory.stop_reason,
         "duration_s": shared["duration_s"],
         "cell_temperature_max_degC": shared["cell_temperature_max_degC"],
-        "cell_temperature_min_degC": float(_celsius(tc.min())),
+        "cell_temperature_min_degC": float(_celsius(coldest.min())),
         "cell_temperature_rise_K": shared["cell_temperature_rise_K"],
         "sink_temperature_max_degC": shared["sink_temperature_max_degC"],
         "voltage_min_V": shared["voltage_min_V"],
@@ -488,7 +529,7 @@ ENERGY_KEYS: tuple[str, ...] = (
 def _energy_summary(problem: Problem, shared: dict[str, Any], trajectory: Trajectory, states: np.ndarray,
                     series: dict[str, np.ndarray]) -> dict[str, Any]:
     """Energies, heat balance, heater and thermostats, efficiencies and throughput, in the summary's order."""
-    q = states[-1, L.quadrature_index(problem.n_rc):]
+    q = states[-1, L.quadrature_index(problem.n_rc, problem.n_cells):]
     heater = problem.thermal.heater
     regenerated, from_charger = _charge_sources(problem, trajectory, series, shared["energy_charged_Wh"])
     energies = {**shared, "energy_regenerated_Wh": regenerated, "energy_from_charger_Wh": from_charger}
@@ -513,28 +554,34 @@ def _energy_summary(problem: Problem, shared: dict[str, Any], trajectory: Trajec
 
 
 def _heat_stored(problem: Problem, states: np.ndarray) -> float:
-    """Heat stored in the cells, the sink and the coolant from the first to the last row [J]."""
-    n_rc, th, pk, cell = problem.n_rc, problem.thermal, problem.pack, problem.cell
-    c_cells = pk.series * pk.parallel * cell.mass * cell.specific_heat
-    tc, ts = states[:, L.cell_temperature_index(n_rc)], states[:, L.sink_temperature_index(n_rc)]
-    tf = states[:, L.coolant_temperature_index(n_rc)]
+    """Heat stored in the cells (each cell of a resolved pack), the sink and the coolant from the first to the last
+    row [J]."""
+    n_rc, n_cells, th, pk, cell = problem.n_rc, problem.n_cells, problem.thermal, problem.pack, problem.cell
+    tc = states[:, L.cell_state_indices(n_rc, n_cells)[1]]
+    ts = states[:, L.sink_temperature_index(n_rc, n_cells)]
+    tf = states[:, L.coolant_temperature_index(n_rc, n_cells)]
     c_coolant = th.coolant.heat_capacity if th.coolant is not None else 0.0
-    return (c_cells * (tc[-1] - tc[0]) + th.sink_heat_capacity * (ts[-1] - ts[0])
+    if problem.resolved is None:
+        c_cells = pk.series * pk.parallel * cell.mass * cell.specific_heat
+        stored_cells = c_cells * (tc[-1, 0] - tc[0, 0])
+    else:
+        stored_cells = float(np.sum(problem.resolved.heat_capacity * (tc[-1] - tc[0])))
+    return (stored_cells + th.sink_heat_capacity * (ts[-1] - ts[0])
             + c_coolant * (tf[-1] - tf[0]))
 
 
 def _cold_charging_time(problem: Problem, times: np.ndarray, current: np.ndarray, tc: np.ndarray) -> float:
-    """Time spent charging below the charge temperature limit [s]."""
+    """Time spent charging below the charge temperature limit [s] (of the coldest cell)."""
     charging = 0.5 * (current[:-1] + current[1:]) < 0.0
     t_charge_min = problem.limits.charge_temperature_min
     return diagnostics.time_above(times, -tc, -t_charge_min, charging)
 
 
 def _warnings(problem: Problem, trajectory: Trajectory, series: dict[str, np.ndarray], states: np.ndarray,
-              cold_time: float) -> list[str]:
+              temperatures: _Temperatures, cold_time: float) -> list[str]:
     """The warnings about the run itself: a solver failure, cold charging, capped CC-CV, table ranges."""
     times, current = series["time_s"], series["current_A"]
-    tc = states[:, L.cell_temperature_index(problem.n_rc)]
+    tc = temperatures.coldest
     warnings: list[str] = []
     if trajectory.status == "failed":
         warnings.append(f"solver failure at t = {times[-1]:.6g} s: {trajectory.message}; "
@@ -550,5 +597,6 @@ def _warnings(problem: Problem, trajectory: Trajectory, series: dict[str, np.nda
         if ev["event"] == CCCV_CAP_EVENT:
             warnings.append(f"CC-CV segment {ev['origin']} reached its duration cap at t = {ev['time_s']:.0f} s "
                             "without falling below its cutoff current")
-    warnings += diagnostics.table_range_warnings(problem.cell, states[:, 0], tc)
+    soc, temperature = L.cell_state_indices(problem.n_rc, problem.n_cells)
+    warnings += diagnostics.table_range_warnings(problem.cell, states[:, soc], states[:, temperature])
     return warnings

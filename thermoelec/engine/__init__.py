@@ -9,9 +9,11 @@ above it in this list (and from physics), never from one below::
     problem    one scenario in SI units and its parameter vector (layout, profile)
     options    integrator settings (layout)
     mission    the plan of phases both drivers walk, the phase writer (events, layout, problem, profile)
-    model      numba kernels: right-hand side, Jacobian, root functions, Kernels (events, layout)
+    resolved   numba kernel of a resolved pack's right-hand side, per-cell values (layout)
+    model      numba kernels: right-hand side, Jacobian, root functions, Kernels (events, layout, resolved)
     backends   CVODE and solve_ivp, one phase at a time (events, layout, model, options)
-    driver     walks the plan on a back end (backends, events, layout, mission, model, options, problem)
+    driver     walks the plan on a back end (backends, events, layout, mission, model, options, problem,
+               resolved)
     batch      walks the plan for many scenarios in one compiled loop (events, layout, mission, model,
                options, problem)
 

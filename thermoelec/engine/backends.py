@@ -1,8 +1,9 @@
 """Solver back ends: one smooth phase at a time, stopping at a root (registry :data:`BACKENDS`).
 
 ``cvode``
-    SUNDIALS CVODE, BDF with Newton iteration and a dense or diagonal Newton
-    matrix, through scikits.odes (Hindmarsh et al., ACM TOMS 31 (2005) 363).
+    SUNDIALS CVODE, BDF with Newton iteration and a dense, diagonal or banded
+    Newton matrix or none (Krylov), through scikits.odes (Hindmarsh et al., ACM
+    TOMS 31 (2005) 363).
 ``scipy``
     ``scipy.integrate.solve_ivp`` (LSODA by default) with its event location.
 
@@ -22,7 +23,7 @@ from typing import Protocol
 import numpy as np
 
 from thermoelec.engine.events import N_EVENTS
-from thermoelec.engine.layout import H_ACTIVE, H_TIME
+from thermoelec.engine.layout import H_ACTIVE, H_CELLS, H_TIME
 from thermoelec.engine.model import Kernels
 from thermoelec.engine.options import SolverOptions
 
@@ -118,7 +119,7 @@ def _float32_at_or_after(t: float) -> float:
 
 
 class CvodeBackend:
-    """CVODE (BDF, Newton; dense or diagonal Newton matrix) through scikits.odes 2.7, restarted per phase.
+    """CVODE (BDF, Newton; dense, diagonal, banded or Krylov linear solves) through scikits.odes 2.7, per phase.
 
     CVODE integrates the states with each RC voltage taken relative to its exact
     zero-order-hold response from the phase start (:func:`thermoelec.engine.model.rc_base_setup`),
@@ -139,6 +140,11 @@ class CvodeBackend:
         first step [s] (a number: the driver resolves ``"auto"``) and Newton matrix.
     n_rc : int
         Number of RC pairs of the cell [-].
+    n_cells : int
+        Number of cell blocks of the state vector: 1 for a lumped pack [-].
+    bandwidth : int
+        Half-bandwidth of the band Newton matrix (a resolved pack's cell couplings,
+        :func:`thermoelec.engine.problem.jacobian_bandwidth`) [-].
 
     References
     ----------
@@ -148,30 +154,43 @@ class CvodeBackend:
 
     name = "cvode"
 
-    def __init__(self, kernels: Kernels, options: SolverOptions, n_rc: int):
+    def __init__(self, kernels: Kernels, options: SolverOptions, n_rc: int, n_cells: int = 1, bandwidth: int = 0):
         self.kernels = kernels
         self.options = options
+        self.resolved = bool(kernels.p[H_CELLS] != 0.0)
+        self.bandwidth = bandwidth
         self._common = dict(old_api=False, lmm_type="BDF", nonlinsolver="newton", rtol=options.rtol,
-                            atol=options.atol_vector(n_rc), max_steps=options.max_steps,
+                            atol=options.atol_vector(n_rc, n_cells), max_steps=options.max_steps,
                             first_step_size=float(options.first_step))
-        # Up to four instances of the same integrator, made when first needed: with or
-        # without the root functions (phases where no root function can reach zero, see
-        # integrate_problem), and with the dense or the diagonal Newton matrix.
-        self._solvers: dict[tuple[bool, bool], object] = {}
-        self._started: set[tuple[bool, bool]] = set()
+        # Instances of the same integrator, made when first needed: with or without the
+        # root functions (phases where no root function can reach zero, see
+        # integrate_problem), and for each Newton matrix used.
+        self._solvers: dict[tuple[bool, str], object] = {}
+        self._started: set[tuple[bool, str]] = set()
         self._stats: dict[str, float] = {"NumPhasesWithRoots": 0, "NumPhasesWithoutRoots": 0,
                                          "NumPhasesDiagonal": 0, "NumPhasesDense": 0}
+        if self.resolved:
+            self._stats.update(NumPhasesKrylov=0, NumPhasesBand=0)
 
-    def _solver(self, find_roots: bool, diagonal: bool):
-        key = (find_roots, diagonal)
+    def _linear(self, linear: str) -> dict:
+        """scikits.odes options of a Newton matrix."""
+        if linear == "diagonal":
+            return {"linsolver": "diag"}
+        if linear == "band":
+            return {"linsolver": "band", "lband": self.bandwidth, "uband": self.bandwidth}
+        if linear == "krylov":
+            return {"linsolver": "spgmr"}
+        return {"linsolver": "dense", "jacfn": self.kernels.cvode_jacobian}
+
+    def _solver(self, find_roots: bool, linear: str):
+        key = (find_roots, linear)
         solver = self._solvers.get(key)
         if solver is None:
             from scikits.odes import ode  # imported here: scipy runs need no SUNDIALS
 
-            linear = {"linsolver": "diag"} if diagonal else {"linsolver": "dense", "jacfn": self.kernels.cvode_jacobian}
             roots = {"rootfn": self.kernels.cvode_roots, "nr_rootfns": N_EVENTS} if find_roots else {}
-            solver = self._solvers[key] = ode("cvode", self.kernels.cvode_rhs, **self._common, **linear,
-                                              **roots)._integrator
+            solver = self._solvers[key] = ode("cvode", self.kernels.cvode_rhs, **self._common,
+                                              **self._linear(linear), **roots)._integrator
         return solver
 
     def _accumulate(self, solver) -> None:
@@ -188,7 +207,8 @@ class CvodeBackend:
         dict of str to float
             ``NumSteps``, ``NumRhsEvals``, ``NumLinSolvSetups``, ``NumErrTestFails``
             (CVODE's own), ``NumPhasesWithRoots`` / ``NumPhasesWithoutRoots`` and
-            ``NumPhasesDiagonal`` / ``NumPhasesDense`` (a repeated phase counts again) [-].
+            ``NumPhasesDiagonal`` / ``NumPhasesDense`` (with a resolved pack, or a forced choice,
+            ``NumPhasesKrylov`` / ``NumPhasesBand`` too; a repeated phase counts again) [-].
         """
         return dict(self._stats)
 
@@ -209,11 +229,12 @@ class CvodeBackend:
         """Integrate one phase with CVODE; see :meth:`Backend.integrate`.
 
         The RC base is set at ``(t0, y0)`` and CVODE integrates the shifted state. With
-        ``linear_solver = "auto"`` the same kernel call bounds the contraction of the
-        diagonal Newton iteration for a step as long as the phase
+        ``linear_solver = "auto"`` and a lumped pack the same kernel call bounds the
+        contraction of the diagonal Newton iteration for a step as long as the phase
         (:func:`thermoelec.engine.model.diagonal_newton_contraction`); at most
         :data:`DIAGONAL_CONTRACTION` the phase takes the diagonal Newton matrix, and
-        should it fail there, the phase is integrated again with the dense one.
+        should it fail there, the phase is integrated again with the dense one. A
+        resolved pack takes Krylov (GMRES) steps, and the dense matrix for a phase they failed.
 
         Parameters
         ----------
@@ -240,21 +261,29 @@ class CvodeBackend:
         equation solvers", ACM TOMS 31 (2005) 363.
         """
         choice = self.options.linear_solver
+        if self.resolved and choice == "auto":
+            # a resolved pack: Krylov (the diagonal's bound would need a full Jacobian), dense should it fail
+            w0, _ = self.kernels.shift_from(t0, y0, 0.0)
+            outcome = self._integrate(t0, w0, t_end, outputs, find_roots, "krylov")
+            if outcome.status == "error":
+                outcome = self._integrate(t0, w0, t_end, outputs, find_roots, "dense")
+            return outcome
         # the shift, and the contraction bound for the longest step the phase allows, in one kernel call
         w0, contraction = self.kernels.shift_from(t0, y0, t_end - t0 if choice == "auto" else 0.0)
-        diagonal = contraction <= DIAGONAL_CONTRACTION if choice == "auto" else choice == "diagonal"
-        outcome = self._integrate(t0, w0, t_end, outputs, find_roots, diagonal)
-        if outcome.status == "error" and diagonal and choice == "auto":
-            outcome = self._integrate(t0, w0, t_end, outputs, find_roots, False)
+        linear = ("diagonal" if contraction <= DIAGONAL_CONTRACTION else "dense") if choice == "auto" else choice
+        outcome = self._integrate(t0, w0, t_end, outputs, find_roots, linear)
+        if outcome.status == "error" and linear == "diagonal" and choice == "auto":
+            outcome = self._integrate(t0, w0, t_end, outputs, find_roots, "dense")
         return outcome
 
     def _integrate(self, t0: float, w0: np.ndarray, t_end: float, outputs: list[float],
-                   find_roots: bool, diagonal: bool) -> PhaseOutcome:
+                   find_roots: bool, linear: str) -> PhaseOutcome:
         """One phase from the shifted state ``w0`` (the base is set by :meth:`integrate`)."""
-        key = (find_roots, diagonal)
-        solver = self._solver(find_roots, diagonal)
+        key = (find_roots, linear)
+        solver = self._solver(find_roots, linear)
         self._stats["NumPhasesWithRoots" if find_roots else "NumPhasesWithoutRoots"] += 1
-        self._stats["NumPhasesDiagonal" if diagonal else "NumPhasesDense"] += 1
+        counter = f"NumPhases{linear.capitalize()}"
+        self._stats[counter] = self._stats.get(counter, 0) + 1
         kernels = self.kernels
         kernels.error = None
         if key in self._started:
@@ -270,9 +299,11 @@ class CvodeBackend:
                 try:
                     out = solver.step(float(tout))
                 except Exception as exc:  # scikits.odes raises for some failures instead of flagging
+                    _raise_interrupt(self.kernels.error)
                     return PhaseOutcome(times, states, "error", f"CVODE: {exc}")
                 flag = int(out.flag)
                 if self.kernels.error is not None:
+                    _raise_interrupt(self.kernels.error)
                     return PhaseOutcome(times, states, "error", f"right-hand side failed: {self.kernels.error!r}")
                 if flag == 2:  # root found; out.roots keeps every root since init, values is this one
                     times.append(float(out.values.t))
@@ -285,6 +316,12 @@ class CvodeBackend:
         finally:
             self._accumulate(solver)
         return PhaseOutcome(times, states, "end")
+
+
+def _raise_interrupt(error: BaseException | None) -> None:
+    """Raise what a callback kept if it was no failure but an interrupt (Ctrl-C, SIGTERM): it ends the run."""
+    if error is not None and not isinstance(error, Exception):
+        raise error
 
 
 class ScipyBackend:
@@ -302,14 +339,18 @@ class ScipyBackend:
         Tolerances [-, and per state -, V, K, J, C] and the ``solve_ivp`` method.
     n_rc : int
         Number of RC pairs of the cell [-].
+    n_cells : int
+        Number of cell blocks of the state vector: 1 for a lumped pack [-].
+    bandwidth : int
+        Not used (the band Newton matrix of the CVODE back end) [-].
     """
 
     name = "scipy"
 
-    def __init__(self, kernels: Kernels, options: SolverOptions, n_rc: int):
+    def __init__(self, kernels: Kernels, options: SolverOptions, n_rc: int, n_cells: int = 1, bandwidth: int = 0):
         self.kernels = kernels
         self.options = options
-        self.atol = options.atol_vector(n_rc)
+        self.atol = options.atol_vector(n_rc, n_cells)
         self._stats = {"NumRhsEvals": 0, "NumJacEvals": 0, "NumLUDecomps": 0, "NumPhases": 0}
         self._events = [self._event(k) for k in range(N_EVENTS)]
 

@@ -98,18 +98,25 @@ _E1, _E2, _E3, _E4 = 2 / 9 - 7 / 24, 1 / 3 - 1 / 4, 4 / 9 - 1 / 3, -1 / 8
 _ORDER_EXPONENT = -1.0 / 3.0
 
 # per-scenario running extremes and integrals written by the kernel (what the sweep metrics and verdict need)
-(X_TC_MAX, X_TS_MAX, X_V_MIN, X_VCELL_MIN, X_I_ABS, X_ARRHENIUS, X_VCELL_MAX, X_P_MAX, X_COLD_CHARGE, X_AUX,
- X_AUX_DISCHARGE, N_EXTRA) = range(12)
+X_TC_MAX, X_TS_MAX, X_V_MIN, X_VCELL_MIN, X_I_ABS, X_ARRHENIUS, X_VCELL_MAX, X_P_MAX, X_COLD_CHARGE = \
+    0, 1, 2, 3, 4, 5, 6, 7, 8
+X_SPREAD, X_SPREAD_TIME, X_SHARE, X_HOT_CELL, X_HOT_TIME, X_AUX, X_AUX_DISCHARGE, N_EXTRA = \
+    9, 10, 11, 12, 13, 14, 15, 16
 #: The names of the extremes, by index: highest cell and sink temperature [K], lowest pack and cell
-#: voltage [V], largest current magnitude [A], Arrhenius-weighted time at the reference temperature [s],
-#: highest cell voltage [V], highest power to the load [W], time charging below the charge
-#: temperature limit [s] (the crossing interpolated within a step, as over the output rows of a solo run),
-#: the energy the auxiliaries drew at the terminals [J], and the part of it while the pack discharged [J].
+#: voltage [V], largest current magnitude [A], Arrhenius-weighted time at the reference temperature [s]
+#: (of the hottest cell), highest cell voltage [V], highest power to the load [W], time charging below
+#: the charge temperature limit [s] (of the coldest cell; the crossing interpolated within a step, as over
+#: the output rows of a solo run); the largest difference between the hottest and the coldest cell [K]
+#: and when [s], the largest current share of a cell [-], the cell that reached the highest temperature
+#: (from 0) [-] and when [s] (0, 0, 1, 0 and the time of the peak for a lumped pack); the energy the
+#: auxiliaries drew at the terminals [J], and the part of it while the pack discharged [J].
 EXTREMES = ("cell_temperature_max", "sink_temperature_max", "voltage_min", "cell_voltage_min", "current_abs_max",
             "equivalent_time_at_reference", "cell_voltage_max", "power_max", "cold_charging_time",
-            "auxiliary_energy", "auxiliary_energy_discharge")
+            "cell_temperature_spread_max", "cell_temperature_spread_time", "current_share_max", "hottest_cell",
+            "hottest_time", "auxiliary_energy", "auxiliary_energy_discharge")
 #: Their values before the first observation.
-_EXTRA_START = np.array([-np.inf, -np.inf, np.inf, np.inf, 0.0, 0.0, -np.inf, -np.inf, 0.0, 0.0, 0.0])
+_EXTRA_START = np.array([-np.inf, -np.inf, np.inf, np.inf, 0.0, 0.0, -np.inf, -np.inf, 0.0,
+                         0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0])
 
 
 @numba.njit(cache=True, error_model="numpy")
@@ -125,15 +132,15 @@ def _rk_step(y, p, t, h, k, tmp, alg, out, err):
     for i in range(n):
         tmp[i] = y[i] + h * _A21 * k[0, i]
     p[L.H_TIME] = t + 0.5 * h
-    m.evaluate(tmp, p, k[1], alg)
+    m.evaluate_any(tmp, p, k[1], alg)
     for i in range(n):
         tmp[i] = y[i] + h * _A32 * k[1, i]
     p[L.H_TIME] = t + 0.75 * h
-    m.evaluate(tmp, p, k[2], alg)
+    m.evaluate_any(tmp, p, k[2], alg)
     for i in range(n):
         out[i] = y[i] + h * (_B1 * k[0, i] + _B2 * k[1, i] + _B3 * k[2, i])
     p[L.H_TIME] = t + h
-    m.evaluate(out, p, k[3], alg)
+    m.evaluate_any(out, p, k[3], alg)
     for i in range(n):
         err[i] = h * (_E1 * k[0, i] + _E2 * k[1, i] + _E3 * k[2, i] + _E4 * k[3, i])
 
@@ -148,14 +155,22 @@ def _error_norm(y, out, err, rtol, atol):
 
 
 @numba.njit(cache=True, error_model="numpy")
-def _observe(y, alg, extra, tc_index, ts_index):
-    """Running extremes from the state and its algebraic outputs."""
-    extra[X_TC_MAX] = max(extra[X_TC_MAX], y[tc_index])
+def _observe(y, alg, extra, t, ts_index):
+    """Running extremes from the state at time ``t`` and its algebraic outputs."""
+    if alg[L.A_TEMPERATURE_HIGH] > extra[X_TC_MAX]:
+        extra[X_TC_MAX] = alg[L.A_TEMPERATURE_HIGH]
+        extra[X_HOT_CELL] = alg[L.A_CELL_HOT]
+        extra[X_HOT_TIME] = t
+    spread = alg[L.A_TEMPERATURE_HIGH] - alg[L.A_TEMPERATURE_LOW]
+    if spread > extra[X_SPREAD]:
+        extra[X_SPREAD] = spread
+        extra[X_SPREAD_TIME] = t
+    extra[X_SHARE] = max(extra[X_SHARE], alg[L.A_CURRENT_SHARE])
     extra[X_TS_MAX] = max(extra[X_TS_MAX], y[ts_index])
     extra[X_V_MIN] = min(extra[X_V_MIN], alg[L.A_VOLTAGE])
     extra[X_VCELL_MIN] = min(extra[X_VCELL_MIN], alg[L.A_CELL_VOLTAGE])
     extra[X_I_ABS] = max(extra[X_I_ABS], abs(alg[L.A_CURRENT]))
-    extra[X_VCELL_MAX] = max(extra[X_VCELL_MAX], alg[L.A_CELL_VOLTAGE])
+    extra[X_VCELL_MAX] = max(extra[X_VCELL_MAX], alg[L.A_CELL_VOLTAGE_HIGH])
     extra[X_P_MAX] = max(extra[X_P_MAX], alg[L.A_VOLTAGE] * alg[L.A_CURRENT])
 
 
@@ -210,16 +225,20 @@ MAX_EVENTS_PER_SEGMENT = 1000
 
 @numba.njit(cache=True, error_model="numpy")
 def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setup_index, switches, controls, y,
-                   rtol, atol, ea, t_ref, t_charge_min, extra, tc_index, ts_index):
+                   rtol, atol, ea, t_ref, t_charge_min, extra, hot0, cold0, ts_index):
     """One scenario through the segments of its mission plan and their phases (a CC-CV segment has two).
 
     Events act by :data:`thermoelec.engine.events.EVENT_ACTION`, as in the CVODE
     driver: a limit stops the mission, the CC->CV switch starts the CV phase, a
     cutoff or an end condition ends the segment, a thermostat toggles and the
-    phase goes on. Returns (status, event, time): status 0 end of profile, 1
-    stopped, 2 fallback. About 100 lines in one compiled loop, on purpose: the
-    step loop runs once per segment of every scenario, and as a separate
-    function taking a dozen arrays its calls cost a fifth of the batch.
+    phase goes on. Returns (status, event, time, cell): status 0 end of profile, 1
+    stopped, 2 fallback; the cell at a stop's limit
+    (:data:`thermoelec.engine.layout.EVENT_CELL_SLOT`, -1 for none). ``hot0`` and
+    ``cold0`` are the hottest and the coldest cell's temperatures at the start [K]
+    (the Arrhenius time is the hottest cell's, the time charging cold the coldest
+    cell's). About 100 lines in one compiled
+    loop, on purpose: the step loop runs once per segment of every scenario, and as
+    a separate function taking a dozen arrays its calls cost a fifth of the batch.
     """
     n = y.size
     k = np.empty((4, n))
@@ -229,7 +248,8 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
     default_ambient = p[L.H_AMBIENT]
     default_table = p[L.H_AMBIENT_TABLE]
     h = 0.05
-    rate_prev = arrhenius_ageing_rate(y[tc_index], ea, t_ref)
+    rate_prev = arrhenius_ageing_rate(hot0, ea, t_ref)
+    cold_prev = cold0  # the coldest cell at the last accepted point (cold charging counts it)
     current_prev = 0.0
     t = 0.0
     for seg in range(durations.size):
@@ -240,7 +260,7 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
             configure_phase(p, seg, phase, modes, values, ambients, setups, setup_index, default_ambient,
                             default_table, switches, controls)
             p[L.H_TIME] = t
-            m.evaluate(y, p, k[0], alg)  # the demand changed: a new first stage
+            m.evaluate_any(y, p, k[0], alg)  # the demand changed: a new first stage
             m.roots_from(y, g, p, alg)
             code = -1
             # the engine's full check where a limit is reached or near, and always with the
@@ -248,8 +268,8 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
             if _near_zero(g, p) or p[L.H_MODE] == MODE_VOLTAGE:
                 code = m.start_check(y, p, alg, scratch, g, g_ahead, START_PROBE, IMPOSED_VOLTAGE_SLACK)
                 p[L.H_TIME] = t
-                m.evaluate(y, p, k[0], alg)
-            _observe(y, alg, extra, tc_index, ts_index)
+                m.evaluate_any(y, p, k[0], alg)
+            _observe(y, alg, extra, t, ts_index)
             current_prev = alg[L.A_CURRENT]  # the demand jumps at a phase start
             if code < 0:
                 if t_end - t <= MIN_PHASE:
@@ -260,7 +280,7 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
                 while t < t_end - 1e-12 * max(1.0, t_end):
                     steps += 1
                     if steps > MAX_STEPS_PER_SEGMENT or h < 1e-9:
-                        return 2, -1, t
+                        return 2, -1, t, -1
                     h_try = min(h, t_end - t)
                     _rk_step(y, p, t, h_try, k, tmp, alg, out, err)
                     norm = _error_norm(y, out, err, rtol, atol)
@@ -281,30 +301,32 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
                         _rk_step(y, p, t, high, k, tmp, alg, trial, err)
                         m.roots_from(trial, g, p, alg)
                         code = m.fired_event(g, p)
-                        rate_new = arrhenius_ageing_rate(trial[tc_index], ea, t_ref)
+                        rate_new = arrhenius_ageing_rate(alg[L.A_TEMPERATURE_HIGH], ea, t_ref)
                         extra[X_ARRHENIUS] += 0.5 * (rate_prev + rate_new) * high
                         rate_prev = rate_new
-                        extra[X_COLD_CHARGE] += _cold_charging(y[tc_index], trial[tc_index], current_prev,
+                        extra[X_COLD_CHARGE] += _cold_charging(cold_prev, alg[L.A_TEMPERATURE_LOW], current_prev,
                                                                alg[L.A_CURRENT], t_charge_min, high)
                         _auxiliary_energy(extra, alg[L.A_AUXILIARY], current_prev, alg[L.A_CURRENT], high)
                         current_prev = alg[L.A_CURRENT]
+                        cold_prev = alg[L.A_TEMPERATURE_LOW]
                         for i in range(n):
                             y[i] = trial[i]
-                        _observe(y, alg, extra, tc_index, ts_index)
                         t += high
+                        _observe(y, alg, extra, t, ts_index)
                         break
-                    rate_new = arrhenius_ageing_rate(out[tc_index], ea, t_ref)
+                    rate_new = arrhenius_ageing_rate(alg[L.A_TEMPERATURE_HIGH], ea, t_ref)
                     extra[X_ARRHENIUS] += 0.5 * (rate_prev + rate_new) * h_try
                     rate_prev = rate_new
-                    extra[X_COLD_CHARGE] += _cold_charging(y[tc_index], out[tc_index], current_prev,
+                    extra[X_COLD_CHARGE] += _cold_charging(cold_prev, alg[L.A_TEMPERATURE_LOW], current_prev,
                                                            alg[L.A_CURRENT], t_charge_min, h_try)
                     _auxiliary_energy(extra, alg[L.A_AUXILIARY], current_prev, alg[L.A_CURRENT], h_try)
                     current_prev = alg[L.A_CURRENT]
+                    cold_prev = alg[L.A_TEMPERATURE_LOW]
                     t += h_try
                     for i in range(n):
                         y[i] = out[i]
                         k[0, i] = k[3, i]  # first same as last
-                    _observe(y, alg, extra, tc_index, ts_index)
+                    _observe(y, alg, extra, t, ts_index)
                     factor = 5.0 if norm == 0.0 else min(5.0, max(0.2, 0.9 * norm ** _ORDER_EXPONENT))
                     if h_try >= h:  # a step cut short by the boundary says nothing about the next one
                         h = h_try * factor
@@ -315,39 +337,41 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
                     break
             events += 1
             if events > MAX_EVENTS_PER_SEGMENT:
-                return 2, -1, t
+                return 2, -1, t, -1
             action = EVENT_ACTION[code]
-            if action == ACTION_STOP:
-                return 1, code, t
+            if action == ACTION_STOP:  # alg holds the outputs at the stop: which cell is at the limit
+                slot = L.EVENT_CELL_SLOT[code]
+                return 1, code, t, int(alg[slot]) if slot >= 0 else -1
             if action == ACTION_TOGGLE:
                 controls[code - EV_FAN] = not controls[code - EV_FAN]
             elif action == ACTION_NEXT_PHASE and phase + 1 < n_phases[seg]:
                 phase += 1
             else:
                 break  # a cutoff or an end condition ends the segment
-    return 0, -1, t
+    return 0, -1, t, -1
 
 
 @numba.njit(cache=True, error_model="numpy")
 def _integrate_many(params, profile, n_phases, modes, values, durations, ambients, setups, setup_index, switches,
-                    controls, y0, rtol, atol, ea, t_ref, t_charge_min, tc_index, ts_index):
+                    controls, y0, rtol, atol, ea, t_ref, t_charge_min, hot0, cold0, ts_index):
     """Every scenario of a batch; scenario ``s`` runs the segments of profile ``profile[s]``."""
     n_scen = params.shape[0]
     states = y0.copy()
     extras = np.empty((n_scen, N_EXTRA))
     status = np.empty(n_scen, dtype=np.int64)
     events = np.empty(n_scen, dtype=np.int64)
+    cells = np.empty(n_scen, dtype=np.int64)
     times = np.empty(n_scen)
     for s in range(n_scen):
         extras[s, :] = _EXTRA_START
         p = params[s].copy()
         y = states[s]
         j = profile[s]
-        st, ev, tt = _integrate_one(p, n_phases[j], modes[j], values[j], durations[j], ambients[j], setups[j],
-                                    setup_index[j], switches[s], controls[s].copy(), y, rtol, atol[s], ea[s],
-                                    t_ref[s], t_charge_min[s], extras[s], tc_index, ts_index)
-        status[s], events[s], times[s] = st, ev, tt
-    return states, extras, status, events, times
+        st, ev, tt, cc = _integrate_one(p, n_phases[j], modes[j], values[j], durations[j], ambients[j], setups[j],
+                                        setup_index[j], switches[s], controls[s].copy(), y, rtol, atol[s], ea[s],
+                                        t_ref[s], t_charge_min[s], extras[s], hot0[s], cold0[s], ts_index)
+        status[s], events[s], times[s], cells[s] = st, ev, tt, cc
+    return states, extras, status, events, times, cells
 
 
 @dataclass
@@ -365,9 +389,12 @@ class BatchOutcome:
     states : float64 array, shape (n, n_states)
         State at the end (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
     extras : float64 array, shape (n, len(EXTREMES))
-        The running extremes of :data:`EXTREMES` [K, K, V, V, A, s, V, W, s, J, J].
+        The running extremes of :data:`EXTREMES` [K, K, V, V, A, s, V, W, s, K, s, -, -, s, J, J].
     initial_states : float64 array, shape (n, n_states)
         Where each mission started, after its soak [-, V, K, J, C].
+    stop_cell : int64 array, shape (n,)
+        The cell at the limit that stopped each mission (from 0; for a voltage limit the
+        first cell of the group at it), -1 for none [-].
     """
 
     status: list[str]
@@ -376,6 +403,7 @@ class BatchOutcome:
     states: np.ndarray
     extras: np.ndarray
     initial_states: np.ndarray  # where each mission started (after its soak)
+    stop_cell: np.ndarray | None = None
 
 
 def _plans(problems: list[Problem]) -> tuple[list[MissionPlan], np.ndarray]:
@@ -391,7 +419,7 @@ def _plans(problems: list[Problem]) -> tuple[list[MissionPlan], np.ndarray]:
     for i, problem in enumerate(problems):
         cell = problem.cell
         limits = (cell.voltage_min, cell.voltage_max, cell.capacity, problem.pack.series, problem.pack.parallel,
-                  problem.limits.cell_temperature_max)
+                  problem.limits.cell_temperature_max, problem.resolved is None)
         for j, (segments, known) in enumerate(seen):
             if segments is problem.segments and known == limits:
                 which[i] = j
@@ -421,7 +449,7 @@ def _stack(plans: list[MissionPlan]) -> tuple[np.ndarray, ...]:
 
 
 def solve_batch(problems: list[Problem], options: SolverOptions) -> BatchOutcome:
-    """Integrate problems with the same state layout (same RC count) together.
+    """Integrate problems with the same state layout (same RC count, same number of cell blocks) together.
 
     As in the engine's driver, the soak segments of a problem run first, as a
     problem of their own (here: a batch of the soaks); its mission starts at
@@ -440,11 +468,11 @@ def solve_batch(problems: list[Problem], options: SolverOptions) -> BatchOutcome
     BatchOutcome
         Per scenario: ``ok`` or ``fallback`` (to be run on CVODE), stop reason,
         end time [s] and state [-, V, K, J, C], and the running extremes of
-        :data:`EXTREMES` [K, K, V, V, A, s, V, W, s, J, J].
+        :data:`EXTREMES` [K, K, V, V, A, s, V, W, s, K, s, -, -, s, J, J], the cell at a stop's limit [-].
     """
-    n_rc = problems[0].n_rc
-    if any(p.n_rc != n_rc for p in problems):
-        raise ValueError("a batch needs one state layout: the same number of RC pairs")
+    n_rc, n_cells = problems[0].n_rc, problems[0].n_cells
+    if any(p.n_rc != n_rc or p.n_cells != n_cells for p in problems):
+        raise ValueError("a batch needs one state layout: the same number of RC pairs and of cells")
     y0 = np.array([p.initial_state() for p in problems])
     soaked = [i for i, p in enumerate(problems) if p.soak]
     soak_failed = set()
@@ -454,24 +482,25 @@ def solve_batch(problems: list[Problem], options: SolverOptions) -> BatchOutcome
             if soaks.status[j] != "ok":
                 soak_failed.add(i)
                 continue
-            y0[i] = start_after_soak(soaks.states[j], n_rc)
+            y0[i] = start_after_soak(soaks.states[j], n_rc, n_cells)
     params_list = [pack_parameters(p) for p in problems]
     params = np.zeros((len(problems), max(len(p) for p in params_list)))
     for i, p in enumerate(params_list):
         params[i, :len(p)] = p
     plans, which = _plans(problems)
     n_phases, modes, values, durations, ambients, setups, index = _stack(plans)
-    tc_index = L.cell_temperature_index(n_rc)
+    cell_temperatures = y0[:, L.cell_state_indices(n_rc, n_cells)[1]]
+    hot0, cold0 = cell_temperatures.max(axis=1), cell_temperatures.min(axis=1)
     switches = np.array([thermostat_switches(p) for p in problems])
-    controls = np.array([initial_controls(s, y0[i, tc_index]) for i, s in enumerate(switches)])
-    atol = np.tile(options.atol_vector(n_rc), (len(problems), 1))
+    controls = np.array([initial_controls(s, hot0[i], cold0[i]) for i, s in enumerate(switches)])
+    atol = np.tile(options.atol_vector(n_rc, n_cells), (len(problems), 1))
     ea = np.array([p.stress.activation_energy for p in problems])
     t_ref = np.array([p.stress.reference_temperature for p in problems])
     t_charge_min = np.array([p.limits.charge_temperature_min for p in problems])
-    states, extras, status, events, times = _integrate_many(
+    states, extras, status, events, times, cells = _integrate_many(
         params, which, n_phases, modes, values, durations, ambients, setups, index, switches, controls, y0,
-        options.rtol, atol, ea, t_ref, t_charge_min, tc_index, L.sink_temperature_index(n_rc))
+        options.rtol, atol, ea, t_ref, t_charge_min, hot0, cold0, L.sink_temperature_index(n_rc, n_cells))
     stop = [STOP_EVENTS.get(int(e), "end_of_profile") if s == 1 else "end_of_profile"
             for s, e in zip(status, events, strict=True)]
     names = ["fallback" if s == 2 or i in soak_failed else "ok" for i, s in enumerate(status)]
-    return BatchOutcome(names, stop, times, states, extras, y0)
+    return BatchOutcome(names, stop, times, states, extras, y0, cells)

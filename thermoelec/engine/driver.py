@@ -38,7 +38,15 @@ from thermoelec.engine.events import (
     EVENT_NAMES,
     STOP_EVENTS,
 )
-from thermoelec.engine.layout import H_AMBIENT_TABLE, H_MODE, H_TIME, H_VALUE, cell_temperature_index, n_states
+from thermoelec.engine.layout import (
+    CELL_OF_EVENT,
+    H_AMBIENT_TABLE,
+    H_MODE,
+    H_TIME,
+    H_VALUE,
+    HEADER,
+    cell_state_indices,
+)
 from thermoelec.engine.mission import (
     IMPOSED_VOLTAGE_SLACK,
     MIN_PHASE,
@@ -52,8 +60,9 @@ from thermoelec.engine.mission import (
     thermostat_switches,
 )
 from thermoelec.engine.model import Kernels, fired_event, trajectory_algebraics
-from thermoelec.engine.options import LINEAR_SOLVERS, SolverOptions, automatic_first_step
-from thermoelec.engine.problem import Problem, pack_parameters
+from thermoelec.engine.options import FIRST_STEP_FRACTION, LINEAR_SOLVERS, SolverOptions, automatic_first_step
+from thermoelec.engine.problem import Problem, jacobian_bandwidth, pack_parameters
+from thermoelec.engine.resolved import trajectory_cell_values
 
 __all__ = ["REACH_FACTOR", "Trajectory", "integrate_problem"]
 
@@ -69,10 +78,11 @@ class Trajectory:
 
     Rows of ``(time, state)`` and the phase of each row: at a phase boundary
     the state appears twice, in the phase before and the phase after it, so the
-    reported series shows each jump of the demand exactly. Each phase's
-    parameter vector is kept once (``phase_params``), its demand in it;
-    :attr:`demand_modes` (load-mode codes) and :attr:`demand_values` [A, W, Ω, V]
-    read it for every row.
+    reported series shows each jump of the demand exactly. The header of each
+    phase's parameter vector is kept once (``phase_params``), its demand in it;
+    the blocks after the header do not change between phases and are kept once
+    (``parameters``, a resolved pack's is tens of kilobytes). :attr:`demand_modes`
+    (load-mode codes) and :attr:`demand_values` [A, W, Ω, V] read it for every row.
 
     Attributes
     ----------
@@ -80,10 +90,12 @@ class Trajectory:
         Row times [s].
     states : float64 array, shape (n, n_states)
         State rows (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
-    phase_params : float64 array, shape (n_phases, len(p))
-        The parameter vector of each phase as it started [SI, unit per slot].
+    phase_params : float64 array, shape (n_phases, HEADER)
+        The header of the parameter vector of each phase as it started [SI, unit per slot].
     phase_index : int64 array, shape (n,)
         The phase of each row [-].
+    parameters : float64 array
+        The scenario's parameter vector: its blocks, with the header of the last phase [SI, unit per slot].
     stop_reason : str
         One of :data:`thermoelec.engine.events.STOP_REASONS`.
     status : str
@@ -91,8 +103,10 @@ class Trajectory:
     message : str
         The solver's message for a failure, else empty.
     events : list of dict
-        Each event: ``time_s`` [s], ``event`` name, ``segment`` index, ``origin``, and
-        ``state`` (``"on"`` / ``"off"``) for a thermostat.
+        Each event: ``time_s`` [s], ``event`` name, ``segment`` index, ``origin``,
+        ``state`` (``"on"`` / ``"off"``) for a thermostat, and in a resolved pack
+        ``cell`` (from 0) for a cell limit or a thermostat: the cell at the limit
+        (for a voltage limit the first cell of the group at it), or the cell sensed.
     statistics : dict of str to float
         The back end's counters (:meth:`~thermoelec.engine.backends.Backend.statistics`).
     wall_time : float
@@ -109,6 +123,7 @@ class Trajectory:
     states: np.ndarray
     phase_params: np.ndarray
     phase_index: np.ndarray
+    parameters: np.ndarray
     stop_reason: str
     status: str  # "ok" | "failed"
     message: str
@@ -143,7 +158,18 @@ class Trajectory:
             Current [A], voltages [V], heats [W], ... in the order of
             :data:`thermoelec.engine.layout.ALGEBRAICS`.
         """
-        return trajectory_algebraics(self.times, self.states, self.phase_params, self.phase_index)
+        return trajectory_algebraics(self.times, self.states, self.phase_params, self.phase_index, self.parameters)
+
+    def cell_values(self) -> np.ndarray:
+        """Per-cell values of every row of a resolved pack (:func:`thermoelec.engine.resolved.trajectory_cell_values`).
+
+        Returns
+        -------
+        float64 array, shape (n, n_cells, N_CELL_VALUES)
+            Current [A], heat [W], group voltage [V], OCV [V], series resistance [Ω],
+            coolant temperature entering the cell's segment [K], heat to the coolant [W].
+        """
+        return trajectory_cell_values(self.times, self.states, self.phase_params, self.phase_index, self.parameters)
 
 
 def _output_times(t0: float, t_end: float, interval: float) -> list[float]:
@@ -175,7 +201,7 @@ class _Run:
     message: str = ""
 
     def start_phase(self, t: float, y: np.ndarray, p: np.ndarray) -> int:
-        self.phase_params.append(p.copy())
+        self.phase_params.append(p[:HEADER].copy())
         self.phase_segment.append(self.segment)
         self.times.append(t)
         self.states.append(y)
@@ -218,21 +244,23 @@ def integrate_problem(problem: Problem, options: SolverOptions, initial_state: n
     soaking = soak_problem(problem)
     if soaking is not None:
         soak = integrate_problem(soaking, options, initial_state)
-        initial_state = start_after_soak(soak.states[-1], problem.n_rc)
+        initial_state = start_after_soak(soak.states[-1], problem.n_rc, problem.n_cells)
     if options.first_step == "auto":
+        fraction = FIRST_STEP_FRACTION["lumped" if problem.resolved is None else "resolved"]
         options = replace(options, first_step=automatic_first_step((s.duration for s in problem.segments),
-                                                                   options.rtol))
+                                                                   options.rtol, fraction))
     plan = plan_mission(problem)
     p = pack_parameters(problem)
-    kernels = Kernels(p, n_states(problem.n_rc))
-    backend = BACKENDS[options.backend](kernels, options, problem.n_rc)
+    kernels = Kernels(p, problem.n_states)
+    backend = BACKENDS[options.backend](kernels, options, problem.n_rc, problem.n_cells, jacobian_bandwidth(problem))
     started = _time.perf_counter()
     y = problem.initial_state() if initial_state is None else np.array(initial_state, dtype=float)
     run = _Run()
     completed = _walk(plan, problem, p, kernels, backend, options, y, run)
     return Trajectory(
         times=np.asarray(run.times), states=np.asarray(run.states), phase_params=np.asarray(run.phase_params),
-        phase_index=np.asarray(run.row_phase, dtype=np.int64), stop_reason=run.stop_reason, status=run.status,
+        phase_index=np.asarray(run.row_phase, dtype=np.int64), parameters=p.copy(),
+        stop_reason=run.stop_reason, status=run.status,
         message=run.message, events=run.events, statistics=backend.statistics(),
         wall_time=_time.perf_counter() - started, segments_completed=completed, soak=soak,
         phase_segment=np.asarray(run.phase_segment, dtype=np.int64),
@@ -243,7 +271,8 @@ def _walk(plan: MissionPlan, problem: Problem, p: np.ndarray, kernels: Kernels, 
           y: np.ndarray, run: _Run) -> int:
     """Every segment of the plan in turn; returns the number completed (``run`` collects the rows)."""
     switches = thermostat_switches(problem)
-    controls = initial_controls(switches, y[cell_temperature_index(problem.n_rc)])
+    temperatures = y[cell_state_indices(problem.n_rc, problem.n_cells)[1]]
+    controls = initial_controls(switches, temperatures.max(), temperatures.min())
     default_ambient, default_table = problem.ambient_temperature, float(p[H_AMBIENT_TABLE])
     t = 0.0
     for seg in range(plan.n_segments):
@@ -258,6 +287,8 @@ def _walk(plan: MissionPlan, problem: Problem, p: np.ndarray, kernels: Kernels, 
             if fired is None:
                 break
             event = {"time_s": t, "event": EVENT_NAMES[fired], "segment": seg, "origin": plan.origins[seg]}
+            if problem.resolved is not None and fired in CELL_OF_EVENT:
+                event["cell"] = int(kernels.algebraics(y)[CELL_OF_EVENT[fired]])
             run.events.append(event)
             action = EVENT_ACTION[fired]
             if action == ACTION_TOGGLE:

@@ -10,14 +10,24 @@ header holds. :func:`describe` prints a vector by name. The block formats have
 their writers (``*_block``) and their in-place readers (jitted, used by the
 kernels) side by side, so a format is defined in one place.
 
-State vector of one scenario (SI units)::
+State vector of one scenario (SI units): ``n_cells`` cell blocks of
+``b = 2 + n_rc`` states, then the sink and coolant nodes and the quadratures::
 
-    y[0]                   z      state of charge [-]
-    y[1 : 1 + n_rc]        v_k    RC-pair voltages of one cell [V]
-    y[1 + n_rc]            Tc     lumped cell temperature [K]
-    y[2 + n_rc]            Ts     heat-sink node temperature [K]
-    y[3 + n_rc]            Tf     coolant node temperature [K] (constant without a coolant mass)
-    y[4 + n_rc : ...]      the running integrals of :data:`QUADRATURES` [J, C]
+    y[c b]                     z      state of charge of cell c [-]
+    y[c b + 1 : c b + 1 + n_rc] v_k   its RC-pair voltages [V]
+    y[c b + 1 + n_rc]          Tc     its temperature [K]
+    y[n_cells b]               Ts     heat-sink node temperature [K]
+    y[n_cells b + 1]           Tf     coolant node temperature [K] (constant without a coolant mass)
+    y[n_cells b + 2 : ...]     the running integrals of :data:`QUADRATURES` [J, C]
+
+A lumped pack (identical cells in one node, the default) is one cell block:
+``z, v_1 .. v_n, Tc, Ts, Tf``. A resolved pack (every cell its own states,
+:class:`thermoelec.physics.pack.ResolvedPack`) has one block per cell, numbered
+group by group, and its parameter vector carries a cell table (one record of
+:data:`CELL_FIELDS` plus ``n_rc`` RC factors per cell), the neighbour list, the
+coolant path and a work block the resolved kernel writes its per-cell
+intermediate values into (currents, heats, group voltages: the per-cell outputs
+of the last evaluation).
 
 This module imports nothing of the engine but the event registry (for the number,
 names and thermostat codes of the root functions), and of physics only the table
@@ -32,13 +42,26 @@ from dataclasses import dataclass
 import numba
 import numpy as np
 
-from thermoelec.engine.events import CONTROL_EVENTS, EVENT_NAMES, N_EVENTS
+from thermoelec.engine.events import (
+    CONTROL_EVENTS,
+    EV_FAN,
+    EV_HEATER,
+    EV_PUMP,
+    EV_SOC_EMPTY,
+    EV_SOC_FULL,
+    EV_TEMPERATURE,
+    EV_VOLTAGE_MAX,
+    EV_VOLTAGE_MIN,
+    EVENT_NAMES,
+    N_EVENTS,
+)
 from thermoelec.physics.cell import arrhenius_factor
 from thermoelec.physics.tables import bilinear_at, bracket_at
 
-__all__ = ["ALGEBRAICS", "ALGEBRAIC_NAMES", "HEADER_SLOTS", "QUADRATURES", "Slot", "cell_temperature_index",
-           "coolant_temperature_index", "describe", "law_block", "n_dynamic", "n_states", "quadrature_index",
-           "sink_temperature_index"]
+__all__ = ["ALGEBRAICS", "ALGEBRAIC_NAMES", "CELL_FIELDS", "CELL_OF_EVENT", "HEADER_SLOTS", "QUADRATURES",
+           "WORK_FIELDS", "Slot", "cell_block_size", "cell_record_width", "cell_state_indices",
+           "cell_temperature_index", "coolant_temperature_index", "describe", "law_block", "n_dynamic", "n_states",
+           "quadrature_index", "sink_temperature_index", "soc_index", "work_size"]
 
 # The block readers are inlined into the kernels that call them (a call between compiled
 # functions is not inlined by numba, and a right-hand side reads six blocks).
@@ -74,58 +97,8 @@ class _Declaration:
 
 # ---- states ---------------------------------------------------------------------------------
 
-def n_dynamic(n_rc: int) -> int:
-    """Number of dynamic (non-quadrature) states for ``n_rc`` RC pairs.
-
-    SoC, the ``n_rc`` RC voltages and the cell, sink and coolant temperatures.
-
-    Parameters
-    ----------
-    n_rc : int
-        Number of RC pairs of the cell [-].
-
-    Returns
-    -------
-    int
-        ``4 + n_rc`` [-].
-    """
-    return 4 + n_rc
-
-
-def n_states(n_rc: int) -> int:
-    """Number of states for ``n_rc`` RC pairs: dynamic states plus quadratures.
-
-    Parameters
-    ----------
-    n_rc : int
-        Number of RC pairs of the cell [-].
-
-    Returns
-    -------
-    int
-        :func:`n_dynamic` plus the number of :data:`QUADRATURES` [-].
-    """
-    return n_dynamic(n_rc) + N_QUADRATURES
-
-
-def cell_temperature_index(n_rc: int) -> int:
-    """Index of the cell temperature in the state vector.
-
-    Parameters
-    ----------
-    n_rc : int
-        Number of RC pairs of the cell [-].
-
-    Returns
-    -------
-    int
-        ``1 + n_rc`` [-].
-    """
-    return 1 + n_rc
-
-
-def sink_temperature_index(n_rc: int) -> int:
-    """Index of the sink temperature in the state vector.
+def cell_block_size(n_rc: int) -> int:
+    """Number of states of one cell block: its SoC, ``n_rc`` RC voltages and its temperature.
 
     Parameters
     ----------
@@ -140,23 +113,118 @@ def sink_temperature_index(n_rc: int) -> int:
     return 2 + n_rc
 
 
-def coolant_temperature_index(n_rc: int) -> int:
+def n_dynamic(n_rc: int, n_cells: int = 1) -> int:
+    """Number of dynamic (non-quadrature) states for ``n_rc`` RC pairs and ``n_cells`` cell blocks.
+
+    The cell blocks (SoC, the ``n_rc`` RC voltages and the temperature of each),
+    then the sink and coolant temperatures.
+
+    Parameters
+    ----------
+    n_rc : int
+        Number of RC pairs of the cell [-].
+    n_cells : int
+        Number of cell blocks: 1 for a lumped pack [-].
+
+    Returns
+    -------
+    int
+        ``n_cells (2 + n_rc) + 2``, ``4 + n_rc`` for a lumped pack [-].
+    """
+    return n_cells * cell_block_size(n_rc) + 2
+
+
+def n_states(n_rc: int, n_cells: int = 1) -> int:
+    """Number of states for ``n_rc`` RC pairs and ``n_cells`` cell blocks: dynamic states plus quadratures.
+
+    Parameters
+    ----------
+    n_rc : int
+        Number of RC pairs of the cell [-].
+    n_cells : int
+        Number of cell blocks: 1 for a lumped pack [-].
+
+    Returns
+    -------
+    int
+        :func:`n_dynamic` plus the number of :data:`QUADRATURES` [-].
+    """
+    return n_dynamic(n_rc, n_cells) + N_QUADRATURES
+
+
+def soc_index(n_rc: int, cell: int = 0) -> int:
+    """Index of a cell's state of charge in the state vector.
+
+    Parameters
+    ----------
+    n_rc : int
+        Number of RC pairs of the cell [-].
+    cell : int
+        The cell block, from 0 [-].
+
+    Returns
+    -------
+    int
+        ``cell (2 + n_rc)`` [-].
+    """
+    return cell * cell_block_size(n_rc)
+
+
+def cell_temperature_index(n_rc: int, cell: int = 0) -> int:
+    """Index of a cell's temperature in the state vector (the lumped cell temperature for ``cell = 0``).
+
+    Parameters
+    ----------
+    n_rc : int
+        Number of RC pairs of the cell [-].
+    cell : int
+        The cell block, from 0 [-].
+
+    Returns
+    -------
+    int
+        ``cell (2 + n_rc) + 1 + n_rc`` [-].
+    """
+    return cell * cell_block_size(n_rc) + 1 + n_rc
+
+
+def sink_temperature_index(n_rc: int, n_cells: int = 1) -> int:
+    """Index of the sink temperature in the state vector.
+
+    Parameters
+    ----------
+    n_rc : int
+        Number of RC pairs of the cell [-].
+    n_cells : int
+        Number of cell blocks: 1 for a lumped pack [-].
+
+    Returns
+    -------
+    int
+        ``n_cells (2 + n_rc)``, ``2 + n_rc`` for a lumped pack [-].
+    """
+    return n_cells * cell_block_size(n_rc)
+
+
+def coolant_temperature_index(n_rc: int, n_cells: int = 1) -> int:
     """Index of the coolant node temperature in the state vector.
 
     Parameters
     ----------
     n_rc : int
         Number of RC pairs of the cell [-].
+    n_cells : int
+        Number of cell blocks: 1 for a lumped pack [-].
 
     Returns
     -------
     int
-        ``3 + n_rc`` [-].
+        ``n_cells (2 + n_rc) + 1``, ``3 + n_rc`` for a lumped pack [-].
     """
-    return 3 + n_rc
+    return n_cells * cell_block_size(n_rc) + 1
 
 
-def quadrature_index(n_rc: int) -> int:
+def quadrature_index(n_rc: int, n_cells: int = 1) -> int:
     """Index of the first quadrature in the state vector.
 
     The quadratures follow in the order of :data:`QUADRATURES` (offsets ``Q_*``).
@@ -165,13 +233,36 @@ def quadrature_index(n_rc: int) -> int:
     ----------
     n_rc : int
         Number of RC pairs of the cell [-].
+    n_cells : int
+        Number of cell blocks: 1 for a lumped pack [-].
 
     Returns
     -------
     int
-        ``4 + n_rc`` [-].
+        ``n_cells (2 + n_rc) + 2``, ``4 + n_rc`` for a lumped pack [-].
     """
-    return 4 + n_rc
+    return n_cells * cell_block_size(n_rc) + 2
+
+
+def cell_state_indices(n_rc: int, n_cells: int) -> tuple[np.ndarray, np.ndarray]:
+    """Indices of every cell's SoC and temperature in the state vector.
+
+    Parameters
+    ----------
+    n_rc : int
+        Number of RC pairs of the cell [-].
+    n_cells : int
+        Number of cell blocks [-].
+
+    Returns
+    -------
+    soc : int64 array, shape (n_cells,)
+        Index of each cell's SoC [-].
+    temperature : int64 array, shape (n_cells,)
+        Index of each cell's temperature [-].
+    """
+    soc = np.arange(n_cells, dtype=np.int64) * cell_block_size(n_rc)
+    return soc, soc + 1 + n_rc
 
 
 # ---- quadratures: running integrals, offsets after the dynamic states ----------------------------
@@ -216,6 +307,24 @@ A_REYNOLDS = _algebraics.slot("reynolds", "1", "Reynolds number of the air flow 
 A_RAYLEIGH = _algebraics.slot("rayleigh", "1", "Rayleigh number of free convection at the sink")
 A_AUXILIARY = _algebraics.slot("auxiliary", "W", "power the running auxiliaries draw at the pack terminals (0 while "
                                "a held terminal voltage feeds them)")
+# the extremes over the cells (of the one cell of a lumped pack): the root functions read these
+A_CELL_VOLTAGE_HIGH = _algebraics.slot("cell_voltage_high", "V", "highest cell terminal voltage")
+A_TEMPERATURE_HIGH = _algebraics.slot("cell_temperature_high", "K", "temperature of the hottest cell")
+A_TEMPERATURE_LOW = _algebraics.slot("cell_temperature_low", "K", "temperature of the coldest cell")
+A_TEMPERATURE_MEAN = _algebraics.slot("cell_temperature_mean", "K", "mean cell temperature")
+A_SOC = _algebraics.slot("soc", "1", "state of charge of the pack (capacity-weighted mean over the cells)")
+A_SOC_LOW = _algebraics.slot("soc_low", "1", "lowest cell state of charge")
+A_SOC_HIGH = _algebraics.slot("soc_high", "1", "highest cell state of charge")
+A_CURRENT_SHARE = _algebraics.slot("current_share", "1",
+                                   "largest cell current over its group's mean, I_i Np / I (1 when lumped)")
+# which cell holds each extreme (numbered from 0; 0 for a lumped pack)
+A_CELL_LOW_VOLTAGE = _algebraics.slot("cell_low_voltage", "-", "a cell of the group with the lowest voltage")
+A_CELL_HIGH_VOLTAGE = _algebraics.slot("cell_high_voltage", "-", "a cell of the group with the highest voltage")
+A_CELL_HOT = _algebraics.slot("cell_hot", "-", "the hottest cell")
+A_CELL_COLD = _algebraics.slot("cell_cold", "-", "the coldest cell")
+A_CELL_SOC_LOW = _algebraics.slot("cell_soc_low", "-", "the cell with the lowest SoC")
+A_CELL_SOC_HIGH = _algebraics.slot("cell_soc_high", "-", "the cell with the highest SoC")
+A_CELL_SHARE = _algebraics.slot("cell_share", "-", "the cell with the largest current share")
 N_ALGEBRAICS = _algebraics.size
 ALGEBRAICS: tuple[Slot, ...] = tuple(_algebraics.slots)
 ALGEBRAIC_NAMES: tuple[str, ...] = tuple(slot.name for slot in ALGEBRAICS)
@@ -265,6 +374,12 @@ H_HEATER_POWER = _header.slot("heater_power", "W", "heater power")
 H_HEATER_FROM_PACK = _header.slot("heater_from_pack", "-", "1 when the pack feeds the heater")
 H_FAN_POWER = _header.slot("fan_power", "W", "electrical power of the fan while on, from the pack")
 H_PUMP_POWER = _header.slot("pump_power", "W", "electrical power of the pump while the coolant flows, from the pack")
+# a resolved pack (0 offsets for a lumped one)
+H_NCELLS = _header.slot("cells", "-", "cell blocks in the state vector (1 for a lumped pack)")
+H_CELLS = _header.slot("cell_table", "-", "offset of the cell table, 0 for a lumped pack")
+H_EDGES = _header.slot("neighbour_list", "-", "offset of the neighbour list (resolved pack)")
+H_PATH = _header.slot("coolant_path", "-", "offset of the coolant path, 0: the coolant cools the sink node")
+H_WORK = _header.slot("work_block", "-", "offset of the work block the resolved kernel writes (resolved pack)")
 # root functions of the phase (events.EVENTS order)
 H_ACTIVE = _header.slot("active", "-", "root-function activity flags", N_EVENTS)
 H_THRESHOLD = _header.slot("threshold", "V|K|A|-", "root-function thresholds", N_EVENTS)
@@ -275,6 +390,85 @@ CONTROL_FLAG_OF = (H_FAN_ON, H_HEATER_ON, H_PUMP_ON)
 if len(CONTROL_FLAG_OF) != len(CONTROL_EVENTS) or CONTROL_EVENTS != tuple(range(CONTROL_EVENTS[0],
                                                                                  CONTROL_EVENTS[0] + 3)):
     raise ImportError("the thermostat events must be fan, heater, pump, one after the other")
+
+#: The root function whose cell is reported (the algebraic output that names it), by event code:
+#: a voltage limit names a cell of the group at the limit, the temperature limit the hottest cell,
+#: the SoC limits the emptiest or fullest cell, a thermostat the cell it senses.
+CELL_OF_EVENT: dict[int, int] = {EV_VOLTAGE_MIN: A_CELL_LOW_VOLTAGE, EV_VOLTAGE_MAX: A_CELL_HIGH_VOLTAGE,
+                                 EV_TEMPERATURE: A_CELL_HOT, EV_SOC_EMPTY: A_CELL_SOC_LOW,
+                                 EV_SOC_FULL: A_CELL_SOC_HIGH, EV_FAN: A_CELL_HOT, EV_HEATER: A_CELL_COLD,
+                                 EV_PUMP: A_CELL_HOT}
+
+#: :data:`CELL_OF_EVENT` as an array for the kernels: the algebraic slot naming the cell, -1 for none.
+EVENT_CELL_SLOT = np.array([CELL_OF_EVENT.get(k, -1) for k in range(N_EVENTS)], dtype=np.int64)
+
+# ---- the resolved pack's blocks: the cell table, the work block, the neighbour list, the coolant path --
+# Cell table: one record per cell, these fields then the factor of each RC pair's resistance.
+_cell_fields = _Declaration()
+CELL_GROUP = _cell_fields.slot("group", "-", "parallel group of the cell, from 0")
+CELL_CAPACITY = _cell_fields.slot("capacity", "C", "capacity of the cell")
+CELL_R0_FACTOR = _cell_fields.slot("r0_factor", "-", "series resistance over the nominal law")
+CELL_TAB = _cell_fields.slot("tab_resistance", "ohm", "resistance added in the cell's branch")
+CELL_HEAT_CAPACITY = _cell_fields.slot("heat_capacity", "J/K", "heat capacity of the cell")
+CELL_SINK = _cell_fields.slot("cell_to_sink", "W/K", "conductance cell to sink node")
+CELL_AMBIENT = _cell_fields.slot("cell_to_ambient", "W/K", "conductance cell to ambient")
+CELL_PLATE = _cell_fields.slot("segment_effectiveness", "-", "effectiveness of the cell's coolant segment")
+CELL_HEATER = _cell_fields.slot("heater_share", "-", "share of the heater power the cell receives")
+CELL_RC = _cell_fields.slot("rc_factor", "-", "resistance factor of the first RC pair (one slot per pair)")
+CELL_FIELDS: tuple[Slot, ...] = tuple(_cell_fields.slots)
+# Work block: per cell these values of the last evaluation, then per group its two sums.
+_work_fields = _Declaration()
+W_CURRENT = _work_fields.slot("current", "A", "cell current, > 0 discharging")
+W_EMF = _work_fields.slot("emf", "V", "cell source voltage, OCV minus its RC voltages")
+W_RESISTANCE = _work_fields.slot("resistance", "ohm", "cell series resistance (tab included)")
+W_OCV = _work_fields.slot("ocv", "V", "cell open-circuit voltage")
+W_ENTROPIC = _work_fields.slot("entropic", "V/K", "cell entropic coefficient")
+W_HEAT = _work_fields.slot("heat", "W", "heat generated in the cell (Bernardi)")
+W_VOLTAGE = _work_fields.slot("voltage", "V", "terminal voltage of the cell's group")
+W_COOLANT = _work_fields.slot("coolant", "K", "coolant temperature entering the cell's segment")
+W_TO_COOLANT = _work_fields.slot("to_coolant", "W", "heat from the cell into the coolant")
+WORK_WIDTH = _work_fields.size
+WORK_FIELDS: tuple[Slot, ...] = tuple(_work_fields.slots)
+#: Per group after the cells' work: ``sum E_i / R_i`` [A], ``sum 1 / R_i`` [S] and its terminal voltage [V].
+GROUP_WEIGHTED, GROUP_CONDUCTANCE, GROUP_VOLTAGE, GROUP_WIDTH = 0, 1, 2, 3
+# neighbour list: [m, (i, j, G) per pair] [-, -, W/K]; coolant path: [k, cell per station] [-]
+EDGE_N, EDGE_FIRST, EDGE_WIDTH = 0, 1, 3
+PATH_N, PATH_FIRST = 0, 1
+
+
+def cell_record_width(n_rc: int) -> int:
+    """Length of one record of the cell table: :data:`CELL_FIELDS` with one RC factor per pair.
+
+    Parameters
+    ----------
+    n_rc : int
+        Number of RC pairs of the cell [-].
+
+    Returns
+    -------
+    int
+        ``CELL_RC + n_rc`` [-].
+    """
+    return CELL_RC + n_rc
+
+
+def work_size(n_cells: int, series: int) -> int:
+    """Length of the work block of a resolved pack.
+
+    Parameters
+    ----------
+    n_cells : int
+        Number of cells [-].
+    series : int
+        Number of groups in series [-].
+
+    Returns
+    -------
+    int
+        ``n_cells WORK_WIDTH + series GROUP_WIDTH`` [-].
+    """
+    return n_cells * WORK_WIDTH + series * GROUP_WIDTH
+
 
 # ---- blocks after the header: formats, writers and in-place readers ------------------------------
 # OCV block: [n, T_ref, soc[n], voltage[n], entropic[n]]
@@ -579,4 +773,30 @@ def describe(p: np.ndarray) -> str:
     if table:
         n = int(p[table + AMBIENT_N])
         lines.append(f"ambient profile at {table}: {n} points over {p[table + 1]:g}..{p[table + n]:g} s")
+    if p[H_CELLS]:
+        lines += _resolved_text(p)
     return "\n".join(lines)
+
+
+def _resolved_text(p: np.ndarray) -> list[str]:
+    """The cell table, neighbour list and coolant path of a resolved pack, one line per cell."""
+    n, nrc = int(p[H_NCELLS]), int(p[H_NRC])
+    width, table = cell_record_width(nrc), int(p[H_CELLS])
+    lines = [f"cell table at {table}: {n} cells, {width} slots each "
+             f"({', '.join(f'{f.name} [{f.unit}]' for f in CELL_FIELDS)} per pair)"]
+    for c in range(n):
+        record = p[table + c * width: table + (c + 1) * width]
+        lines.append(f"    cell {c + 1:4d}: " + ", ".join(f"{value:.6g}" for value in record))
+    edges = int(p[H_EDGES])
+    m = int(p[edges + EDGE_N])
+    lines.append(f"neighbour list at {edges}: {m} pairs (cell, cell, W/K): "
+                 + "; ".join(f"{int(p[e]) + 1}-{int(p[e + 1]) + 1} {p[e + 2]:.4g}"
+                             for e in range(edges + EDGE_FIRST, edges + EDGE_FIRST + EDGE_WIDTH * m, EDGE_WIDTH)))
+    path = int(p[H_PATH])
+    if path:
+        k = int(p[path + PATH_N])
+        cells = [int(x) + 1 for x in p[path + PATH_FIRST: path + PATH_FIRST + k]]
+        lines.append(f"coolant path at {path}: {k} cells in flow order {cells}")
+    lines.append(f"work block at {int(p[H_WORK])}: {WORK_WIDTH} slots per cell "
+                 f"({', '.join(f.name for f in WORK_FIELDS)}), then {GROUP_WIDTH} per group")
+    return lines

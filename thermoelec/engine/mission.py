@@ -278,28 +278,33 @@ def thermostat_switches(problem: Problem) -> np.ndarray:
     return rows
 
 
-def initial_controls(switches: np.ndarray, cell_temperature: float) -> np.ndarray:
-    """Whether each thermostat starts on: already past its on threshold at ``cell_temperature``.
+def initial_controls(switches: np.ndarray, cell_temperature: float, coldest: float | None = None) -> np.ndarray:
+    """Whether each thermostat starts on: already past its on threshold at the cell temperature it senses.
 
     A heating switch (``on_at < off_at``) is on at or below its on threshold, a
     cooling one at or above it (:meth:`thermoelec.physics.thermal.Switch.initially_on`).
+    In a resolved pack a cooling switch senses the hottest cell, a heating one the
+    coldest (as the root functions do, :func:`thermoelec.engine.model.roots_from`).
 
     Parameters
     ----------
     switches : float64 array, shape (3, 3)
         Rows ``(present, on_at, off_at)`` of :func:`thermostat_switches` [-, K, K].
     cell_temperature : float
-        Cell temperature at the start [K].
+        Cell temperature at the start (of the hottest cell) [K].
+    coldest : float, optional
+        Temperature of the coldest cell at the start (default ``cell_temperature``) [K].
 
     Returns
     -------
     bool array, shape (3,)
         True for each thermostat that starts on [-]; an absent one is False.
     """
+    coldest = cell_temperature if coldest is None else coldest
     on = np.zeros(len(switches), dtype=np.bool_)
     for c, (present, on_at, off_at) in enumerate(switches):
         if present:
-            on[c] = cell_temperature <= on_at if on_at < off_at else cell_temperature >= on_at
+            on[c] = coldest <= on_at if on_at < off_at else cell_temperature >= on_at
     return on
 
 
@@ -374,7 +379,7 @@ def soak_problem(problem: Problem) -> Problem | None:
     return replace(problem, segments=problem.soak, soak=())
 
 
-def start_after_soak(state: np.ndarray, n_rc: int) -> np.ndarray:
+def start_after_soak(state: np.ndarray, n_rc: int, n_cells: int = 1) -> np.ndarray:
     """The mission's initial state from a soak's end state: the same states, the integrals reset.
 
     Parameters
@@ -383,6 +388,8 @@ def start_after_soak(state: np.ndarray, n_rc: int) -> np.ndarray:
         State at the end of the soak (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
     n_rc : int
         Number of RC pairs of the cell [-].
+    n_cells : int
+        Number of cell blocks: 1 for a lumped pack [-].
 
     Returns
     -------
@@ -390,5 +397,5 @@ def start_after_soak(state: np.ndarray, n_rc: int) -> np.ndarray:
         A copy with the quadratures set to zero [-, V, K, J, C].
     """
     start = np.array(state, dtype=float)
-    start[quadrature_index(n_rc):] = 0.0
+    start[quadrature_index(n_rc, n_cells):] = 0.0
     return start

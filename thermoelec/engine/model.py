@@ -55,10 +55,14 @@ from thermoelec.engine.events import (
 from thermoelec.engine.layout import (
     A_AMBIENT,
     A_AUXILIARY,
+    A_CELL_LOW_VOLTAGE,
+    A_CELL_SHARE,
     A_CELL_VOLTAGE,
+    A_CELL_VOLTAGE_HIGH,
     A_COOLANT,
     A_COOLANT_OUTLET,
     A_CURRENT,
+    A_CURRENT_SHARE,
     A_EMF,
     A_ENTROPIC,
     A_HEAT,
@@ -73,7 +77,14 @@ from thermoelec.engine.layout import (
     A_REVERSIBLE,
     A_REYNOLDS,
     A_SINK_CONDUCTANCE,
+    A_SOC,
+    A_SOC_HIGH,
+    A_SOC_LOW,
+    A_TEMPERATURE_HIGH,
+    A_TEMPERATURE_LOW,
+    A_TEMPERATURE_MEAN,
     A_VOLTAGE,
+    CELL_RC,
     CONTROL_FLAG_OF,
     H_ACTIVE,
     H_AIR_SPEED,
@@ -81,6 +92,7 @@ from thermoelec.engine.layout import (
     H_AMBIENT_TABLE,
     H_CAPACITY,
     H_CCELL,
+    H_CELLS,
     H_CONV_AREA,
     H_CONV_LENGTH,
     H_COOL_C,
@@ -103,6 +115,7 @@ from thermoelec.engine.layout import (
     H_HEATER_POWER,
     H_MODE,
     H_NATURAL,
+    H_NCELLS,
     H_NP,
     H_NRC,
     H_NS,
@@ -117,6 +130,7 @@ from thermoelec.engine.layout import (
     H_THRESHOLD,
     H_TIME,
     H_VALUE,
+    H_WORK,
     LAW_EA,
     LAW_NT,
     LAW_REFERENCE,
@@ -136,17 +150,20 @@ from thermoelec.engine.layout import (
     RC_KIND,
     RC_LAW,
     RC_VALUE,
+    W_CURRENT,
+    WORK_WIDTH,
     ambient_at,
     law_value,
     ocv_at,
     rc_length,
 )
+from thermoelec.engine.resolved import evaluate_pack
 from thermoelec.physics import cell as cellphys
 from thermoelec.physics import correlations
 from thermoelec.physics import thermal as thermphys
 from thermoelec.physics.loads import MODE_POWER, MODE_VOLTAGE, auxiliary_power, pack_current, power_deliverable_margin
 
-__all__ = ["Kernels", "evaluate", "evaluate_rows", "roots", "trajectory_algebraics"]
+__all__ = ["Kernels", "evaluate", "evaluate_any", "evaluate_rows", "roots", "trajectory_algebraics"]
 
 _jit = numba.njit(cache=True, nogil=True, error_model="numpy")
 # Small pieces of the right-hand side are inlined into their callers: a call between two
@@ -333,6 +350,41 @@ def evaluate(y, p, ydot, alg):
     alg[A_REYNOLDS] = reynolds
     alg[A_RAYLEIGH] = rayleigh
     alg[A_AUXILIARY] = 0.0 if mode == MODE_VOLTAGE else aux
+    # the extremes over the cells the root functions read: the one cell's values
+    alg[A_CELL_VOLTAGE_HIGH] = vcell
+    alg[A_TEMPERATURE_HIGH] = tc
+    alg[A_TEMPERATURE_LOW] = tc
+    alg[A_TEMPERATURE_MEAN] = tc
+    alg[A_SOC] = z
+    alg[A_SOC_LOW] = z
+    alg[A_SOC_HIGH] = z
+    alg[A_CURRENT_SHARE] = 1.0
+    for k in range(A_CELL_LOW_VOLTAGE, A_CELL_SHARE + 1):
+        alg[k] = 0.0
+
+
+@_inline
+def evaluate_any(y, p, ydot, alg):
+    """:func:`evaluate` for a lumped pack, :func:`thermoelec.engine.resolved.evaluate_pack` for a resolved one.
+
+    Inlined into every kernel that evaluates the right-hand side; the branch reads
+    the cell-table slot of ``p`` (0 for a lumped pack).
+
+    Parameters
+    ----------
+    y : float64 array, shape (n_states,)
+        State (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
+    p : float64 array
+        Parameter vector with the phase written in [SI, unit per slot].
+    ydot : float64 array, shape (n_states,)
+        Written: ``dy/dt`` [1/s, V/s, K/s, W, A].
+    alg : float64 array, shape (N_ALGEBRAICS,)
+        Written: the algebraic outputs ``A_*`` [A, V, Ω, W, K, ... unit per slot].
+    """
+    if p[H_CELLS] != 0.0:
+        evaluate_pack(y, p, ydot, alg)
+    else:
+        evaluate(y, p, ydot, alg)
 
 
 @_jit
@@ -353,7 +405,7 @@ def rhs(y, ydot, p, alg):
     alg : float64 array, shape (N_ALGEBRAICS,)
         Written: the algebraic outputs at ``y`` [A, V, Ω, W, K, ... unit per slot].
     """
-    evaluate(y, p, ydot, alg)
+    evaluate_any(y, p, ydot, alg)
 
 
 @_jit
@@ -376,7 +428,7 @@ def roots(y, g, p, alg, scratch):
     scratch : float64 array, shape (n_states,)
         Work array for ``dy/dt`` [1/s, V/s, K/s, W, A].
     """
-    evaluate(y, p, scratch, alg)
+    evaluate_any(y, p, scratch, alg)
     roots_from(y, g, p, alg)
 
 
@@ -387,9 +439,13 @@ def roots_from(y, g, p, alg):
     Each active function is the signed distance to its threshold, positive on the
     safe side: ``V_cell - V_min`` for ``voltage_min``, ``T_max - T_c`` for
     ``temperature_max``, the margin ``E² - 4 R P`` for the power limit, ``|I| - I_cutoff``
-    for the CV cutoff. An inactive one reads 1, so it never fires. A thermostat's
+    for the CV cutoff. The cell limits read the extremes over the cells (of the
+    one cell of a lumped pack): the lowest and highest cell voltage, the hottest
+    cell, the emptiest and fullest cell; a segment's SoC end conditions read the
+    pack's SoC. An inactive one reads 1, so it never fires. A thermostat's
     function measures the distance to the threshold it switches at next, in the
-    direction it waits for.
+    direction it waits for: the heater senses the coldest cell, the fan and the
+    pump the hottest.
 
     Parameters
     ----------
@@ -403,9 +459,7 @@ def roots_from(y, g, p, alg):
     alg : float64 array, shape (N_ALGEBRAICS,)
         The algebraic outputs at ``y``, read [A, V, Ω, W, K, ... unit per slot].
     """
-    nrc = int(p[H_NRC])
-    z = y[0]
-    vcell = alg[A_CELL_VOLTAGE]
+    z = alg[A_SOC]
     voltage = alg[A_VOLTAGE]
     for k in range(N_EVENTS):
         if p[H_ACTIVE + k] == 0.0:
@@ -413,17 +467,17 @@ def roots_from(y, g, p, alg):
             continue
         thr = p[H_THRESHOLD + k]
         if k == EV_VOLTAGE_MIN:
-            g[k] = vcell - thr
+            g[k] = alg[A_CELL_VOLTAGE] - thr
         elif k == EV_VOLTAGE_MAX:
-            g[k] = thr - vcell
+            g[k] = thr - alg[A_CELL_VOLTAGE_HIGH]
         elif k == EV_POWER:
             g[k] = alg[A_POWER_MARGIN]
         elif k == EV_TEMPERATURE:
-            g[k] = thr - y[1 + nrc]
+            g[k] = thr - alg[A_TEMPERATURE_HIGH]
         elif k == EV_SOC_EMPTY:
-            g[k] = z - thr
+            g[k] = alg[A_SOC_LOW] - thr
         elif k == EV_SOC_FULL:
-            g[k] = thr - z
+            g[k] = thr - alg[A_SOC_HIGH]
         elif k == EV_CV_SWITCH:
             g[k] = thr - voltage
         elif k == EV_CV_CUTOFF:
@@ -440,8 +494,10 @@ def roots_from(y, g, p, alg):
             # a thermostat: the threshold is the one it switches at next; a cooling
             # switch (fan, pump) that is off and a heater that is on wait for the
             # temperature to rise to it, the others for it to fall
+            # (the heater senses the coldest cell, the fan and the pump the hottest)
             rising = (p[CONTROL_FLAG_OF[k - EV_FAN]] == 1.0) == (k == EV_HEATER)
-            g[k] = thr - y[1 + nrc] if rising else y[1 + nrc] - thr
+            sensed = alg[A_TEMPERATURE_LOW] if k == EV_HEATER else alg[A_TEMPERATURE_HIGH]
+            g[k] = thr - sensed if rising else sensed - thr
 
 
 @_jit
@@ -449,7 +505,7 @@ def jacobian(y, jac, p, alg, f0, f1, yy):
     """Forward-difference Jacobian ``df/dy`` into ``jac`` (dense, row = equation).
 
     The quadrature columns are zero (nothing depends on a running integral), so
-    only the ``4 + n_rc`` dynamic columns are differenced. Step
+    only the dynamic columns (:func:`thermoelec.engine.layout.n_dynamic`) are differenced. Step
     ``sqrt(eps) * max(|y_j|, 1)``, with ``eps`` the float64 machine epsilon, as in
     Dennis & Schnabel §5.4: it balances the truncation error of the difference
     against the rounding error of ``f``.
@@ -477,8 +533,8 @@ def jacobian(y, jac, p, alg, f0, f1, yy):
     and Nonlinear Equations*, Prentice-Hall (1983), §5.4.
     """
     n = y.shape[0]
-    ndyn = 4 + int(p[H_NRC])
-    evaluate(y, p, f0, alg)
+    ndyn = int(p[H_NCELLS]) * (2 + int(p[H_NRC])) + 2  # layout.n_dynamic
+    evaluate_any(y, p, f0, alg)
     for i in range(n):
         yy[i] = y[i]
     for j in range(n):
@@ -487,7 +543,7 @@ def jacobian(y, jac, p, alg, f0, f1, yy):
     for j in range(ndyn):
         h = 1.4901161193847656e-08 * max(abs(y[j]), 1.0)
         yy[j] = y[j] + h
-        evaluate(yy, p, f1, alg)
+        evaluate_any(yy, p, f1, alg)
         yy[j] = y[j]
         for i in range(n):
             jac[i, j] = (f1[i] - f0[i]) / h
@@ -542,7 +598,7 @@ def diagonal_newton_contraction(y, p, alg, f0, f1, yy, jac, gamma):
     equation solvers", ACM TOMS 31 (2005) 363.
     """
     jacobian(y, jac, p, alg, f0, f1, yy)
-    ndyn = 4 + int(p[H_NRC])
+    ndyn = int(p[H_NCELLS]) * (2 + int(p[H_NRC])) + 2  # layout.n_dynamic
     worst = 0.0
     for i in range(ndyn):
         off = 0.0
@@ -565,23 +621,25 @@ def diagonal_newton_contraction(y, p, alg, f0, f1, yy, jac, gamma):
 # equation and root function is unchanged, but w_k starts at zero with zero slope and
 # stays small and smooth. After a restart the integrator no longer creeps up the fast
 # exponential from a tiny first step; its step is set by the slow states.
-# Base vector: [t_0, (v_0, v_inf, tau) per pair].
+# Base vector: [t_0, (state index, v_0, v_inf, tau) per pair of every cell].
 
 
-def rc_base_size(n_rc: int) -> int:
-    """Length of the RC base vector ``[t_0, (v_0, v_inf, tau) per pair]`` for ``n_rc`` pairs.
+def rc_base_size(n_rc: int, n_cells: int = 1) -> int:
+    """Length of the RC base vector ``[t_0, (index, v_0, v_inf, tau) per pair of every cell]``.
 
     Parameters
     ----------
     n_rc : int
         Number of RC pairs of the cell [-].
+    n_cells : int
+        Number of cell blocks: 1 for a lumped pack [-].
 
     Returns
     -------
     int
-        ``1 + 3 n_rc`` [-].
+        ``1 + 4 n_rc n_cells`` [-].
     """
-    return 1 + 3 * n_rc
+    return 1 + 4 * n_rc * n_cells
 
 
 @_jit
@@ -593,7 +651,8 @@ def rc_base_setup(y, p, alg, scratch, t0, base):
     towards ``v_inf = R_k I_cell``, ``tau_k = R_k C_k`` (the zero-order-hold response
     of Plett's discrete-time form). Where ``tau`` is not positive and finite, or the
     current not finite, the pair gets ``tau = 0``: ``b(t) = v_0``, a constant shift,
-    still exact.
+    still exact. In a resolved pack each cell's pairs take its own current (from
+    the work block) and resistance factor.
 
     Parameters
     ----------
@@ -607,28 +666,40 @@ def rc_base_setup(y, p, alg, scratch, t0, base):
         Work array for ``dy/dt`` [1/s, V/s, K/s, W, A].
     t0 : float
         Time of the phase start [s].
-    base : float64 array, shape (1 + 3 n_rc,)
-        Written: ``[t_0, (v_0, v_inf, tau) per pair]`` [s, then V, V, s per pair].
+    base : float64 array, shape (1 + 4 n_rc n_cells,)
+        Written: ``[t_0, (index, v_0, v_inf, tau) per pair]`` [s, then -, V, V, s per pair].
 
     References
     ----------
     G. L. Plett, *Battery Management Systems*, Vol. I, Artech House (2015).
     """
-    evaluate(y, p, scratch, alg)
+    evaluate_any(y, p, scratch, alg)
     nrc = int(p[H_NRC])
-    icell = alg[A_CURRENT] / p[H_NP]
-    z = y[0]
-    tc = y[1 + nrc]
+    n = int(p[H_NCELLS])
+    table = int(p[H_CELLS])
+    work = int(p[H_WORK])
     base[0] = t0
-    off = int(p[H_RC])
-    for k in range(nrc):
-        r, cap = _rc_pair(p, off, z, tc)
-        tau = r * cap
-        ok = tau > 0.0 and np.isfinite(tau) and np.isfinite(icell)
-        base[1 + 3 * k] = y[1 + k]
-        base[2 + 3 * k] = r * icell if ok else y[1 + k]
-        base[3 + 3 * k] = tau if ok else 0.0
-        off += rc_length(p, off)
+    for c in range(n):
+        b = c * (2 + nrc)
+        if table == 0:
+            icell = alg[A_CURRENT] / p[H_NP]
+        else:
+            icell = p[work + c * WORK_WIDTH + W_CURRENT]
+        z = y[b]
+        tc = y[b + 1 + nrc]
+        off = int(p[H_RC])
+        for k in range(nrc):
+            r, cap = _rc_pair(p, off, z, tc)
+            if table != 0:
+                r *= p[table + c * (CELL_RC + nrc) + CELL_RC + k]
+            tau = r * cap
+            ok = tau > 0.0 and np.isfinite(tau) and np.isfinite(icell)
+            at = 1 + 4 * (c * nrc + k)
+            base[at] = b + 1 + k
+            base[at + 1] = y[b + 1 + k]
+            base[at + 2] = r * icell if ok else y[b + 1 + k]
+            base[at + 3] = tau if ok else 0.0
+            off += rc_length(p, off)
 
 
 @_jit
@@ -644,8 +715,8 @@ def rc_base_add(w, y, base, t, sign):
         The vector to shift, read [-, V, K, J, C].
     y : float64 array, shape (n_states,)
         Written: the shifted vector [-, V, K, J, C].
-    base : float64 array, shape (1 + 3 n_rc,)
-        RC base vector of :func:`rc_base_setup` [s, then V, V, s per pair].
+    base : float64 array, shape (1 + 4 n_rc n_cells,)
+        RC base vector of :func:`rc_base_setup` [s, then -, V, V, s per pair].
     t : float
         Time at which ``b`` is taken [s].
     sign : float
@@ -654,10 +725,11 @@ def rc_base_add(w, y, base, t, sign):
     for i in range(w.shape[0]):
         y[i] = w[i]
     s = t - base[0]
-    for k in range((base.shape[0] - 1) // 3):
-        v0, v_inf, tau = base[1 + 3 * k], base[2 + 3 * k], base[3 + 3 * k]
+    for k in range((base.shape[0] - 1) // 4):
+        at = 1 + 4 * k
+        i, v0, v_inf, tau = int(base[at]), base[at + 1], base[at + 2], base[at + 3]
         b = v0 if tau == 0.0 else v_inf + (v0 - v_inf) * np.exp(-s / tau)
-        y[1 + k] = w[1 + k] + sign * b
+        y[i] = w[i] + sign * b
 
 
 @_jit
@@ -681,8 +753,8 @@ def shift_phase_start(y0, p, alg, scratch, t0, base, w0, f0, f1, yy, jac, gamma)
         Work array for ``dy/dt`` [1/s, V/s, K/s, W, A].
     t0 : float
         Time of the phase start [s].
-    base : float64 array, shape (1 + 3 n_rc,)
-        Written: the RC base vector [s, then V, V, s per pair].
+    base : float64 array, shape (1 + 4 n_rc n_cells,)
+        Written: the RC base vector [s, then -, V, V, s per pair].
     w0 : float64 array, shape (n_states,)
         Written: the shifted initial state ``y0 - b(t0)`` [-, V, K, J, C].
     f0 : float64 array, shape (n_states,)
@@ -728,8 +800,8 @@ def shifted_rhs(t, w, wdot, p, alg, base, y):
         Parameter vector with the phase written in; its time slot is written [SI, unit per slot].
     alg : float64 array, shape (N_ALGEBRAICS,)
         Written: the algebraic outputs at ``w + b(t)`` [A, V, Ω, W, K, ... unit per slot].
-    base : float64 array, shape (1 + 3 n_rc,)
-        RC base vector of :func:`rc_base_setup` [s, then V, V, s per pair].
+    base : float64 array, shape (1 + 4 n_rc n_cells,)
+        RC base vector of :func:`rc_base_setup` [s, then -, V, V, s per pair].
     y : float64 array, shape (n_states,)
         Written: the state ``w + b(t)`` [-, V, K, J, C].
 
@@ -739,12 +811,13 @@ def shifted_rhs(t, w, wdot, p, alg, base, y):
     """
     p[H_TIME] = t
     rc_base_add(w, y, base, t, 1.0)
-    evaluate(y, p, wdot, alg)
+    evaluate_any(y, p, wdot, alg)
     s = t - base[0]
-    for k in range((base.shape[0] - 1) // 3):
-        v0, v_inf, tau = base[1 + 3 * k], base[2 + 3 * k], base[3 + 3 * k]
+    for k in range((base.shape[0] - 1) // 4):
+        at = 1 + 4 * k
+        i, v0, v_inf, tau = int(base[at]), base[at + 1], base[at + 2], base[at + 3]
         if tau != 0.0:
-            wdot[1 + k] -= (v_inf - v0) / tau * np.exp(-s / tau)
+            wdot[i] -= (v_inf - v0) / tau * np.exp(-s / tau)
 
 
 @_jit
@@ -765,8 +838,8 @@ def shifted_roots(t, w, g, p, alg, scratch, base, y):
         Written: the algebraic outputs at ``w + b(t)`` [A, V, Ω, W, K, ... unit per slot].
     scratch : float64 array, shape (n_states,)
         Work array for ``dy/dt`` [1/s, V/s, K/s, W, A].
-    base : float64 array, shape (1 + 3 n_rc,)
-        RC base vector of :func:`rc_base_setup` [s, then V, V, s per pair].
+    base : float64 array, shape (1 + 4 n_rc n_cells,)
+        RC base vector of :func:`rc_base_setup` [s, then -, V, V, s per pair].
     y : float64 array, shape (n_states,)
         Written: the state ``w + b(t)`` [-, V, K, J, C].
     """
@@ -798,8 +871,8 @@ def shifted_jacobian(t, w, jac, p, alg, f0, f1, yy, base, y):
         Work array for the differenced ``f`` [1/s, V/s, K/s, W, A].
     yy : float64 array, shape (n_states,)
         Work array for the perturbed state [-, V, K, J, C].
-    base : float64 array, shape (1 + 3 n_rc,)
-        RC base vector of :func:`rc_base_setup` [s, then V, V, s per pair].
+    base : float64 array, shape (1 + 4 n_rc n_cells,)
+        RC base vector of :func:`rc_base_setup` [s, then -, V, V, s per pair].
     y : float64 array, shape (n_states,)
         Written: the state ``w + b(t)`` [-, V, K, J, C].
     """
@@ -847,7 +920,7 @@ def start_check(y, p, alg, scratch, g, g_ahead, probe, slack):
     n = y.shape[0]
     roots(y, g, p, alg, scratch)
     yy = np.empty(n)
-    evaluate(y, p, scratch, alg)
+    evaluate_any(y, p, scratch, alg)
     for i in range(n):
         yy[i] = y[i] + probe * scratch[i]
     roots(yy, g_ahead, p, alg, scratch)
@@ -865,8 +938,8 @@ def start_check(y, p, alg, scratch, g, g_ahead, probe, slack):
         if p[H_ACTIVE + k] != 0.0 and g[k] <= ROOT_TOLERANCE * EVENT_SCALES[k]:
             p[H_ACTIVE + k] = 0.0
     if int(p[H_MODE]) == MODE_VOLTAGE:
-        evaluate(y, p, scratch, alg)
-        if alg[A_CELL_VOLTAGE] > p[H_THRESHOLD + EV_VOLTAGE_MAX] * (1.0 + slack):
+        evaluate_any(y, p, scratch, alg)
+        if alg[A_CELL_VOLTAGE_HIGH] > p[H_THRESHOLD + EV_VOLTAGE_MAX] * (1.0 + slack):
             return EV_VOLTAGE_MAX
         if alg[A_CELL_VOLTAGE] < p[H_THRESHOLD + EV_VOLTAGE_MIN] * (1.0 - slack):
             return EV_VOLTAGE_MIN
@@ -1026,7 +1099,7 @@ def evaluate_rows(states, params, algebraics):
     scratch = np.empty(n)
     alg = np.empty(N_ALGEBRAICS)
     for r in range(states.shape[0]):
-        evaluate(states[r], params[r], scratch, alg)
+        evaluate_any(states[r], params[r], scratch, alg)
         for k in range(N_ALGEBRAICS):
             algebraics[r, k] = alg[k]
 
@@ -1047,8 +1120,8 @@ class Kernels:
 
     Attributes
     ----------
-    base : float64 array, shape (1 + 3 n_rc,)
-        RC base vector of the current phase (:func:`rc_base_setup`) [s, then V, V, s per pair].
+    base : float64 array, shape (1 + 4 n_rc n_cells,)
+        RC base vector of the current phase (:func:`rc_base_setup`) [s, then -, V, V, s per pair].
     error : BaseException or None
         An exception raised inside a solver callback, kept for the back end to report.
     g, g_ahead : float64 array, shape (N_EVENTS,)
@@ -1068,7 +1141,7 @@ class Kernels:
         self._shifted = np.empty(size)
         self._jac = np.empty((size, size))
         # no shift until shift_from: tau = 0 reads b(t) = v_0 = 0
-        self.base = np.zeros(rc_base_size(int(p[H_NRC])))
+        self.base = np.zeros(rc_base_size(int(p[H_NRC]), int(p[H_NCELLS])))
         self.error: BaseException | None = None
         self.g = np.empty(N_EVENTS)
         self.g_ahead = np.empty(N_EVENTS)
@@ -1296,6 +1369,23 @@ class Kernels:
         """
         return diagonal_newton_contraction(y, self.p, self._alg, self._f0, self._f1, self._yy, self._jac, gamma)
 
+    def algebraics(self, y: np.ndarray) -> np.ndarray:
+        """The algebraic outputs at ``y`` (a new array), at the time last written into ``p``.
+
+        Parameters
+        ----------
+        y : array of float, shape (n_states,)
+            State (:mod:`thermoelec.engine.layout`), converted to contiguous float64 [-, V, K, J, C].
+
+        Returns
+        -------
+        float64 array, shape (N_ALGEBRAICS,)
+            Current [A], voltages [V], heats [W], ... in the order of
+            :data:`thermoelec.engine.layout.ALGEBRAICS`.
+        """
+        rhs(np.ascontiguousarray(y, dtype=float), self._scratch, self.p, self._alg)
+        return self._alg.copy()
+
     def all_positive(self, y: np.ndarray) -> bool:
         """See :func:`all_positive`.
 
@@ -1312,8 +1402,42 @@ class Kernels:
         return all_positive(y, self.p, self._alg, self._scratch, self._g_end)
 
 
+@_jit
+def evaluate_phase_rows(states, times, headers, phase_index, p, algebraics):
+    """Algebraic outputs of many rows, each in its phase: the phase's header written into ``p`` first.
+
+    The blocks after the header (tables, laws, a resolved pack's cell table) do not
+    change between phases, so a trajectory keeps one parameter vector and the
+    header of each phase (a resolved pack's vector is tens of kilobytes).
+
+    Parameters
+    ----------
+    states : float64 array, shape (n, n_states)
+        State rows (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
+    times : float64 array, shape (n,)
+        Row times [s].
+    headers : float64 array, shape (n_phases, HEADER)
+        The header of the parameter vector of each phase [SI, unit per slot].
+    phase_index : int64 array, shape (n,)
+        The phase of each row [-].
+    p : float64 array
+        A parameter vector of the scenario, overwritten (header, time, work block) [SI, unit per slot].
+    algebraics : float64 array, shape (n, N_ALGEBRAICS)
+        Written: the algebraic outputs of each row [A, V, Ω, W, K, ... unit per slot].
+    """
+    scratch = np.empty(states.shape[1])
+    alg = np.empty(N_ALGEBRAICS)
+    for r in range(states.shape[0]):
+        for k in range(headers.shape[1]):
+            p[k] = headers[phase_index[r], k]
+        p[H_TIME] = times[r]
+        evaluate_any(states[r], p, scratch, alg)
+        for k in range(N_ALGEBRAICS):
+            algebraics[r, k] = alg[k]
+
+
 def trajectory_algebraics(times: np.ndarray, states: np.ndarray, phase_params: np.ndarray,
-                          phase_index: np.ndarray) -> np.ndarray:
+                          phase_index: np.ndarray, parameters: np.ndarray) -> np.ndarray:
     """Algebraic outputs (:data:`thermoelec.engine.layout.ALGEBRAICS`) of every row of a trajectory.
 
     Parameters
@@ -1322,18 +1446,20 @@ def trajectory_algebraics(times: np.ndarray, states: np.ndarray, phase_params: n
         Row times [s] (an ambient profile is a function of time).
     states : float64 array, shape (n, n_states)
         State rows (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
-    phase_params : float64 array, shape (n_phases, len(p))
-        The parameter vector of each phase [SI, unit per slot].
+    phase_params : float64 array, shape (n_phases, HEADER)
+        The header of the parameter vector of each phase [SI, unit per slot].
     phase_index : int array, shape (n,)
         The phase of each row [-].
+    parameters : float64 array
+        The scenario's parameter vector (its blocks; the header is each phase's), not changed [SI, unit per slot].
 
     Returns
     -------
     float64 array, shape (n, N_ALGEBRAICS)
         Current [A], voltages [V], heats [W], ... in the declared order.
     """
-    params = phase_params[phase_index]
-    params[:, H_TIME] = times
     algebraics = np.empty((len(states), N_ALGEBRAICS))
-    evaluate_rows(np.ascontiguousarray(states), params, algebraics)
+    evaluate_phase_rows(np.ascontiguousarray(states), np.ascontiguousarray(times, dtype=float),
+                        np.ascontiguousarray(phase_params), np.ascontiguousarray(phase_index, dtype=np.int64),
+                        np.array(parameters, dtype=float), algebraics)
     return algebraics

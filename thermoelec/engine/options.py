@@ -15,12 +15,21 @@ import numpy as np
 
 from thermoelec.engine.layout import N_QUADRATURES
 
-__all__ = ["ATOL_SCALES", "FIRST_STEP_MAX", "LINEAR_SOLVERS", "SolverOptions", "automatic_first_step"]
+__all__ = ["ATOL_SCALES", "FIRST_STEP_FRACTION", "FIRST_STEP_MAX", "LINEAR_SOLVERS", "SolverOptions",
+           "automatic_first_step"]
 
-#: Newton matrices of the CVODE back end (``SolverOptions.linear_solver``).
-LINEAR_SOLVERS = ("auto", "dense", "diagonal")
+#: Newton matrices of the CVODE back end (``SolverOptions.linear_solver``): the full Jacobian, its
+#: diagonal, a band of it (CVODE's own difference quotients) or none (Krylov: GMRES on Jacobian-vector
+#: products); "auto" picks by the pack model (see SolverOptions).
+LINEAR_SOLVERS = ("auto", "dense", "diagonal", "band", "krylov")
 #: Longest automatic first step after a restart [s] (``SolverOptions.first_step``).
 FIRST_STEP_MAX = 1.0
+#: The automatic first step as a fraction of the median segment: half for a lumped pack; a
+#: quarter for a resolved one, whose cells' currents keep redistributing within their groups
+#: after each jump of the demand (the RC shift takes each cell's current at the phase start):
+#: on a 14s4p pack over 3 600 one-second segments a quarter takes 19 % fewer right-hand sides
+#: and a third of the error-test failures of a half.
+FIRST_STEP_FRACTION = {"lumped": 0.5, "resolved": 0.25}
 
 
 #: Typical scales of the states [-, V, K, J]: the default absolute tolerance is rtol times these.
@@ -53,7 +62,8 @@ class SolverOptions:
         CVODE's first step after each restart [s]; 0 lets CVODE estimate it, at a
         cost of two to four extra right-hand-side calls at every restart (a third
         of the work on a 1 Hz profile). ``"auto"``: half the median segment
-        length, at most :data:`FIRST_STEP_MAX`, so that at the default ``rtol``
+        length (a quarter for a resolved pack, :data:`FIRST_STEP_FRACTION`), at
+        most :data:`FIRST_STEP_MAX`, so that at the default ``rtol``
         a profile of equal short segments takes two equal steps in each and the
         second reuses the first's Newton matrix; scaled by ``sqrt(rtol / 1e-6)``,
         as the local error of the first (order-1) step grows with its square
@@ -65,9 +75,18 @@ class SolverOptions:
     linear_solver : str
         Newton matrix of the CVODE back end: ``"dense"`` (the full Jacobian),
         ``"diagonal"`` (its diagonal only: one right-hand-side call to form, no
-        matrix to hand over), or ``"auto"``: diagonal for a phase in which it
-        converges fast (:data:`thermoelec.engine.backends.DIAGONAL_CONTRACTION`),
-        dense otherwise and for a phase the diagonal one failed.
+        matrix to hand over), ``"band"`` (a band of the Jacobian around the cell
+        blocks, from CVODE's own difference quotients), ``"krylov"`` (no matrix:
+        GMRES on Jacobian-vector products, each one right-hand side), or
+        ``"auto"``: for a lumped pack diagonal in a phase in which it converges fast
+        (:data:`thermoelec.engine.backends.DIAGONAL_CONTRACTION`), dense otherwise and
+        for a phase the diagonal one failed; for a resolved pack Krylov (the
+        diagonal's bound would cost a full Jacobian per phase, more than the phase,
+        and unchecked it drifts), dense for a phase Krylov failed. Measured on a
+        14s4p pack over 3 600 one-second power segments: Krylov 1.5-2 s, an unchecked
+        diagonal 0.9 s, band 109 s (the sink node couples to every cell, outside any
+        band, and CVODE's grouped difference quotients smear it into the band: Newton
+        fails), dense 75 s (the matrix handed over element by element).
     scipy_method : str
         ``solve_ivp`` method for the scipy back end.
     """
@@ -84,31 +103,33 @@ class SolverOptions:
     linear_solver: str = "auto"
     scipy_method: str = "LSODA"
 
-    def atol_vector(self, n_rc: int) -> np.ndarray:
+    def atol_vector(self, n_rc: int, n_cells: int = 1) -> np.ndarray:
         """Per-state absolute tolerances in state order (:mod:`thermoelec.engine.layout`).
 
         Parameters
         ----------
         n_rc : int
             Number of RC pairs of the cell [-].
+        n_cells : int
+            Number of cell blocks: 1 for a lumped pack [-].
 
         Returns
         -------
         float64 array, shape (n_states,)
-            Tolerance of the SoC [-], of each RC voltage [V], of the cell, sink and
-            coolant temperatures [K] and of each quadrature [J, C].
+            Tolerance of each cell's SoC [-], RC voltages [V] and temperature [K], of the
+            sink and coolant temperatures [K] and of each quadrature [J, C].
         """
         def atol(name: str) -> float:
             given = getattr(self, f"atol_{name}")
             return given if given is not None else self.rtol * ATOL_SCALES[name]
 
-        return np.concatenate([[atol("soc")], np.full(n_rc, atol("voltage")),
-                               [atol("temperature"), atol("temperature"), atol("temperature")],
+        block = np.concatenate([[atol("soc")], np.full(n_rc, atol("voltage")), [atol("temperature")]])
+        return np.concatenate([np.tile(block, n_cells), [atol("temperature"), atol("temperature")],
                                np.full(N_QUADRATURES, atol("integral"))])
 
 
 
-def automatic_first_step(durations, rtol: float) -> float:
+def automatic_first_step(durations, rtol: float, fraction: float = FIRST_STEP_FRACTION["lumped"]) -> float:
     """The ``"auto"`` first step of :class:`SolverOptions` [s].
 
     Parameters
@@ -117,12 +138,14 @@ def automatic_first_step(durations, rtol: float) -> float:
         Segment lengths of the mission [s] (infinite ones are left out).
     rtol : float
         Relative tolerance [-].
+    fraction : float
+        Fraction of the median segment (:data:`FIRST_STEP_FRACTION`) [-].
 
     Returns
     -------
     float
-        Half the median segment, at most :data:`FIRST_STEP_MAX`, times ``sqrt(rtol / 1e-6)`` [s].
+        ``fraction`` of the median segment, at most :data:`FIRST_STEP_MAX`, times ``sqrt(rtol / 1e-6)`` [s].
     """
     finite = [d for d in durations if math.isfinite(d) and d > 0.0]
-    typical = 0.5 * float(np.median(finite)) if finite else FIRST_STEP_MAX
+    typical = fraction * float(np.median(finite)) if finite else FIRST_STEP_MAX
     return min(FIRST_STEP_MAX, typical) * math.sqrt(rtol / 1e-6)

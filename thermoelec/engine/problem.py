@@ -20,9 +20,10 @@ from thermoelec.engine.profile import Segment
 from thermoelec.physics import correlations
 from thermoelec.physics.cell import Cell, Pack
 from thermoelec.physics.constants import ZERO_CELSIUS
-from thermoelec.physics.thermal import ThermalNetwork
+from thermoelec.physics.pack import ResolvedPack
+from thermoelec.physics.thermal import ThermalNetwork, coolant_effectiveness
 
-__all__ = ["Limits", "Problem", "StressSettings", "pack_parameters"]
+__all__ = ["Limits", "Problem", "StressSettings", "jacobian_bandwidth", "pack_parameters"]
 
 
 @dataclass(frozen=True)
@@ -98,6 +99,10 @@ class Problem:
     notes : tuple of str
         What the scenario layer wants said in the summary (a profile's ambient column that
         overrides the scenario's); nothing the engine reads.
+    resolved : ResolvedPack or None
+        Every cell with its own states, factors and thermal paths
+        (:class:`thermoelec.physics.pack.ResolvedPack`); None for the lumped pack
+        (identical cells in one node, the default).
     """
 
     cell: Cell
@@ -115,11 +120,22 @@ class Problem:
     ambient_profile: tuple[np.ndarray, np.ndarray] | None = None
     soak: tuple[Segment, ...] = ()
     notes: tuple[str, ...] = ()
+    resolved: ResolvedPack | None = None
 
     @property
     def n_rc(self) -> int:
         """Number of RC pairs of the cell [-]."""
         return len(self.cell.rc)
+
+    @property
+    def n_cells(self) -> int:
+        """Number of cell blocks in the state vector: every cell of a resolved pack, 1 for a lumped one [-]."""
+        return 1 if self.resolved is None else self.resolved.n_cells
+
+    @property
+    def n_states(self) -> int:
+        """Length of the state vector (:func:`thermoelec.engine.layout.n_states`) [-]."""
+        return L.n_states(self.n_rc, self.n_cells)
 
     def initial_state(self) -> np.ndarray:
         """State vector at t = 0: RC pairs relaxed, integrals zero.
@@ -127,22 +143,25 @@ class Problem:
         Returns
         -------
         float64 array, shape (n_states,)
-            The state (:mod:`thermoelec.engine.layout`): the initial SoC [-], RC
+            The state (:mod:`thermoelec.engine.layout`): the initial SoC of each cell [-], RC
             voltages 0 [V], the initial cell and sink temperatures [K], the coolant node
             at ``initial_coolant_temperature``, else the coolant inlet, else the sink
             temperature [K], and the quadratures 0 [J, C].
         """
-        y = np.zeros(L.n_states(self.n_rc))
-        y[0] = self.initial_soc
-        y[L.cell_temperature_index(self.n_rc)] = self.initial_cell_temperature
-        y[L.sink_temperature_index(self.n_rc)] = self.initial_sink_temperature
+        n_rc, n_cells = self.n_rc, self.n_cells
+        y = np.zeros(L.n_states(n_rc, n_cells))
+        soc, temperature = L.cell_state_indices(n_rc, n_cells)
+        y[soc] = self.initial_soc if self.resolved is None else self.resolved.initial_soc
+        y[temperature] = self.initial_cell_temperature
+        y[L.sink_temperature_index(n_rc, n_cells)] = self.initial_sink_temperature
         coolant = self.thermal.coolant
+        tf = L.coolant_temperature_index(n_rc, n_cells)
         if self.initial_coolant_temperature is not None:
-            y[L.coolant_temperature_index(self.n_rc)] = self.initial_coolant_temperature
+            y[tf] = self.initial_coolant_temperature
         elif coolant is not None:
-            y[L.coolant_temperature_index(self.n_rc)] = coolant.inlet_temperature
+            y[tf] = coolant.inlet_temperature
         else:
-            y[L.coolant_temperature_index(self.n_rc)] = self.initial_sink_temperature
+            y[tf] = self.initial_sink_temperature
         return y
 
     def ambient_at(self, time: float) -> float:
@@ -193,6 +212,7 @@ def pack_parameters(problem: Problem) -> np.ndarray:
     header[L.H_GSA], header[L.H_GCA] = th.sink_to_ambient, th.cell_to_ambient
     header[L.H_NRC] = len(c.rc)
     header[L.H_AMBIENT] = problem.ambient_temperature
+    header[L.H_NCELLS] = problem.n_cells
     _thermal_header(header, th)
     body: list[float] = []
     header[L.H_OCV] = L.HEADER + len(body)
@@ -205,7 +225,44 @@ def pack_parameters(problem: Problem) -> np.ndarray:
     if problem.ambient_profile is not None:
         header[L.H_AMBIENT_TABLE] = L.HEADER + len(body)
         body += L.ambient_block(*problem.ambient_profile)
+    if problem.resolved is not None:
+        body += _resolved_blocks(header, L.HEADER + len(body), problem)
     return np.concatenate([header, np.asarray(body, float)])
+
+
+def _resolved_blocks(header: np.ndarray, start: int, problem: Problem) -> list[float]:
+    """The cell table, neighbour list, coolant path and work block of a resolved pack, from ``start``.
+
+    Writes their offsets into ``header``. A cell's coolant segment is stored as its
+    effectiveness ``1 - exp(-UA_i / m c_p)`` (the flow is fixed while the pump runs).
+    """
+    rp, c, th = problem.resolved, problem.cell, problem.thermal
+    n, nrc = rp.n_cells, problem.n_rc
+    header[L.H_CCELL] = float(np.sum(rp.heat_capacity))
+    rate = th.coolant.capacity_rate if th.coolant is not None else 0.0
+    records = np.zeros((n, L.cell_record_width(nrc)))
+    records[:, L.CELL_GROUP] = rp.group
+    records[:, L.CELL_CAPACITY] = c.capacity * rp.capacity_factor
+    records[:, L.CELL_R0_FACTOR] = rp.r0_factor
+    records[:, L.CELL_TAB] = rp.tab_resistance
+    records[:, L.CELL_HEAT_CAPACITY] = rp.heat_capacity
+    records[:, L.CELL_SINK] = rp.cell_to_sink
+    records[:, L.CELL_AMBIENT] = rp.cell_to_ambient
+    records[:, L.CELL_PLATE] = [coolant_effectiveness(ua, rate) for ua in rp.plate_conductance]
+    records[:, L.CELL_HEATER] = rp.heat_capacity / np.sum(rp.heat_capacity)
+    records[:, L.CELL_RC:] = rp.rc_factor.reshape(n, nrc)
+    body: list[float] = []
+    header[L.H_CELLS] = start
+    body += records.ravel().tolist()
+    header[L.H_EDGES] = start + len(body)
+    pairs = rp.layout.neighbours
+    body += [len(pairs), *np.column_stack([pairs, rp.neighbour_conductance]).ravel().tolist()]
+    if len(rp.coolant_order):
+        header[L.H_PATH] = start + len(body)
+        body += [len(rp.coolant_order), *rp.coolant_order.tolist()]
+    header[L.H_WORK] = start + len(body)
+    body += [0.0] * L.work_size(n, rp.series)
+    return body
 
 
 def _thermal_header(header: np.ndarray, th: ThermalNetwork) -> None:
@@ -232,3 +289,36 @@ def _thermal_header(header: np.ndarray, th: ThermalNetwork) -> None:
     header[L.H_PUMP_POWER] = th.pump_power if th.coolant is not None else 0.0
     if th.heater is not None:
         header[L.H_HEATER_POWER], header[L.H_HEATER_FROM_PACK] = th.heater.power, float(th.heater.from_pack)
+
+
+def jacobian_bandwidth(problem: Problem) -> int:
+    """Half-bandwidth of the Jacobian's part that couples the cell blocks of a resolved pack.
+
+    A cell's equations depend on its own block, on the cells of its group (through
+    the group voltage), on its neighbours and on the next cell along the coolant
+    path; the band holds those couplings (cells are numbered group by group, so a
+    group is a band of ``parallel`` blocks). What lies outside (the sink and coolant
+    nodes, which every cell touches, the pack current that every cell shares in a
+    power phase, the coolant's memory of the cells upstream) makes the band matrix
+    an approximate Newton matrix, as CVODE allows; it is weak against ``1 / gamma``.
+
+    Parameters
+    ----------
+    problem : Problem
+        The scenario in SI units [SI].
+
+    Returns
+    -------
+    int
+        The half-bandwidth in states, 0 for a lumped pack [-].
+    """
+    rp = problem.resolved
+    if rp is None:
+        return 0
+    nb = L.cell_block_size(problem.n_rc)
+    reach = rp.parallel - 1
+    if len(rp.layout.neighbours):
+        reach = max(reach, int(np.max(np.abs(np.diff(rp.layout.neighbours, axis=1)))))
+    if len(rp.coolant_order) > 1:
+        reach = max(reach, int(np.max(np.abs(np.diff(rp.coolant_order)))))
+    return min((reach + 1) * nb - 1, problem.n_states - 1)

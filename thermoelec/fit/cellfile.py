@@ -2,22 +2,29 @@
 
 A scenario includes one with ``include = "cell.toml"``; its values are the
 base, the scenario's own keys win. ``thermoelec fit`` writes them, with the
-fitted uncertainties as comments.
+fitted uncertainties as comments. A cell file is read and checked through the
+scenario's own schema (:class:`thermoelec.scenario.schema.CellFileSpec`: the
+``[cell]`` keys, units and checks, each key optional), both when a fit reads
+one (``--cell``) and before a fit writes one.
 """
 
 from __future__ import annotations
 
 import math
+import re
 import tomllib
 from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
 import numpy as np
+from pydantic import ValidationError
 
-from thermoelec.inputs import ScenarioError, to_si
+from thermoelec.inputs import ScenarioError
+from thermoelec.scenario.locate import first_error
+from thermoelec.scenario.schema import CellFileSpec, CellSpec
 
-__all__ = ["CellData", "dump_toml", "read_cell_file"]
+__all__ = ["CellData", "dump_toml", "parse_cell_text", "read_cell_file"]
 
 
 def _value(value: Any) -> str:
@@ -67,43 +74,34 @@ def dump_toml(tables: Mapping[str, Mapping[str, Any]], header: Sequence[str] = (
 
 
 class CellData:
-    """The SI values a fit needs from a cell file: capacity, OCV, mass, resistances, geometry."""
+    """The SI values a fit needs from a validated cell file: capacity, OCV, mass, resistances.
 
-    def __init__(self, path: Path, raw: dict):
+    Parameters
+    ----------
+    path : pathlib.Path
+        The file.
+    raw : dict
+        Its tables as read (extended by the fit and written again).
+    spec : CellFileSpec
+        The same, validated as a scenario's ``[cell]`` with every key optional (SI values).
+    """
+
+    def __init__(self, path: Path, raw: dict, spec: CellFileSpec):
         self.path, self.raw = path, raw
-        cell = raw.get("cell", {})
-        name = str(path)
-
-        def si(key: str, unit: str, si_unit: str | None = None, table: Mapping | None = None):
-            source = cell if table is None else table
-            if key not in source:
-                return None
-            try:
-                return to_si(source[key], unit, si_unit or unit)
-            except ValueError as exc:
-                raise ScenarioError(name, f"cell.{key}", str(exc)) from None
-
-        self.capacity = si("capacity", "Ah", "C")
-        self.mass = si("mass", "kg")
-        self.voltage_max = si("voltage_max", "V")
-        self.voltage_min = si("voltage_min", "V")
-        ocv = cell.get("ocv", {})
-        self.ocv_soc = np.asarray(ocv["soc"], float) if "soc" in ocv else None
-        self.ocv_voltage = np.array([to_si(v, "V", "V") for v in ocv["voltage"]]) if "voltage" in ocv else None
+        cell = spec.cell
+        self.capacity = cell.capacity
+        self.mass = cell.mass
+        self.voltage_max, self.voltage_min = cell.voltage_max, cell.voltage_min
+        self.geometry = CellSpec.geometry(cell)  # the cell's CellGeometry, None without conductivity and sizes
+        self.ocv_soc = None if cell.ocv is None else np.asarray(cell.ocv.soc, float)
+        self.ocv_voltage = None if cell.ocv is None else np.asarray(cell.ocv.voltage, float)
         self.resistance = None  # R0 + RC at mid SoC, reference temperature (for the OCV hysteresis)
-        r0 = cell.get("r0", {})
-        if "value" in r0:
-            self.resistance = to_si(r0["value"], "ohm", "ohm")
-        elif "values" in r0:
-            values = np.asarray(r0["values"], float)
-            self.resistance = float(np.median(values))
-        if self.resistance is not None:
-            for pair in cell.get("rc", []):
-                res = pair.get("resistance")
-                if isinstance(res, (int, float, str)):
-                    self.resistance += to_si(res, "ohm", "ohm")
-                elif isinstance(res, dict) and "values" in res:
-                    self.resistance += float(np.median(np.asarray(res["values"], float)))
+        if cell.r0 is not None:
+            self.resistance = cell.r0.value if cell.r0.value is not None else float(np.median(cell.r0.values))
+            for pair in cell.rc or []:
+                res = pair.resistance
+                self.resistance += res if isinstance(res, float) else (
+                    res.value if res.value is not None else float(np.median(res.values)))
 
     def require(self, *keys: str) -> None:
         """Raise a clear error when the cell file lacks what a fit needs."""
@@ -114,15 +112,61 @@ class CellData:
                 raise ScenarioError(str(self.path), label, "required by this fit (fit the OCV first, or add it)")
 
 
-def read_cell_file(path: str | Path) -> CellData:
-    """Read a cell file (TOML with a ``[cell]`` table)."""
-    path = Path(path)
+def parse_cell_text(text: str, name: str) -> tuple[dict, CellFileSpec]:
+    """A cell file's text read and validated: the scenario format's ``[cell]``, every key optional.
+
+    Parameters
+    ----------
+    text : str
+        TOML text.
+    name : str
+        The file, for the messages.
+
+    Returns
+    -------
+    raw : dict
+        The tables as read.
+    spec : CellFileSpec
+        The same validated (SI values).
+
+    Raises
+    ------
+    ScenarioError
+        Naming the file, the key and the line at fault.
+    """
     try:
-        raw = tomllib.loads(path.read_text())
-    except FileNotFoundError:
-        raise ScenarioError(str(path), "", "cell file not found") from None
+        raw = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
-        raise ScenarioError(str(path), "", f"TOML syntax error: {exc}") from None
+        line = re.search(r"line (\d+)", str(exc))
+        raise ScenarioError(name, "", f"TOML syntax error: {exc}", int(line.group(1)) if line else None) from None
     if "cell" not in raw:
-        raise ScenarioError(str(path), "cell", "a cell file needs a [cell] table")
-    return CellData(path, raw)
+        raise ScenarioError(name, "cell", "a cell file needs a [cell] table")
+    try:
+        return raw, CellFileSpec.model_validate(raw)
+    except ValidationError as exc:
+        raise first_error(exc, name, text, model=CellFileSpec) from None
+
+
+def read_cell_file(path: str | Path) -> CellData:
+    """Read and validate a cell file (TOML with a ``[cell]`` table, as a scenario includes it).
+
+    Raises
+    ------
+    ScenarioError
+        For a file that is missing, a folder, not UTF-8, not TOML, or whose ``[cell]``
+        a scenario could not include (a wrong unit, a text where a number belongs ...).
+    """
+    path = Path(path)
+    name = str(path)
+    if path.is_dir():
+        raise ScenarioError(name, "", "the cell file is a folder, not a file")
+    try:
+        text = path.read_bytes().decode("utf-8")
+    except FileNotFoundError:
+        raise ScenarioError(name, "", "cell file not found") from None
+    except UnicodeDecodeError:
+        raise ScenarioError(name, "", "the cell file is not UTF-8 text") from None
+    except OSError as exc:
+        raise ScenarioError(name, "", f"cannot read the cell file: {exc.strerror}") from None
+    raw, spec = parse_cell_text(text, name)
+    return CellData(path, raw, spec)

@@ -21,10 +21,10 @@ from typing import Any
 import numpy as np
 from matplotlib.figure import Figure
 
-from thermoelec.fit import fitting
-from thermoelec.fit.cellfile import CellData, dump_toml, read_cell_file
+from thermoelec.fit import fitting, sanity
+from thermoelec.fit.cellfile import CellData, dump_toml, parse_cell_text, read_cell_file
 from thermoelec.fit.logs import LogMapping, read_log
-from thermoelec.inputs import ScenarioError, to_si
+from thermoelec.inputs import ScenarioError
 from thermoelec.physics.constants import ZERO_CELSIUS
 from thermoelec.physics.thermal import biot_number
 
@@ -41,6 +41,31 @@ class FitOutcome:
         self.parameters: list[tuple[str, str, str]] = []  # name, value, 95 % interval
         self.figures: list[tuple[Figure, str]] = []
         self.notes: list[str] = []
+        self.warnings: list[str] = []  # doubtful results (:mod:`thermoelec.fit.sanity`), also among the notes
+
+    def warn(self, warnings: list[str]) -> None:
+        """Keep warnings of the sanity checks, for the terminal and (as notes) the report."""
+        self.warnings += warnings
+        self.notes += [f"warning: {w}" for w in warnings]
+
+    def check(self) -> None:
+        """Refuse to write a cell file a scenario could not include.
+
+        Raises
+        ------
+        ScenarioError
+            Naming the logs and the key the scenario loader would reject.
+        """
+        try:
+            text = self.cell_file_text()
+        except ValueError as exc:  # a parameter that is not a finite number
+            raise ScenarioError(", ".join(self.logs), "", f"the fit gave a value no cell file can hold: {exc}"
+                                ) from None
+        try:
+            parse_cell_text(text, "the fitted cell file")
+        except ScenarioError as exc:
+            raise ScenarioError(", ".join(self.logs), exc.key, f"the fitted cell file would not load: {exc.message}"
+                                ) from None
 
     def cell_file_text(self) -> str:
         stamp = _dt.datetime.now(_dt.UTC).strftime("%Y-%m-%d %H:%M UTC")
@@ -100,6 +125,7 @@ def fit_ocv_logs(paths: Sequence[str], mapping: LogMapping, points: int = 21,
     cell = read_cell_file(cell_path) if cell_path else None
     result = fitting.fit_ocv(discharge, charge, points, cell.resistance if cell else None)
     outcome = FitOutcome("ocv", paths)
+    outcome.warn(sanity.check_ocv(result, paths[0], paths[1]))
     outcome.tables = _base_tables(cell)
     outcome.tables.setdefault("cell", {})
     outcome.tables["cell"]["capacity"] = f"{result.capacity_C / 3600:.6g} Ah"
@@ -157,8 +183,9 @@ def fit_pulse_logs(paths: Sequence[str], mapping: LogMapping, cell_path: str, n_
         log = read_log(path, mapping, ("current", "voltage"), ("temperature",), min_rows=50)
         given = None if temperatures is None else temperatures[i]
         per_log.append(fitting.fit_pulse_log(log, cell.capacity, cell.ocv_soc, cell.ocv_voltage, n_rc, given))
-    tables = fitting.tabulate_pulses(per_log)
     outcome = FitOutcome("pulse", paths)
+    outcome.warn(sanity.check_pulses(per_log, paths, n_rc))
+    tables = fitting.tabulate_pulses(per_log)
     outcome.notes += _voltage_limit_notes(paths, mapping, cell) + _pulse_residual_notes(per_log)
     outcome.tables = _base_tables(cell)
     outcome.tables.pop("cell.rc", None)
@@ -166,6 +193,7 @@ def fit_pulse_logs(paths: Sequence[str], mapping: LogMapping, cell_path: str, n_
     temps = [f"{_degc(t):.2f} degC" for t in tables.temperature]
     if arrhenius and len(tables.temperature) >= 2:
         fit = fitting.fit_arrhenius(tables.temperature, tables.r0, tables.reference_temperature)
+        sanity.check_arrhenius(fit.activation_energy, paths, written=True)
         outcome.tables["cell.r0"] = {"soc": soc, "values": [np.round(fit.reference_values, 7)],
                                      "activation_energy": f"{fit.activation_energy:.5g} J/mol",
                                      "reference_temperature": f"{_degc(fit.reference_temperature):.2f} degC"}
@@ -180,6 +208,8 @@ def fit_pulse_logs(paths: Sequence[str], mapping: LogMapping, cell_path: str, n_
     outcome.tables["cell.rc"] = rc_tables
     if len(tables.temperature) >= 2:
         fit = fitting.fit_arrhenius(tables.temperature, tables.r0, tables.reference_temperature)
+        if not arrhenius:
+            outcome.warn(sanity.check_arrhenius(fit.activation_energy, paths, written=False))
         outcome.parameters.append(("R0 activation energy", f"{fit.activation_energy / 1e3:.4g} kJ/mol",
                                    f"± {fit.activation_energy_ci / 1e3:.2g} kJ/mol"))
         outcome.comments["cell.r0"] = [f"Arrhenius fit over the temperatures: Ea = {fit.activation_energy / 1e3:.4g} "
@@ -299,8 +329,8 @@ def fit_thermal_log(path: str, mapping: LogMapping, cell_path: str | None = None
     """Heat capacity and conductance(s) from one heating-and-cooling log; ``mass`` [kg] (or the cell
     file's) turns the heat capacity into ``cell.specific_heat``."""
     log = read_log(path, mapping, ("temperature", "power"), ("ambient", "sink_temperature"), min_rows=20)
-    result = fitting.fit_thermal(log, ambient=ambient)
     cell = read_cell_file(cell_path) if cell_path else None
+    result = fitting.fit_thermal(log, ambient=ambient)
     outcome = FitOutcome("thermal", [path])
     outcome.tables = _base_tables(cell)
     two_node = result.sink_heat_capacity is not None
@@ -323,6 +353,7 @@ def fit_thermal_log(path: str, mapping: LogMapping, cell_path: str | None = None
                    if two_node else "")
                 + " (conductances belong to the rig: put your pack's in its [thermal] section)"]
     mass = mass if mass is not None else (cell.mass if cell is not None else None)
+    outcome.warn(sanity.check_thermal(result, path, mass))
     if mass is not None:
         outcome.tables.setdefault("cell", {})["mass"] = f"{mass:.6g} kg"
         outcome.tables["cell"]["specific_heat"] = f"{result.heat_capacity / mass:.5g} J/kg/K"
@@ -357,16 +388,7 @@ def fit_thermal_log(path: str, mapping: LogMapping, cell_path: str | None = None
 
 def _geometry(cell: CellData | None) -> tuple[float, float, float] | None:
     """Volume [m³], surface [m²] and conductivity [W/(m K)] from the cell file's geometry keys."""
-    if cell is None:
+    if cell is None or cell.geometry is None:
         return None
-    from thermoelec.physics.cell import CellGeometry
-
-    raw = cell.raw.get("cell", {})
-    keys = ("diameter", "length", "thickness", "width", "height")
-    if "thermal_conductivity" not in raw:
-        return None
-    sizes = {key: to_si(raw[key], "m", "m") for key in keys if key in raw}
-    if not ({"diameter", "length"} <= set(sizes) or {"thickness", "width", "height"} <= set(sizes)):
-        return None
-    geometry = CellGeometry(to_si(raw["thermal_conductivity"], "W/m/K", "W/m/K"), **sizes)
+    geometry = cell.geometry
     return geometry.volume(), geometry.surface_area(), geometry.thermal_conductivity

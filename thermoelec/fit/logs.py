@@ -46,30 +46,39 @@ class LogMapping:
 
 def read_mapping(path: str | Path | None = None, columns: Mapping[str, str] | None = None,
                  charge_positive: bool = False) -> LogMapping:
-    """A mapping from a TOML file (``[columns]``, ``[units]``, ``sign``) and / or options.
+    """A mapping from a TOML file (``[columns]``, ``[units]``, ``sign``) and / or options, checked whole.
 
-    ``sign`` is ``"discharge_positive"`` (default) or ``"charge_positive"``.
+    ``sign`` is ``"discharge_positive"`` (default) or ``"charge_positive"``. Every unit
+    must be one of its quantity's dimension (``units.current = "mA"``), every column
+    name a text.
+
+    Raises
+    ------
+    ScenarioError
+        Naming the mapping file (or the option) and the key, with the unit expected.
     """
     cols = {q: c for q, (c, _, _) in QUANTITIES.items()}
     units = {q: u for q, (_, u, _) in QUANTITIES.items()}
     discharge_positive = not charge_positive
     if path is not None:
         source = str(path)
-        try:
-            data = tomllib.loads(Path(path).read_text())
-        except FileNotFoundError:
-            raise ScenarioError(source, "", "mapping file not found") from None
-        except tomllib.TOMLDecodeError as exc:
-            raise ScenarioError(source, "", f"TOML syntax error: {exc}") from None
+        data = _read_mapping_file(Path(path))
         unknown = set(data) - {"columns", "units", "sign"}
         if unknown:
             raise ScenarioError(source, sorted(unknown)[0], "unknown key (valid: columns, units, sign)")
         for section, target in (("columns", cols), ("units", units)):
-            for key, value in dict(data.get(section, {})).items():
+            table = data.get(section, {})
+            if not isinstance(table, dict):
+                raise ScenarioError(source, section, f"expected a table [{section}] of quantity = \"text\"")
+            for key, value in table.items():
                 if key not in QUANTITIES:
                     raise ScenarioError(source, f"{section}.{key}",
                                         f"unknown quantity (valid: {', '.join(QUANTITIES)})")
-                target[key] = str(value)
+                if not isinstance(value, str) or not value.strip():
+                    raise ScenarioError(source, f"{section}.{key}", f"expected a text, got {value!r}")
+                if section == "units":
+                    _check_unit(value, key, source, f"units.{key}")
+                target[key] = value
         sign = data.get("sign", "discharge_positive")
         if sign not in ("discharge_positive", "charge_positive"):
             raise ScenarioError(source, "sign", f"{sign!r} is not allowed: 'discharge_positive' or 'charge_positive'")
@@ -79,6 +88,34 @@ def read_mapping(path: str | Path | None = None, columns: Mapping[str, str] | No
             raise ScenarioError("--column", key, f"unknown quantity (valid: {', '.join(QUANTITIES)})")
         cols[key] = value
     return LogMapping(cols, units, discharge_positive)
+
+
+def _read_mapping_file(path: Path) -> dict:
+    """A mapping file's tables; every problem of reading it named."""
+    source = str(path)
+    if path.is_dir():
+        raise ScenarioError(source, "", "the mapping file is a folder, not a file")
+    try:
+        return tomllib.loads(path.read_bytes().decode("utf-8"))
+    except FileNotFoundError:
+        raise ScenarioError(source, "", "mapping file not found") from None
+    except UnicodeDecodeError:
+        raise ScenarioError(source, "", "the mapping file is not UTF-8 text") from None
+    except OSError as exc:
+        raise ScenarioError(source, "", f"cannot read the mapping file: {exc.strerror}") from None
+    except tomllib.TOMLDecodeError as exc:
+        raise ScenarioError(source, "", f"TOML syntax error: {exc}") from None
+
+
+def _check_unit(unit: str, quantity: str, source: str, key: str) -> None:
+    """Refuse a log unit that is not one of its quantity's dimension, naming the unit expected."""
+    default, si = QUANTITIES[quantity][1], QUANTITIES[quantity][2]
+    try:
+        to_si(f"1 {unit}", default, si)
+    except ValueError as exc:
+        reason = f"not a unit of {quantity}: expected one like {default!r}" if "wrong dimension" in str(exc) else exc
+        raise ScenarioError(source, key, f"{unit!r} is {reason}" if isinstance(reason, str) else str(reason)
+                            ) from None
 
 
 @dataclass(frozen=True)
@@ -106,7 +143,7 @@ class TestLog:
 
 
 def _scale(unit: str, si: str, name: str, column: str) -> tuple[float, float]:
-    """Factor and offset from the log's unit to SI (temperatures have an offset)."""
+    """Factor and offset from the log's unit to SI (temperatures have an offset); the unit was checked."""
     try:
         zero = to_si(f"0 {unit}", unit, si)
         one = to_si(f"1 {unit}", unit, si)

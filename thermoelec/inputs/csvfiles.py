@@ -7,10 +7,12 @@ row + 1 for the header). Imports only :mod:`thermoelec.inputs.errors` from therm
 
 from __future__ import annotations
 
+import csv
 from pathlib import Path
 
 import numpy as np
 
+from thermoelec.inputs.budgets import check_file_rows
 from thermoelec.inputs.errors import ScenarioError
 
 __all__ = ["check_increasing", "numeric_column", "read_csv_frame"]
@@ -36,19 +38,43 @@ def read_csv_frame(path: Path, key: str, what: str):
     Raises
     ------
     ScenarioError
-        When the file does not exist or is not readable CSV.
+        When the file does not exist, is a folder, is not readable CSV text (UTF-8),
+        has more rows than the budget (:func:`thermoelec.inputs.budgets.check_file_rows`)
+        or names a column twice.
     """
     import pandas as pd
 
     name = str(path)
+    if path.is_dir():
+        raise ScenarioError(name, key, f"the {what} file is a folder, not a file")
     if not path.is_file():
         raise ScenarioError(name, key, f"{what} file not found")
     try:
-        frame = pd.read_csv(path, comment="#", skipinitialspace=True)
-    except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
-        raise ScenarioError(name, key, f"not a readable CSV file: {str(exc).strip()}") from None
+        check_file_rows(path, key, what)
+        header = _header(path)
+        # a BOM is no part of a name; "nan" and empty fields stay as written, for the message
+        frame = pd.read_csv(path, comment="#", skipinitialspace=True, encoding="utf-8-sig", keep_default_na=False)
+    except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError, csv.Error) as exc:
+        reason = "not UTF-8 text" if isinstance(exc, UnicodeDecodeError) else str(exc).strip()
+        raise ScenarioError(name, key, f"not a readable CSV file: {reason}") from None
+    except OSError as exc:
+        raise ScenarioError(name, key, f"cannot read the {what} file: {exc.strerror or exc}") from None
+    twice = sorted({c for c in header if header.count(c) > 1})
+    if twice:
+        raise ScenarioError(name, twice[0], "the header names this column more than once (spaces around "
+                            "names do not count)")
     frame.columns = [str(c).strip() for c in frame.columns]
     return frame
+
+
+def _header(path: Path) -> list[str]:
+    """The column names of a CSV file as written (stripped), from its first line that is not a comment."""
+    with path.open(encoding="utf-8-sig", newline="") as handle:
+        for line in handle:
+            text = line.split("#", 1)[0]  # a comment runs to the end of its line, as pandas reads it
+            if text.strip():
+                return [c.strip() for c in next(csv.reader([text]))]
+    return []
 
 
 def numeric_column(frame, column: str, name: str) -> np.ndarray:
@@ -79,8 +105,10 @@ def numeric_column(frame, column: str, name: str) -> np.ndarray:
     bad = np.flatnonzero(~np.isfinite(values))
     if bad.size:
         row = int(bad[0])
-        raise ScenarioError(name, column, f"row {row + 1} (line {row + 2}): {frame[column].iloc[row]!r} is not a "
-                            "finite number")
+        raw = frame[column].iloc[row]
+        shown = "an empty field" if isinstance(raw, str) and not raw.strip() else \
+            repr(raw if isinstance(raw, str) else float(raw))
+        raise ScenarioError(name, column, f"row {row + 1} (line {row + 2}): {shown} is not a finite number")
     return values
 
 

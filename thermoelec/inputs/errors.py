@@ -9,9 +9,14 @@ __all__ = ["ScenarioError"]
 
 
 class ScenarioError(ValueError):
-    """An invalid scenario or profile: one message naming the file and the key."""
+    """An invalid scenario or profile: one message naming the file and the key.
 
-    def __init__(self, file: str, key: str, message: str, line: int | None = None):
-        self.file, self.key, self.message, self.line = file, key, message, line
+    ``form`` is False for a value that was read well but is out of range or at odds
+    with another key (a sweep records such a scenario as invalid and goes on), True
+    for everything else (a wrong unit, an unknown key, an unreadable file).
+    """
+
+    def __init__(self, file: str, key: str, message: str, line: int | None = None, form: bool = True):
+        self.file, self.key, self.message, self.line, self.form = file, key, message, line, form
         where = f"{file}, line {line}" if line else file
         super().__init__(f"{where}: {key}: {message}" if key else f"{where}: {message}")

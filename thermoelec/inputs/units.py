@@ -14,6 +14,11 @@ from typing import Any
 __all__ = ["from_si", "to_si"]
 
 _NUMBER = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
+#: A power operator, and the plain exponent that must follow it (``m^2``, ``s**-1``, ``m**0.5``).
+_POWER = re.compile(r"\*\*|\^")
+_EXPONENT = re.compile(r"\s*[-+]?\s*(\d+\.?\d*|\.\d+)")
+#: The largest exponent and the longest unit text read.
+MAX_EXPONENT, MAX_UNIT_LENGTH = 12, 200
 
 
 @lru_cache(maxsize=1)
@@ -73,7 +78,8 @@ def _to_si(value: Any, default_unit: str, si_unit: str) -> float:
     if isinstance(value, str):
         match = _NUMBER.match(value)
         if not match:
-            raise ValueError(f"{value!r} is not a quantity: write a number and a unit, like '1.5 {default_unit}'")
+            example = f"1.5 {default_unit}".strip()
+            raise ValueError(f"{value!r} is not a quantity: write a number and a unit, like {example!r}")
         number, unit = float(match.group(1)), match.group(2) or default_unit
     else:
         number, unit = float(value), default_unit
@@ -82,14 +88,47 @@ def _to_si(value: Any, default_unit: str, si_unit: str) -> float:
     import pint
 
     ureg = _registry()
+    _check_expression(unit, value)
     try:
         quantity = ureg.Quantity(number, unit)
-    except (pint.UndefinedUnitError, pint.errors.DefinitionSyntaxError, AttributeError, TypeError, ValueError):
+    except pint.UndefinedUnitError:
         raise ValueError(f"unknown unit {unit!r} in {value!r}") from None
+    except Exception as exc:  # pint's parser fails in many ways (tokenizer, zero division, bare assertions)
+        raise ValueError(f"cannot read the unit {unit!r} in {value!r} ({_reason(exc)})") from None
     try:
-        return float(quantity.to(si_unit).magnitude)
+        result = float(quantity.to(si_unit).magnitude)
     except pint.DimensionalityError:
-        raise ValueError(f"{value!r} has the wrong dimension: expected a quantity in {default_unit}") from None
+        raise ValueError(f"{value!r} has the wrong dimension: expected a quantity in {default_unit or 'no unit'}"
+                         ) from None
+    except Exception as exc:  # an offset unit in a product (degC * m) and the like
+        raise ValueError(f"cannot convert {value!r} to {si_unit or 'a plain number'} ({_reason(exc)})") from None
+    if not math.isfinite(result):
+        raise ValueError(f"{value!r} is not a finite quantity in {si_unit or 'plain numbers'}")
+    return result
+
+
+def _check_expression(unit: str, value: Any) -> None:
+    """Refuse unit text pint would take too long over: very long, or a power that is not a small number
+    on a unit name (pint evaluates ``10**10**10`` exactly, for ever)."""
+    if len(unit) > MAX_UNIT_LENGTH:
+        raise ValueError(f"the unit of {value!r} is longer than {MAX_UNIT_LENGTH} characters")
+    for power in _POWER.finditer(unit):
+        base = unit[:power.start()].rstrip()
+        exponent = _EXPONENT.match(unit, power.end())
+        if not base or not (base[-1].isalpha() or base[-1] == "_") or exponent is None or \
+                float(exponent.group(1)) > MAX_EXPONENT or _POWER.match(unit[exponent.end():].lstrip()):
+            raise ValueError(f"cannot read the unit {unit!r} in {value!r} (a power goes on a unit name and is a "
+                             f"plain number of at most {MAX_EXPONENT}, as in 'W/m^2/K')")
+
+
+def _reason(exc: Exception) -> str:
+    """The parser's own reason, where it gives one that says more than its exception type."""
+    if isinstance(exc, ZeroDivisionError):
+        return "division by zero"
+    text = str(exc).strip()
+    if not text or text.startswith("("):  # a bare assertion, a tokenizer's tuple
+        return "not a unit expression: check the operators and parentheses"
+    return text.splitlines()[0][:120]
 
 
 @lru_cache(maxsize=4096)

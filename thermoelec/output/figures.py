@@ -23,12 +23,14 @@ from matplotlib.figure import Figure
 
 from thermoelec.analysis.results import DEMAND_MODES, THERMOSTAT_EVENTS, SimulationResult
 from thermoelec.engine.events import CCCV_CAP_EVENT, EV_CV_CUTOFF, EV_CV_SWITCH, EVENT_NAMES, STOP_EVENTS
+from thermoelec.output.pack_figures import pack_map
 from thermoelec.physics.constants import COULOMBS_PER_AH, SECONDS_PER_HOUR
 from thermoelec.physics.loads import maximum_power, voltage_limited_power
 
 __all__ = [
     "FIGURE_NAMES",
     "MODE_COLOURS",
+    "PACK_MAP",
     "AxisRange",
     "EnergyPart",
     "OperatingState",
@@ -276,7 +278,8 @@ def _limit_lines(ax: Any, scale: AxisRange, colour: str, label: str, unit: str) 
 
 def _draw_electrical(ax_current: Any, ax_voltage: Any, ax_soc: Any, t: np.ndarray, s: Mapping[str, np.ndarray],
                      lim: Mapping[str, float], marker: str | None = None) -> None:
-    """Pack current [A], pack voltage [V] with the open-circuit voltage and the limits, SoC [-]."""
+    """Pack current [A], pack voltage [V] with the open-circuit voltage and the limits, SoC [-] (a resolved
+    pack's as the band of its cells around the pack's)."""
     ax_current.plot(t, s["current_A"], color="C0", lw=1.0, marker=marker)
     ax_current.axhline(0.0, color="0.3", lw=0.5)
     ax_current.set_ylabel("pack current [A]\n(+ discharge)")
@@ -290,21 +293,37 @@ def _draw_electrical(ax_current: Any, ax_voltage: Any, ax_soc: Any, t: np.ndarra
     ax_voltage.set_ylabel("pack voltage [V]")
     ax_voltage.legend(loc="lower left", fontsize=7, ncol=3)
 
-    ax_soc.plot(t, s["soc"], color="C4", lw=1.0, marker=marker)
+    if "soc_min" in s:  # a resolved pack: its cells from the emptiest to the fullest, around the pack's SoC
+        ax_soc.fill_between(t, s["soc_min"], s["soc_max"], color="C4", alpha=0.25, lw=0, label="cells: min..max")
+    ax_soc.plot(t, s["soc"], color="C4", lw=1.0, marker=marker, label="pack" if "soc_min" in s else None)
+    if "soc_min" in s:
+        ax_soc.legend(loc="lower left", fontsize=7, ncol=2)
     ax_soc.set_ylabel("SoC [-]")
     ax_soc.set_ylim(-0.02, 1.02)
 
 
 def temperature_series(s: Mapping[str, np.ndarray]) -> list[np.ndarray]:
-    """The temperatures the dashboard draws [degC]: cell, sink, ambient, and the coolant where there is one."""
-    keys = ("cell_temperature_degC", "sink_temperature_degC", "ambient_temperature_degC", "coolant_temperature_degC")
+    """The temperatures the dashboard draws [degC]: cell, sink, ambient, and the coolant where there is one
+    (a resolved pack's coldest cell too, the bottom of its band)."""
+    keys = ("cell_temperature_degC", "sink_temperature_degC", "ambient_temperature_degC", "coolant_temperature_degC",
+            "cell_temperature_min_degC")
     return [s[key] for key in keys if key in s]
 
 
 def _draw_thermal(ax_temp: Any, ax_heat: Any, t: np.ndarray, s: Mapping[str, np.ndarray],
                   lim: Mapping[str, float], marker: str | None = None) -> None:
-    """Cell, sink and ambient temperatures [degC] with the cell limit; heat flows [W]."""
-    ax_temp.plot(t, s["cell_temperature_degC"], color="C3", lw=1.2, marker=marker, label="cell")
+    """Cell, sink and ambient temperatures [degC] with the cell limit; heat flows [W].
+
+    A resolved pack's cells are drawn as a band from the coldest to the hottest cell
+    with their mean; the line of the cell temperature is then the hottest cell's.
+    """
+    resolved = "cell_temperature_min_degC" in s
+    if resolved:
+        ax_temp.fill_between(t, s["cell_temperature_min_degC"], s["cell_temperature_degC"], color="C3", alpha=0.2,
+                             lw=0, label="cells: min..max")
+        ax_temp.plot(t, s["cell_temperature_mean_degC"], color="C3", lw=0.8, ls=":", label="cells: mean")
+    ax_temp.plot(t, s["cell_temperature_degC"], color="C3", lw=1.2, marker=marker,
+                 label="hottest cell" if resolved else "cell")
     ax_temp.plot(t, s["sink_temperature_degC"], color="C5", lw=1.0, marker=marker, label="sink")
     ax_temp.plot(t, s["ambient_temperature_degC"], color="0.4", lw=0.9, ls="-.", marker=marker, label="ambient")
     if "coolant_temperature_degC" in s:
@@ -700,8 +719,10 @@ def _scale_time_as(reference: np.ndarray, times: np.ndarray) -> np.ndarray:
 # Writing
 # ---------------------------------------------------------------------------
 
-#: File stems of the figures written by :func:`write_figures`.
+#: File stems of the figures written by :func:`write_figures` (and, for a resolved pack, :data:`PACK_MAP`).
 FIGURE_NAMES = ("dashboard", "energy", "operating_region")
+#: File stem of a resolved pack's map (:func:`thermoelec.output.pack_figures.pack_map`).
+PACK_MAP = "pack_map"
 
 
 def save(fig: Figure, out_dir: Path, stem: str, formats: Sequence[str]) -> list[Path]:
@@ -716,13 +737,15 @@ def save(fig: Figure, out_dir: Path, stem: str, formats: Sequence[str]) -> list[
 
 def write_figures(result: SimulationResult, out_dir: str | Path,
                   formats: Sequence[str] = ("png", "svg")) -> list[Path]:
-    """Write the dashboard, energy chart and operating-region chart of one result."""
+    """Write the dashboard, energy chart and operating-region chart of one result (a resolved pack's map too)."""
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
     makers = {"dashboard": dashboard, "energy": energy_chart, "operating_region": operating_region}
     paths = []
     for stem in FIGURE_NAMES:
         paths += save(makers[stem](result), out, stem, formats)
+    if result.cells is not None:  # a resolved pack: the peak temperature of every cell where it sits
+        paths += save(pack_map(result), out, PACK_MAP, formats)
     return paths
 
 

@@ -17,7 +17,7 @@ from typing import Any
 
 from thermoelec.analysis import verdict as _verdict
 from thermoelec.analysis.results import ENERGY_ROWS, NET_ENERGY_ROWS, SimulationResult
-from thermoelec.output.tables import SUMMARY_ROWS, check_rows, format_value
+from thermoelec.output.tables import PACK_ROWS, SUMMARY_ROWS, check_rows, format_value
 
 __all__ = ["CAUTIONS", "comparison_report", "fit_report", "limit_checks", "run_report", "verdict", "write_report"]
 
@@ -162,6 +162,24 @@ def _overrides(lines: Sequence[str]) -> str:
     return "<ul class='overrides'>" + "".join(f"<li><code>{_e(line)}</code></li>" for line in lines) + "</ul>"
 
 
+def _pack_section(result: SimulationResult, figure: Any) -> str:
+    """A resolved pack's cells: the hottest and where, the spreads, the first cell at a limit, the pack map."""
+    from thermoelec.output.figures import PACK_MAP
+
+    summary = result.summary
+    rows = [[_e(label), _e(format_value(summary.get(key), unit))] for label, key, unit in PACK_ROWS]
+    return "".join([
+        "<h2>Cells of the pack</h2>",
+        f"<p>Every cell resolved: {summary['cells']} cells, "
+        f"{result.limits['series']} groups in series of {result.limits['parallel']} in parallel. The pack's "
+        "cell temperature above is the hottest cell's; each cell is still one lumped node (its core-to-surface "
+        "gradient is not resolved).</p>",
+        _table(["metric", "value"], rows),
+        _figure(figure(PACK_MAP), "Pack map: the peak temperature of each cell where it sits, the hottest ringed, "
+                "parallel groups boxed, the coolant's path from inlet to outlet."),
+    ])
+
+
 def _warnings(warnings: Sequence[str]) -> str:
     if not warnings:
         return "<p>No warnings.</p>"
@@ -272,10 +290,11 @@ def run_report(result: SimulationResult, raw: Mapping[str, Any] | None = None, d
     listed with their units and sources (defaults marked), else the raw keys are listed.
     """
     from thermoelec.output import figures
+    from thermoelec.output.pack_figures import pack_map
 
     pngs = pngs or {}
     drawn = {"dashboard": figures.dashboard, "energy": figures.energy_chart,
-             "operating_region": figures.operating_region}
+             "operating_region": figures.operating_region, figures.PACK_MAP: pack_map}
 
     def figure(name: str):
         return pngs[name] if name in pngs else drawn[name](result)
@@ -290,6 +309,7 @@ def run_report(result: SimulationResult, raw: Mapping[str, Any] | None = None, d
         "<h2>Notes and warnings</h2>", _notes(summary.get("notes", [])), _warnings(result.warnings),
         "<h2>Energy</h2>", _rows_table(summary, ENERGY_ROWS, "energy"),
         "<h2>Summary</h2>", _summary_table(summary),
+        _pack_section(result, figure) if result.cells is not None else "",
         "<h2>Events</h2>", _events(summary.get("events", [])),
         "<h2>Soak</h2>", _soak(summary.get("soak")),
         "<h2>Stress indicators</h2>", _rows_table(summary, STRESS_ROWS),
@@ -309,6 +329,7 @@ def run_report(result: SimulationResult, raw: Mapping[str, Any] | None = None, d
 
 def _case_section(outcome: Any) -> list[str]:
     from thermoelec.output import figures
+    from thermoelec.output.pack_figures import pack_map
 
     result = outcome.result
     return [
@@ -320,19 +341,21 @@ def _case_section(outcome: Any) -> list[str]:
         "<h3>Soak</h3>", _soak(result.summary.get("soak")),
         _figure(figures.dashboard(result), f"Mission dashboard, {outcome.name}."),
         _figure(figures.energy_chart(result), f"Energy chart, {outcome.name}."),
+        *([_figure(pack_map(result), f"Pack map, {outcome.name}: the peak temperature of each cell.")]
+          if result.cells is not None else []),
     ]
 
 
 def comparison_report(outcomes: Sequence[Any], raw: Mapping[str, Any] | None = None, title: str = "",
                       description: str = "", parameters: Sequence[Any] | None = None) -> str:
     """The report of a case comparison as HTML text (``outcomes`` of :func:`thermoelec.analysis.compare.run_cases`)."""
-    from thermoelec.analysis.compare import COMPARISON_ROWS
+    from thermoelec.analysis.compare import comparison_rows
     from thermoelec.output import figures
 
     metrics = [o.metrics() for o in outcomes]
     names = [o.name for o in outcomes]
     rows = [[_e(label.strip()), *(_e(format_value(m.get(key), unit)) for m in metrics)]
-            for label, key, unit in COMPARISON_ROWS if key != "verdict"]
+            for label, key, unit in comparison_rows(outcomes) if key != "verdict"]
     verdicts = [[_e("verdict"), *(_verdict_badge(verdict(o.result.summary, o.result.limits)) for o in outcomes)]]
     body = [
         f"<h1>{_e(title or 'case comparison')}</h1>",

@@ -1,7 +1,7 @@
 """Plain-text output for the terminal: value formatting, the run summary, the case comparison.
 
 Owns every table printed on the terminal; the numbers come from analysis/
-(the summary, :data:`thermoelec.analysis.compare.COMPARISON_ROWS`). Imports from
+(the summary, :func:`thermoelec.analysis.compare.comparison_rows`). Imports from
 analysis/ and below only; never from fit/, the API or the command line.
 """
 
@@ -10,10 +10,11 @@ from __future__ import annotations
 from collections.abc import Mapping, Sequence
 from typing import Any, TextIO
 
-from thermoelec.analysis.compare import COMPARISON_ROWS, CaseOutcome
+from thermoelec.analysis.compare import CaseOutcome, comparison_rows
 from thermoelec.analysis.results import ENERGY_ROWS
 
-__all__ = ["SUMMARY_ROWS", "check_rows", "format_comparison", "format_value", "print_summary", "verdict_line"]
+__all__ = ["PACK_ROWS", "SUMMARY_ROWS", "check_rows", "format_comparison", "format_value", "print_summary",
+           "verdict_line"]
 
 
 def format_value(value: Any, unit: str = "", digits: int = 4) -> str:
@@ -52,6 +53,28 @@ SUMMARY_ROWS = (
 )
 
 
+#: A resolved pack's summary keys: label, key, unit (cells numbered from 1).
+PACK_ROWS: tuple[tuple[str, str, str], ...] = (
+    ("cells", "cells", ""),
+    ("hottest cell", "hottest_cell", ""),
+    ("  its group", "hottest_cell_group", ""),
+    ("  its place in the group", "hottest_cell_member", ""),
+    ("  its position in the layout", "hottest_cell_position", ""),
+    ("  its peak temperature", "hottest_cell_temperature_max_degC", "degC"),
+    ("  when", "hottest_cell_time_s", "s"),
+    ("peak of the mean cell temperature", "cell_temperature_mean_max_degC", "degC"),
+    ("largest cell-to-cell temperature difference", "cell_temperature_spread_max_K", "K"),
+    ("  when", "cell_temperature_spread_time_s", "s"),
+    ("SoC spread at the end", "soc_spread_end", ""),
+    ("largest current share (cell over its group's mean)", "current_share_max", ""),
+    ("  which cell", "current_share_max_cell", ""),
+    ("  when", "current_share_max_time_s", "s"),
+    ("first cell at a limit", "first_limit_cell", ""),
+    ("  its group", "first_limit_group", ""),
+    ("  the limit", "first_limit_event", ""),
+)
+
+
 def verdict_line(summary: Mapping[str, Any]) -> str:
     """The verdict in one line: ``verdict: PASS`` or ``verdict: FAIL (voltage_min, completed)``."""
     failed = [row["check"] for row in summary.get("checks", []) if not row["passed"]]
@@ -66,10 +89,12 @@ def check_rows(checks: Sequence[Mapping[str, Any]]) -> list[list[str]]:
 
 
 def print_summary(summary: Mapping[str, Any], stream: TextIO) -> None:
-    """A short table of the main metrics, the stop explained, notes and warnings; the limits and the verdict last."""
-    width = max(len(label) for label, _, _ in SUMMARY_ROWS)
+    """A short table of the main metrics (a resolved pack's cells too), the stop explained, notes and warnings;
+    the limits and the verdict last."""
+    metrics = SUMMARY_ROWS + (PACK_ROWS if "pack_model" in summary else ())  # a resolved pack's cells
+    width = max(len(label) for label, _, _ in metrics)
     print(f"scenario: {summary.get('scenario', '')}", file=stream)
-    for label, key, unit in SUMMARY_ROWS:
+    for label, key, unit in metrics:
         print(f"  {label:<{width}}  {format_value(summary.get(key), unit)}", file=stream)
     if summary.get("stop_explanation"):
         print(f"  {summary['stop_explanation']}", file=stream)
@@ -92,7 +117,7 @@ def format_comparison(outcomes: Sequence[CaseOutcome]) -> str:
     metrics = [o.metrics() for o in outcomes]
     header = ["", *(o.name for o in outcomes)]
     lines = [header]
-    for label, key, unit in COMPARISON_ROWS:
+    for label, key, unit in comparison_rows(outcomes):
         lines.append([label, *(format_value(m.get(key), unit) for m in metrics)])
     widths = [max(len(row[i]) for row in lines) for i in range(len(header))]
     return "\n".join("  ".join(cell.ljust(w) if i == 0 else cell.rjust(w)

@@ -6,7 +6,7 @@ repeated, soak segments apart. Files are read and segment tuples built through
 the scenario family's :class:`~thermoelec.scenario.cache.ScenarioCache`, so
 the variants of a sweep with one profile share one segment tuple.
 
-Imports the schema, series and cache modules of :mod:`thermoelec.scenario`,
+Imports the schema, series, cache and resolved-pack modules of :mod:`thermoelec.scenario`,
 :mod:`thermoelec.engine` and :mod:`thermoelec.physics`; never the loading module
 (the scenario object calls this one) nor the layers above.
 """
@@ -26,6 +26,7 @@ from thermoelec.physics.cell import Cell, Pack
 from thermoelec.physics.constants import ZERO_CELSIUS
 from thermoelec.physics.loads import LOAD_MODES
 from thermoelec.scenario.cache import ScenarioCache, file_version
+from thermoelec.scenario.resolved import resolved_pack
 from thermoelec.scenario.schema import CellSpec, ScenarioSpec, SegmentSpec
 from thermoelec.scenario.series import AMBIENT_COLUMN, read_ambient_csv, read_profile_csv
 
@@ -84,7 +85,7 @@ def build_problem(spec: ScenarioSpec, base_dir: Path, source: str, cache: Scenar
         name=spec.scenario.name, stress=spec.stress.settings(),
         ambient_profile=ambient_profile, soak=soak,
         initial_coolant_temperature=_initial_coolant_temperature(spec, t_cell, t_sink),
-        notes=_ambient_notes(spec, base_dir, cache, soak, t_cell),
+        notes=_ambient_notes(spec, base_dir, cache, soak, t_cell), resolved=resolved_pack(spec, source),
     )
 
 

@@ -18,7 +18,7 @@ import hashlib
 import re
 import tomllib
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any
 
@@ -26,15 +26,16 @@ from pydantic import ValidationError
 
 from thermoelec.engine.options import SolverOptions
 from thermoelec.engine.problem import Problem
+from thermoelec.inputs.budgets import current, round_up
 from thermoelec.inputs.errors import ScenarioError
 from thermoelec.scenario.build import build_problem
 from thermoelec.scenario.cache import ScenarioCache
-from thermoelec.scenario.locate import first_error
-from thermoelec.scenario.overrides import apply_override
+from thermoelec.scenario.locate import Origins, Source, first_error
+from thermoelec.scenario.overrides import apply_override, split_path
 from thermoelec.scenario.schema import ScenarioSpec
 from thermoelec.scenario.series import read_ambient_csv, read_profile_csv
 
-__all__ = ["Scenario", "load_scenario", "scenario_from_dict"]
+__all__ = ["Scenario", "data_files", "load_scenario", "names_files", "scenario_from_dict"]
 
 
 @dataclass(frozen=True)
@@ -57,6 +58,10 @@ class Scenario:
         Dotted paths and values applied to the file, in order.
     cache : ScenarioCache
         Files read and segment tuples built, shared with every variant (:meth:`with_overrides`).
+    origins : Origins or None
+        Which input gave each value (the file, an included file, an override), for messages.
+    included : tuple of pathlib.Path
+        The files it includes, in order.
     """
 
     spec: ScenarioSpec
@@ -66,19 +71,24 @@ class Scenario:
     digest: str
     overrides: tuple[tuple[str, Any], ...] = field(default_factory=tuple)
     cache: ScenarioCache = field(default_factory=ScenarioCache, compare=False, repr=False)
+    origins: Origins | None = field(default=None, compare=False, repr=False)
+    included: tuple[Path, ...] = ()
 
     @property
     def name(self) -> str:
         """The scenario's name."""
         return self.spec.scenario.name
 
-    def with_overrides(self, overrides: Mapping[str, Any]) -> Scenario:
+    def with_overrides(self, overrides: Mapping[str, Any], origin: str | None = None) -> Scenario:
         """A new scenario with values replaced by dotted path (validated again), sharing this one's cache.
 
         Parameters
         ----------
         overrides : Mapping of str to Any
             Dotted path (``profile.segment[2].value``) to the value as the file would write it (``"5 A"``).
+        origin : str, optional
+            Where the overrides come from (``'[[case]] 2 "cold start"'``), named by the error of a
+            value they set; the scenario file by default.
 
         Returns
         -------
@@ -93,8 +103,11 @@ class Scenario:
         """
         # the files were checked when this scenario was loaded: again only if an override may name others
         items = list(overrides.items())
+        origins = None if self.origins is None else \
+            self.origins.with_overrides(_override_sources(items, origin or self.source))
         return _validate(_deep_copy(self.raw), self.source, self.base_dir, None, items, self.digest, self.overrides,
-                         check_files=any(_names_files(path) for path, _ in items), cache=self.cache)
+                         check_files=any(names_files(path) for path, _ in items), cache=self.cache,
+                         origins=origins, included=self.included, variant=True)
 
     def for_variants(self) -> Scenario:
         """This scenario without its ``[sweep]``, ``[[option]]`` and ``[review]`` tables (same digest and cache).
@@ -107,7 +120,7 @@ class Scenario:
             return self
         raw = {k: v for k, v in self.raw.items() if k not in drop}
         spec = self.spec.model_copy(update={"sweep": {}, "option": {}, "review": None})
-        return Scenario(spec, raw, self.source, self.base_dir, self.digest, self.overrides, self.cache)
+        return replace(self, spec=spec, raw=raw)
 
     def problem(self) -> Problem:
         """The SI :class:`~thermoelec.engine.problem.Problem` for the simulator (reads CSV profiles, once per version).
@@ -129,43 +142,100 @@ def _deep_copy(data: Any) -> Any:
     return data
 
 
+def _check_sizes(data: Any, source: str, path: str = "") -> int:
+    """Refuse tables larger than the budget of rows before validating them; returns the values counted."""
+    if isinstance(data, dict):
+        return sum(_check_sizes(v, source, f"{path}.{k}" if path else str(k)) for k, v in data.items())
+    if not isinstance(data, list):
+        return 1
+    count = sum(_check_sizes(v, source, path) for v in data) if data and isinstance(data[0], (list, dict)) \
+        else len(data)
+    limit = current().rows
+    if count > limit:
+        raise ScenarioError(source, path, f"holds {count:.3g} values, over the budget of {limit:.3g} rows: raise it "
+                            f"with --max-rows {round_up(count)}, or put the series in a CSV profile")
+    return count
+
+
+def _override_sources(items: list[tuple[str, Any]], label: str, flag: bool = False) -> list[Source]:
+    """The overrides as sources of values: ``label`` (a ``--set`` flag is named with its value)."""
+    sources = []
+    for path, value in items:
+        try:
+            parts = tuple(split_path(path))
+        except ValueError:
+            parts = (path,)
+        shown = value if isinstance(value, str) else repr(value)
+        sources.append(Source(f"{label} {path}={shown}" if flag else label, path=parts))
+    return sources
+
+
 def _validate(data: dict, source: str, base_dir: Path, text: str | None, overrides: list[tuple[str, Any]],
               digest: str, previous: tuple = (), check_files: bool = True,
-              cache: ScenarioCache | None = None) -> Scenario:
+              cache: ScenarioCache | None = None, origins: Origins | None = None,
+              included: tuple[Path, ...] = (), variant: bool = False) -> Scenario:
     """The scenario of raw ``data`` with ``overrides`` applied, validated (its CSV files too if ``check_files``)."""
-    for path, value in overrides:
+    if variant:  # the base was checked when it was loaded: only what the overrides bring
+        for path, value in overrides:
+            _check_sizes(value, source, path)
+    else:
+        _check_sizes(data, source)
+    labels = origins.overrides[len(origins.overrides) - len(overrides):] if origins is not None else ()
+    for i, (path, value) in enumerate(overrides):
         try:
             apply_override(data, path, value)
         except ValueError as exc:
-            raise ScenarioError(source, path, f"cannot override: {exc}") from None
+            raise ScenarioError(labels[i].name if labels else source, path, f"cannot override: {exc}") from None
     try:
         spec = ScenarioSpec.model_validate(data)
     except ValidationError as exc:
-        raise first_error(exc, source, text) from None
+        raise first_error(exc, source, text, origins) from None
     if overrides:
         h = hashlib.sha256(digest.encode())
         h.update(repr(overrides).encode())
         digest = h.hexdigest()
     scenario = Scenario(spec, data, source, base_dir, digest, tuple(previous) + tuple(overrides),
-                        ScenarioCache() if cache is None else cache)
+                        ScenarioCache() if cache is None else cache, origins, included)
     if check_files:
         _check_profile_files(scenario)
     return scenario
 
 
-def _names_files(path: str) -> bool:
+def names_files(path: str) -> bool:
     """Whether an override at this dotted path can change which CSV files the scenario reads."""
     return path.startswith(("profile", "thermal.ambient_profile")) or path in ("thermal", "include")
 
 
-def _check_profile_files(scenario: Scenario) -> None:
-    """Read the CSV files the scenario names (into its cache, for :meth:`Scenario.problem`)."""
-    spec, cache = scenario.spec, scenario.cache
+def data_files(spec: ScenarioSpec) -> list[tuple[str, str, Any]]:
+    """The data files a scenario reads: key, file name (relative to the scenario) and reader.
+
+    The one list of them: the loader checks them, a sweep hashes them into its identity.
+
+    Parameters
+    ----------
+    spec : ScenarioSpec
+        The validated scenario.
+
+    Returns
+    -------
+    list of (str, str, callable)
+        The dotted key naming each file, the name as written, and its reader
+        (:func:`~thermoelec.scenario.series.read_ambient_csv` or
+        :func:`~thermoelec.scenario.series.read_profile_csv`).
+    """
+    files = []
     if spec.thermal.ambient_profile is not None:
-        cache.read(read_ambient_csv, scenario.base_dir / spec.thermal.ambient_profile, "thermal.ambient_profile")
+        files.append(("thermal.ambient_profile", spec.thermal.ambient_profile, read_ambient_csv))
     for i, seg in enumerate(spec.profile.segment):
         if seg.file is not None:
-            cache.read(read_profile_csv, scenario.base_dir / seg.file, f"profile.segment[{i + 1}].file")
+            files.append((f"profile.segment[{i + 1}].file", seg.file, read_profile_csv))
+    return files
+
+
+def _check_profile_files(scenario: Scenario) -> None:
+    """Read the CSV files the scenario names (into its cache, for :meth:`Scenario.problem`)."""
+    for key, name, reader in data_files(scenario.spec):
+        scenario.cache.read(reader, scenario.base_dir / name, key)
 
 
 def _merge(base: dict, top: Mapping) -> dict:
@@ -179,37 +249,58 @@ def _merge(base: dict, top: Mapping) -> dict:
     return out
 
 
-def _with_includes(data: dict, base_dir: Path, source: str) -> tuple[dict, list[bytes]]:
+def _with_includes(data: dict, base_dir: Path, source: str) -> tuple[dict, list[bytes], list[Source]]:
     """Resolve ``include = "file.toml"`` (or a list): the included tables are the base, the scenario's win.
 
     Relative paths are relative to the scenario file; an included file cannot include again.
+    Returns the merged data, each included file's bytes and each as a source of values.
     """
     includes = data.pop("include", None)
     if includes is None:
-        return data, []
+        return data, [], []
     if isinstance(includes, str):
         includes = [includes]
     if not isinstance(includes, list) or not all(isinstance(i, str) for i in includes):
         raise ScenarioError(source, "include", "expected a file name or a list of file names")
     merged: dict = {}
-    blobs = []
+    blobs, sources = [], []
     for name in includes:
-        path = base_dir / name
-        try:
-            blob = path.read_bytes()
-            included = tomllib.loads(blob.decode("utf-8"))
-        except FileNotFoundError:
-            raise ScenarioError(source, "include", f"included file {name!r} not found (looked for {path})") from None
-        except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
-            raise ScenarioError(str(path), "", f"included file: {exc}") from None
-        if "include" in included:
-            raise ScenarioError(str(path), "include", "an included file cannot include others")
+        blob, text, included = _read_include(name, base_dir, source)
         merged = _merge(merged, included)
         blobs.append(blob)
-    return _merge(merged, data), blobs
+        sources.append(Source(str(base_dir / name), included, text))
+    return _merge(merged, data), blobs, sources
 
 
-def load_scenario(path: str | Path, overrides: Mapping[str, Any] | None = None) -> Scenario:
+def _read_include(name: str, base_dir: Path, source: str) -> tuple[bytes, str, dict]:
+    """An included file's bytes, text and tables; every problem named as the scenario's ``include`` key."""
+    if not name.strip():
+        raise ScenarioError(source, "include", "an empty file name")
+    path = base_dir / name
+    if path.is_dir():
+        raise ScenarioError(source, "include", f"included file {name!r} is a folder, not a file")
+    try:
+        blob = path.read_bytes()
+    except FileNotFoundError:
+        raise ScenarioError(source, "include", f"included file {name!r} not found (looked for {path})") from None
+    except OSError as exc:
+        raise ScenarioError(source, "include", f"cannot read the included file {name!r}: {exc.strerror}") from None
+    try:
+        text = blob.decode("utf-8")
+        included = tomllib.loads(text)
+    except UnicodeDecodeError:
+        raise ScenarioError(str(path), "", "the included file is not UTF-8 text") from None
+    except tomllib.TOMLDecodeError as exc:
+        line = re.search(r"line (\d+)", str(exc))
+        raise ScenarioError(str(path), "", f"included file: TOML syntax error: {exc}",
+                            int(line.group(1)) if line else None) from None
+    if "include" in included:
+        raise ScenarioError(str(path), "include", "an included file cannot include others")
+    return blob, text, included
+
+
+def load_scenario(path: str | Path, overrides: Mapping[str, Any] | None = None,
+                  overrides_from: str = "override") -> Scenario:
     """Read and validate a scenario file; ``overrides`` replace values by dotted path first.
 
     Parameters
@@ -218,6 +309,9 @@ def load_scenario(path: str | Path, overrides: Mapping[str, Any] | None = None) 
         The scenario file (TOML, format 1); its CSV and include names are relative to its folder.
     overrides : Mapping of str to Any, optional
         Dotted path to value, as the file would write it (``{"thermal.ambient_temperature": "-20 degC"}``).
+    overrides_from : str
+        How the overrides were given (``"--set"``), named with the key and value by the error
+        of a value they set.
 
     Returns
     -------
@@ -248,10 +342,16 @@ def load_scenario(path: str | Path, overrides: Mapping[str, Any] | None = None) 
         raise ScenarioError(source, "", f"TOML syntax error: {exc}",
                             int(line_match.group(1)) if line_match else None) from None
     digest = hashlib.sha256(blob).hexdigest()
-    data, included = _with_includes(data, path.parent, source)
+    own = _deep_copy(data)
+    own.pop("include", None)
+    data, included, sources = _with_includes(data, path.parent, source)
     for extra in included:
         digest = hashlib.sha256((digest + hashlib.sha256(extra).hexdigest()).encode()).hexdigest()
-    return _validate(data, source, path.parent, text, list((overrides or {}).items()), digest)
+    items = list((overrides or {}).items())
+    origins = Origins(Source(source, own, text), tuple(sources),
+                      tuple(_override_sources(items, overrides_from, flag=True)))
+    return _validate(data, source, path.parent, text, items, digest, origins=origins,
+                     included=tuple(Path(s.name) for s in sources))
 
 
 def scenario_from_dict(data: Mapping[str, Any], base_dir: str | Path = ".", source: str = "<dict>",
@@ -280,6 +380,6 @@ def scenario_from_dict(data: Mapping[str, Any], base_dir: str | Path = ".", sour
         For any problem in the data, its overrides or the CSV profiles it names.
     """
     raw = _deep_copy(dict(data))
-    raw, _ = _with_includes(raw, Path(base_dir), source)
+    raw, _, _ = _with_includes(raw, Path(base_dir), source)
     digest = hashlib.sha256(repr(sorted(raw.items(), key=lambda kv: kv[0])).encode()).hexdigest()
     return _validate(raw, source, Path(base_dir), None, list((overrides or {}).items()), digest)

@@ -19,7 +19,7 @@ from dataclasses import dataclass
 from typing import Annotated, Any, Literal
 
 import numpy as np
-from pydantic import BaseModel, BeforeValidator, ConfigDict, model_validator
+from pydantic import BaseModel, BeforeValidator, ConfigDict, create_model, model_validator
 
 from thermoelec.engine.backends import BACKENDS
 from thermoelec.engine.options import SolverOptions
@@ -41,11 +41,19 @@ from thermoelec.physics.thermal import (
 )
 from thermoelec.scenario.series import AMBIENT_COLUMN
 
-__all__ = ["FORMAT_VERSION", "KeyedError", "OptionSpec", "ReviewSpec", "ScenarioSpec", "SegmentSpec", "Unit",
-           "key_kind"]
+__all__ = ["FORMAT_VERSION", "MIN_RTOL", "CellFileSpec", "KeyedError", "OptionSpec", "ReviewSpec", "ScenarioSpec",
+           "SegmentSpec", "Unit", "key_kind"]
 
 #: The scenario format this schema reads (the file's ``format`` key).
 FORMAT_VERSION = 1
+#: The tightest relative tolerance accepted [-]: about 450 times the double-precision epsilon (2.2e-16);
+#: CVODE refuses a tighter one as "too much accuracy requested", scipy's solvers raise it to 100 epsilon.
+MIN_RTOL = 1e-13
+#: The largest activation energy accepted [J/mol]: cells' Arrhenius laws take 20 to 80 kJ/mol (common
+#: practice); ten times that keeps the factor finite over the temperatures a pack meets.
+MAX_ACTIVATION_ENERGY = 500e3
+#: The most internal steps per phase accepted [-]: CVODE counts them in a C long.
+MAX_STEPS = 2**31 - 1
 #: Default reference temperature of the cell's tables and laws: 25 degC (common practice) [K].
 REFERENCE_TEMPERATURE = ZERO_CELSIUS + 25.0
 
@@ -58,6 +66,28 @@ REFERENCE_TEMPERATURE = ZERO_CELSIUS + 25.0
 def _quantity(default_unit: str, si_unit: str | None = None):
     si = si_unit or default_unit
     return BeforeValidator(lambda v: to_si(v, default_unit, si))
+
+
+def _absolute(value: Any) -> float:
+    """A temperature [K] from a file's value (a bare number in degC), refused at or below absolute zero."""
+    kelvin = to_si(value, "degC", "K")
+    if kelvin <= 0.0:
+        raise ValueError(f"{value!r} is at or below absolute zero ({kelvin - ZERO_CELSIUS:.6g} degC)")
+    return kelvin
+
+
+def _temperature_list(v: Any) -> list[float]:
+    if not isinstance(v, list):
+        raise ValueError(f"expected a list of temperatures in degC, got {v!r}")
+    if not v:
+        raise ValueError("the list is empty")
+    out = []
+    for i, item in enumerate(v):
+        try:
+            out.append(_absolute(item))
+        except ValueError as exc:
+            raise ValueError(f"item {i + 1}: {exc}") from None
+    return out
 
 
 def _quantity_list(default_unit: str, si_unit: str | None = None):
@@ -129,7 +159,7 @@ Resistance = _scalar("ohm")
 Capacity = _scalar("Ah", "C")
 Mass = _scalar("kg")
 SpecificHeat = _scalar("J/kg/K")
-Temperature = _scalar("degC", "K")
+Temperature = Annotated[float, BeforeValidator(_absolute), Unit("degC", "K")]  # above absolute zero
 HeatCapacity = _scalar("J/K")
 Conductance = _scalar("W/K")
 Coefficient = _scalar("W/m^2/K")
@@ -146,23 +176,29 @@ Kelvin = _scalar("K")
 SocList = _listed("", "")
 VoltageList = _listed("V")
 EntropicList = _listed("V/K")
-TemperatureList = _listed("degC", "K")
 SpeedList = _listed("m/s")
 MassFlowList = _listed("kg/s")
 PowerList = _listed("W")
+TemperatureList = Annotated[list[float], BeforeValidator(_temperature_list), Unit("degC", "K")]
 ResistanceTable = Annotated[list[list[float]], _quantity_table("ohm"), Unit("ohm", "ohm")]
 Count = Annotated[int, BeforeValidator(_positive_int)]
 
 
 class KeyedError(ValueError):
-    """A validation error that knows which key of its section is at fault."""
+    """A validation error that knows which key of its section is at fault.
 
-    def __init__(self, key: str | None, message: str):
+    ``key`` is a key of the section, or a path below it as a tuple of keys and
+    0-based list indices (``("cell", 2, "cell")`` for ``cell[3].cell``). ``form``
+    tells a value that cannot be read as its key's kind (a wrong unit) from one
+    read well but out of range or at odds with another key (the default).
+    """
+
+    def __init__(self, key: str | tuple | None, message: str, form: bool = False):
         super().__init__(message)
-        self.key = key
+        self.key, self.form = key, form
 
 
-def _check(condition: bool, message: str, key: str | None = None) -> None:
+def _check(condition: bool, message: str, key: str | tuple | None = None) -> None:
     """Raise ``message`` as a :class:`KeyedError` naming ``key`` unless ``condition`` holds."""
     if not condition:
         raise KeyedError(key, message)
@@ -171,6 +207,13 @@ def _check(condition: bool, message: str, key: str | None = None) -> None:
 def _increasing(values: list[float], what: str) -> None:
     _check(all(b > a for a, b in itertools.pairwise(values)),
            f"{what} must be strictly increasing", what)
+
+
+def _activation_energy(value: float | None, what: str = "activation_energy") -> None:
+    """0 .. :data:`MAX_ACTIVATION_ENERGY`: an Arrhenius factor that stays a finite number."""
+    if value is not None:
+        _check(0.0 <= value <= MAX_ACTIVATION_ENERGY, f"{what} must lie within 0..{MAX_ACTIVATION_ENERGY / 1e3:g} "
+               f"kJ/mol, got {value / 1e3:.4g} kJ/mol", what)
 
 
 def _positive(value: float | None, what: str, allow_zero: bool = False) -> None:
@@ -250,8 +293,7 @@ class ResistanceSpec(_Section):
                 _check(len(row) == len(self.soc), f"values row {r + 1} has {len(row)} values but soc has "
                                                   f"{len(self.soc)}")
                 _check(all(x > 0 for x in row), f"values row {r + 1}: resistances must be > 0")
-        if self.activation_energy is not None:
-            _check(self.activation_energy >= 0, "activation_energy must be >= 0")
+        _activation_energy(self.activation_energy)
         return self
 
     def law(self) -> ResistanceLaw:
@@ -290,6 +332,7 @@ class RCSpec(_Section):
         _positive(self.time_constant, "time_constant")
         if isinstance(self.resistance, float):
             _positive(self.resistance, "resistance")
+        _activation_energy(self.activation_energy)
         return self
 
     def pair(self) -> RCPair:
@@ -336,11 +379,13 @@ class CellSpec(_Section):
         if self.thermal_conductivity is not None:
             _check(bool(cylinder or prism), "thermal_conductivity needs the cell geometry: diameter and length, "
                    "or thickness, width and height", "thermal_conductivity")
-        _check(self.voltage_min < self.voltage_max,
-               f"voltage_min ({self.voltage_min:g} V) must be below voltage_max ({self.voltage_max:g} V)",
-               "voltage_min")
-        _check(0.0 <= self.initial_soc <= 1.0, f"initial_soc must lie within 0..1, got {self.initial_soc:g}",
-               "initial_soc")
+        if self.voltage_min is not None and self.voltage_max is not None:  # a cell file may give one
+            _check(self.voltage_min < self.voltage_max,
+                   f"voltage_min ({self.voltage_min:g} V) must be below voltage_max ({self.voltage_max:g} V)",
+                   "voltage_min")
+        if self.initial_soc is not None:
+            _check(0.0 <= self.initial_soc <= 1.0, f"initial_soc must lie within 0..1, got {self.initial_soc:g}",
+                   "initial_soc")
         return self
 
 
@@ -353,14 +398,183 @@ class CellSpec(_Section):
 _GEOMETRY_KEYS = ("diameter", "length", "thickness", "width", "height")
 
 
+class LayoutSpec(_Section):
+    """Where the cells sit: a grid (``rows`` x ``columns``, numbered along the rows or down the
+    columns), or a list (``neighbours`` as pairs of cell numbers, ``wall`` cells, optional ``positions``)."""
+
+    rows: Count | None = None
+    columns: Count | None = None
+    fill: Literal["rows", "columns"] = "rows"
+    neighbours: list[list[int]] | None = None
+    wall: list[int] = []
+    positions: list[list[float]] | None = None
+
+    @model_validator(mode="after")
+    def _layout(self):
+        grid = self.rows is not None or self.columns is not None
+        _check(grid != (self.neighbours is not None),
+               "give rows and columns (a grid), or neighbours (a list of pairs of cells), not both",
+               "neighbours" if grid else "rows")
+        if grid:
+            _check(self.rows is not None and self.columns is not None, "a grid needs both rows and columns",
+                   "columns" if self.columns is None else "rows")
+            _check(not self.wall and self.positions is None,
+                   "a grid finds its wall cells and positions itself: drop wall and positions", "wall")
+        else:
+            for k, pair in enumerate(self.neighbours):
+                _check(len(pair) == 2 and pair[0] != pair[1], f"neighbours item {k + 1} must be two different cells",
+                       ("neighbours", k))
+        if self.positions is not None:
+            for k, xy in enumerate(self.positions):
+                _check(len(xy) == 2, f"positions item {k + 1} must be [x, y]", ("positions", k))
+        return self
+
+    def check_cells(self, n: int) -> None:
+        """Raise a :class:`KeyedError` (relative to ``[pack]``) unless the layout holds ``n`` cells."""
+        if self.rows is not None:
+            _check(self.rows * self.columns == n, f"the layout has {self.rows} x {self.columns} = "
+                   f"{self.rows * self.columns} places but the pack series x parallel = {n} cells", ("layout", "rows"))
+            return
+        for k, pair in enumerate(self.neighbours or []):
+            _check(all(1 <= c <= n for c in pair), f"neighbours item {k + 1} names a cell outside 1..{n}",
+                   ("layout", "neighbours", k))
+        for k, c in enumerate(self.wall):
+            _check(1 <= c <= n, f"wall item {k + 1} names a cell outside 1..{n}", ("layout", "wall", k))
+        if self.positions is not None:
+            _check(len(self.positions) == n, f"positions has {len(self.positions)} entries but the pack series x "
+                   f"parallel = {n} cells", ("layout", "positions"))
+
+
+class SpreadSpec(_Section):
+    """Relative standard deviations of the cells' capacity and resistances, truncated normal, seeded."""
+
+    capacity: Dimensionless = 0.0
+    r0: Dimensionless = 0.0
+    rc: Dimensionless = 0.0
+    seed: int = 0
+    truncation: Dimensionless = 3.0
+
+    @model_validator(mode="after")
+    def _spread(self):
+        _check(self.truncation > 0, f"truncation must be > 0 standard deviations, got {self.truncation:g}",
+               "truncation")
+        for key in ("capacity", "r0", "rc"):
+            value = getattr(self, key)
+            _check(value >= 0, f"{key} is a relative standard deviation and must be >= 0, got {value:g}", key)
+            _check(value * self.truncation < 1, f"{key} times truncation ({value * self.truncation:g}) must stay "
+                   "below 1: a cell's factor would reach zero", key)
+        _check(self.seed >= 0, f"seed must be >= 0, got {self.seed}", "seed")
+        return self
+
+
+#: The serpentine coolant paths of a grid layout (``physics.pack.serpentine_order``).
+COOLANT_PATHS = ("rows", "columns")
+
+
+def _coolant_order(v: Any) -> Any:
+    """``"rows"``, ``"columns"`` or a list of cell numbers (whole numbers)."""
+    if v is None or v in COOLANT_PATHS:
+        return v
+    if isinstance(v, list) and all(isinstance(c, int) and not isinstance(c, bool) for c in v):
+        return v
+    raise ValueError(f"expected {' or '.join(repr(p) for p in COOLANT_PATHS)} (a serpentine along the grid) or a "
+                     f"list of cell numbers in flow order, got {v!r}")
+
+
+class PackThermalSpec(_Section):
+    """The thermal paths of each cell of a resolved pack (per cell, W/K)."""
+
+    neighbour_conductance: Conductance = 0.0
+    cell_to_sink: Conductance | None = None
+    cell_to_ambient: Conductance | None = None
+    wall_to_ambient: Conductance = 0.0
+    coolant_order: Annotated[Any, BeforeValidator(_coolant_order)] = None
+    plate_conductance: Conductance | None = None
+
+    @model_validator(mode="after")
+    def _paths(self):
+        for key in ("neighbour_conductance", "cell_to_sink", "cell_to_ambient", "wall_to_ambient",
+                    "plate_conductance"):
+            _positive(getattr(self, key), key, allow_zero=True)
+        order = self.coolant_order
+        if isinstance(order, list):
+            _check(len(order) > 0, "coolant_order is empty", "coolant_order")
+            seen: set[int] = set()
+            for k, c in enumerate(order):
+                _check(c not in seen, f"coolant_order names cell {c} twice (items {order.index(c) + 1} and {k + 1})",
+                       ("coolant_order", k))
+                seen.add(c)
+        _check(self.plate_conductance is None or order is not None,
+               "plate_conductance is the conductance of each cell's segment of the coolant path: give "
+               "coolant_order", "plate_conductance")
+        return self
+
+
+class CellOverrideSpec(_Section):
+    """One cell of a resolved pack that differs: factors on the nominal cell (times its spread) and its own paths."""
+
+    cell: int
+    capacity_factor: Dimensionless = 1.0
+    r0_factor: Dimensionless = 1.0
+    rc_factor: Dimensionless = 1.0
+    tab_resistance: Resistance = 0.0
+    initial_soc: Soc | None = None
+    cell_to_sink: Conductance | None = None
+    cell_to_ambient: Conductance | None = None
+    plate_conductance: Conductance | None = None
+
+    @model_validator(mode="after")
+    def _cell(self):
+        for key in ("capacity_factor", "r0_factor", "rc_factor"):
+            _positive(getattr(self, key), key)
+        for key in ("tab_resistance", "cell_to_sink", "cell_to_ambient", "plate_conductance"):
+            _positive(getattr(self, key), key, allow_zero=True)
+        _check(self.initial_soc is None or 0.0 <= self.initial_soc <= 1.0,
+               f"initial_soc must lie within 0..1, got {self.initial_soc}", "initial_soc")
+        return self
+
+
+#: The keys of ``[pack]`` that belong to a resolved pack (``model = "resolved"``).
+RESOLVED_KEYS = ("layout", "spread", "thermal", "cell")
+
+
 class PackSpec(_Section):
     series: Count = 1
     parallel: Count = 1
     interconnect_resistance: Resistance = 0.0
+    model: Literal["lumped", "resolved"] = "lumped"
+    layout: LayoutSpec | None = None
+    spread: SpreadSpec | None = None
+    thermal: PackThermalSpec | None = None
+    cell: list[CellOverrideSpec] = []
 
     @model_validator(mode="after")
     def _pack(self):
         _positive(self.interconnect_resistance, "interconnect_resistance", allow_zero=True)
+        if self.model == "lumped":
+            for key in RESOLVED_KEYS:
+                _check(not getattr(self, key), f"pack.{key} describes the cells of a resolved pack: set "
+                       'pack.model = "resolved" (the default lumped pack has identical cells in one node)', key)
+            return self
+        n = self.series * self.parallel
+        if self.layout is not None:
+            self.layout.check_cells(n)
+        seen: dict[int, int] = {}
+        for k, override in enumerate(self.cell):
+            _check(1 <= override.cell <= n, f"cell {override.cell} is outside the pack's cells 1..{n} "
+                   f"(series x parallel = {self.series} x {self.parallel})", ("cell", k, "cell"))
+            _check(override.cell not in seen, f"cell {override.cell} is given twice (pack.cell items "
+                   f"{seen.get(override.cell, 0) + 1} and {k + 1})", ("cell", k, "cell"))
+            seen[override.cell] = k
+        order = self.thermal.coolant_order if self.thermal is not None else None
+        if isinstance(order, list):
+            for k, c in enumerate(order):
+                _check(1 <= c <= n, f"coolant_order names cell {c}, outside the pack's cells 1..{n}",
+                       ("thermal", "coolant_order", k))
+        elif order is not None:
+            _check(self.layout is None or self.layout.rows is not None,
+                   f'coolant_order = "{order}" follows the rows or columns of a grid layout: give the cells in '
+                   "flow order for a list layout", ("thermal", "coolant_order"))
         return self
 
 
@@ -685,7 +899,7 @@ class SegmentSpec(_Section):
         try:
             value = to_si(self.value, load.unit, load.unit)
         except ValueError as exc:
-            raise KeyedError("value", str(exc)) from None
+            raise KeyedError("value", str(exc), form=True) from None
         if load.positive:
             _positive(value, "value")
         object.__setattr__(self, "value", value)
@@ -713,6 +927,13 @@ class LimitsSpec(_Section):
     cell_temperature_max: Temperature = ZERO_CELSIUS + 60.0  # 60 degC, common practice for Li-ion cells
     charge_temperature_min: Temperature = ZERO_CELSIUS  # no charging below 0 degC (lithium plating; common practice)
 
+    @model_validator(mode="after")
+    def _limits(self):
+        _check(self.charge_temperature_min < self.cell_temperature_max,
+               f"charge_temperature_min ({self.charge_temperature_min - ZERO_CELSIUS:.4g} degC) must be below "
+               f"cell_temperature_max ({self.cell_temperature_max - ZERO_CELSIUS:.4g} degC)", "charge_temperature_min")
+        return self
+
 
 class StressSpec(_Section):
     activation_energy: Energy = StressSettings.activation_energy
@@ -721,7 +942,7 @@ class StressSpec(_Section):
 
     @model_validator(mode="after")
     def _stress(self):
-        _positive(self.activation_energy, "activation_energy", allow_zero=True)
+        _activation_energy(self.activation_energy)
         for key in ("reference_temperature", "hot_temperature"):
             _check(getattr(self, key) > 0, f"{key} is below absolute zero", key)
         return self
@@ -744,7 +965,8 @@ class SolverSpec(_Section):
     def _solver(self):
         _check(self.backend in BACKENDS, f"unknown backend {self.backend!r}; valid: {', '.join(BACKENDS)}",
                "backend")
-        _check(0 < self.rtol < 0.1, f"rtol must lie within 0..0.1, got {self.rtol:g}", "rtol")
+        _check(MIN_RTOL <= self.rtol < 0.1, f"rtol must lie within {MIN_RTOL:g}..0.1, got {self.rtol:g}", "rtol")
+        _check(self.max_steps <= MAX_STEPS, f"max_steps must be at most {MAX_STEPS}", "max_steps")
         _positive(self.output_interval, "output_interval")
         for key in ("atol_soc", "atol_voltage", "atol_temperature"):
             _positive(getattr(self, key), key)
@@ -790,6 +1012,24 @@ class ReviewSpec(_Section):
     over: str = "thermal.ambient_temperature"  # the key whose highest passing value is reported
     rank_by: str | None = None  # an attribute; the least first
     refine: bool = False  # refine each highest passing value by the design search
+def _all_optional(model: type[_Section], name: str) -> type[_Section]:
+    """``model`` with every key optional (default None), the same types, units and checks."""
+    fields = {key: (Annotated[field.annotation | None, *field.metadata] if field.metadata else field.annotation | None,
+                    None) for key, field in model.model_fields.items()}
+    validators = {f"_check_{key}": model_validator(mode="after")(decorator.func)
+                  for key, decorator in model.__pydantic_decorators__.model_validators.items()}
+    return create_model(name, __base__=_Section, __validators__=validators, __doc__=model.__doc__, **fields)
+
+
+#: A cell file's ``[cell]`` (``include = "cell.toml"``, ``fit --cell``): the scenario's keys, units and
+#: checks, each key optional (the scenario that includes it gives the rest).
+CellFileCell = _all_optional(CellSpec, "CellFileCell")
+
+
+class CellFileSpec(_Section):
+    """A cell file: one ``[cell]`` table, validated as the scenario's with every key optional."""
+
+    cell: CellFileCell  # type: ignore[valid-type]
 
 
 class ScenarioSpec(_Section):
@@ -806,6 +1046,19 @@ class ScenarioSpec(_Section):
     case: list[CaseSpec] = []
     option: dict[str, list[OptionSpec]] = {}
     review: ReviewSpec | None = None
+
+    @model_validator(mode="after")
+    def _resolved_coolant(self):
+        """A coolant path needs a coolant flow, and a massless one (it is quasi-steady along its path)."""
+        if self.pack.thermal is None or self.pack.thermal.coolant_order is None:
+            return self
+        coolant = self.thermal.coolant
+        key = ("pack", "thermal", "coolant_order")
+        _check(coolant is not None and coolant.flow_rate is not None,
+               "a coolant path needs [thermal.coolant] with flow_rate and plate_conductance", key)
+        _check(coolant.heat_capacity == 0.0, "a coolant path takes a massless coolant (its transit is quick "
+               "against the cells): drop thermal.coolant.heat_capacity", key)
+        return self
 
 
 

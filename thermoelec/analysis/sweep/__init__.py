@@ -1,9 +1,12 @@
 """Sweeps: many variants of one scenario, run in chunks, checkpointed, gathered into one labelled dataset.
 
-The package in four concerns, one module each:
+The package in five concerns, one module each:
 
 - :mod:`~thermoelec.analysis.sweep.plan`: the ``[sweep]`` table and ``--sweep``
   items read into a plan of axes (grid or zip) and each scenario's overrides;
+- :mod:`~thermoelec.analysis.sweep.checkpoint`: the sweep's identity (everything
+  that changes an answer, by content hash) and its finished chunks in
+  ``DIR/chunks/``, read back by scenario index for ``--resume``;
 - :mod:`~thermoelec.analysis.sweep.run`: chunks of scenarios solved together by
   the batched solver (:mod:`thermoelec.engine.batch`, the default), or solo on
   their own back end (CVODE by default) when the batch hands one back, when
@@ -21,11 +24,13 @@ re-exports the names the command line, the benchmarks and the tests use.
 """
 
 from thermoelec.analysis.metrics import METRICS
+from thermoelec.analysis.sweep.checkpoint import Checkpoints, sweep_identity
 from thermoelec.analysis.sweep.dataset import passes, sweep_dataset, sweep_table, write_series, write_sweep
-from thermoelec.analysis.sweep.plan import SweepAxis, SweepPlan, iter_combinations, plan_sweep
-from thermoelec.analysis.sweep.run import KEPT_SERIES, decimate, run_chunk, run_sweep, solo_metrics
+from thermoelec.analysis.sweep.plan import SweepAxis, SweepPlan, check_values, iter_combinations, plan_sweep
+from thermoelec.analysis.sweep.run import KEPT_SERIES, decimate, default_chunk_size, run_chunk, run_sweep, solo_metrics
 from thermoelec.analysis.sweep.search import Criterion, design_search, parse_criterion
 
-__all__ = ["KEPT_SERIES", "METRICS", "Criterion", "SweepAxis", "SweepPlan", "decimate", "design_search",
-           "iter_combinations", "parse_criterion", "passes", "plan_sweep", "run_chunk", "run_sweep", "solo_metrics",
-           "sweep_dataset", "sweep_table", "write_series", "write_sweep"]
+__all__ = ["KEPT_SERIES", "METRICS", "Checkpoints", "Criterion", "SweepAxis", "SweepPlan", "check_values", "decimate",
+           "default_chunk_size", "design_search", "iter_combinations", "parse_criterion", "passes", "plan_sweep",
+           "run_chunk", "run_sweep", "solo_metrics", "sweep_dataset", "sweep_identity", "sweep_table", "write_series",
+           "write_sweep"]

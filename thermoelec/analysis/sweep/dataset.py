@@ -20,7 +20,7 @@ from typing import Any
 
 import numpy as np
 
-from thermoelec.analysis.metrics import METRICS, VERDICT_KEYS
+from thermoelec.analysis.metrics import METRICS, PACK_METRICS, VERDICT_KEYS
 from thermoelec.analysis.sweep.plan import SweepPlan
 from thermoelec.analysis.sweep.run import KEPT_SERIES
 from thermoelec.analysis.sweep.sampling import SAMPLERS
@@ -66,7 +66,12 @@ def plan_coordinates(plan: SweepPlan) -> dict[str, tuple[str, np.ndarray, dict[s
 
 
 def sweep_dataset(scenario: Scenario, plan: SweepPlan, rows: Sequence[Mapping[str, Any]]):
-    """One xarray Dataset: a dimension per plan dimension (:func:`plan_coordinates`), a variable per metric."""
+    """One xarray Dataset: a dimension per plan dimension (:func:`plan_coordinates`), a variable per metric.
+
+    The metrics are :data:`~thermoelec.analysis.metrics.METRICS`, and those of
+    :data:`~thermoelec.analysis.metrics.PACK_METRICS` a resolved pack's rows have
+    (cells numbered from 1; NaN where a row has none, as a lumped row or no cell at a limit).
+    """
     import xarray as xr
 
     shape = plan.shape
@@ -74,7 +79,9 @@ def sweep_dataset(scenario: Scenario, plan: SweepPlan, rows: Sequence[Mapping[st
     coords = plan_coordinates(plan)
     data: dict[str, Any] = {}
     ran = [r.get("status") == "ok" for r in rows]  # a failed or invalid scenario has no metrics: NaN, not numbers
-    for key in METRICS:
+    # a resolved pack's metrics where a row has them (a lumped sweep keeps the variables it had)
+    pack = tuple(key for key in PACK_METRICS if any(key in r for r in rows))
+    for key in METRICS + pack:
         values = np.array([np.nan if not ok or r.get(key) is None else float(r[key])
                            for r, ok in zip(rows, ran, strict=True)]).reshape(shape)
         data[key] = (dims, values, {"units": _unit_of(key)})
@@ -142,7 +149,7 @@ def passes(ds) -> Any:
 
 def sweep_table(ds):
     """One row per scenario: the swept keys' values, status, message, stop reason, verdict, failed checks,
-    engine and the metrics (a pandas DataFrame, as ``sweep.csv`` holds it)."""
+    engine and the metrics, a resolved pack's too (a pandas DataFrame, as ``sweep.csv`` holds it)."""
     import pandas as pd
 
     flat = {name: ds[name].values.ravel() for name in ds.data_vars}
@@ -154,7 +161,8 @@ def sweep_table(ds):
         unit = ds[coord].attrs.get("units", "")
         columns[f"{coord} [{unit}]" if unit and unit != "as in the scenario file" else coord] = \
             ds[coord].values[index[axis]]
-    for key in ("status", "message", "stop_reason", *VERDICT_KEYS, "engine", *METRICS):
+    pack = [key for key in PACK_METRICS if key in flat]  # a resolved pack's metrics, where the sweep has them
+    for key in ("status", "message", "stop_reason", *VERDICT_KEYS, "engine", *METRICS, *pack):
         columns[key] = flat[key]
     return pd.DataFrame(columns)
 

@@ -43,11 +43,12 @@ from thermoelec.analysis.sweep.sampling import (
     distribution_from_text,
     parse_distribution,
 )
+from thermoelec.inputs.budgets import current, round_up
 from thermoelec.scenario import Scenario, ScenarioError, parse_value, split_path
 from thermoelec.scenario.options import OptionGroup, option_groups, split_quantity
 from thermoelec.scenario.schema import key_kind
 
-__all__ = ["RESERVED_KEYS", "Dimension", "SweepAxis", "SweepPlan", "iter_combinations", "plan_sweep"]
+__all__ = ["RESERVED_KEYS", "Dimension", "SweepAxis", "SweepPlan", "check_values", "iter_combinations", "plan_sweep"]
 
 #: Keys of ``[sweep]`` that are no dotted paths of the scenario.
 RESERVED_KEYS = ("mode", "options", "zip", "samples", "seed", "sampling", "percentiles")
@@ -77,16 +78,22 @@ def _axis(path: str, spec: Any, source: str) -> SweepAxis:
         if start is None or stop is None or start[1] != stop[1]:
             raise ScenarioError(source, key, "start and stop must be quantities in the same unit")
         unit = start[1]
+        limit = current().scenarios
         if "num" in spec:
             num = spec["num"]
-            if not isinstance(num, int) or num < 1:
+            if isinstance(num, bool) or not isinstance(num, int) or num < 1:
                 raise ScenarioError(source, key, "num must be a whole number >= 1")
+            _within(num, limit, source, key)
             numbers = np.linspace(start[0], stop[0], num)
         else:
             step = split_quantity(spec["step"])
             if step is None or step[0] <= 0 or step[1] not in (unit, "", "K" if unit == "degC" else unit):
                 raise ScenarioError(source, key, f"step must be a positive quantity in {unit or 'the same unit'}")
+            if stop[0] < start[0]:
+                raise ScenarioError(source, key, f"stop ({spec['stop']}) is below start ({spec['start']}): a range "
+                                    "with a step runs upwards; swap them, or give num for a descending range")
             count = math.floor((stop[0] - start[0]) / step[0] + 1e-9) + 1
+            _within(count, limit, source, key)
             numbers = start[0] + step[0] * np.arange(count)
         values = tuple(f"{v:.12g} {unit}".strip() if unit else float(v) for v in numbers)
         return SweepAxis(path, values, tuple(float(v) for v in numbers), unit)
@@ -97,6 +104,13 @@ def _axis(path: str, spec: Any, source: str) -> SweepAxis:
     if all(p is not None for p in parts) and len({p[1] for p in parts}) == 1:
         return SweepAxis(path, tuple(spec), tuple(p[0] for p in parts), parts[0][1])
     return SweepAxis(path, tuple(spec), tuple(json.dumps(v) if not isinstance(v, str) else v for v in spec), "")
+
+
+def _within(count: float, limit: int, source: str, key: str) -> None:
+    """Refuse an axis with more values than the budget of scenarios, before making them."""
+    if count > limit:
+        raise ScenarioError(source, key, f"the range has {count:.3g} values, over the budget of {limit:.3g} "
+                            f"scenarios: a coarser step, or raise the budget with --max-scenarios {round_up(count)}")
 
 
 @dataclass(frozen=True)
@@ -183,7 +197,7 @@ class SweepPlan:
 
     @property
     def size(self) -> int:
-        return int(np.prod(self.shape)) if self.dims else 1
+        return math.prod(self.shape)
 
     @property
     def dim_names(self) -> tuple[str, ...]:
@@ -325,7 +339,7 @@ def _sampling(scenario: Scenario, spec: dict[str, Any], distributions: list[Dist
 
 def plan_sweep(scenario: Scenario, cli_items: Sequence[str] = (), samples: int | None = None,
                seed: int | None = None, method: str | None = None, options: Sequence[str] | None = None,
-               percentiles: Sequence[float] | None = None) -> SweepPlan:
+               percentiles: Sequence[float] | None = None, check: bool = True) -> SweepPlan:
     """The sweep of a scenario: its option groups, ``[sweep]`` table and ``--sweep`` items (which replace).
 
     Parameters
@@ -340,6 +354,9 @@ def plan_sweep(scenario: Scenario, cli_items: Sequence[str] = (), samples: int |
         The option groups swept (replaces ``options``; default: every group of the scenario).
     percentiles : sequence of float, optional
         Percentiles reported besides P5, P50 and P95 [%].
+    check : bool
+        Validate every swept value (:func:`check_values`); the command line does that itself,
+        to keep the variants for its estimates.
 
     Raises
     ------
@@ -381,8 +398,57 @@ def plan_sweep(scenario: Scenario, cli_items: Sequence[str] = (), samples: int |
                             "--sweep KEY=V1,V2,...")
     _check_unique(dims, groups, source)
     plan = SweepPlan(tuple(dims), mode)
-    scenario.with_overrides(plan.overrides(0))  # the first combination must validate (key paths, units)
+    if plan.size > current().scenarios:
+        raise ScenarioError(source, "sweep", f"the sweep has {plan.size:.3g} scenarios ("
+                            + " x ".join(str(d.size) for d in dims) + f"), over the budget of "
+                            f"{current().scenarios:.3g}: sweep fewer values, or raise the budget with --max-scenarios "
+                            f"{round_up(plan.size)}")
+    if check:
+        check_values(scenario, plan)
     return plan
+
+
+def check_values(scenario: Scenario, plan: SweepPlan) -> list[Scenario]:
+    """Every swept value on its own (the other keys at their first value) must be one its key can take.
+
+    A key path that does not exist, or a value of the wrong kind or unit, refuses the
+    sweep before anything runs. A value read well but out of range, or at odds with
+    another key (``cell.initial_soc = 1.5``), only makes its scenarios invalid: they are
+    recorded with the message and the sweep goes on. The options were checked when their
+    group was read (:func:`thermoelec.scenario.options.option_groups`); of the samples, the
+    first is checked with the first combination.
+
+    Parameters
+    ----------
+    scenario : Scenario
+        The base scenario.
+    plan : SweepPlan
+        The plan.
+
+    Returns
+    -------
+    list of Scenario
+        The variants that validated, the first combination first.
+
+    Raises
+    ------
+    ScenarioError
+        Naming the swept key and its value.
+    """
+    first = plan.overrides(0)
+    variants = [scenario.with_overrides(first, origin="sweep: the first combination")]
+    for axis in plan.axes:
+        for value in axis.values:
+            origin = f"sweep.{axis.path} = {value!r}"
+            try:  # alone, so that an error is this value's; with the other keys' first values if it needs them
+                variants.append(scenario.with_overrides({axis.path: value}, origin=origin))
+            except ScenarioError as alone:
+                try:
+                    variants.append(scenario.with_overrides({**first, axis.path: value}, origin=origin))
+                except ScenarioError as exc:
+                    if alone.form and exc.form:
+                        raise alone from None
+    return variants
 
 
 def _check_unique(dims: Sequence[Dimension], groups: Sequence[OptionGroup], source: str) -> None:

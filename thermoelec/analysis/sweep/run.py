@@ -5,32 +5,46 @@ the batched solver of :mod:`thermoelec.engine.batch`, whose rows are
 :func:`thermoelec.analysis.metrics.batch_metrics`; a scenario the batch hands
 back, every scenario with ``engine = "solo"`` and every one whose series are
 kept runs on its own back end, CVODE by default, through
-:func:`thermoelec.analysis.simulate.simulate`); :func:`run_sweep` spreads the
-chunks over processes or a cluster and writes each finished chunk atomically to
-``DIR/chunks/``, so ``--resume`` skips it and an interrupted sweep loses at most
-the chunks in flight. A scenario that fails is recorded with its message and
-never stops the sweep. Imports from scenario/, engine/ and analysis/ only; never
-from output/, fit/, the API or the command line.
+:func:`thermoelec.analysis.simulate.simulate`); :func:`run_sweep` holds the
+output folder, spreads the chunks over processes or a cluster and writes each
+finished chunk atomically to ``DIR/chunks/``
+(:mod:`~thermoelec.analysis.sweep.checkpoint`), so ``--resume`` skips its
+scenarios and an interrupted sweep loses at most the chunks in flight. An
+interrupt (SIGINT, SIGTERM) or any other exception ends the worker processes and
+the fork server before it propagates (:func:`process_pool`): no worker outlives
+the command. A scenario that fails, or is over the budget of rows, is recorded
+with its message and never stops the sweep. Imports from scenario/, engine/,
+inputs/ and analysis/ only; never from output/, fit/, the API or the command line.
 """
 
 from __future__ import annotations
 
-import json
+import math
 import os
+import signal
 import sys
-from collections.abc import Callable, Mapping, Sequence
+import time as _time
+from collections.abc import Callable, Iterator, Mapping, Sequence
+from concurrent.futures import ProcessPoolExecutor, as_completed
+from contextlib import contextmanager
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
-from thermoelec.analysis.metrics import METRICS, batch_metrics
+from thermoelec.analysis.estimates import check_run
+from thermoelec.analysis.interrupts import deferred_signals
+from thermoelec.analysis.metrics import METRICS, PACK_METRICS, batch_metrics
 from thermoelec.analysis.simulate import simulate
+from thermoelec.analysis.sweep.checkpoint import Checkpoints, sweep_identity
 from thermoelec.analysis.sweep.plan import SweepPlan
+from thermoelec.analysis.transaction import hold
 from thermoelec.engine import batch
+from thermoelec.inputs.budgets import Budgets, current, install, using
 from thermoelec.scenario import Scenario, ScenarioError
 
-__all__ = ["KEPT_SERIES", "Progress", "decimate", "run_chunk", "run_sweep", "solo_metrics"]
+__all__ = ["KEPT_SERIES", "Progress", "decimate", "default_chunk_size", "process_pool", "run_chunk", "run_sweep",
+           "solo_metrics", "stop_pool"]
 
 
 #: Series kept per scenario with ``--keep-series`` (decimated to a uniform time grid).
@@ -49,7 +63,10 @@ def decimate(series: Mapping[str, np.ndarray], interval: float) -> dict[str, lis
 
 def solo_metrics(scenario: Scenario, overrides: Mapping[str, Any], keep_interval: float | None = None
                  ) -> dict[str, Any]:
-    """The :data:`METRICS` row of one scenario solved on its own back end (the summary's values).
+    """The metrics row of one scenario solved on its own back end (the summary's values).
+
+    :data:`~thermoelec.analysis.metrics.METRICS`, and for a resolved pack
+    :data:`~thermoelec.analysis.metrics.PACK_METRICS` too.
 
     Parameters
     ----------
@@ -67,12 +84,15 @@ def solo_metrics(scenario: Scenario, overrides: Mapping[str, Any], keep_interval
         only ``status`` and ``message`` for a scenario that did not run.
     """
     try:
-        result = simulate(scenario.with_overrides(overrides))
+        variant = scenario.with_overrides(overrides)
+        check_run(variant, what="the scenario")
+        result = simulate(variant)
     except ScenarioError as exc:
         return {"status": "invalid", "message": str(exc)}
     except Exception as exc:  # a scenario must never stop the sweep
         return {"status": "failed", "message": f"{type(exc).__name__}: {exc}"}
-    row: dict[str, Any] = {k: result.summary.get(k) for k in METRICS}
+    names = METRICS + (PACK_METRICS if result.cells is not None else ())  # a resolved pack's too
+    row: dict[str, Any] = {k: result.summary.get(k) for k in names}
     row.update(status=result.status, message=result.message, stop_reason=result.summary["stop_reason"],
                verdict=result.summary["verdict"],
                failed_checks=",".join(c["check"] for c in result.summary["checks"] if not c["passed"]))
@@ -92,17 +112,18 @@ def run_chunk(scenario: Scenario, plan: SweepPlan, indices: Sequence[int],
     """
     rows: dict[int, dict[str, Any]] = {}
     if engine == "batch" and keep_interval is None:
-        # a batch shares one state layout and one set of solver settings (a swept solver.rtol
-        # makes batches of its own)
+        # a batch shares one state layout (RC pairs, cells) and one set of solver settings (a swept
+        # solver.rtol makes batches of its own)
         groups: dict[tuple, list[tuple[int, Any]]] = {}
         for i in indices:
             try:
                 variant = scenario.with_overrides(plan.overrides(i))
+                check_run(variant, what="the scenario")
                 problem = variant.problem()
             except ScenarioError:
                 continue  # recorded by the solo path below
-            groups.setdefault((problem.n_rc, variant.solver_options()), []).append((i, problem))
-        for (_, options), members in groups.items():
+            groups.setdefault((problem.n_rc, problem.n_cells, variant.solver_options()), []).append((i, problem))
+        for (_, _, options), members in groups.items():
             outcome = batch.solve_batch([problem for _, problem in members], options)
             for j, (i, problem) in enumerate(members):
                 if outcome.status[j] == "ok":
@@ -113,12 +134,6 @@ def run_chunk(scenario: Scenario, plan: SweepPlan, indices: Sequence[int],
             rows[i] = solo_metrics(scenario, plan.overrides(i), keep_interval)
             rows[i]["engine"] = "solo"
     return [rows[i] for i in indices]
-
-
-def _write_atomic(path: Path, text: str) -> None:
-    tmp = path.with_name(f".{path.name}.{os.getpid()}.tmp")
-    tmp.write_text(text)
-    os.replace(tmp, path)
 
 
 class Progress:
@@ -142,36 +157,56 @@ class Progress:
         if self._bar is not None:
             self._bar.update(count)
             if self.done >= self.total:
-                self._bar.close()
+                self.close()
+
+    def close(self) -> None:
+        """End the bar (also when the sweep is interrupted, so the terminal line is left whole)."""
+        if self._bar is not None:
+            self._bar.close()
+            self._bar = None
 
 
-def _checkpoint_folder(scenario: Scenario, plan: SweepPlan, out: Path, resume: bool, settings: str) -> Path:
-    """The folder of finished chunks, emptied unless resuming the same sweep (same scenario, plan, settings)."""
-    out.mkdir(parents=True, exist_ok=True)
-    chunk_dir = out / "chunks"
-    chunk_dir.mkdir(exist_ok=True)
-    signature = plan.signature(scenario.digest + settings)
-    stamp = out / "sweep_plan.json"
-    if stamp.exists() and resume:
-        if json.loads(stamp.read_text()).get("signature") != signature:
-            raise ScenarioError(str(stamp), "", "--resume: this folder holds a different sweep (scenario or plan "
-                                "changed); use a new --out or drop --resume")
-    else:
-        for old in chunk_dir.glob("chunk_*.json"):
-            old.unlink()
-        _write_atomic(stamp, json.dumps({"signature": signature, "size": plan.size}))
-    return chunk_dir
+def default_chunk_size(size: int) -> int:
+    """Scenarios per chunk when ``--chunk-size`` is not given: a sixteenth of the plan, 16 to 256 scenarios.
+
+    It depends on the plan alone, not on the workers, so a sweep started on one
+    machine resumes in the same chunks on another (any chunk size resumes: the
+    chunks are read by scenario index). At 10 000 one-hour scenarios on two
+    workers (``benchmarks/bench_sweep_scale.py``'s grid), chunks of 256 took 26 s
+    and 66 s where chunks of 157 (a sixty-fourth) took 35 s and 86 s, in two runs
+    on a machine loaded by others: the batched solver likes its batches large.
+
+    Parameters
+    ----------
+    size : int
+        Scenarios in the plan [-].
+
+    Returns
+    -------
+    int
+        Scenarios per chunk [-].
+    """
+    return max(1, min(256, max(16, math.ceil(size / 16)), size))
 
 
-def _chunks(size: int, chunk: int) -> list[list[int]]:
-    return [list(range(a, min(a + chunk, size))) for a in range(0, size, chunk)]
+def _pieces(missing: Sequence[int], chunk: int) -> list[list[int]]:
+    """The missing scenario indices in chunks of consecutive ones, at most ``chunk`` long."""
+    pieces: list[list[int]] = []
+    for i in missing:
+        if pieces and pieces[-1][-1] == i - 1 and len(pieces[-1]) < chunk:
+            pieces[-1].append(i)
+        else:
+            pieces.append([i])
+    return pieces
 
 
 def run_sweep(scenario: Scenario, plan: SweepPlan, out: Path, workers: int | None = None,
               scheduler: str | None = None, resume: bool = False, chunk_size: int | None = None,
               progress: bool = True, cluster: Any = None, keep_interval: float | None = None,
-              engine: str = "batch") -> list[dict[str, Any]]:
+              engine: str = "batch", force: bool = False) -> list[dict[str, Any]]:
     """Run every scenario of a plan, checkpointing each chunk; returns the rows in plan order.
+
+    The output folder is held (:func:`thermoelec.analysis.transaction.hold`) while it runs.
 
     Parameters
     ----------
@@ -180,15 +215,16 @@ def run_sweep(scenario: Scenario, plan: SweepPlan, out: Path, workers: int | Non
     plan : SweepPlan
         The sweep (:func:`thermoelec.analysis.sweep.plan.plan_sweep`).
     out : Path
-        The sweep's folder: ``sweep_plan.json`` and ``chunks/`` go there.
+        The sweep's folder: the chunks go to ``out/chunks``
+        (:class:`~thermoelec.analysis.sweep.checkpoint.Checkpoints`).
     workers : int, optional
         Local worker processes (default: the number of cores).
     scheduler : str, optional
         Address of a dask.distributed scheduler to run the chunks on instead.
     resume : bool
-        Keep the chunks already finished in ``out`` (refused when the plan differs).
+        Keep the chunks already finished in ``out`` (refused when the sweep's identity changed).
     chunk_size : int, optional
-        Scenarios per task (default: about four tasks per worker, at most 256).
+        Scenarios per task (default :func:`default_chunk_size`, independent of ``workers``).
     progress : bool
         Print the progress line on stderr.
     cluster : object, optional
@@ -197,65 +233,144 @@ def run_sweep(scenario: Scenario, plan: SweepPlan, out: Path, workers: int | Non
         Interval [s] of the decimated series kept per scenario.
     engine : str
         ``"batch"`` (default) or ``"solo"``, as in :func:`run_chunk`.
+    force : bool
+        Discard finished chunks in ``out`` (another sweep's, or this one's) and start again.
 
     Returns
     -------
     list of dict
         One row per scenario in plan order (:func:`run_chunk`).
+
+    Raises
+    ------
+    ScenarioError
+        Another command holds ``out``; finished chunks there and neither ``resume`` nor
+        ``force``; ``resume`` when the sweep's identity changed.
     """
-    chunk_dir = _checkpoint_folder(scenario, plan, out, resume, f"/series:{keep_interval}/engine:{engine}")
-    scenario = scenario.for_variants()  # the plan has read the sweep's tables: no variant copies them again
-    workers = workers or os.cpu_count() or 1
-    chunk = chunk_size or max(1, min(256, plan.size // (4 * workers) or 1))
-    chunks = _chunks(plan.size, chunk)
-    done: dict[int, list[dict[str, Any]]] = {}
-    for k in range(len(chunks)):
-        path = chunk_dir / f"chunk_{k:06d}.json"
-        if path.exists():
-            done[k] = json.loads(path.read_text())
-    bar = Progress(plan.size, enabled=progress)
-    bar.start_at(sum(len(chunks[k]) for k in done))
-    todo = [k for k in range(len(chunks)) if k not in done]
+    with hold(out):
+        checkpoints = Checkpoints(out / "chunks")
+        done = checkpoints.open(sweep_identity(scenario, plan, engine, keep_interval), plan.size, resume, force)
+        scenario = scenario.for_variants()  # the plan has read the sweep's tables: no variant copies them again
+        workers = workers or os.cpu_count() or 1
+        pieces = _pieces([i for i in range(plan.size) if i not in done], chunk_size or default_chunk_size(plan.size))
+        bar = Progress(plan.size, enabled=progress)
+        bar.start_at(len(done))
 
-    def finish(k: int, rows: list[dict[str, Any]]) -> None:
-        _write_atomic(chunk_dir / f"chunk_{k:06d}.json", json.dumps(rows))
-        done[k] = rows
-        bar.update(len(rows))
+        def finish(indices: list[int], rows: list[dict[str, Any]]) -> None:
+            with deferred_signals():  # a chunk file is written whole, and counted, or not at all
+                checkpoints.write(indices[0], rows)
+                done.update(zip(indices, rows, strict=True))
+            bar.update(len(rows))
 
-    if todo:
-        if scheduler is not None or cluster is not None:
-            _run_dask(scenario, plan, chunks, todo, finish, scheduler, cluster, keep_interval, engine)
-        elif workers == 1:
-            for k in todo:
-                finish(k, run_chunk(scenario, plan, chunks[k], keep_interval, engine))
-        else:
-            _run_processes(scenario, plan, chunks, todo, finish, workers, keep_interval, engine)
-    return [row for k in range(len(chunks)) for row in done[k]]
+        task = (scenario, plan, keep_interval, engine, current())
+        try:
+            if not pieces:
+                pass
+            elif scheduler is not None or cluster is not None:
+                _run_dask(task, pieces, finish, scheduler, cluster)
+            elif workers == 1 or len(pieces) == 1:
+                for indices in pieces:
+                    finish(indices, run_chunk(scenario, plan, indices, keep_interval, engine))
+            else:
+                _run_processes(task, pieces, finish, workers)
+        finally:
+            bar.close()
+        return [done[i] for i in range(plan.size)]
 
 
-def _run_processes(scenario, plan, chunks, todo, finish: Callable, workers: int, keep_interval,
-                   engine: str) -> None:
+def _chunk_task(scenario: Scenario, plan: SweepPlan, keep_interval: float | None, engine: str, budgets: Budgets,
+                indices: list[int]) -> list[dict[str, Any]]:
+    """:func:`run_chunk` in a worker process, under the budgets of the command that started it."""
+    with using(budgets):
+        return run_chunk(scenario, plan, indices, keep_interval, engine)
+
+
+def _worker_start(budgets: Budgets) -> None:
+    """A worker takes its command's budgets and leaves SIGINT to the command (which ends it): Ctrl-C
+    reaches the whole process group."""
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    install(budgets)
+
+
+@contextmanager
+def process_pool(workers: int) -> Iterator[ProcessPoolExecutor]:
+    """Worker processes (forkserver) that never outlive the block: on any exception, an interrupt
+    included, the workers and the fork server are stopped before it propagates. The workers take
+    the budgets in force (:func:`thermoelec.inputs.budgets.current`).
+
+    Parameters
+    ----------
+    workers : int
+        Processes [-].
+
+    Yields
+    ------
+    concurrent.futures.ProcessPoolExecutor
+        The pool.
+    """
     import multiprocessing
-    from concurrent.futures import ProcessPoolExecutor, as_completed
 
-    context = multiprocessing.get_context("forkserver")
-    with ProcessPoolExecutor(max_workers=workers, mp_context=context) as pool:
-        futures = {pool.submit(run_chunk, scenario, plan, chunks[k], keep_interval, engine): k for k in todo}
+    pool = ProcessPoolExecutor(max_workers=workers, mp_context=multiprocessing.get_context("forkserver"),
+                               initializer=_worker_start, initargs=(current(),))
+    try:
+        yield pool
+    except BaseException:
+        stop_pool(pool)
+        raise
+    pool.shutdown(wait=True)
+
+
+def stop_pool(pool: ProcessPoolExecutor, grace: float = 2.0) -> None:
+    """End a pool's workers now (SIGTERM, then SIGKILL after ``grace`` seconds) and the fork server.
+
+    Parameters
+    ----------
+    pool : concurrent.futures.ProcessPoolExecutor
+        The pool.
+    grace : float
+        Seconds a worker has to end after SIGTERM [s].
+    """
+    processes = list((getattr(pool, "_processes", None) or {}).values())  # private, stable since Python 3.8
+    pool.shutdown(wait=False, cancel_futures=True)
+    for process in processes:
+        if process.is_alive():
+            process.terminate()
+    deadline = _time.monotonic() + grace
+    for process in processes:
+        process.join(max(0.0, deadline - _time.monotonic()))
+        if process.is_alive():
+            process.kill()
+            process.join(1.0)
+    from multiprocessing import forkserver
+
+    server = getattr(forkserver, "_forkserver", None)
+    stop = getattr(server, "_stop", None)  # private: the server would otherwise live until this process ends
+    if stop is not None:
+        stop()
+
+
+def _run_processes(task: tuple, pieces: list[list[int]], finish: Callable, workers: int) -> None:
+    with process_pool(workers) as pool:
+        futures = {pool.submit(_chunk_task, *task, indices): n for n, indices in enumerate(pieces)}
         for future in as_completed(futures):
-            finish(futures[future], future.result())
+            finish(pieces[futures[future]], future.result())
 
 
-def _run_dask(scenario, plan, chunks, todo, finish: Callable, scheduler: str | None, cluster: Any,
-              keep_interval: float | None = None, engine: str = "batch") -> None:
-    from distributed import Client, as_completed
+def _run_dask(task: tuple, pieces: list[list[int]], finish: Callable, scheduler: str | None, cluster: Any) -> None:
+    from distributed import Client
+    from distributed import as_completed as dask_completed
 
     client = cluster if isinstance(cluster, Client) else Client(cluster if cluster is not None else scheduler)
+    futures: dict = {}
     try:
         # a task lost with its worker is run again elsewhere (retries), so no scenario is lost
-        futures = {client.submit(run_chunk, scenario, plan, chunks[k], keep_interval, engine, pure=False,
-                                 retries=3): k for k in todo}
-        for future in as_completed(futures):
-            finish(futures[future], future.result())
+        futures = {client.submit(_chunk_task, *task, indices, pure=False, retries=3): n
+                   for n, indices in enumerate(pieces)}
+        for future in dask_completed(futures):
+            finish(pieces[futures[future]], future.result())
+    except BaseException:
+        client.cancel(list(futures))
+        raise
     finally:
         if client is not cluster:
             client.close()

@@ -17,10 +17,10 @@ from typing import Any
 
 import numpy as np
 
-from thermoelec.analysis.metrics import METRICS
+from thermoelec.analysis.metrics import METRICS, PACK_METRICS
 from thermoelec.analysis.sweep.dataset import plan_coordinates
 from thermoelec.analysis.sweep.plan import SweepPlan
-from thermoelec.analysis.sweep.run import run_chunk, solo_metrics
+from thermoelec.analysis.sweep.run import process_pool, run_chunk, solo_metrics
 from thermoelec.scenario import Scenario, ScenarioError
 
 __all__ = ["PROBABILITY", "Criterion", "design_search", "parse_criterion", "sampled_statistic"]
@@ -78,7 +78,8 @@ def parse_criterion(text: str) -> Criterion:
     Raises
     ------
     ScenarioError
-        When the text does not parse, names no metric of :data:`METRICS`, or asks a percentile or a
+        When the text does not parse, names no metric of :data:`METRICS` (or, for a resolved
+        pack, of :data:`~thermoelec.analysis.metrics.PACK_METRICS`), or asks a percentile or a
         probability outside 0..100 or 0..1.
     """
     probability = _PROBABILITY.match(text)
@@ -88,9 +89,9 @@ def parse_criterion(text: str) -> Criterion:
             raise ScenarioError("--find", text, "a pass probability lies within 0..1")
         return Criterion("pass_probability", probability.group("op"), value)
     match = _CRITERION.match(text)
-    if not match or match.group("metric") not in METRICS:
+    if not match or match.group("metric") not in METRICS + PACK_METRICS:
         raise ScenarioError("--find", text, "expected METRIC <= VALUE, METRIC >= VALUE, 'P95 of METRIC <= VALUE' or "
-                            "'pass probability >= 0.99', with a summary metric: " + ", ".join(METRICS))
+                            "'pass probability >= 0.99', with a summary metric: " + ", ".join(METRICS + PACK_METRICS))
     stat = match.group("stat")
     percentile = float(stat[1:]) if stat else None
     if percentile is not None and not 0.0 <= percentile <= 100.0:
@@ -130,8 +131,10 @@ def _search_one(scenario: Scenario, fixed: dict[str, Any], path: str, low: float
                 raise RuntimeError("no sample ran")
             return criterion.margin(value)
         row = solo_metrics(scenario, overrides)
-        if row.get("status") != "ok" or row.get(criterion.metric) is None:
+        if row.get("status") != "ok":
             raise RuntimeError(row.get("message") or "the scenario failed")
+        if row.get(criterion.metric) is None:
+            raise RuntimeError(f"the scenario has no {criterion.metric} (a resolved pack's metric, or none counted)")
         value = float(row[criterion.metric])
         # a run stopped by a limit does not pass, whatever its metric says
         return criterion.margin(value) if row.get("completed") else abs(criterion.margin(value)) + 1.0
@@ -203,8 +206,6 @@ def design_search(scenario: Scenario, plan: SweepPlan | None, path: str, low: fl
         ``least_<path>`` (or ``greatest_<path>``) [unit], ``status``, ``message`` and
         ``evaluations``, with a dimension per other dimension (``case`` for none).
     """
-    from concurrent.futures import ProcessPoolExecutor
-
     import xarray as xr
 
     others, samples = _search_plans(scenario, plan, path, criterion)
@@ -214,9 +215,7 @@ def design_search(scenario: Scenario, plan: SweepPlan | None, path: str, low: fl
     args = [(scenario, c, path, low, high, unit, criterion, greatest, tolerance, samples) for c in combos]
     workers = workers or os.cpu_count() or 1
     if workers > 1 and len(args) > 1:
-        import multiprocessing
-
-        with ProcessPoolExecutor(max_workers=workers, mp_context=multiprocessing.get_context("forkserver")) as pool:
+        with process_pool(workers) as pool:
             found = list(pool.map(_search_one, *zip(*args, strict=True)))
     else:
         found = [_search_one(*a) for a in args]

@@ -1,0 +1,149 @@
+"""Output folders as a unit: the lock, the staged commit, stale outputs, a commit cut short, signals.
+
+Sources: the POSIX semantics the module relies on (rename(2) replaces a file
+atomically; flock(2) locks are dropped when their process dies), checked here
+through the files a second process sees.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import signal
+import subprocess
+import sys
+import textwrap
+import time
+from pathlib import Path
+
+import pytest
+
+from thermoelec.analysis import transaction
+from thermoelec.analysis.interrupts import Interrupted, deferred_signals, termination_signals
+from thermoelec.analysis.transaction import JOURNAL, MANIFEST, OutputFolder, hold
+from thermoelec.inputs import ScenarioError
+
+
+def write(folder: Path, files: dict[str, str]) -> None:
+    for name, text in files.items():
+        path = folder / name
+        path.parent.mkdir(parents=True, exist_ok=True)
+        path.write_text(text)
+
+
+def listing(folder: Path) -> dict[str, str]:
+    """Every file under a folder but the lock, by relative path."""
+    return {str(p.relative_to(folder)): p.read_text() for p in sorted(folder.rglob("*"))
+            if p.is_file() and p.name != transaction.LOCK}
+
+
+def commit(folder: Path, files: dict[str, str], manifest: bool = True) -> None:
+    with hold(folder, "test", manifest) as held, held.transaction() as stage:
+        write(stage, files)
+
+
+def test_a_commit_replaces_the_outputs_and_removes_stale_ones_but_not_foreign_files(tmp_path):
+    out = tmp_path / "out"
+    commit(out, {"summary.json": "1", "figure.png": "1", "cases/a/x.csv": "1"})
+    (out / "mine.txt").write_text("the user's")
+    commit(out, {"summary.json": "2", "cases/b/x.csv": "2"})
+    assert listing(out) == {"summary.json": "2", "cases/b/x.csv": "2", "mine.txt": "the user's",
+                            MANIFEST: (out / MANIFEST).read_text()}
+    assert json.loads((out / MANIFEST).read_text())["outputs"] == ["cases", "summary.json"]
+    assert not list(out.glob(".thermoelec-*-*"))  # no staging or trash folder left
+
+
+def test_a_failure_while_staging_leaves_the_previous_outputs(tmp_path):
+    out = tmp_path / "out"
+    commit(out, {"summary.json": "old", "series.csv": "old"})
+    before = listing(out)
+    with pytest.raises(OSError), hold(out, "test") as held, held.transaction() as stage:
+        write(stage, {"summary.json": "new"})
+        raise OSError("disk full")
+    assert listing(out) == before and not list(out.glob(".thermoelec-*-*"))
+
+
+def test_a_signal_during_the_commit_waits_for_it(tmp_path, monkeypatch):
+    # SIGTERM arrives at the first rename of the commit: it is held back, the commit completes,
+    # then the interrupt is raised: the folder holds the complete new outputs
+    out = tmp_path / "out"
+    commit(out, {"summary.json": "old", "series.csv": "old", "figure.png": "old"})
+    real = os.replace
+    sent = []
+
+    def replace_then_signal(src, dst):
+        if not sent:
+            sent.append(dst)
+            os.kill(os.getpid(), signal.SIGTERM)
+        real(src, dst)
+
+    monkeypatch.setattr(transaction.os, "replace", replace_then_signal)
+    with pytest.raises(Interrupted) as caught, termination_signals():
+        commit(out, {"summary.json": "new", "series.csv": "new"})
+    assert caught.value.exit_status == 143 and sent
+    files = listing(out)
+    assert files.pop(MANIFEST) and files == {"summary.json": "new", "series.csv": "new"}
+
+
+def test_deferred_signals_raise_after_the_block_and_not_inside():
+    order = []
+    with pytest.raises(Interrupted) as caught, termination_signals():
+        with deferred_signals():
+            os.kill(os.getpid(), signal.SIGINT)
+            time.sleep(0.05)
+            order.append("block finished")
+    assert order == ["block finished"] and caught.value.exit_status == 130
+
+
+def test_a_commit_cut_short_is_completed_by_the_next_command(tmp_path):
+    # the state a SIGKILL between two renames of a commit leaves: the journal (the new manifest),
+    # one entry moved in, one still staged; the next command completes the commit first
+    out = tmp_path / "out"
+    commit(out, {"summary.json": "old", "series.csv": "old", "figure.png": "old"})
+    staging = out / ".thermoelec-staging-99999"
+    write(staging, {"series.csv": "new"})
+    (out / "summary.json").write_text("new")
+    (out / JOURNAL).write_text(json.dumps({"outputs": ["series.csv", "summary.json"], "stale": ["figure.png"],
+                                           "staging": staging.name, "manifest": True}))
+    with hold(out, "test") as held:
+        assert any("completed the commit" in note for note in held.notes)
+    files = listing(out)
+    assert files.pop(MANIFEST) and files == {"summary.json": "new", "series.csv": "new"}
+
+
+HOLDER = textwrap.dedent("""
+    import sys, time
+    from pathlib import Path
+    from thermoelec.analysis.transaction import hold
+    with hold(Path(sys.argv[1]), "thermoelec sweep held.toml --out DIR"):
+        print("held", flush=True)
+        time.sleep(60)
+""")
+
+
+def _holder(out: Path) -> subprocess.Popen:
+    proc = subprocess.Popen([sys.executable, "-c", HOLDER, str(out)], stdout=subprocess.PIPE, text=True,
+                            env={**os.environ, "PYTHONPATH": str(Path(__file__).resolve().parents[2])})
+    assert proc.stdout.readline().strip() == "held"
+    return proc
+
+
+def test_a_second_command_is_refused_naming_the_holder_and_a_stale_lock_is_taken_over(tmp_path):
+    out = tmp_path / "out"
+    proc = _holder(out)
+    try:
+        with pytest.raises(ScenarioError, match=rf"in use by process {proc.pid} .*held\.toml"):
+            OutputFolder(out, "test").__enter__()
+    finally:
+        proc.send_signal(signal.SIGKILL)
+        proc.wait()
+    # the killed holder's lock: its name is in the file, the kernel has dropped the lock
+    with hold(out, "test") as held:
+        assert any(f"process {proc.pid}" in note and "no longer running" in note for note in held.notes)
+
+
+def test_output_paths_are_checked_before_anything_runs(tmp_path):
+    (tmp_path / "file").write_text("x")
+    for bad, message in (("", "empty"), (str(tmp_path / "file"), "is a file")):
+        with pytest.raises(ScenarioError, match=message):
+            transaction.check_output_path(bad)
