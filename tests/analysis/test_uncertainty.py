@@ -193,3 +193,20 @@ def test_bad_distributions_exit_2_with_one_message(tmp_path, capsys, table, extr
     code = cli.main(["sweep", str(path), "--out", str(tmp_path / "o"), "--quiet", "--workers", "1", *extra])
     err = capsys.readouterr().err
     assert code == 2 and key in err and "Traceback" not in err and err.count("\n") == 1
+
+
+def test_the_spread_seed_of_a_resolved_pack_is_one_more_sampled_input(tmp_path):
+    # the demo's resolved 14s4p pack: each sampled seed draws another cell-to-cell spread, another build of
+    # the same design; the hottest cell's temperature differs from build to build
+    from ..helpers import SCENARIOS
+
+    loaded = thermoelec.load_scenario(SCENARIOS / "cargo_robot_pack.toml")
+    plan = sweep.plan_sweep(loaded, ["pack.spread.seed=integers(1, 1000)"], samples=6)
+    seeds = [plan.overrides(i)["pack.spread.seed"] for i in range(plan.size)]
+    assert all(isinstance(s, int) and 1 <= s <= 1000 for s in seeds) and len(set(seeds)) == 6
+    rows = sweep.run_sweep(loaded, plan, tmp_path / "o", workers=1, progress=False)
+    ds = sweep.sweep_dataset(loaded, plan, rows)
+    u = uncertainty_dataset(plan, ds)
+    peak = u["cell_temperature_max_degC"]
+    assert float(peak.sel(percentile=95.0)) > float(peak.sel(percentile=5.0))
+    assert "cell_temperature_spread_max_K" in u

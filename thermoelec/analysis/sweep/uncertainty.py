@@ -34,7 +34,7 @@ from typing import Any
 
 import numpy as np
 
-from thermoelec.analysis.metrics import METRICS
+from thermoelec.analysis.metrics import METRICS, PACK_METRICS
 from thermoelec.analysis.sweep.plan import SweepPlan
 from thermoelec.analysis.sweep.sampling import SAMPLERS
 from thermoelec.analysis.verdict import LIMIT_CHECKS, PASS
@@ -143,7 +143,7 @@ def _spearman(x: np.ndarray, y: np.ndarray) -> float:
 def _percentiles(stacked, grid_dims: list[str], percentiles: np.ndarray, independent: np.ndarray) -> dict[str, Any]:
     """Each metric's percentiles over the samples that ran, per grid point."""
     data = {}
-    for metric in METRICS:
+    for metric in (*METRICS, *(k for k in PACK_METRICS if k in stacked)):  # a resolved pack's too
         values = stacked[metric].values[..., independent].astype(float)
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", RuntimeWarning)  # a grid point where no sample ran: NaN
@@ -270,7 +270,7 @@ def uncertainty_table(u):
             if dims and all(dim in grid_dims for dim in dims):
                 unit = u[name].attrs.get("units", "")
                 where[f"{name} [{unit}]" if unit else name] = at[name].values.item()
-        for metric in METRICS:
+        for metric in (*METRICS, *(k for k in PACK_METRICS if k in u)):
             for p, value in zip(u["percentile"].values, at[metric].values, strict=True):
                 rows.append({**where, "quantity": "percentile", "name": metric, "input": "", "percentile": p,
                              "value": value, "low": np.nan, "high": np.nan, "unit": u[metric].attrs.get("units")})
