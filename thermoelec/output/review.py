@@ -24,8 +24,8 @@ from matplotlib.patches import Patch
 
 from thermoelec.analysis.sweep.review import review_table
 from thermoelec.analysis.verdict import PASS
+from thermoelec.output import html as H
 from thermoelec.output.figures import save
-from thermoelec.output.report import _cautions, _document, _e, _figure, _table
 from thermoelec.output.sweep_figures import axis_label
 
 __all__ = ["ParetoPoint", "design_report", "option_map_data", "option_maps", "pareto_figure", "pareto_points",
@@ -205,7 +205,7 @@ def _cell(value) -> str:
         return "<span class='pass'>yes</span>" if value else "<span class='fail'>no</span>"
     if isinstance(value, (float, np.floating)):
         return "n/a" if not math.isfinite(value) else f"{value:.4g}"
-    return _e(value)
+    return H.escape(value)
 
 
 def design_report(review, ds, figures: Sequence[tuple[Figure | bytes, str]] = (), title: str = "",
@@ -213,36 +213,37 @@ def design_report(review, ds, figures: Sequence[tuple[Figure | bytes, str]] = ()
     """One self-contained HTML file: the question, the recommendation, the table of options, the figures,
     the options' overrides, the cautions and the run metadata."""
     table = review_table(review)
-    body = [f"<h1>Design review: {_e(title or ds.attrs.get('scenario_file', ''))}</h1>"]
+    body = [f"<h1>Design review: {H.escape(title or ds.attrs.get('scenario_file', ''))}</h1>"]
     if description:
-        body.append(f"<p>{_e(description)}</p>")
+        body.append(f"<p>{H.escape(description)}</p>")
     requirement = review.attrs.get("requirement") or "none given"
-    body.append(f"<p><strong>Requirement:</strong> <code>{_e(requirement)}</code>; options ranked by "
-                f"<code>{_e(review.attrs.get('rank_by') or '-')}</code> (the least first).</p>")
+    body.append(f"<p><strong>Requirement:</strong> <code>{H.escape(requirement)}</code>; options ranked by "
+                f"<code>{H.escape(review.attrs.get('rank_by') or '-')}</code> (the least first).</p>")
     statement = review.attrs.get("statement", "")
     cls = "pass" if review.attrs.get("recommended") else "fail"
-    body.append(f"<p class='{cls}' style='font-size:1.15em'>{_e(statement)}</p>")
+    body.append(f"<p class='{cls}' style='font-size:1.15em'>{H.escape(statement)}</p>")
     body.append("<h2>Options</h2>")
     header = list(table.columns)
-    body.append(_table(header, [[_cell(v) for v in row] for row in table.itertuples(index=False)], numeric_from=1))
+    body.append(H.table(header, [[_cell(v) for v in row] for row in table.itertuples(index=False)], numeric_from=1))
     for caption_fig, caption in figures:
-        body.append(_figure(caption_fig, caption))
+        body.append(H.figure(caption_fig, caption))
     body.append("<h2>What each option changes</h2>")
     groups = json.loads(review.attrs.get("option_group", "{}"))
-    rows = [[_e(n), "<br>".join(f"<code>{_e(k)} = {_e(json.dumps(v))}</code>" for k, v in o["overrides"].items())
-             or "(the scenario as it is)", _e(o.get("description", ""))] for n, o in groups.items()]
-    body.append(_table(["option", "overrides", "description"], rows, numeric_from=9))
-    body.append("<h2>Cautions</h2>" + _cautions())
-    meta = [["scenario file", _e(ds.attrs.get("scenario_file", ""))],
-            ["scenario SHA-256", _e(ds.attrs.get("scenario_sha256", ""))],
-            ["thermoelec version", _e(ds.attrs.get("thermoelec_version", ""))],
-            ["scenarios", _e(ds.attrs.get("scenarios", ""))],
-            ["failed to solve or invalid", _e(ds.attrs.get("failed", ""))],
-            ["sweep dimensions", _e(ds.attrs.get("sweep_dimensions", ""))],
-            ["sweep fingerprint", _e(ds.attrs.get("sweep_fingerprint", ""))],
-            ["report generated", _e(_dt.datetime.now(_dt.UTC).strftime("%Y-%m-%d %H:%M:%S UTC"))]]
-    body.append("<h2>Run metadata</h2>" + _table(["item", "value"], meta, numeric_from=9))
-    return _document(f"thermoelec design review: {title}", "".join(body))
+    rows = [[H.escape(n), "<br>".join(f"<code>{H.escape(k)} = {H.escape(json.dumps(v))}</code>"
+                                      for k, v in o["overrides"].items())
+             or "(the scenario as it is)", H.escape(o.get("description", ""))] for n, o in groups.items()]
+    body.append(H.table(["option", "overrides", "description"], rows, numeric_from=9))
+    body.append("<h2>Cautions</h2>" + H.cautions())
+    meta = [["scenario file", H.escape(ds.attrs.get("scenario_file", ""))],
+            ["scenario SHA-256", H.escape(ds.attrs.get("scenario_sha256", ""))],
+            ["thermoelec version", H.escape(ds.attrs.get("thermoelec_version", ""))],
+            ["scenarios", H.escape(ds.attrs.get("scenarios", ""))],
+            ["failed to solve or invalid", H.escape(ds.attrs.get("failed", ""))],
+            ["sweep dimensions", H.escape(ds.attrs.get("sweep_dimensions", ""))],
+            ["sweep fingerprint", H.escape(ds.attrs.get("sweep_fingerprint", ""))],
+            ["report generated", H.escape(_dt.datetime.now(_dt.UTC).strftime("%Y-%m-%d %H:%M:%S UTC"))]]
+    body.append("<h2>Run metadata</h2>" + H.table(["item", "value"], meta, numeric_from=9))
+    return H.document(f"thermoelec design review: {title}", "".join(body))
 
 
 def write_review_outputs(review, ds, out: Path, title: str = "", description: str = "", figures: bool = True,

@@ -20,8 +20,8 @@ from pathlib import Path
 import numpy as np
 from matplotlib.figure import Figure
 
+from thermoelec.output import html as H
 from thermoelec.output.figures import save
-from thermoelec.output.report import _cautions, _document, _e, _figure, _table
 from thermoelec.output.sweep_figures import axis_label, facet_indices
 
 __all__ = ["ECDF_METRICS", "MAX_LINES", "ecdf_data", "ecdf_figure", "hardest_point", "tornado_data",
@@ -157,15 +157,16 @@ def uncertainty_report(u, ds, figures: Sequence[tuple[Figure, str]] = (), title:
     """One self-contained HTML file: the inputs' distributions, per grid point the pass probability with its
     interval and the key percentiles, the sensitivity ranking, the figures, the cautions and the run metadata."""
     dims = _grid_dims(u)
-    body = [f"<h1>Uncertainty: {_e(title)}</h1>"]
+    body = [f"<h1>Uncertainty: {H.escape(title)}</h1>"]
     if description:
-        body.append(f"<p>{_e(description)}</p>")
-    body.append(f"<p>{_e(u.attrs.get('samples_per_point'))} samples per point by "
-                f"{_e(u.attrs.get('sampling_description'))}, seed {_e(u.attrs.get('seed'))}; intervals: "
-                f"{_e(u.attrs.get('interval'))}.</p>")
+        body.append(f"<p>{H.escape(description)}</p>")
+    body.append(f"<p>{H.escape(u.attrs.get('samples_per_point'))} samples per point by "
+                f"{H.escape(u.attrs.get('sampling_description'))}, seed {H.escape(u.attrs.get('seed'))}; intervals: "
+                f"{H.escape(u.attrs.get('interval'))}.</p>")
     inputs = json.loads(u.attrs.get("distributions") or "{}")
-    body.append("<h2>Sampled inputs</h2>" + _table(["key", "distribution"], [[f"<code>{_e(k)}</code>", _e(v)]
-                                                                            for k, v in inputs.items()], 9))
+    body.append("<h2>Sampled inputs</h2>" + H.table(["key", "distribution"],
+                                                    [[f"<code>{H.escape(k)}</code>", H.escape(v)]
+                                                     for k, v in inputs.items()], 9))
     rows = []
     percentiles = list(u["percentile"].values)
     for index in (list(np.ndindex(*[u.sizes[d] for d in dims])) or [()]):
@@ -175,27 +176,27 @@ def uncertainty_report(u, ds, figures: Sequence[tuple[Figure, str]] = (), title:
         low, high = float(at["pass_probability_low"].sel(check="overall")), float(
             at["pass_probability_high"].sel(check="overall"))
         peak = at["cell_temperature_max_degC"].values
-        rows.append([_e(_point_label(ds, sel)), _percent(p), f"{_percent(low)} .. {_percent(high)}",
+        rows.append([H.escape(_point_label(ds, sel)), _percent(p), f"{_percent(low)} .. {_percent(high)}",
                      *[f"{v:.4g}" for v in peak]])
     body.append("<h2>Pass probability and peak cell temperature [degC] per point</h2>")
-    body.append(_table(["point", "pass probability", "95 % interval", *[f"P{q:g}" for q in percentiles]], rows, 1))
+    body.append(H.table(["point", "pass probability", "95 % interval", *[f"P{q:g}" for q in percentiles]], rows, 1))
     bars = tornado_data(u)
     body.append("<h2>Which input decides the peak cell temperature (least likely point)</h2>")
-    body.append(_table(["rank", "input", "Spearman", "Sobol' first", "Sobol' total"],
-                       [[str(i + 1), f"<code>{_e(b.input)}</code>", f"{b.spearman:.3f}",
+    body.append(H.table(["rank", "input", "Spearman", "Sobol' first", "Sobol' total"],
+                       [[str(i + 1), f"<code>{H.escape(b.input)}</code>", f"{b.spearman:.3f}",
                          "n/a" if not math.isfinite(b.first) else f"{b.first:.3f}",
                          "n/a" if not math.isfinite(b.total) else f"{b.total:.3f}"] for i, b in enumerate(bars)], 2))
     for fig, caption in figures:
-        body.append(_figure(fig, caption))
-    body.append("<h2>Cautions</h2>" + _cautions())
+        body.append(H.figure(fig, caption))
+    body.append("<h2>Cautions</h2>" + H.cautions())
     body.append("<p>The probabilities are those of the model under the distributions given: they are as good as "
                 "those distributions, and say nothing of what the model leaves out.</p>")
-    meta = [["scenario file", _e(u.attrs.get("scenario_file", ""))],
-            ["scenario SHA-256", _e(u.attrs.get("scenario_sha256", ""))],
-            ["thermoelec version", _e(u.attrs.get("thermoelec_version", ""))],
-            ["report generated", _e(_dt.datetime.now(_dt.UTC).strftime("%Y-%m-%d %H:%M:%S UTC"))]]
-    body.append("<h2>Run metadata</h2>" + _table(["item", "value"], meta, 9))
-    return _document(f"thermoelec uncertainty: {title}", "".join(body))
+    meta = [["scenario file", H.escape(u.attrs.get("scenario_file", ""))],
+            ["scenario SHA-256", H.escape(u.attrs.get("scenario_sha256", ""))],
+            ["thermoelec version", H.escape(u.attrs.get("thermoelec_version", ""))],
+            ["report generated", H.escape(_dt.datetime.now(_dt.UTC).strftime("%Y-%m-%d %H:%M:%S UTC"))]]
+    body.append("<h2>Run metadata</h2>" + H.table(["item", "value"], meta, 9))
+    return H.document(f"thermoelec uncertainty: {title}", "".join(body))
 
 
 def write_uncertainty_outputs(u, ds, out: Path, limits: Mapping[str, float], title: str = "",

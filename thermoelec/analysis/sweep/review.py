@@ -39,7 +39,7 @@ import numpy as np
 
 from thermoelec.analysis.metrics import METRICS
 from thermoelec.analysis.sweep.plan import Dimension, SweepAxis, SweepPlan
-from thermoelec.analysis.sweep.search import Criterion, _search_one
+from thermoelec.analysis.sweep.search import Criterion, search_one
 from thermoelec.analysis.verdict import LIMIT_CHECKS, PASS
 from thermoelec.scenario import Scenario, ScenarioError, parse_value
 from thermoelec.scenario.options import split_quantity
@@ -240,7 +240,7 @@ def _refine(scenario: Scenario, plan: SweepPlan, option_dim: str, index: int, ov
         fixed.update(dim.overrides(greatest_line[dim.name]))
     criterion = Criterion(CHECK_MARGINS[row["limiting_check"]], ">=", 0.0)
     low, high = row["bracket"]
-    found = _search_one(scenario, fixed, over, low, high, axis.unit, criterion, True, tolerance)
+    found = search_one(scenario, fixed, over, low, high, axis.unit, criterion, True, tolerance)
     return {"refined": found["value"], "refined_status": found["status"], "refined_message": found["message"]}
 
 

@@ -110,9 +110,18 @@ def sampled_statistic(criterion: Criterion, rows: list[dict[str, Any]]) -> float
     return float(np.percentile(values, criterion.percentile)) if values.size else math.nan
 
 
-def _search_one(scenario: Scenario, fixed: dict[str, Any], path: str, low: float, high: float, unit: str,
+def search_one(scenario: Scenario, fixed: dict[str, Any], path: str, low: float, high: float, unit: str,
                 criterion: Criterion, greatest: bool, tolerance: float,
                 samples: SweepPlan | None = None) -> dict[str, Any]:
+    """The least (or, with ``greatest``, the greatest) value of ``path`` in ``low .. high`` meeting ``criterion``.
+
+    The other keys held at ``fixed``; bracketing at the range ends, then Brent's
+    method (R. P. Brent, *Algorithms for Minimization without Derivatives*, 1973,
+    ch. 4) to ``tolerance`` times the range. With ``samples`` the criterion is a
+    statistic over those samples, the same at every value (common random numbers).
+    Returns ``value`` (in ``unit``), ``status`` (``ok``, ``at_bound``, ``not_met``,
+    ``failed``), ``message`` and the number of ``evaluations``.
+    """
     from scipy.optimize import brentq
 
     evaluations = 0
@@ -216,9 +225,9 @@ def design_search(scenario: Scenario, plan: SweepPlan | None, path: str, low: fl
     workers = workers or os.cpu_count() or 1
     if workers > 1 and len(args) > 1:
         with process_pool(workers) as pool:
-            found = list(pool.map(_search_one, *zip(*args, strict=True)))
+            found = list(pool.map(search_one, *zip(*args, strict=True)))
     else:
-        found = [_search_one(*a) for a in args]
+        found = [search_one(*a) for a in args]
     dims = list(others.dim_names) or ["case"]
     name = f"{'greatest' if greatest else 'least'}_{path}"
     data = {
