@@ -57,6 +57,9 @@ demo: $(STAMP)
 	@echo "== a warehouse robot shift: still air, a fan, a cold plate, and a freezer aisle with a heater"
 	@$(BIN)/thermoelec compare scenarios/robot_cooling.toml --out $(DEMO)/robot-cooling
 	@echo
+	@echo "== a sidewalk delivery robot: four battery-bay cooling options x ambient x route, and the cheapest that"
+	@echo "   passes at 45 degC with 2 K of margin on every route (the design review)"
+	@$(BIN)/thermoelec sweep scenarios/delivery_robot_options.toml --out $(DEMO)/robot-options
 	@echo "== a cargo robot's 14s4p pack, every cell resolved on a cold plate (coolant along the rows):"
 	@echo "   the hottest cell against the lumped estimate, and one cell 5 % short of capacity"
 	@$(BIN)/thermoelec run scenarios/cargo_robot_pack.toml --out $(DEMO)/cargo-robot-pack
@@ -74,13 +77,16 @@ demo: $(STAMP)
 	@echo "== a courier e-scooter run on the fitted cell (scenarios/cells/scooter_cell.toml), cool and hot"
 	@$(BIN)/thermoelec compare scenarios/scooter_commute.toml --out $(DEMO)/scooter-compare
 	@echo
-	@echo "open $(DEMO)/*/report.html and $(DEMO)/fit/*_report.html in a browser for the figures and the verdicts"
+	@echo "open $(DEMO)/*/report.html, $(DEMO)/robot-options/design_report.html and $(DEMO)/fit/*_report.html in a"
+	@echo "browser for the figures and the verdicts"
 
 bench: $(STAMP)
 	$(BIN)/python benchmarks/bench_single_mission.py
 	$(BIN)/python benchmarks/bench_sweep.py
 	$(BIN)/python benchmarks/bench_sweep_scale.py
 	$(BIN)/python benchmarks/bench_sweep_figures.py
+	$(BIN)/python benchmarks/bench_uncertainty.py
+	$(BIN)/python benchmarks/bench_options.py
 	$(BIN)/python benchmarks/bench_pack.py
 
 bench-quick: $(STAMP)
@@ -88,6 +94,8 @@ bench-quick: $(STAMP)
 	$(BIN)/python benchmarks/bench_sweep.py --quick
 	$(BIN)/python benchmarks/bench_sweep_scale.py --quick
 	$(BIN)/python benchmarks/bench_sweep_figures.py --quick
+	$(BIN)/python benchmarks/bench_uncertainty.py --quick
+	$(BIN)/python benchmarks/bench_options.py --quick
 	$(BIN)/python benchmarks/bench_pack.py --quick
 
 clean:

@@ -20,7 +20,8 @@ import thermoelec
 
 SCENARIOS = Path(__file__).resolve().parents[1] / "scenarios"
 SNAPSHOT = Path(__file__).resolve().parent / "data" / "demo_summaries.json"
-DEMOS = ("drone_delivery", "ebike_route", "robot_cooling", "scooter_commute", "cargo_robot_pack")
+DEMOS = ("drone_delivery", "ebike_route", "robot_cooling", "scooter_commute", "cargo_robot_pack",
+         "delivery_robot_options")
 
 
 def _plain(value: Any) -> Any:
@@ -35,7 +36,8 @@ def _plain(value: Any) -> Any:
 
 
 def demo_summaries() -> dict[str, dict]:
-    """``{"<scenario>" or "<scenario> / <case>": summary}`` for each demo file and each of its cases."""
+    """``{"<scenario>", "<scenario> / <case>" or "<scenario> / <group>: <option>": summary}`` for each demo
+    file, each of its cases and each of its design options."""
     out: dict[str, dict] = {}
     for name in DEMOS:
         scenario = thermoelec.load_scenario(SCENARIOS / f"{name}.toml")
@@ -43,6 +45,10 @@ def demo_summaries() -> dict[str, dict]:
         for case in scenario.spec.case:
             variant = scenario.with_overrides(dict(case.model_extra or {}))
             out[f"{name} / {case.name}"] = _plain(thermoelec.simulate(variant).summary)
+        for group, options in scenario.spec.option.items():
+            for option in options:
+                variant = scenario.with_overrides(dict(option.model_extra or {}))
+                out[f"{name} / {group}: {option.name}"] = _plain(thermoelec.simulate(variant).summary)
     return out
 
 

@@ -51,6 +51,15 @@ def test_sweep_figures_benchmark_runs_quick():
 
 
 @pytest.mark.slow
+def test_uncertainty_benchmark_runs_quick():
+    out = _run("bench_uncertainty.py", "--quick")
+    assert "sampling and statistics add" in out and "reference, the same scenarios zipped" in out
+
+
+@pytest.mark.slow
+def test_options_benchmark_runs_quick():
+    out = _run("bench_options.py", "--quick")
+    assert "options and review add" in out and "reference, the same plain grid" in out
 def test_pack_benchmark_runs_quick():
     out = _run("bench_pack.py", "--quick")
     assert "target 14s4p on the batched engine" in out and "solve_ivp LSODA loop, per cell" in out

@@ -153,7 +153,7 @@ def _compare(args: argparse.Namespace) -> int:
 
     out = check_output_path(args.out)
     scenario = _load(args)
-    cases = case_list(scenario, _cases(args.case or []))
+    cases = case_list(scenario, _cases(args.case or []), args.options)
     variants = case_scenarios(scenario, cases)  # every case validated before any is computed
     check_compare(scenario, variants, [name for name, _ in cases])
     with hold(out, args.command_line) as folder:
@@ -311,7 +311,8 @@ def _search(args: argparse.Namespace, scenario, out: Path) -> int:
         to_si(f"{low} {unit}".strip(), unit or "", unit or "")
     except ValueError as exc:
         raise ScenarioError("--between", args.between[0], str(exc)) from None
-    plan = sweep.plan_sweep(scenario, args.sweep or []) if (scenario.spec.sweep or args.sweep) else None
+    plan = _plan(sweep, scenario, args) if (scenario.spec.sweep or args.sweep or scenario.spec.option
+                                            or args.samples is not None) else None
     for bound in (low, high):  # the key must exist and take both ends
         scenario.with_overrides({args.over: f"{bound} {unit}".strip() if unit else bound}, origin="--between")
     with hold(out, args.command_line) as folder:
@@ -338,14 +339,19 @@ def _sweep(args: argparse.Namespace) -> int:
     scenario = _load(args)
     if args.find:
         return _search(args, scenario, out)
-    plan = sweep.plan_sweep(scenario, args.sweep or [], check=False)
+    plan = _plan(sweep, scenario, args, check=False)
+    requirement = _requirement(scenario, args)
+    if requirement is not None:
+        from thermoelec.analysis.sweep.review import with_requirement_point
+
+        plan = with_requirement_point(plan, requirement, "--require" if args.require else scenario.source)
     keep = None if args.keep_series is None else _quantity_option(args.keep_series, "s", "--keep-series",
                                                                    positive=True)
     check_sweep(scenario, plan.size, sweep.check_values(scenario, plan), keep, args.engine == "solo",
                 args.workers or os.cpu_count() or 1)
     if not args.quiet:
-        dims = " x ".join(f"{a.path} ({len(a.values)})" for a in plan.axes)
-        print(f"sweep of {scenario.name}: {plan.size} scenarios, {plan.mode} over {dims}")
+        dims = " x ".join(f"{d.name} ({d.size})" for d in plan.dims)
+        print(f"sweep of {scenario.name}: {plan.size} scenarios over {dims}")
     with hold(out, args.command_line) as folder:
         _notes(folder)
         if args.resume and not args.force and not sweep.Checkpoints(out / "chunks").finished():
@@ -368,11 +374,18 @@ def _sweep(args: argparse.Namespace) -> int:
                     write_sweep_figures(ds, stage)
             if keep is not None:
                 sweep.write_series(plan, rows, stage)
+            answer: list[str] = []
+            if plan.sampling is not None:
+                answer = _uncertainty(scenario, plan, ds, args, stage, out)
+            elif plan.option_dims:
+                answer = _review(scenario, plan, ds, requirement, args, stage, out)
         sweep.Checkpoints(out / "chunks").discard()  # the dataset holds them now
     if not args.quiet:
         passed = int(sweep.passes(ds).sum())
         print(f"{passed} of {plan.size} pass; {ds.attrs['failed']} failed to solve or were invalid; "
               f"results in {out}/sweep.nc and {out}/sweep.csv")
+        for line in answer:
+            print(line)
     return EXIT_OK
 
 
@@ -384,6 +397,83 @@ def _resume_hint(exc: Interrupted, out: Path, command_line: str) -> None:
     argv = [a for a in shlex.split(command_line)[1:] if a not in ("--resume", "--force")]
     print(f"\nthermoelec: {exc.name}: {kept} finished scenarios are kept in {out}/chunks/; resume with:\n  "
           f"{shlex.join(['thermoelec', *argv, '--resume'])}", file=sys.stderr)
+
+
+def _uncertainty(scenario, plan, ds, args: argparse.Namespace, stage: Path, out: Path) -> list[str]:
+    """The statistics of a sampled sweep written into ``stage`` (uncertainty.nc / .csv, figures,
+    uncertainty_report.html); returns the lines that summarise them."""
+    import numpy as np
+
+    from thermoelec.analysis.sweep.uncertainty import uncertainty_dataset, write_uncertainty
+    from thermoelec.output.uncertainty import write_uncertainty_outputs
+    from thermoelec.physics.constants import ZERO_CELSIUS
+
+    with _progress("computing the statistics", not args.quiet):
+        u = uncertainty_dataset(plan, ds)
+        write_uncertainty(u, stage)
+        spec = scenario.spec
+        limits = {"cell_temperature_max_degC": spec.limits.cell_temperature_max - ZERO_CELSIUS,
+                  "cell_voltage_min_V": spec.cell.voltage_min}
+        write_uncertainty_outputs(u, ds, stage, limits, scenario.name, spec.scenario.description,
+                                  figures=not args.no_figures)
+    overall = u["pass_probability"].sel(check="overall")
+    low, high = u["pass_probability_low"].sel(check="overall"), u["pass_probability_high"].sel(check="overall")
+    worst = np.unravel_index(int(np.argmin(overall.values)), overall.shape) if overall.ndim else ()
+    at = dict(zip(overall.dims, worst, strict=True))
+    p95 = u["cell_temperature_max_degC"].sel(percentile=95.0).isel(at)
+    return [f"{u.attrs['samples_per_point']} samples per point ({u.attrs['sampling']}, seed {u.attrs['seed']}); "
+            f"least likely to pass: {float(overall.isel(at)):.4f} (95 % interval {float(low.isel(at)):.4f}.."
+            f"{float(high.isel(at)):.4f}), P95 of the peak cell temperature there {float(p95):.4g} degC",
+            f"statistics in {out}/uncertainty.nc, {out}/uncertainty.csv and {out}/uncertainty_report.html"]
+
+
+def _requirement(scenario, args: argparse.Namespace):
+    """The design review's requirement: --require, else [review] requirement, else None."""
+    from thermoelec.analysis.sweep.review import parse_requirement
+
+    review = scenario.spec.review
+    if args.require:
+        return parse_requirement(args.require, "--require")
+    if review is not None and review.requirement:
+        return parse_requirement(review.requirement, f"{scenario.source}: review.requirement")
+    return None
+
+
+def _review(scenario, plan, ds, requirement, args: argparse.Namespace, stage: Path, out: Path) -> list[str]:
+    """The design review of a sweep over options written into ``stage`` (review.nc, review.csv, figures,
+    design_report.html); returns the lines of the answer."""
+    from thermoelec.analysis.sweep.review import design_review, review_table, write_review
+    from thermoelec.output.review import write_review_outputs
+
+    spec = scenario.spec.review
+    group = spec.group if spec else None
+    over = spec.over if spec else "thermal.ambient_temperature"
+    rank_by = args.rank_by or (spec.rank_by if spec else None)
+    refine = args.refine or (spec.refine if spec else False)
+    with _progress("reviewing the options", not args.quiet):
+        review = design_review(scenario, plan, ds, requirement, group, over, rank_by, refine, args.tolerance)
+        write_review(review, stage)
+        write_review_outputs(review, ds, stage, scenario.name, scenario.spec.scenario.description,
+                             figures=not args.no_figures)
+    table = review_table(review).drop(columns=[c for c in ("hardest_case", "highest_passing_message",
+                                                           "refined_message") if c in review])
+    return [table.to_string(index=False), review.attrs["statement"],
+            f"design review in {out}/review.csv, {out}/review.nc and {out}/design_report.html"]
+
+
+def _plan(sweep, scenario, args: argparse.Namespace, check: bool = True):
+    """The sweep's plan from the scenario and the sweep command's options."""
+    options = None if args.options is None else [] if args.options.strip() == "none" else \
+        [g.strip() for g in args.options.split(",") if g.strip()]
+    percentiles = None
+    if args.percentiles is not None:
+        try:
+            percentiles = [float(p) for p in args.percentiles.split(",") if p.strip()]
+        except ValueError:
+            raise ScenarioError("--percentiles", args.percentiles, "expected numbers within 0..100, "
+                                "e.g. 1,99") from None
+    return sweep.plan_sweep(scenario, args.sweep or [], samples=args.samples, seed=args.seed,
+                            method=args.sampling, options=options, percentiles=percentiles, check=check)
 
 
 def _print_search(found) -> None:
@@ -674,6 +764,8 @@ def _add_run_parsers(sub) -> None:
     compare.add_argument("--case", action="append", nargs="+", metavar="NAME KEY=VALUE",
                          help="an extra case: its name, then dotted-path overrides; may repeat")
     compare.add_argument("--set", action="append", metavar="KEY=VALUE", help="override a value in every case")
+    compare.add_argument("--options", metavar="GROUP", help="compare the options of an option group "
+                         "([[option.GROUP]]) instead of the [[case]] tables")
     compare.add_argument("--quiet", action="store_true", help="print no table and no progress")
     compare.add_argument("--no-figures", action="store_true", help="write no figures and no report (faster)")
     _budget_options(compare)
@@ -746,6 +838,20 @@ def _add_sweep_parser(sub) -> None:
     sw.add_argument("--between", nargs=2, metavar=("LOW", "HIGH"), help="its range, e.g. '0.1 W/K' '10 W/K'")
     sw.add_argument("--greatest", action="store_true", help="the greatest value meeting it (default: the least)")
     sw.add_argument("--tolerance", type=_fraction, default=1e-3, help="search tolerance, a fraction of the range")
+    sw.add_argument("--options", metavar="GROUP,...", help="the option groups swept ([[option.GROUP]]; default: "
+                    "every group of the scenario; 'none' for none)")
+    sw.add_argument("--samples", type=int, help="samples of the keys with distributions (per combination of "
+                    "the others)")
+    sw.add_argument("--seed", type=int, help="seed of the sample design (default 0: reproducible)")
+    sw.add_argument("--sampling", choices=("latin_hypercube", "sobol", "saltelli", "random"),
+                    help="sample design (default latin_hypercube; saltelli adds Sobol' sensitivity indices)")
+    sw.add_argument("--percentiles", metavar="P,...", help="percentiles reported besides 5, 50 and 95")
+    sw.add_argument("--require", metavar="REQUIREMENT", help="the design review's requirement, e.g. "
+                    "'temperature_margin_K >= 2 at thermal.ambient_temperature = 45 degC' (replaces [review]'s)")
+    sw.add_argument("--rank-by", metavar="ATTRIBUTE", help="the option attribute that ranks the options meeting "
+                    "the requirement, the least first (default: the group's first)")
+    sw.add_argument("--refine", action="store_true", help="refine each option's highest passing value by the "
+                    "design search")
     sw.add_argument("--no-figures", action="store_true", help="write no figures")
     sw.add_argument("--quiet", action="store_true", help="print nothing")
     _budget_options(sw, scenarios=True)

@@ -16,7 +16,7 @@ import thermoelec
 from thermoelec import cli
 from thermoelec.analysis import compare
 from thermoelec.analysis.verdict import limit_checks
-from thermoelec.output.report import CAUTIONS
+from thermoelec.output.html import CAUTIONS
 
 from ..helpers import SCENARIOS, cell_section, scenario
 

@@ -30,7 +30,7 @@ def test_format_comparison_has_a_row_per_comparison_row_and_a_column_per_case():
     lines = format_comparison(cases).splitlines()
     assert len(lines) == 1 + len(COMPARISON_ROWS)
     assert lines[0].split() == ["warm", "very", "cold"]
-    energy = next(line for line in lines if line.startswith("energy discharged to the load"))
+    energy = next(line for line in lines if line.startswith("energy discharged at the terminals"))
     assert energy.split()[-4:] == ["41.23", "Wh", "7.5", "Wh"]
     # the case columns are right-aligned, so every row ends where the header does
     assert {len(line) for line in lines} == {len(lines[0])}

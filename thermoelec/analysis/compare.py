@@ -31,6 +31,7 @@ from thermoelec.analysis.results import DERATING_ROWS, ENERGY_ROWS, SimulationRe
 from thermoelec.analysis.simulate import simulate
 from thermoelec.physics.constants import JOULES_PER_WH
 from thermoelec.scenario import Scenario, ScenarioError
+from thermoelec.scenario.options import option_groups
 
 __all__ = ["COMPARISON_ROWS", "PACK_COMPARISON_ROWS", "CaseOutcome", "case_folders", "case_list", "case_scenarios",
            "comparison_json", "comparison_rows", "comparison_table", "energy_to_cutoff", "run_cases",
@@ -139,15 +140,33 @@ def case_folders(names: Sequence[str]) -> list[str]:
     return folders
 
 
-def case_list(scenario: Scenario, extra: Sequence[tuple[str, Mapping[str, Any]]] = ()) -> list[tuple[str, dict]]:
-    """The scenario's ``[[case]]`` variants followed by ``extra`` ones, as ``(name, overrides)``.
+def case_list(scenario: Scenario, extra: Sequence[tuple[str, Mapping[str, Any]]] = (),
+              group: str | None = None) -> list[tuple[str, dict]]:
+    """The scenario's ``[[case]]`` variants (or the options of an option group) followed by ``extra`` ones,
+    as ``(name, overrides)``.
+
+    Parameters
+    ----------
+    scenario : Scenario
+        The scenario.
+    extra : sequence of (str, mapping)
+        More cases, by name and overrides (``--case``).
+    group : str, optional
+        An option group (``[[option.GROUP]]``) whose options are the cases instead of ``[[case]]``.
 
     Raises
     ------
     ScenarioError
-        When there is no case or two cases share a name.
+        When there is no case, two cases share a name, or the group does not exist.
     """
-    cases = [(c.name, dict(c.model_extra or {})) for c in scenario.spec.case]
+    if group is not None:
+        groups = option_groups(scenario)
+        if group not in groups:
+            raise ScenarioError(scenario.source, "option", f"no option group {group!r}; the scenario has "
+                                + (", ".join(groups) or "none ([[option.NAME]] tables declare them)"))
+        cases = [(o.name, dict(o.overrides)) for o in groups[group].options]
+    else:
+        cases = [(c.name, dict(c.model_extra or {})) for c in scenario.spec.case]
     cases += [(name, dict(values)) for name, values in extra]
     if not cases:
         raise ScenarioError(scenario.source, "case", "nothing to compare: add [[case]] tables with a name and "

@@ -45,8 +45,8 @@ METRICS: tuple[str, ...] = (
     "completed", "duration_s", "cell_temperature_max_degC", "cell_temperature_rise_K", "sink_temperature_max_degC",
     "voltage_min_V", "cell_voltage_min_V", "cell_voltage_max_V", "current_max_A", "power_max_W",
     "energy_battery_Wh", "energy_load_Wh", "energy_dissipated_Wh",
-    "energy_discharged_Wh", "energy_battery_discharged_Wh", "energy_dissipated_discharge_Wh",
-    "energy_charged_Wh", "energy_battery_charged_Wh", "energy_dissipated_charge_Wh",
+    "energy_discharged_Wh", "energy_to_load_Wh", "energy_auxiliary_Wh", "energy_battery_discharged_Wh",
+    "energy_dissipated_discharge_Wh", "energy_charged_Wh", "energy_battery_charged_Wh", "energy_dissipated_charge_Wh",
     "heat_generated_Wh", "heat_to_ambient_Wh",
     "efficiency", "efficiency_discharge", "efficiency_charge", "efficiency_round_trip",
     "charge_throughput_Ah", "soc_end", "voltage_margin_min_V", "voltage_margin_max_V", "temperature_margin_K",
@@ -149,6 +149,12 @@ class Extremes:
         The cell that reached the highest temperature, from 0 [-].
     hottest_time : float
         When it did [s].
+    auxiliary_energy : float
+        Energy the running auxiliaries (fans, pumps, a pack-fed heater) drew at the pack
+        terminals [J]; their power is constant within a phase, so both paths sum it exactly.
+    auxiliary_energy_discharge : float
+        The part of it while the pack discharged (mean current of a row interval or a step
+        positive) [J].
     cell_discharge_current_max, cell_charge_current_max : float
         Largest discharge current of a cell, largest charge current of a cell (a magnitude) [A].
     charge_power_max : float
@@ -181,6 +187,8 @@ class Extremes:
     current_share_max: float = 1.0
     hottest_cell: float = 0.0
     hottest_time: float = 0.0
+    auxiliary_energy: float = 0.0
+    auxiliary_energy_discharge: float = 0.0
     cell_discharge_current_max: float = 0.0
     cell_charge_current_max: float = 0.0
     charge_power_max: float = 0.0
@@ -334,6 +342,15 @@ def pack_limits(problem: Problem) -> dict[str, Any]:
     return limits
 
 
+def _energies(q: np.ndarray, extremes: Extremes) -> dict[str, float]:
+    """:func:`energy_totals`, and the load's and the auxiliaries' shares [Wh]: what the load itself received is
+    the terminals' discharge less the auxiliaries' draw meanwhile."""
+    energies = energy_totals(q)
+    energies["energy_to_load_Wh"] = energies["energy_discharged_Wh"] - _wh(extremes.auxiliary_energy_discharge) + 0.0
+    energies["energy_auxiliary_Wh"] = _wh(extremes.auxiliary_energy)
+    return energies
+
+
 def mission_metrics(problem: Problem, start: np.ndarray, end: np.ndarray, extremes: Extremes, duration: float,
                     stop_reason: str, status: str = "ok", stop_cell: int | None = None) -> dict[str, Any]:
     """The metrics of one mission (:func:`metric_names`; and the energy parts of :func:`energy_totals`).
@@ -375,6 +392,7 @@ def mission_metrics(problem: Problem, start: np.ndarray, end: np.ndarray, extrem
     q = end[L.quadrature_index(problem.n_rc, problem.n_cells):]
     cell_temperature_start = start[L.cell_state_indices(problem.n_rc, problem.n_cells)[1]].max()
     soc_end, soc_spread = pack_soc(problem, end)
+    energies = _energies(q, extremes)
     row = {
         "completed": status == "ok" and stop_reason == "end_of_profile",
         "duration_s": float(duration),
@@ -386,7 +404,7 @@ def mission_metrics(problem: Problem, start: np.ndarray, end: np.ndarray, extrem
         "cell_voltage_max_V": float(extremes.cell_voltage_max),
         "current_max_A": float(extremes.current_abs_max),
         "power_max_W": float(extremes.power_max),
-        **energy_totals(q),
+        **energies,
         "heat_generated_Wh": _wh(q[L.Q_HEAT]),
         "heat_to_ambient_Wh": _wh(q[L.Q_HEAT_AMBIENT]),
         **efficiencies(q),

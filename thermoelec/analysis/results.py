@@ -71,6 +71,7 @@ SERIES_UNITS: dict[str, str] = {
     "pack_emf_V": "V",
     "coolant_temperature_degC": "degC",
     "heater_power_W": "W",
+    "auxiliary_power_W": "W",
     "heat_to_coolant_W": "W",
     "heat_radiated_W": "W",
     "sink_to_air_conductance_W_per_K": "W/K",
@@ -98,6 +99,7 @@ SERIES_DESCRIPTIONS: dict[str, str] = {
     "pack_emf_V": "source voltage behind the series resistance, Ns*(U - sum of RC voltages)",
     "coolant_temperature_degC": "coolant temperature leaving the cold plate (the inlet without a coolant loop)",
     "heater_power_W": "heater power on the cells",
+    "auxiliary_power_W": "power the running fans, pumps and pack-fed heater draw at the pack terminals",
     "heat_to_coolant_W": "heat carried away by the coolant",
     "heat_radiated_W": "net radiation from the sink to the surroundings (part of heat_to_ambient_W)",
     "sink_to_air_conductance_W_per_K": "sink-to-air convective conductance h*A (with a running fan)",
@@ -292,6 +294,7 @@ def build_result(problem: Problem, trajectory: Trajectory, options: SolverOption
         "pack_resistance_ohm": alg[:, L.A_RESISTANCE],
         "pack_emf_V": alg[:, L.A_EMF],
         "heater_power_W": alg[:, L.A_HEATER],
+        "auxiliary_power_W": alg[:, L.A_AUXILIARY],
         "heat_to_coolant_W": alg[:, L.A_COOLANT],
         "heat_radiated_W": alg[:, L.A_RADIATION],
         "sink_to_air_conductance_W_per_K": alg[:, L.A_SINK_CONDUCTANCE],
@@ -455,6 +458,18 @@ def _event(problem: Problem, event: dict[str, Any]) -> dict[str, Any]:
             **({"cell": event["cell"] + 1} if "cell" in event else {})}
 
 
+def auxiliary_energies(series: dict[str, np.ndarray]) -> tuple[float, float]:
+    """The energy the auxiliaries drew at the terminals over a run, and the part of it while the pack
+    discharged [J]: their power is constant within a phase and a phase boundary is a repeated row, so the
+    trapezoid over the output rows is exact; an interval discharges when its mean current is positive."""
+    times, power, current = series["time_s"], series["auxiliary_power_W"], series["current_A"]
+    if len(times) < 2:
+        return 0.0, 0.0
+    energy = 0.5 * (power[:-1] + power[1:]) * np.diff(times)
+    discharging = 0.5 * (current[:-1] + current[1:]) > 0.0
+    return float(np.sum(energy)), float(np.sum(energy[discharging]))
+
+
 def _limit_extremes(times: np.ndarray, alg: np.ndarray) -> dict[str, float]:
     """The extremes against the pack specification's limits and the derating, over the output rows of a solo run."""
     current, power = alg[:, L.A_CURRENT], alg[:, L.A_VOLTAGE] * alg[:, L.A_CURRENT]
@@ -479,6 +494,7 @@ def _limit_extremes(times: np.ndarray, alg: np.ndarray) -> dict[str, float]:
 def _row_extremes(series: dict[str, np.ndarray], temperatures: _Temperatures, stress: dict[str, Any],
                   cold_time: float, cells: dict[str, np.ndarray] | None, alg: np.ndarray) -> Extremes:
     """The running extremes of a solo run, over its output rows (the Arrhenius time of ``stress``)."""
+    auxiliary, auxiliary_discharge = auxiliary_energies(series)
     return Extremes(
         cell_temperature_max=temperatures.hottest.max(),
         sink_temperature_max=temperatures.sink.max(),
@@ -489,6 +505,8 @@ def _row_extremes(series: dict[str, np.ndarray], temperatures: _Temperatures, st
         cell_voltage_max=series.get("cell_voltage_max_V", series["cell_voltage_V"]).max(),  # the highest cell's
         power_max=series["power_W"].max(),
         cold_charging_time=cold_time,
+        auxiliary_energy=auxiliary,
+        auxiliary_energy_discharge=auxiliary_discharge,
         **(pack_cells.row_extremes(series, cells) if cells is not None else {}),
         **_limit_extremes(series["time_s"], alg),
     )
@@ -523,7 +541,9 @@ def _extremes_summary(problem: Problem, trajectory: Trajectory, shared: dict[str
 #: The energies of a mission as every table shows them (terminal, comparison, report): label, key, unit; each
 #: direction apart, load side and cell side, with its losses and efficiency; the contract's net values not among them.
 ENERGY_ROWS: tuple[tuple[str, str, str], ...] = (
-    ("energy discharged to the load", "energy_discharged_Wh", "Wh"),
+    ("energy discharged at the terminals", "energy_discharged_Wh", "Wh"),
+    ("  to the load", "energy_to_load_Wh", "Wh"),
+    ("energy to the auxiliaries (fans, pumps, pack heater)", "energy_auxiliary_Wh", "Wh"),
     ("energy drawn from the cells", "energy_battery_discharged_Wh", "Wh"),
     ("energy lost in discharge", "energy_dissipated_discharge_Wh", "Wh"),
     ("energy charged at the terminals", "energy_charged_Wh", "Wh"),
@@ -544,7 +564,8 @@ NET_ENERGY_ROWS: tuple[tuple[str, str, str], ...] = (
 )
 #: The energy keys of the summary in its order: each direction apart, then the contract's net values.
 ENERGY_KEYS: tuple[str, ...] = (
-    "energy_discharged_Wh", "energy_battery_discharged_Wh", "energy_dissipated_discharge_Wh",
+    "energy_discharged_Wh", "energy_to_load_Wh", "energy_auxiliary_Wh", "energy_battery_discharged_Wh",
+    "energy_dissipated_discharge_Wh",
     "energy_charged_Wh", "energy_regenerated_Wh", "energy_from_charger_Wh", "energy_battery_charged_Wh",
     "energy_dissipated_charge_Wh",
     "energy_battery_Wh", "energy_load_Wh", "energy_dissipated_Wh",

@@ -102,30 +102,32 @@ _ORDER_EXPONENT = -1.0 / 3.0
 # per-scenario running extremes and integrals written by the kernel (what the sweep metrics and verdict need)
 X_TC_MAX, X_TS_MAX, X_V_MIN, X_VCELL_MIN, X_I_ABS, X_ARRHENIUS, X_VCELL_MAX, X_P_MAX, X_COLD_CHARGE = \
     0, 1, 2, 3, 4, 5, 6, 7, 8
-X_SPREAD, X_SPREAD_TIME, X_SHARE, X_HOT_CELL, X_HOT_TIME = 9, 10, 11, 12, 13
+X_SPREAD, X_SPREAD_TIME, X_SHARE, X_HOT_CELL, X_HOT_TIME, X_AUX, X_AUX_DISCHARGE = 9, 10, 11, 12, 13, 14, 15
 (X_I_DISCHARGE, X_I_CHARGE, X_P_CHARGE, X_M_DISCHARGE_I, X_M_CHARGE_I, X_M_DISCHARGE_P, X_M_CHARGE_P,
- X_T_DISCHARGING, X_T_CHARGING, X_DERATED, X_SHORTFALL, N_EXTRA) = range(14, 26)
+ X_T_DISCHARGING, X_T_CHARGING, X_DERATED, X_SHORTFALL, N_EXTRA) = range(16, 28)
 #: The names of the extremes, by index: highest cell and sink temperature [K], lowest pack and cell
 #: voltage [V], largest current magnitude [A], Arrhenius-weighted time at the reference temperature [s]
 #: (of the hottest cell), highest cell voltage [V], highest power to the load [W], time charging below
 #: the charge temperature limit [s] (of the coldest cell; the crossing interpolated within a step, as over
 #: the output rows of a solo run); the largest difference between the hottest and the coldest cell [K]
 #: and when [s], the largest current share of a cell [-], the cell that reached the highest temperature
-#: (from 0) [-] and when [s] (0, 0, 1, 0 and the time of the peak for a lumped pack); against the limits of
-#: the pack specification the largest cell discharge and charge currents [A], the largest charging power [W],
-#: the least margins to the cell current limits [A] and the pack power limits [W], the coldest cell while
-#: discharging and the hottest while charging [K]; the time derated [s] (the crossings interpolated within a
-#: step) and the largest shortfall of the delivered power [W].
+#: (from 0) [-] and when [s] (0, 0, 1, 0 and the time of the peak for a lumped pack); the energy the
+#: auxiliaries drew at the terminals [J], and the part of it while the pack discharged [J]; against the
+#: limits of the pack specification the largest cell discharge and charge currents [A], the largest charging
+#: power [W], the least margins to the cell current limits [A] and the pack power limits [W], the coldest cell
+#: while discharging and the hottest while charging [K]; the time derated [s] (the crossings interpolated within
+#: a step) and the largest shortfall of the delivered power [W].
 EXTREMES = ("cell_temperature_max", "sink_temperature_max", "voltage_min", "cell_voltage_min", "current_abs_max",
             "equivalent_time_at_reference", "cell_voltage_max", "power_max", "cold_charging_time",
             "cell_temperature_spread_max", "cell_temperature_spread_time", "current_share_max", "hottest_cell",
-            "hottest_time", "cell_discharge_current_max", "cell_charge_current_max", "charge_power_max",
-            "discharge_current_margin", "charge_current_margin", "discharge_power_margin", "charge_power_margin",
-            "discharging_temperature_min", "charging_temperature_max", "derated_time", "shortfall_max")
+            "hottest_time", "auxiliary_energy", "auxiliary_energy_discharge", "cell_discharge_current_max",
+            "cell_charge_current_max", "charge_power_max", "discharge_current_margin", "charge_current_margin",
+            "discharge_power_margin", "charge_power_margin", "discharging_temperature_min",
+            "charging_temperature_max", "derated_time", "shortfall_max")
 #: Their values before the first observation.
 _EXTRA_START = np.array([-np.inf, -np.inf, np.inf, np.inf, 0.0, 0.0, -np.inf, -np.inf, 0.0,
-                         0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, np.inf, np.inf, np.inf, np.inf, np.inf, -np.inf,
-                         0.0, 0.0])
+                         0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0,
+                         0.0, 0.0, 0.0, np.inf, np.inf, np.inf, np.inf, np.inf, -np.inf, 0.0, 0.0])
 
 
 @numba.njit(cache=True, error_model="numpy")
@@ -231,6 +233,15 @@ def _cold_charging(tc0, tc1, i0, i1, t_min, h):
         return 0.0
     share = (t_min - tc0) / (tc1 - tc0)
     return h * share if below0 else h * (1.0 - share)
+
+
+@numba.njit(cache=True, error_model="numpy")
+def _auxiliary_energy(extra, aux, i0, i1, h):
+    """Energy the auxiliaries draw over a step of length h [J]: their power is constant within a phase
+    (the thermostats switch at phase boundaries); discharging when the step's mean current is positive."""
+    extra[X_AUX] += aux * h
+    if 0.5 * (i0 + i1) > 0.0:
+        extra[X_AUX_DISCHARGE] += aux * h
 
 
 @numba.njit(cache=True, error_model="numpy")
@@ -341,6 +352,7 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
                         rate_prev = rate_new
                         extra[X_COLD_CHARGE] += _cold_charging(cold_prev, alg[L.A_TEMPERATURE_LOW], current_prev,
                                                                alg[L.A_CURRENT], t_charge_min, high)
+                        _auxiliary_energy(extra, alg[L.A_AUXILIARY], current_prev, alg[L.A_CURRENT], high)
                         deficit = abs(alg[L.A_CURRENT_DEMANDED] - alg[L.A_CURRENT])
                         extra[X_DERATED] += _derated_time(deficit_prev, deficit, high)
                         deficit_prev = deficit
@@ -356,6 +368,7 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
                     rate_prev = rate_new
                     extra[X_COLD_CHARGE] += _cold_charging(cold_prev, alg[L.A_TEMPERATURE_LOW], current_prev,
                                                            alg[L.A_CURRENT], t_charge_min, h_try)
+                    _auxiliary_energy(extra, alg[L.A_AUXILIARY], current_prev, alg[L.A_CURRENT], h_try)
                     deficit = abs(alg[L.A_CURRENT_DEMANDED] - alg[L.A_CURRENT])
                     extra[X_DERATED] += _derated_time(deficit_prev, deficit, h_try)
                     deficit_prev = deficit
@@ -430,8 +443,8 @@ class BatchOutcome:
     states : float64 array, shape (n, n_states)
         State at the end (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
     extras : float64 array, shape (n, len(EXTREMES))
-        The running extremes of :data:`EXTREMES` [K, K, V, V, A, s, V, W, s, K, s, -, -, s, A, A, W, A, A, W, W,
-        K, K, s, W].
+        The running extremes of :data:`EXTREMES` [K, K, V, V, A, s, V, W, s, K, s, -, -, s, J, J, A, A, W, A, A,
+        W, W, K, K, s, W].
     initial_states : float64 array, shape (n, n_states)
         Where each mission started, after its soak [-, V, K, J, C].
     stop_cell : int64 array, shape (n,)
@@ -510,7 +523,7 @@ def solve_batch(problems: list[Problem], options: SolverOptions) -> BatchOutcome
     BatchOutcome
         Per scenario: ``ok`` or ``fallback`` (to be run on CVODE), stop reason,
         end time [s] and state [-, V, K, J, C], and the running extremes of
-        :data:`EXTREMES` [K, K, V, V, A, s, V, W, s, K, s, -, -, s, A, A, W, A, A, W, W, K, K, s, W], the
+        :data:`EXTREMES` [K, K, V, V, A, s, V, W, s, K, s, -, -, s, J, J, A, A, W, A, A, W, W, K, K, s, W], the
         cell at a stop's limit [-].
     """
     n_rc, n_cells = problems[0].n_rc, problems[0].n_cells

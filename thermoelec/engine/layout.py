@@ -318,6 +318,8 @@ A_SINK_CONDUCTANCE = _algebraics.slot("sink_conductance", "W/K", "sink-to-air co
 A_COOLANT_OUTLET = _algebraics.slot("coolant_outlet", "K", "coolant temperature leaving the plate")
 A_REYNOLDS = _algebraics.slot("reynolds", "1", "Reynolds number of the air flow over the sink")
 A_RAYLEIGH = _algebraics.slot("rayleigh", "1", "Rayleigh number of free convection at the sink")
+A_AUXILIARY = _algebraics.slot("auxiliary", "W", "power the running auxiliaries draw at the pack terminals (0 while "
+                               "a held terminal voltage feeds them)")
 # the extremes over the cells (of the one cell of a lumped pack): the root functions read these
 A_CELL_VOLTAGE_HIGH = _algebraics.slot("cell_voltage_high", "V", "highest cell terminal voltage")
 A_TEMPERATURE_HIGH = _algebraics.slot("cell_temperature_high", "K", "temperature of the hottest cell")
@@ -402,6 +404,8 @@ H_PUMP_ON = _header.slot("pump_on", "-", "1 while the coolant flows")
 H_HEATER_ON = _header.slot("heater_on", "-", "1 while the heater runs")
 H_HEATER_POWER = _header.slot("heater_power", "W", "heater power")
 H_HEATER_FROM_PACK = _header.slot("heater_from_pack", "-", "1 when the pack feeds the heater")
+H_FAN_POWER = _header.slot("fan_power", "W", "electrical power of the fan while on, from the pack")
+H_PUMP_POWER = _header.slot("pump_power", "W", "electrical power of the pump while the coolant flows, from the pack")
 # a resolved pack (0 offsets for a lumped one)
 H_NCELLS = _header.slot("cells", "-", "cell blocks in the state vector (1 for a lumped pack)")
 H_CELLS = _header.slot("cell_table", "-", "offset of the cell table, 0 for a lumped pack")

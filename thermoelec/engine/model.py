@@ -66,6 +66,7 @@ from thermoelec.engine.events import (
 )
 from thermoelec.engine.layout import (
     A_AMBIENT,
+    A_AUXILIARY,
     A_CELL_CHARGE_LIMIT,
     A_CELL_CURRENT_HIGH,
     A_CELL_CURRENT_LOW,
@@ -132,6 +133,7 @@ from thermoelec.engine.layout import (
     H_EMISSIVITY,
     H_FAN_G,
     H_FAN_ON,
+    H_FAN_POWER,
     H_FAN_SPEED,
     H_FORCED,
     H_GCA,
@@ -150,6 +152,7 @@ from thermoelec.engine.layout import (
     H_NS,
     H_OCV,
     H_PUMP_ON,
+    H_PUMP_POWER,
     H_R0,
     H_RAD_AREA,
     H_RC,
@@ -192,6 +195,7 @@ from thermoelec.physics import thermal as thermphys
 from thermoelec.physics.loads import (
     MODE_POWER,
     MODE_VOLTAGE,
+    auxiliary_power,
     current_for_voltage,
     pack_current,
     power_deliverable_margin,
@@ -213,6 +217,7 @@ _h_from_numbers = correlations.coefficient_from_numbers
 _conv_numbers = correlations.convection_numbers
 _radiation = thermphys.radiation_heat
 _effectiveness = thermphys.coolant_effectiveness
+_auxiliary = auxiliary_power
 _for_voltage = current_for_voltage
 
 
@@ -290,9 +295,10 @@ def evaluate(y, p, ydot, alg):
     mode = int(p[H_MODE])
     value = p[H_VALUE]
     heater = p[H_HEATER_POWER] if p[H_HEATER_ON] == 1.0 else 0.0
-    # a heater fed from the pack is a constant-power load on its terminals (in voltage
-    # mode the charger holding the terminals feeds it, so the cells do not see it)
-    aux = heater if p[H_HEATER_FROM_PACK] == 1.0 else 0.0
+    # the running auxiliaries (fan, pump, a heater fed from the pack) are one constant-power
+    # load on the terminals (in voltage mode the charger holding them feeds it: the cells do not see it)
+    aux = _auxiliary(p[H_FAN_ON], p[H_FAN_POWER], p[H_PUMP_ON], p[H_PUMP_POWER], p[H_HEATER_ON],
+                     p[H_HEATER_POWER], p[H_HEATER_FROM_PACK])
     demanded = pack_current(mode, value, emf, rtot, aux)
     current = allowed = demanded
     hold_dis = hold_ch = deliverable = np.inf
@@ -394,6 +400,7 @@ def evaluate(y, p, ydot, alg):
     alg[A_COOLANT_OUTLET] = outlet
     alg[A_REYNOLDS] = reynolds
     alg[A_RAYLEIGH] = rayleigh
+    alg[A_AUXILIARY] = 0.0 if mode == MODE_VOLTAGE else aux
     alg[A_CURRENT_ALLOWED] = allowed
     alg[A_HOLD_DISCHARGE] = hold_dis
     alg[A_HOLD_CHARGE] = hold_ch

@@ -446,6 +446,7 @@ def _thermal_header(header: np.ndarray, th: ThermalNetwork) -> None:
     if th.fan is not None:
         header[L.H_FAN_SPEED] = -1.0 if th.fan.air_speed is None else th.fan.air_speed
         header[L.H_FAN_G] = th.fan.conductance
+        header[L.H_FAN_POWER] = th.fan.power
     if th.radiation is not None:
         header[L.H_EMISSIVITY], header[L.H_RAD_AREA] = th.radiation.emissivity, th.radiation.area
         header[L.H_SURROUNDINGS] = th.radiation.surroundings_temperature or 0.0
@@ -455,6 +456,7 @@ def _thermal_header(header: np.ndarray, th: ThermalNetwork) -> None:
                                                                     cool.conductance)
         header[L.H_COOL_C], header[L.H_COOL_INLET] = cool.heat_capacity, cool.inlet_temperature
     header[L.H_PUMP_ON] = 1.0
+    header[L.H_PUMP_POWER] = th.pump_power if th.coolant is not None else 0.0
     if th.heater is not None:
         header[L.H_HEATER_POWER], header[L.H_HEATER_FROM_PACK] = th.heater.power, float(th.heater.from_pack)
 

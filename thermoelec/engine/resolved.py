@@ -43,7 +43,7 @@ from thermoelec.physics import correlations
 from thermoelec.physics import pack as packphys
 from thermoelec.physics import thermal as thermphys
 from thermoelec.physics.constants import SECONDS_PER_HOUR
-from thermoelec.physics.loads import MODE_POWER, pack_current, power_deliverable_margin
+from thermoelec.physics.loads import MODE_POWER, MODE_VOLTAGE, auxiliary_power, pack_current, power_deliverable_margin
 
 __all__ = ["CELL_VALUES", "N_CELL_VALUES", "evaluate_pack", "pack_cell_values", "trajectory_cell_values"]
 
@@ -227,7 +227,9 @@ def evaluate_pack(y, p, ydot, alg):
     mode = int(p[L.H_MODE])
     value = p[L.H_VALUE]
     heater = p[L.H_HEATER_POWER] if p[L.H_HEATER_ON] == 1.0 else 0.0
-    aux = heater if p[L.H_HEATER_FROM_PACK] == 1.0 else 0.0
+    # the running auxiliaries (fan, pump, a pack-fed heater): one constant-power load on the terminals
+    aux = auxiliary_power(p[L.H_FAN_ON], p[L.H_FAN_POWER], p[L.H_PUMP_ON], p[L.H_PUMP_POWER], p[L.H_HEATER_ON],
+                          heater if p[L.H_HEATER_ON] == 1.0 else 0.0, p[L.H_HEATER_FROM_PACK])
     demanded = pack_current(mode, value, emf, rtot, aux)
     current = allowed = demanded
     hold_dis = hold_ch = deliverable = np.inf
@@ -372,6 +374,7 @@ def evaluate_pack(y, p, ydot, alg):
     alg[L.A_COOLANT_OUTLET] = outlet
     alg[L.A_REYNOLDS] = reynolds
     alg[L.A_RAYLEIGH] = rayleigh
+    alg[L.A_AUXILIARY] = 0.0 if mode == MODE_VOLTAGE else aux
     alg[L.A_CELL_VOLTAGE_HIGH] = v_high
     alg[L.A_TEMPERATURE_HIGH] = t_high
     alg[L.A_TEMPERATURE_LOW] = t_low

@@ -6,10 +6,7 @@ fetched from the network, so the file can be mailed or archived as it is.
 
 from __future__ import annotations
 
-import base64
 import datetime as _dt
-import html
-import io
 import json
 from collections.abc import Iterable, Mapping, Sequence
 from pathlib import Path
@@ -19,44 +16,11 @@ import numpy as np
 
 from thermoelec.analysis import verdict as _verdict
 from thermoelec.analysis.results import DERATING_ROWS, ENERGY_ROWS, NET_ENERGY_ROWS, SimulationResult
+from thermoelec.output import html as H
 from thermoelec.output.tables import PACK_ROWS, SUMMARY_ROWS, check_rows, format_value
 
-__all__ = ["CAPABILITY_CAUTION", "CAUTIONS", "capability_report", "comparison_report", "fit_report", "limit_checks",
-           "run_report", "verdict", "write_report"]
-
-#: The cautions printed in every report (and in the README).
-CAUTIONS = (
-    "The results are engineering estimates from a lumped equivalent-circuit and thermal model; they are only as "
-    "good as the parameters, which must be validated with tests of the actual cells and pack.",
-    "Thermal runaway: a lumped cell temperature hides hot spots and cell-to-cell spread; it says nothing about "
-    "internal shorts, abuse or propagation. Keep real margins to the cell maker's limits.",
-    "Charging in the cold risks lithium plating, which can lead to internal shorts later: follow the cell "
-    "maker's charge temperature and current window.",
-    "This tool does not certify anything. Defer to the applicable safety standards, local codes and licensed "
-    "engineering practice for design approval, transport and installation.",
-)
-
-_STYLE = """
-body{font-family:system-ui,-apple-system,'Segoe UI',sans-serif;margin:2em auto;max-width:1100px;color:#222;
-line-height:1.4;padding:0 1em}
-h1{font-size:1.6em;margin-bottom:.2em} h2{border-bottom:1px solid #ccc;padding-bottom:.2em;margin-top:1.6em}
-table{border-collapse:collapse;margin:.6em 0;font-size:.92em} th,td{border:1px solid #ccc;padding:.25em .6em}
-th{background:#f3f3f3;text-align:left} td.num{text-align:right;font-variant-numeric:tabular-nums}
-.pass{color:#0a6b2d;font-weight:600} .fail{color:#b00020;font-weight:600}
-.verdict{display:inline-block;padding:.3em .9em;border-radius:4px;color:#fff;font-weight:700;font-size:1.2em}
-.verdict.pass{background:#0a6b2d;color:#fff} .verdict.fail{background:#b00020;color:#fff}
-.caution{background:#fff7e0;border-left:4px solid #e0a000;padding:.6em 1em;margin:1em 0}
-.warn{background:#fdecea;border-left:4px solid #b00020;padding:.4em 1em}
-.note{background:#eef4fb;border-left:4px solid #3a6fb0;padding:.4em 1em}
-.stop{background:#fdecea;padding:.5em 1em} .default{color:#777}
-figure{margin:1em 0} figure img{max-width:100%;border:1px solid #ddd} figcaption{color:#555;font-size:.9em}
-code{background:#f3f3f3;padding:0 .2em}
-"""
-
-
-def _e(value: Any) -> str:
-    return html.escape(str(value))
-
+__all__ = ["CAPABILITY_CAUTION", "capability_report", "comparison_report", "fit_report", "limit_checks", "run_report",
+           "verdict", "write_report"]
 
 # ---------------------------------------------------------------------------
 # Pass/fail against each limit: rendered from the summary, computed once in analysis/verdict.py
@@ -80,30 +44,14 @@ def verdict(summary: Mapping[str, Any], limits: Mapping[str, float]) -> bool:
 # ---------------------------------------------------------------------------
 
 
-def _table(header: Sequence[str], rows: Iterable[Sequence[str]], numeric_from: int = 1,
-           table_class: str = "") -> str:
-    head = "".join(f"<th>{_e(h)}</th>" for h in header)
-    body = []
-    for row in rows:
-        cells = "".join(f"<td class='num'>{c}</td>" if i >= numeric_from else f"<td>{c}</td>"
-                        for i, c in enumerate(row))
-        body.append(f"<tr>{cells}</tr>")
-    cls = f" class='{table_class}'" if table_class else ""
-    return f"<table{cls}><thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>"
-
-
-def _pass_cell(passed: bool) -> str:
-    return "<span class='pass'>pass</span>" if passed else "<span class='fail'>FAIL</span>"
-
-
 def _checks_table(summary: Mapping[str, Any], limits: Mapping[str, float]) -> str:
-    rows = [[_e(cell) for cell in row[:4]] + [_pass_cell(row[4] == "pass")]
+    rows = [[H.escape(cell) for cell in row[:4]] + [H.pass_cell(row[4] == "pass")]
             for row in check_rows(limit_checks(summary, limits))]
-    return _table(["limit", "value", "worst in mission", "margin", "result"], rows, table_class="limits")
+    return H.table(["limit", "value", "worst in mission", "margin", "result"], rows, table_class="limits")
 
 
 def _rows_table(summary: Mapping[str, Any], rows: Iterable[tuple[str, str, str]], table_class: str = "") -> str:
-    return _table(["metric", "value"], [[_e(label.strip()), _e(format_value(summary.get(key), unit))]
+    return H.table(["metric", "value"], [[H.escape(label.strip()), H.escape(format_value(summary.get(key), unit))]
                                         for label, key, unit in rows], table_class=table_class)
 
 
@@ -115,20 +63,20 @@ def _summary_table(summary: Mapping[str, Any]) -> str:
 def _notes(notes: Sequence[str]) -> str:
     if not notes:
         return ""
-    return "<div class='note'><ul>" + "".join(f"<li>{_e(n)}</li>" for n in notes) + "</ul></div>"
+    return "<div class='note'><ul>" + "".join(f"<li>{H.escape(n)}</li>" for n in notes) + "</ul></div>"
 
 
 def _stop(summary: Mapping[str, Any]) -> str:
     text = summary.get("stop_explanation")
-    return f"<p class='stop'><strong>Why it stopped.</strong> {_e(text)}</p>" if text else ""
+    return f"<p class='stop'><strong>Why it stopped.</strong> {H.escape(text)}</p>" if text else ""
 
 
 def _events(events: Sequence[Mapping[str, Any]], empty: str = "No events.") -> str:
     if not events:
-        return f"<p>{_e(empty)}</p>"
-    rows = [[_e(format_value(float(e["time_s"]), "s")), _e(e["event"]), _e(e.get("origin", "")),
-             _e(e.get("segment_name", "")), _e(e.get("state", ""))] for e in events]
-    return _table(["time", "event", "where", "segment", "state"], rows, numeric_from=9)
+        return f"<p>{H.escape(empty)}</p>"
+    rows = [[H.escape(format_value(float(e["time_s"]), "s")), H.escape(e["event"]), H.escape(e.get("origin", "")),
+             H.escape(e.get("segment_name", "")), H.escape(e.get("state", ""))] for e in events]
+    return H.table(["time", "event", "where", "segment", "state"], rows, numeric_from=9)
 
 
 def _soak(soak: Mapping[str, Any] | None) -> str:
@@ -162,7 +110,7 @@ def _value_text(value: Any) -> str:
 def _overrides(lines: Sequence[str]) -> str:
     if not lines:
         return "<p>No overrides: the scenario file as it is.</p>"
-    return "<ul class='overrides'>" + "".join(f"<li><code>{_e(line)}</code></li>" for line in lines) + "</ul>"
+    return "<ul class='overrides'>" + "".join(f"<li><code>{H.escape(line)}</code></li>" for line in lines) + "</ul>"
 
 
 def _pack_section(result: SimulationResult, figure: Any) -> str:
@@ -170,15 +118,15 @@ def _pack_section(result: SimulationResult, figure: Any) -> str:
     from thermoelec.output.figures import PACK_MAP
 
     summary = result.summary
-    rows = [[_e(label), _e(format_value(summary.get(key), unit))] for label, key, unit in PACK_ROWS]
+    rows = [[H.escape(label), H.escape(format_value(summary.get(key), unit))] for label, key, unit in PACK_ROWS]
     return "".join([
         "<h2>Cells of the pack</h2>",
         f"<p>Every cell resolved: {summary['cells']} cells, "
         f"{result.limits['series']} groups in series of {result.limits['parallel']} in parallel. The pack's "
         "cell temperature above is the hottest cell's; each cell is still one lumped node (its core-to-surface "
         "gradient is not resolved).</p>",
-        _table(["metric", "value"], rows),
-        _figure(figure(PACK_MAP), "Pack map: the peak temperature of each cell where it sits, the hottest ringed, "
+        H.table(["metric", "value"], rows),
+        H.figure(figure(PACK_MAP), "Pack map: the peak temperature of each cell where it sits, the hottest ringed, "
                 "parallel groups boxed, the coolant's path from inlet to outlet."),
     ])
 
@@ -195,26 +143,7 @@ def _derating_section(summary: Mapping[str, Any]) -> str:
 def _warnings(warnings: Sequence[str]) -> str:
     if not warnings:
         return "<p>No warnings.</p>"
-    return "<div class='warn'><ul>" + "".join(f"<li>{_e(w)}</li>" for w in warnings) + "</ul></div>"
-
-
-def _cautions() -> str:
-    return "<div class='caution'><strong>Cautions.</strong><ul>" + \
-        "".join(f"<li>{_e(c)}</li>" for c in CAUTIONS) + "</ul></div>"
-
-
-def _png_base64(fig_or_png: Any) -> str:
-    if isinstance(fig_or_png, bytes):
-        return base64.b64encode(fig_or_png).decode("ascii")
-    buffer = io.BytesIO()
-    fig_or_png.savefig(buffer, format="png", dpi=100)
-    return base64.b64encode(buffer.getvalue()).decode("ascii")
-
-
-def _figure(fig_or_png: Any, caption: str) -> str:
-    """An embedded figure from a matplotlib Figure or the bytes of a PNG file."""
-    return (f"<figure><img alt='{_e(caption)}' src='data:image/png;base64,{_png_base64(fig_or_png)}'>"
-            f"<figcaption>{_e(caption)}</figcaption></figure>")
+    return "<div class='warn'><ul>" + "".join(f"<li>{H.escape(w)}</li>" for w in warnings) + "</ul></div>"
 
 
 def _flatten(data: Any, prefix: str = "") -> list[tuple[str, Any]]:
@@ -235,28 +164,23 @@ def _parameters(raw: Mapping[str, Any] | None, parameters: Sequence[Any] | None 
     """The parameter table: the resolved parameters (key, value, unit, given / default) where known,
     else the raw keys as given."""
     if parameters:
-        rows = [[f"<code>{_e(p.key)}</code>", _e(p.value), _e(p.unit),
-                 f"<span class='default'>{_e(p.source)}</span>" if p.source.startswith("default") else _e(p.source)]
-                for p in parameters]
-        return _table(["key", "value", "unit", "source"], rows, numeric_from=9, table_class="parameters")
+        rows = [[f"<code>{H.escape(p.key)}</code>", H.escape(p.value), H.escape(p.unit),
+                 f"<span class='default'>{H.escape(p.source)}</span>" if p.source.startswith("default")
+                 else H.escape(p.source)] for p in parameters]
+        return H.table(["key", "value", "unit", "source"], rows, numeric_from=9, table_class="parameters")
     if not raw:
         return "<p>(parameters not available: the run was given an SI problem, not a scenario)</p>"
-    rows = [[f"<code>{_e(k)}</code>", _e(_value_text(v))]
+    rows = [[f"<code>{H.escape(k)}</code>", H.escape(_value_text(v))]
             for k, v in _flatten({k: v for k, v in raw.items() if k != "case"})]
-    return _table(["key", "value"], rows, numeric_from=9)
+    return H.table(["key", "value"], rows, numeric_from=9)
 
 
 def _metadata(result: SimulationResult) -> str:
-    rows = [[_e(k), "<br>".join(_e(line) for line in overrides_text(v)) if k == "overrides"
-             else _e(v if isinstance(v, str) else json.dumps(v))] for k, v in result.metadata.items()]
-    rows += [[_e(f"solver {k}"), _e(format_value(float(v)))] for k, v in result.statistics.items()]
-    rows.append(["report generated", _e(_dt.datetime.now(_dt.UTC).strftime("%Y-%m-%d %H:%M:%S UTC"))])
-    return _table(["item", "value"], rows, numeric_from=9)
-
-
-def _document(title: str, body: str) -> str:
-    return ("<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'>"
-            f"<title>{_e(title)}</title><style>{_STYLE}</style></head><body>{body}</body></html>\n")
+    rows = [[H.escape(k), "<br>".join(H.escape(line) for line in overrides_text(v)) if k == "overrides"
+             else H.escape(v if isinstance(v, str) else json.dumps(v))] for k, v in result.metadata.items()]
+    rows += [[H.escape(f"solver {k}"), H.escape(format_value(float(v)))] for k, v in result.statistics.items()]
+    rows.append(["report generated", H.escape(_dt.datetime.now(_dt.UTC).strftime("%Y-%m-%d %H:%M:%S UTC"))])
+    return H.table(["item", "value"], rows, numeric_from=9)
 
 
 def _verdict_badge(passed: bool) -> str:
@@ -288,8 +212,9 @@ STRESS_ROWS: tuple[tuple[str, str, str], ...] = (
 def _verdict_paragraph(result: SimulationResult) -> str:
     summary = result.summary
     return (f"<p id='verdict'>{_verdict_badge(verdict(summary, result.limits))} &nbsp; stop reason "
-            f"<code>{_e(summary['stop_reason'])}</code> after {summary['duration_s']:.0f} s; status {_e(result.status)}"
-            + (f": {_e(result.message)}" if result.message else "") + "</p>" + _stop(summary))
+            f"<code>{H.escape(summary['stop_reason'])}</code> after {summary['duration_s']:.0f} s; "
+            f"status {H.escape(result.status)}"
+            + (f": {H.escape(result.message)}" if result.message else "") + "</p>" + _stop(summary))
 
 
 def run_report(result: SimulationResult, raw: Mapping[str, Any] | None = None, description: str = "",
@@ -313,10 +238,10 @@ def run_report(result: SimulationResult, raw: Mapping[str, Any] | None = None, d
 
     summary = result.summary
     body = [
-        f"<h1>{_e(figures.title_of(result))}</h1>",
-        f"<p>{_e(description)}</p>" if description else "",
+        f"<h1>{H.escape(figures.title_of(result))}</h1>",
+        f"<p>{H.escape(description)}</p>" if description else "",
         _verdict_paragraph(result),
-        _cautions(),
+        H.cautions(),
         "<h2>Limits</h2>", _checks_table(summary, result.limits),
         "<h2>Notes and warnings</h2>", _notes(summary.get("notes", [])), _warnings(result.warnings),
         "<h2>Energy</h2>", _rows_table(summary, ENERGY_ROWS, "energy"),
@@ -327,17 +252,17 @@ def run_report(result: SimulationResult, raw: Mapping[str, Any] | None = None, d
         "<h2>Soak</h2>", _soak(summary.get("soak")),
         "<h2>Stress indicators</h2>", _rows_table(summary, STRESS_ROWS),
         "<h2>Figures</h2>",
-        _figure(figure("dashboard"), "Mission dashboard: demand, current, voltage with limits, SoC, "
+        H.figure(figure("dashboard"), "Mission dashboard: demand, current, voltage with limits, SoC, "
                 "temperatures with the limit, heat; stops and mode switches marked."),
-        _figure(figure("energy"), "Energy chart: voltage against charge moved, discharge, regeneration and charge "
+        H.figure(figure("energy"), "Energy chart: voltage against charge moved, discharge, regeneration and charge "
                 "apart; the areas are the cells', the load's (or charger's) and the dissipated energies."),
-        _figure(figure("operating_region"), "Operating region: load power and dissipation against current "
+        H.figure(figure("operating_region"), "Operating region: load power and dissipation against current "
                 "at the start, the coldest instant, the worst state and the end, with the mission's operating points."),
         "<h2>Overrides</h2>", _overrides(overrides_text(result.metadata.get("overrides", []))),
         "<h2>Parameters</h2>", _parameters(raw, parameters),
         "<h2>Run</h2>", _metadata(result),
     ]
-    return _document(f"thermoelec: {figures.title_of(result)}", "".join(body))
+    return H.document(f"thermoelec: {figures.title_of(result)}", "".join(body))
 
 
 def _case_section(outcome: Any) -> list[str]:
@@ -346,15 +271,15 @@ def _case_section(outcome: Any) -> list[str]:
 
     result = outcome.result
     return [
-        f"<h2>Case: {_e(outcome.name)}</h2>", _verdict_paragraph(result),
+        f"<h2>Case: {H.escape(outcome.name)}</h2>", _verdict_paragraph(result),
         "<h3>Overrides</h3>", _overrides(overrides_text(outcome.overrides)),
         "<h3>Limits</h3>", _checks_table(result.summary, result.limits), _derating_section(result.summary),
         "<h3>Notes and warnings</h3>", _notes(result.summary.get("notes", [])), _warnings(result.warnings),
         "<h3>Events</h3>", _events(result.summary.get("events", [])),
         "<h3>Soak</h3>", _soak(result.summary.get("soak")),
-        _figure(figures.dashboard(result), f"Mission dashboard, {outcome.name}."),
-        _figure(figures.energy_chart(result), f"Energy chart, {outcome.name}."),
-        *([_figure(pack_map(result), f"Pack map, {outcome.name}: the peak temperature of each cell.")]
+        H.figure(figures.dashboard(result), f"Mission dashboard, {outcome.name}."),
+        H.figure(figures.energy_chart(result), f"Energy chart, {outcome.name}."),
+        *([H.figure(pack_map(result), f"Pack map, {outcome.name}: the peak temperature of each cell.")]
           if result.cells is not None else []),
     ]
 
@@ -367,17 +292,17 @@ def comparison_report(outcomes: Sequence[Any], raw: Mapping[str, Any] | None = N
 
     metrics = [o.metrics() for o in outcomes]
     names = [o.name for o in outcomes]
-    rows = [[_e(label.strip()), *(_e(format_value(m.get(key), unit)) for m in metrics)]
+    rows = [[H.escape(label.strip()), *(H.escape(format_value(m.get(key), unit)) for m in metrics)]
             for label, key, unit in comparison_rows(outcomes) if key != "verdict"]
-    verdicts = [[_e("verdict"), *(_verdict_badge(verdict(o.result.summary, o.result.limits)) for o in outcomes)]]
+    verdicts = [[H.escape("verdict"), *(_verdict_badge(verdict(o.result.summary, o.result.limits)) for o in outcomes)]]
     body = [
-        f"<h1>{_e(title or 'case comparison')}</h1>",
-        f"<p>{_e(description)}</p>" if description else "",
-        _cautions(),
-        "<h2>Comparison</h2>", _table(["", *names], verdicts + rows, table_class="comparison"),
+        f"<h1>{H.escape(title or 'case comparison')}</h1>",
+        f"<p>{H.escape(description)}</p>" if description else "",
+        H.cautions(),
+        "<h2>Comparison</h2>", H.table(["", *names], verdicts + rows, table_class="comparison"),
         "<p>Energy to voltage cutoff: a discharge from the same start at the mission's mean discharge power "
         "until a limit stops it (the row below says which).</p>",
-        _figure(figures.comparison_overlay({o.name: o.result for o in outcomes}),
+        H.figure(figures.comparison_overlay({o.name: o.result for o in outcomes}),
                 "Voltage, cell temperature and SoC of every case."),
     ]
     for outcome in outcomes:
@@ -385,10 +310,10 @@ def comparison_report(outcomes: Sequence[Any], raw: Mapping[str, Any] | None = N
     body += ["<h2>Parameters of the base scenario</h2>", _parameters(raw, parameters)]
     if outcomes:
         body += ["<h2>Run</h2>", _metadata(outcomes[0].result)]
-    return _document(f"thermoelec comparison: {title}", "".join(body))
+    return H.document(f"thermoelec comparison: {title}", "".join(body))
 
 
-#: The caution of a capability report, besides :data:`CAUTIONS`.
+#: The caution of a capability report, besides :data:`thermoelec.output.html.CAUTIONS`.
 CAPABILITY_CAUTION = (
     "A pulse capability here is computed from rest at a uniform temperature, with the model's parameters and the "
     "limits given; it is no rating. A pack's published pulse limits come from tests of its cells and pack under the "
@@ -409,14 +334,15 @@ def _capability_headline(result: Any) -> str:
         for kind in PULSE_KINDS:
             values, binding = result.values[kind.name][d], result.binding[kind.name][d]
             names, counts = np.unique(binding.astype(str), return_counts=True)
-            rows.append([_e(f"{duration:g} s"), _e(kind.name.replace("_", " ")),
-                         _e(format_value(float(values[ti, zi]), kind.unit)), _e(binding[ti, zi]),
-                         _e(f"{format_value(float(np.nanmin(values)))} .. {format_value(float(np.nanmax(values)))} "
-                            f"{kind.unit}"), _e(names[int(np.argmax(counts))])])
+            rows.append([H.escape(f"{duration:g} s"), H.escape(kind.name.replace("_", " ")),
+                         H.escape(format_value(float(values[ti, zi]), kind.unit)), H.escape(binding[ti, zi]),
+                         H.escape(f"{format_value(float(np.nanmin(values)))} .. "
+                                  f"{format_value(float(np.nanmax(values)))} {kind.unit}"),
+                         H.escape(names[int(np.argmax(counts))])])
     state = f"{g.temperatures[ti] - ZERO_CELSIUS:g} degC, SoC {g.socs[zi]:g}"
-    return (f"<p>At {_e(state)} (the grid's state nearest 25 degC and SoC 0.5), and over the whole grid:</p>"
-            + _table(["pulse", "capability", f"at {state}", "binding limit there", "over the grid",
-                      "binding most often"], rows, numeric_from=2))
+    return (f"<p>At {H.escape(state)} (the grid's state nearest 25 degC and SoC 0.5), and over the whole grid:</p>"
+            + H.table(["pulse", "capability", f"at {state}", "binding limit there", "over the grid",
+                       "binding most often"], rows, numeric_from=2, table_class="capability"))
 
 
 def capability_report(result: Any, raw: Mapping[str, Any] | None = None, description: str = "",
@@ -429,10 +355,10 @@ def capability_report(result: Any, raw: Mapping[str, Any] | None = None, descrip
     g = result.grid
     name = result.metadata.get("scenario", "")
     body = [
-        f"<h1>{_e(name)}: pulse capability</h1>",
-        f"<p>{_e(description)}</p>" if description else "",
+        f"<h1>{H.escape(name)}: pulse capability</h1>",
+        f"<p>{H.escape(description)}</p>" if description else "",
         "<div class='caution'><strong>Cautions.</strong><ul>"
-        + "".join(f"<li>{_e(c)}</li>" for c in (CAPABILITY_CAUTION, *CAUTIONS)) + "</ul></div>",
+        + "".join(f"<li>{H.escape(c)}</li>" for c in (CAPABILITY_CAUTION, *H.CAUTIONS)) + "</ul></div>",
         "<h2>Method</h2><p>For each pulse duration, temperature and SoC: the largest constant power and the largest "
         "constant current the pack delivers (discharge) and accepts (charge) for the whole pulse, simulated from "
         "rest (RC pairs relaxed; cells, sink and ambient at the temperature), with the RC pairs charging and the "
@@ -447,32 +373,32 @@ def capability_report(result: Any, raw: Mapping[str, Any] | None = None, descrip
     ]
     for i, duration in enumerate(g.durations):
         stem = figure_stem(float(duration))
-        body.append(_figure(pngs[stem] if stem in pngs else capability_map(result, i),
-                            f"{duration:g} s pulses: discharge and charge, power and current, over temperature and "
-                            "SoC; the mark in each cell is the limit that binds it."))
-    rows = [[_e(k), _e(v)] for k, v in result.metadata.items()]
+        body.append(H.figure(pngs[stem] if stem in pngs else capability_map(result, i),
+                             f"{duration:g} s pulses: discharge and charge, power and current, over temperature and "
+                             "SoC; the mark in each cell is the limit that binds it."))
+    rows = [[H.escape(k), H.escape(v)] for k, v in result.metadata.items()]
     body += ["<h2>Parameters</h2>", _parameters(raw, parameters),
-             "<h2>Run</h2>", _table(["item", "value"], rows, numeric_from=9)]
-    return _document(f"thermoelec capability: {name}", "".join(body))
+             "<h2>Run</h2>", H.table(["item", "value"], rows, numeric_from=9)]
+    return H.document(f"thermoelec capability: {name}", "".join(body))
 
 
 def fit_report(outcome: Any) -> str:
     """The report of a ``thermoelec fit`` job (a :class:`thermoelec.fit.jobs.FitOutcome`) as HTML text."""
-    rows = [[_e(name), _e(value), _e(interval)] for name, value, interval in outcome.parameters]
+    rows = [[H.escape(name), H.escape(value), H.escape(interval)] for name, value, interval in outcome.parameters]
     body = [
-        f"<h1>thermoelec fit {_e(outcome.kind)}</h1>",
-        "<p>Logs: " + ", ".join(f"<code>{_e(log)}</code>" for log in outcome.logs) + "</p>",
+        f"<h1>thermoelec fit {H.escape(outcome.kind)}</h1>",
+        "<p>Logs: " + ", ".join(f"<code>{H.escape(log)}</code>" for log in outcome.logs) + "</p>",
         "<div class='caution'><strong>Caution.</strong> Fitted parameters describe the tested cell over the tested "
         "range of SoC, temperature and current only; check them against a held-out test before relying on them, "
         "and follow the applicable safety standards and licensed practice when testing cells.</div>",
-        "<h2>Parameters</h2>", _table(["parameter", "value", "95 % interval / note"], rows, numeric_from=9),
+        "<h2>Parameters</h2>", H.table(["parameter", "value", "95 % interval / note"], rows, numeric_from=9),
     ]
     if outcome.notes:
         body += ["<h2>Notes</h2>", _warnings(outcome.notes)]
     body.append("<h2>Data against model</h2>")
-    body += [_figure(fig, caption) for fig, caption in outcome.figures]
-    body += ["<h2>Cell file written</h2>", f"<pre>{_e(outcome.cell_file_text())}</pre>"]
-    return _document(f"thermoelec fit {outcome.kind}", "".join(body))
+    body += [H.figure(fig, caption) for fig, caption in outcome.figures]
+    body += ["<h2>Cell file written</h2>", f"<pre>{H.escape(outcome.cell_file_text())}</pre>"]
+    return H.document(f"thermoelec fit {outcome.kind}", "".join(body))
 
 
 def write_report(text: str, out_dir: str | Path) -> Path:

@@ -40,7 +40,7 @@ MAX_FACETS = 12
 FACET_COLUMNS = 4
 #: Readable names of the metrics drawn (others get their key with spaces).
 METRIC_NAMES = {"cell_temperature_max_degC": "peak cell temperature", "energy_discharged_Wh":
-                "energy discharged to the load"}
+                "energy discharged at the terminals", "energy_to_load_Wh": "energy to the load"}
 
 
 def axis_label(path: str, unit: str = "") -> str:
@@ -269,6 +269,9 @@ def sweep_map(ds, metric: str) -> Figure:
             ax.set_ylabel(data.y_label)
         if data.facet_titles[k]:
             ax.set_title(data.facet_titles[k], fontsize=9)
+        for dim, setter in ((ds[metric].dims[1], ax.set_xticks), (ds[metric].dims[0], ax.set_yticks)):
+            if not np.issubdtype(ds[dim].values.dtype, np.number):  # an option group: its names
+                setter(np.arange(ds.sizes[dim]), [str(v) for v in ds[dim].values], fontsize=8)
     for ax in axes[n:]:
         ax.set_axis_off()
     bar = fig.add_axes((1 - 1.2 / width, 0.65 / height, 0.18 / width, 1 - 1.6 / height))
@@ -412,6 +415,12 @@ def write_sweep_figures(ds, out: Path, formats: Sequence[str] = ("png", "svg")) 
         File formats matplotlib writes.
     """
     written: list[Path] = []
+    if "sample" in ds.dims:  # a sampled sweep is drawn by its statistics (thermoelec.output.uncertainty)
+        return written
+    # option groups last: their options become the facets (or the columns), the grid keys the axes
+    options = [d for d in ds["verdict"].dims if ds[d].dtype == object]
+    if options and len(ds["verdict"].dims) > len(options):
+        ds = ds.transpose(*[d for d in ds.dims if d not in options], *options)
     for metric in SWEEP_MAP_METRICS:
         written += save(sweep_map(ds, metric), out, f"sweep_{metric}", formats)
     return written

@@ -27,6 +27,7 @@ __all__ = [
     "LOAD_MODES",
     "SEGMENT_MODES",
     "LoadMode",
+    "auxiliary_power",
     "current_for_power",
     "current_for_resistance",
     "current_for_voltage",
@@ -286,12 +287,66 @@ def terminal_voltage_with_auxiliary_load(conductance_factor: float, source: floa
 
 
 @register_jitable
+def auxiliary_power(fan_on: float, fan_power: float, pump_on: float, pump_power: float, heater_on: float,
+                    heater_power: float, heater_from_pack: float) -> float:
+    """Electrical power the running auxiliaries draw from the pack terminals [W].
+
+    ``P_aux = [fan on] P_fan + [pump on] P_pump + [heater on and fed from the pack] P_heater``:
+    each auxiliary is a constant-power load while it runs, and together they are
+    one constant-power load on the terminals (:func:`pack_current`).
+
+    Parameters
+    ----------
+    fan_on : float
+        1 while the fan runs, else 0 [-].
+    fan_power : float
+        Electrical power of the fan while on [W], >= 0.
+    pump_on : float
+        1 while the coolant flows, else 0 [-].
+    pump_power : float
+        Electrical power of the pump while on [W], >= 0.
+    heater_on : float
+        1 while the heater heats, else 0 [-].
+    heater_power : float
+        Heater power [W], >= 0.
+    heater_from_pack : float
+        1 when the pack feeds the heater, 0 for an external supply [-].
+
+    Returns
+    -------
+    float
+        The sum [W], >= 0.
+
+    References
+    ----------
+    Kirchhoff's current law: loads in parallel on the terminals add their powers (circuit
+    theory, common practice).
+
+    Examples
+    --------
+    A 5 W fan running and a 80 W pack-fed heater off:
+
+    >>> auxiliary_power(1.0, 5.0, 0.0, 8.0, 0.0, 80.0, 1.0)
+    5.0
+    """
+    total = 0.0
+    if fan_on == 1.0:
+        total += fan_power
+    if pump_on == 1.0:
+        total += pump_power
+    if heater_on == 1.0 and heater_from_pack == 1.0:
+        total += heater_power
+    return total
+
+
+@register_jitable
 def pack_current(mode: int, value: float, emf: float, resistance: float, auxiliary_power: float) -> float:
     """Pack current [A] for a demand, from the source ``emf`` behind ``resistance``.
 
-    A constant-power auxiliary load on the terminals (a heater fed from the
-    pack) adds its current; with an imposed terminal voltage the source holding
-    the terminals feeds the auxiliary load, so the cells do not see it.
+    A constant-power auxiliary load on the terminals (the running fans, pumps and
+    a heater fed from the pack: :func:`auxiliary_power`) adds its current; with an
+    imposed terminal voltage the source holding the terminals feeds the auxiliary
+    load, so the cells do not see it.
 
     Parameters
     ----------

@@ -255,11 +255,13 @@ class Switch:
 @dataclass(frozen=True)
 class Fan:
     """A thermostatic fan: when on, the air speed becomes ``air_speed`` [m/s] (with a
-    convection correlation) and / or ``conductance`` [W/K] is added from sink to air."""
+    convection correlation) and / or ``conductance`` [W/K] is added from sink to air;
+    it draws ``power`` [W] from the pack terminals while on (an auxiliary load)."""
 
     switch: Switch
     air_speed: float | None = None
     conductance: float = 0.0
+    power: float = 0.0
 
 
 @dataclass(frozen=True)
@@ -277,7 +279,8 @@ class ThermalNetwork:
 
     ``sink_to_ambient`` is a fixed conductance; with ``convection`` the
     conductance comes from a correlation instead (then ``sink_to_ambient`` is 0).
-    ``pump`` switches the coolant flow (always on without a pump).
+    ``pump`` switches the coolant flow (always on without a pump thermostat); the
+    pump draws ``pump_power`` [W] from the pack terminals while the coolant flows.
     """
 
     sink_heat_capacity: float
@@ -290,6 +293,7 @@ class ThermalNetwork:
     fan: Fan | None = None
     heater: Heater | None = None
     pump: Switch | None = None
+    pump_power: float = 0.0
 
 
 @register_jitable

@@ -99,7 +99,7 @@ def _initial_coolant_temperature(spec: ScenarioSpec, t_cell: float, t_sink: floa
         return None
     if coolant.initial_temperature is not None:
         return coolant.initial_temperature
-    if pump is not None and not pump.switch().initially_on(t_cell):
+    if pump is not None and pump.switch() is not None and not pump.switch().initially_on(t_cell):
         return t_sink
     return None
 

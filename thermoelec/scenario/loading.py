@@ -18,7 +18,7 @@ import hashlib
 import re
 import tomllib
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any
 
@@ -108,6 +108,19 @@ class Scenario:
         return _validate(_deep_copy(self.raw), self.source, self.base_dir, None, items, self.digest, self.overrides,
                          check_files=any(names_files(path) for path, _ in items), cache=self.cache,
                          origins=origins, included=self.included, variant=True)
+
+    def for_variants(self) -> Scenario:
+        """This scenario without its ``[sweep]``, ``[[option]]`` and ``[review]`` tables (same digest and cache).
+
+        What a sweep's plan has read already need not be copied and validated again with every
+        variant: a zip of 10 000 values would be, 10 000 times.
+        """
+        drop = ("sweep", "option", "review")
+        if not any(key in self.raw for key in drop):
+            return self
+        raw = {k: v for k, v in self.raw.items() if k not in drop}
+        spec = self.spec.model_copy(update={"sweep": {}, "option": {}, "review": None})
+        return replace(self, spec=spec, raw=raw)
 
     def problem(self) -> Problem:
         """The SI :class:`~thermoelec.engine.problem.Problem` for the simulator (reads CSV profiles, once per version).

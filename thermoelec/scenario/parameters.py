@@ -40,8 +40,9 @@ DERIVED_DEFAULTS: dict[str, str] = {
     "thermal.coolant.initial_temperature": "the sink's while a pump starts off, else the inlet",
     "derating.cutoff_current": "a twentieth of the cell's 1 C current",
 }
-#: Sections listed apart (the sweep's axes and the comparison's cases are no parameters of one run).
-_SKIPPED = ("sweep", "case")
+#: Sections listed apart (the sweep's axes, the comparison's cases, the design options and the review question
+#: are no parameters of one run).
+_SKIPPED = ("sweep", "case", "option", "review")
 
 
 @dataclass(frozen=True)

@@ -42,7 +42,8 @@ from thermoelec.physics.thermal import (
 from thermoelec.scenario.series import AMBIENT_COLUMN
 
 __all__ = ["FORMAT_VERSION", "MIN_RTOL", "CellFileSpec", "CurrentLimitSpec", "DeratingSpec", "KeyedError",
-           "LimitTableSpec", "LimitsSpec", "PowerLimitSpec", "RateLimitSpec", "ScenarioSpec", "SegmentSpec", "Unit"]
+           "LimitTableSpec", "LimitsSpec", "OptionSpec", "PowerLimitSpec", "RateLimitSpec", "ReviewSpec",
+           "ScenarioSpec", "SegmentSpec", "Unit", "key_kind"]
 
 #: The scenario format this schema reads (the file's ``format`` key).
 FORMAT_VERSION = 1
@@ -176,6 +177,9 @@ Kelvin = _scalar("K")
 SocList = _listed("", "")
 VoltageList = _listed("V")
 EntropicList = _listed("V/K")
+SpeedList = _listed("m/s")
+MassFlowList = _listed("kg/s")
+PowerList = _listed("W")
 TemperatureList = Annotated[list[float], BeforeValidator(_temperature_list), Unit("degC", "K")]
 ResistanceTable = Annotated[list[list[float]], _quantity_table("ohm"), Unit("ohm", "ohm")]
 Count = Annotated[int, BeforeValidator(_positive_int)]
@@ -676,9 +680,51 @@ class CoolingSwitchSpec(_Section):
         return Switch(self.on_above, self.off_below)
 
 
+class FanCurveSpec(_Section):
+    """A fan's electrical power over its air speed (a table, linear between its points)."""
+
+    air_speed: SpeedList
+    power: PowerList
+
+    @model_validator(mode="after")
+    def _curve(self):
+        _increasing(self.air_speed, "air_speed")
+        _check(len(self.power) == len(self.air_speed),
+               f"power has {len(self.power)} values but air_speed has {len(self.air_speed)}", "power")
+        _check(all(p >= 0 for p in self.power), "power values must be >= 0", "power")
+        return self
+
+
+class PumpCurveSpec(_Section):
+    """A pump's electrical power over the coolant flow rate (a table, linear between its points)."""
+
+    flow_rate: MassFlowList
+    power: PowerList
+
+    @model_validator(mode="after")
+    def _curve(self):
+        _increasing(self.flow_rate, "flow_rate")
+        _check(len(self.power) == len(self.flow_rate),
+               f"power has {len(self.power)} values but flow_rate has {len(self.flow_rate)}", "power")
+        _check(all(p >= 0 for p in self.power), "power values must be >= 0", "power")
+        return self
+
+
+def _curve_power(curve: FanCurveSpec | PumpCurveSpec | float, at: float | None, what: str) -> float:
+    """The power of a constant or of a curve at its fan's air speed or pump's flow [W]."""
+    if not isinstance(curve, (FanCurveSpec, PumpCurveSpec)):
+        return float(curve)
+    xs = curve.air_speed if isinstance(curve, FanCurveSpec) else curve.flow_rate
+    _check(at is not None, f"a power curve over {what} needs the {what} it runs at", "power")
+    _check(xs[0] <= at <= xs[-1], f"the {what} ({at:g}) lies outside the power curve's "
+           f"{xs[0]:g}..{xs[-1]:g}: extend the table rather than extrapolate", "power")
+    return float(np.interp(at, xs, curve.power))
+
+
 class FanSpec(CoolingSwitchSpec):
     air_speed: Speed | None = None
     conductance: Conductance = 0.0
+    power: Power | FanCurveSpec = 0.0  # drawn from the pack terminals while on
 
     @model_validator(mode="after")
     def _fan(self):
@@ -686,7 +732,37 @@ class FanSpec(CoolingSwitchSpec):
                "a fan needs air_speed (with a forced convection correlation) or conductance", "air_speed")
         _positive(self.air_speed, "air_speed", allow_zero=True)
         _positive(self.conductance, "conductance", allow_zero=True)
+        if not isinstance(self.power, FanCurveSpec):
+            _positive(self.power, "power", allow_zero=True)
+        self.electrical_power()
         return self
+
+    def electrical_power(self) -> float:
+        """The power the fan draws while on [W] (its curve at its air speed)."""
+        return _curve_power(self.power, self.air_speed, "air_speed")
+
+
+class PumpSpec(_Section):
+    """The coolant pump: a thermostat (both thresholds, or neither: always on) and its electrical power."""
+
+    on_above: Temperature | None = None
+    off_below: Temperature | None = None
+    power: Power | PumpCurveSpec = 0.0  # drawn from the pack terminals while the coolant flows
+
+    @model_validator(mode="after")
+    def _pump(self):
+        _check((self.on_above is None) == (self.off_below is None),
+               "give both on_above and off_below (a thermostat), or neither (always on)",
+               "off_below" if self.off_below is None else "on_above")
+        if self.on_above is not None:
+            _check(self.off_below < self.on_above, "off_below must be below on_above (the hysteresis band)",
+                   "off_below")
+        if not isinstance(self.power, PumpCurveSpec):
+            _positive(self.power, "power", allow_zero=True)
+        return self
+
+    def switch(self) -> Switch | None:
+        return None if self.on_above is None else Switch(self.on_above, self.off_below)
 
 
 class HeaterSpec(_Section):
@@ -717,7 +793,7 @@ class ThermalSpec(_Section):
     coolant: CoolantSpec | None = None
     fan: FanSpec | None = None
     heater: HeaterSpec | None = None
-    pump: CoolingSwitchSpec | None = None
+    pump: PumpSpec | None = None
 
     @model_validator(mode="after")
     def _thermal(self):
@@ -736,7 +812,18 @@ class ThermalSpec(_Section):
             _check(self.convection is not None and self.convection.forced is not None,
                    "a fan's air_speed needs [thermal.convection] with a forced correlation (or give its "
                    "conductance instead)", "fan")
+        if self.pump is not None:
+            try:
+                self.pump_power()
+            except KeyedError as exc:
+                raise KeyedError(f"pump.{exc.key}", str(exc)) from None
         return self
+
+    def pump_power(self) -> float:
+        """The power the pump draws while the coolant flows [W] (its curve at the coolant's flow rate)."""
+        if self.pump is None:
+            return 0.0
+        return _curve_power(self.pump.power, self.coolant.flow_rate if self.coolant else None, "flow_rate")
 
     def network(self) -> ThermalNetwork:
         convection = self.convection.model() if self.convection is not None else None
@@ -746,7 +833,8 @@ class ThermalSpec(_Section):
             g_sa = convection_conductance(self.convection.coefficient, self.convection.area)
         else:
             g_sa = 0.0
-        fan = None if self.fan is None else Fan(self.fan.switch(), self.fan.air_speed, self.fan.conductance)
+        fan = None if self.fan is None else Fan(self.fan.switch(), self.fan.air_speed, self.fan.conductance,
+                                                 self.fan.electrical_power())
         heater = None if self.heater is None else Heater(Switch(self.heater.on_below, self.heater.off_above),
                                                          self.heater.power, self.heater.source == "pack")
         radiation = None if self.radiation is None else Radiation(
@@ -754,7 +842,8 @@ class ThermalSpec(_Section):
         return ThermalNetwork(self.sink_heat_capacity, self.cell_to_sink, g_sa, self.cell_to_ambient,
                               convection=convection, radiation=radiation,
                               coolant=None if self.coolant is None else self.coolant.model(),
-                              fan=fan, heater=heater, pump=None if self.pump is None else self.pump.switch())
+                              fan=fan, heater=heater, pump=None if self.pump is None else self.pump.switch(),
+                              pump_power=self.pump_power())
 
 
 class SegmentSpec(_Section):
@@ -1082,6 +1171,32 @@ class CaseSpec(BaseModel):
     name: str
 
 
+class OptionSpec(BaseModel):
+    """One option of a design group (``[[option.cooling]]``): a name, dotted keys to values, and attributes.
+
+    The attributes (``cost``, ``added_mass``: numbers with or without a unit) are read, with the
+    names and the overrides, by :mod:`thermoelec.scenario.options`.
+    """
+
+    model_config = ConfigDict(extra="allow", frozen=True)
+    name: str
+    description: str = ""
+    attributes: dict[str, Any] = {}
+
+    @model_validator(mode="after")
+    def _option(self):
+        _check(self.name.strip() != "", "name is empty: every option needs a name", "name")
+        return self
+
+
+class ReviewSpec(_Section):
+    """The design-review question of a sweep (``[review]``); read by :mod:`thermoelec.analysis.sweep.review`."""
+
+    requirement: str | None = None  # "METRIC >= VALUE at KEY = VALUE", e.g. "temperature_margin_K >= 2 at ..."
+    group: str | None = None  # the option group compared (default: the only one)
+    over: str = "thermal.ambient_temperature"  # the key whose highest passing value is reported
+    rank_by: str | None = None  # an attribute; the least first
+    refine: bool = False  # refine each highest passing value by the design search
 def _all_optional(model: type[_Section], name: str) -> type[_Section]:
     """``model`` with every key optional (default None), the same types, units and checks."""
     fields = {key: (Annotated[field.annotation | None, *field.metadata] if field.metadata else field.annotation | None,
@@ -1115,6 +1230,8 @@ class ScenarioSpec(_Section):
     stress: StressSpec = StressSpec()
     sweep: dict[str, Any] = {}
     case: list[CaseSpec] = []
+    option: dict[str, list[OptionSpec]] = {}
+    review: ReviewSpec | None = None
 
     @model_validator(mode="after")
     def _resolved_coolant(self):
@@ -1129,3 +1246,59 @@ class ScenarioSpec(_Section):
                "against the cells): drop thermal.coolant.heat_capacity", key)
         return self
 
+
+
+
+def _leaf_types(annotation: Any) -> list[Any]:
+    """The alternatives of an annotation, Optional and Annotated unwrapped."""
+    import types
+    import typing
+
+    origin = typing.get_origin(annotation)
+    if origin is Annotated:
+        return _leaf_types(typing.get_args(annotation)[0])
+    if origin in (typing.Union, types.UnionType):
+        return [t for a in typing.get_args(annotation) if a is not type(None) for t in _leaf_types(a)]
+    return [annotation]
+
+
+def key_kind(parts: list[str | int]) -> str | None:
+    """What the schema takes at a key path (``['thermal', 'fan', 'air_speed']``, list items as ints).
+
+    Returns
+    -------
+    str or None
+        ``"number"``, ``"text"`` (a name, a file, a choice), ``"table"``, ``"list"`` or ``"other"``;
+        None for a path the schema does not declare.
+    """
+    import typing
+
+    node: Any = ScenarioSpec
+    for part in parts:
+        alternatives = _leaf_types(node)
+        if isinstance(part, int):
+            lists = [a for a in alternatives if typing.get_origin(a) is list]
+            if not lists:
+                return None
+            node = typing.get_args(lists[0])[0]
+            continue
+        models = [a for a in alternatives if isinstance(a, type) and issubclass(a, BaseModel)]
+        if not models or part not in models[0].model_fields:
+            return None
+        node = models[0].model_fields[part].annotation
+    kinds = set()
+    for leaf in _leaf_types(node):
+        if leaf in (float, int) or leaf is Any:
+            kinds.add("number")
+        elif leaf is str or typing.get_origin(leaf) is typing.Literal:
+            kinds.add("text")
+        elif isinstance(leaf, type) and issubclass(leaf, BaseModel):
+            kinds.add("table")
+        elif typing.get_origin(leaf) is list:
+            kinds.add("list")
+        else:
+            kinds.add("other")
+    for kind in ("number", "text", "table", "list"):
+        if kind in kinds:
+            return kind
+    return "other"

@@ -61,6 +61,13 @@ def _file_variants(scenario: Scenario, plan: SweepPlan) -> list[Scenario]:
                 variants.append(scenario.with_overrides({**first, axis.path: value}))
             except ScenarioError:
                 continue  # recorded as invalid when the sweep reaches it; it reads no file
+    for dim in plan.option_dims:  # an option may name files of its own
+        for option in dim.group.options:
+            if any(names_files(path) for path, _ in option.overrides):
+                try:
+                    variants.append(scenario.with_overrides({**first, **dict(option.overrides)}))
+                except ScenarioError:
+                    continue
     return variants
 
 
@@ -93,7 +100,8 @@ def sweep_identity(scenario: Scenario, plan: SweepPlan, engine: str, keep_interv
         for key, name, _ in data_files(variant.spec):
             parts[f"the data file {name} ({key})"] = _sha256(variant.base_dir / name)
     parts["the overrides (--set)"] = json.dumps([[k, str(v)] for k, v in scenario.overrides])
-    parts["the plan"] = json.dumps([plan.mode, [[a.path, [str(v) for v in a.values]] for a in plan.axes]])
+    # every value, option (overrides, attributes), distribution, sample count, seed and design
+    parts["the plan"] = json.dumps(plan.fingerprint(), sort_keys=True)
     parts["the engine (--engine)"] = engine
     parts["the kept series (--keep-series)"] = repr(keep_interval)
     parts["the solver settings"] = repr(scenario.solver_options())

@@ -12,6 +12,7 @@ only; never from output/, fit/, the API or the command line.
 
 from __future__ import annotations
 
+import json
 import os
 from collections.abc import Mapping, Sequence
 from pathlib import Path
@@ -22,15 +23,50 @@ import numpy as np
 from thermoelec.analysis.metrics import METRICS, PACK_METRICS, VERDICT_KEYS
 from thermoelec.analysis.sweep.plan import SweepPlan
 from thermoelec.analysis.sweep.run import KEPT_SERIES
+from thermoelec.analysis.sweep.sampling import SAMPLERS
 from thermoelec.analysis.verdict import PASS
 from thermoelec.scenario import Scenario
 from thermoelec.version import __version__
 
-__all__ = ["passes", "sweep_dataset", "sweep_table", "write_series", "write_sweep"]
+__all__ = ["passes", "plan_coordinates", "sweep_dataset", "sweep_table", "write_series", "write_sweep"]
+
+
+def plan_coordinates(plan: SweepPlan) -> dict[str, tuple[str, np.ndarray, dict[str, str]]]:
+    """The coordinates of a plan's dimensions: name -> (dimension, values, attributes).
+
+    A grid key: its values in their unit, named by the key; a zipped group: each key along the
+    group's dimension; an option group: the option names (the dimension's own coordinate), each
+    attribute as ``GROUP.ATTRIBUTE`` in its unit, and each option's overrides as ``GROUP.overrides``
+    (JSON); the samples: their number, each sampled key's value in its unit and, for the Saltelli
+    design, ``sample_block`` (``A``, ``B``, ``AB_i``).
+    """
+    coords: dict[str, tuple[str, np.ndarray, dict[str, str]]] = {}
+    for dim in plan.dims:
+        for axis in dim.keys:
+            coords[axis.path] = (dim.name, np.array(axis.coords), {"units": axis.unit or "as in the scenario file"})
+        if dim.group is not None:
+            group = dim.group
+            coords[dim.name] = (dim.name, np.array(group.names, dtype=object),
+                                {"description": f"the options of group {group.name!r} ([[option.{group.name}]])"})
+            for attr in group.attribute_names:
+                coords[f"{group.name}.{attr}"] = (dim.name, np.array([o.attribute(attr) for o in group.options]),
+                                                  {"units": group.unit(attr) or "1"})
+            coords[f"{group.name}.overrides"] = (dim.name, np.array(
+                [json.dumps(dict(o.overrides)) for o in group.options], dtype=object), {})
+        if dim.sampling is not None:
+            sampling = dim.sampling
+            coords["sample"] = ("sample", np.arange(dim.size), {"description": SAMPLERS[sampling.method]})
+            values = sampling.values()
+            for j, dist in enumerate(sampling.distributions):
+                coords[dist.path] = ("sample", values[:, j].astype(float),
+                                     {"units": dist.unit or "1", "distribution": dist.describe()})
+            if sampling.method == "saltelli":
+                coords["sample_block"] = ("sample", sampling.blocks(), {})
+    return coords
 
 
 def sweep_dataset(scenario: Scenario, plan: SweepPlan, rows: Sequence[Mapping[str, Any]]):
-    """One xarray Dataset: a dimension per swept key (or ``case`` for zip), a variable per metric.
+    """One xarray Dataset: a dimension per plan dimension (:func:`plan_coordinates`), a variable per metric.
 
     The metrics are :data:`~thermoelec.analysis.metrics.METRICS`, and those of
     :data:`~thermoelec.analysis.metrics.PACK_METRICS` a resolved pack's rows have
@@ -39,11 +75,8 @@ def sweep_dataset(scenario: Scenario, plan: SweepPlan, rows: Sequence[Mapping[st
     import xarray as xr
 
     shape = plan.shape
-    dims = ["case"] if plan.mode == "zip" else [a.path for a in plan.axes]
-    coords: dict[str, Any] = {}
-    for axis in plan.axes:
-        dim = "case" if plan.mode == "zip" else axis.path
-        coords[axis.path] = (dim, np.array(axis.coords), {"units": axis.unit or "as in the scenario file"})
+    dims = list(plan.dim_names)
+    coords = plan_coordinates(plan)
     data: dict[str, Any] = {}
     ran = [r.get("status") == "ok" for r in rows]  # a failed or invalid scenario has no metrics: NaN, not numbers
     # a resolved pack's metrics where a row has them (a lumped sweep keeps the variables it had)
@@ -59,8 +92,18 @@ def sweep_dataset(scenario: Scenario, plan: SweepPlan, rows: Sequence[Mapping[st
                                         "that failed to solve or was invalid"},)
     ds = xr.Dataset(data, coords=coords)
     ds.attrs.update(thermoelec_version=__version__, scenario_file=scenario.source, scenario_sha256=scenario.digest,
-                    sweep_mode=plan.mode, scenarios=plan.size,
+                    sweep_mode=plan.mode, scenarios=plan.size, sweep_dimensions=json.dumps(dims),
+                    sweep_fingerprint=plan.signature(scenario.digest),
                     failed=int(sum(r.get("status") != "ok" for r in rows)))
+    for dim in plan.option_dims:
+        ds.attrs[f"option_group.{dim.name}"] = json.dumps(
+            {o.name: {"description": o.description, "overrides": dict(o.overrides),
+                      "attributes": {a.name: [a.value, a.unit] for a in o.attributes}} for o in dim.group.options})
+    sampling = plan.sampling
+    if sampling is not None:
+        ds.attrs.update(sampling=sampling.method, sampling_description=SAMPLERS[sampling.method],
+                        samples=sampling.samples, seed=sampling.seed,
+                        distributions=json.dumps({d.path: d.describe() for d in sampling.distributions}))
     return ds
 
 
@@ -89,10 +132,9 @@ def write_series(plan: SweepPlan, rows: Sequence[Mapping[str, Any]], out: Path, 
                 block[i, :len(values)] = values
         data[key] = (("scenario", "time"), block, {"units": _unit_of(key) if key != "soc" else "1"})
     index = {}
-    for axis in plan.axes:  # each scenario's value of each swept key, in the key's coordinate
-        lookup = dict(zip(map(str, axis.values), axis.coords, strict=True))
-        index[axis.path] = ("scenario", np.array([lookup[str(plan.overrides(i)[axis.path])]
-                                                  for i in range(plan.size)]), {"units": axis.unit})
+    positions = np.array([plan.index(i) for i in range(plan.size)]).reshape(plan.size, len(plan.dims))
+    for name, (dim, values, attrs) in plan_coordinates(plan).items():  # each scenario's value of each coordinate
+        index[name] = ("scenario", np.asarray(values)[positions[:, plan.dim_names.index(dim)]], attrs)
     ds = xr.Dataset(data, coords={"time": ("time", np.asarray(longest, float), {"units": "s"}),
                                   "scenario": np.arange(len(rows)), **index})
     path = out / "series.zarr"

@@ -250,6 +250,7 @@ def run_sweep(scenario: Scenario, plan: SweepPlan, out: Path, workers: int | Non
     with hold(out):
         checkpoints = Checkpoints(out / "chunks")
         done = checkpoints.open(sweep_identity(scenario, plan, engine, keep_interval), plan.size, resume, force)
+        scenario = scenario.for_variants()  # the plan has read the sweep's tables: no variant copies them again
         workers = workers or os.cpu_count() or 1
         pieces = _pieces([i for i in range(plan.size) if i not in done], chunk_size or default_chunk_size(plan.size))
         bar = Progress(plan.size, enabled=progress)

@@ -18,46 +18,110 @@ from typing import Any
 import numpy as np
 
 from thermoelec.analysis.metrics import METRICS, PACK_METRICS
+from thermoelec.analysis.sweep.dataset import plan_coordinates
 from thermoelec.analysis.sweep.plan import SweepPlan
-from thermoelec.analysis.sweep.run import process_pool, solo_metrics
+from thermoelec.analysis.sweep.run import process_pool, run_chunk, solo_metrics
 from thermoelec.scenario import Scenario, ScenarioError
 
-__all__ = ["Criterion", "design_search", "parse_criterion"]
+__all__ = ["PROBABILITY", "Criterion", "design_search", "parse_criterion", "sampled_statistic"]
 
-_CRITERION = re.compile(r"^\s*([A-Za-z_][A-Za-z0-9_]*)\s*(<=|>=|<|>)\s*([-+]?[0-9.eE+-]+)\s*$")
+_CRITERION = re.compile(r"^\s*(?:(?P<stat>[Pp]\d+(?:\.\d+)?)\s+of\s+)?(?P<metric>[A-Za-z_][A-Za-z0-9_]*)"
+                        r"\s*(?P<op><=|>=|<|>)\s*(?P<value>[-+]?[0-9.eE+-]+)\s*$")
+_PROBABILITY = re.compile(r"^\s*pass\s+probability\s*(?P<op><=|>=|<|>)\s*(?P<value>[-+]?[0-9.eE+-]+)\s*$")
+#: The statistic of a criterion on the pass probability (``pass probability >= 0.99``).
+PROBABILITY = "probability"
 
 
 @dataclass(frozen=True)
 class Criterion:
-    """``metric <= value`` (or ``>=``) on a summary metric."""
+    """``metric <= value`` (or ``>=``) on a summary metric, on a percentile of it over the samples
+    (``P95 of metric <= value``), or on the pass probability (``pass probability >= 0.99``).
+
+    Attributes
+    ----------
+    metric : str
+        A key of :data:`METRICS` (``pass_probability`` for the probability).
+    operator : str
+        ``<=``, ``<``, ``>=`` or ``>``.
+    value : float
+        The bound, in the metric's unit (a probability for the probability).
+    percentile : float or None
+        The percentile over the samples [%], None for one run or the probability.
+    """
 
     metric: str
     operator: str
     value: float
+    percentile: float | None = None
+
+    @property
+    def sampled(self) -> bool:
+        """True when the criterion is a statistic over samples (a percentile or the pass probability)."""
+        return self.percentile is not None or self.metric == "pass_probability"
 
     def margin(self, metric_value: float) -> float:
         """<= 0 where the criterion holds."""
         return metric_value - self.value if self.operator in ("<=", "<") else self.value - metric_value
 
+    def text(self) -> str:
+        """The criterion as ``--find`` takes it."""
+        if self.metric == "pass_probability":
+            return f"pass probability {self.operator} {self.value:g}"
+        head = f"P{self.percentile:g} of " if self.percentile is not None else ""
+        return f"{head}{self.metric} {self.operator} {self.value:g}"
+
 
 def parse_criterion(text: str) -> Criterion:
-    """A criterion from ``--find`` text, ``METRIC <= VALUE`` or ``METRIC >= VALUE`` (VALUE in the metric's unit).
+    """A criterion from ``--find`` text: ``METRIC <= VALUE`` (or ``>=``), ``P95 of METRIC <= VALUE`` or
+    ``pass probability >= P`` (VALUE in the metric's unit, P within 0..1).
 
     Raises
     ------
     ScenarioError
-        When the text does not parse or names no metric of :data:`METRICS` (or, for a
-        resolved pack, of :data:`~thermoelec.analysis.metrics.PACK_METRICS`).
+        When the text does not parse, names no metric of :data:`METRICS` (or, for a resolved
+        pack, of :data:`~thermoelec.analysis.metrics.PACK_METRICS`), or asks a percentile or a
+        probability outside 0..100 or 0..1.
     """
+    probability = _PROBABILITY.match(text)
+    if probability:
+        value = float(probability.group("value"))
+        if not 0.0 <= value <= 1.0:
+            raise ScenarioError("--find", text, "a pass probability lies within 0..1")
+        return Criterion("pass_probability", probability.group("op"), value)
     match = _CRITERION.match(text)
-    if not match or match.group(1) not in METRICS + PACK_METRICS:
-        raise ScenarioError("--find", text, "expected METRIC <= VALUE or METRIC >= VALUE with a summary metric: "
-                            + ", ".join(METRICS + PACK_METRICS))
-    return Criterion(match.group(1), match.group(2), float(match.group(3)))
+    if not match or match.group("metric") not in METRICS + PACK_METRICS:
+        raise ScenarioError("--find", text, "expected METRIC <= VALUE, METRIC >= VALUE, 'P95 of METRIC <= VALUE' or "
+                            "'pass probability >= 0.99', with a summary metric: " + ", ".join(METRICS + PACK_METRICS))
+    stat = match.group("stat")
+    percentile = float(stat[1:]) if stat else None
+    if percentile is not None and not 0.0 <= percentile <= 100.0:
+        raise ScenarioError("--find", text, "a percentile lies within P0..P100")
+    return Criterion(match.group("metric"), match.group("op"), float(match.group("value")), percentile)
 
 
-def _search_one(scenario: Scenario, fixed: dict[str, Any], path: str, low: float, high: float, unit: str,
-                criterion: Criterion, greatest: bool, tolerance: float) -> dict[str, Any]:
+def sampled_statistic(criterion: Criterion, rows: list[dict[str, Any]]) -> float:
+    """The statistic of a sampled criterion over the rows of the samples: a percentile of the metric over
+    the runs that ran (a run stopped early enters with its metric at the stop), or the share of all
+    samples whose verdict is a pass (a failed or invalid run does not pass)."""
+    if criterion.metric == "pass_probability":
+        return sum(r.get("verdict") == "pass" for r in rows) / len(rows)
+    values = np.array([float(r[criterion.metric]) for r in rows
+                       if r.get("status") == "ok" and r.get(criterion.metric) is not None])
+    return float(np.percentile(values, criterion.percentile)) if values.size else math.nan
+
+
+def search_one(scenario: Scenario, fixed: dict[str, Any], path: str, low: float, high: float, unit: str,
+                criterion: Criterion, greatest: bool, tolerance: float,
+                samples: SweepPlan | None = None) -> dict[str, Any]:
+    """The least (or, with ``greatest``, the greatest) value of ``path`` in ``low .. high`` meeting ``criterion``.
+
+    The other keys held at ``fixed``; bracketing at the range ends, then Brent's
+    method (R. P. Brent, *Algorithms for Minimization without Derivatives*, 1973,
+    ch. 4) to ``tolerance`` times the range. With ``samples`` the criterion is a
+    statistic over those samples, the same at every value (common random numbers).
+    Returns ``value`` (in ``unit``), ``status`` (``ok``, ``at_bound``, ``not_met``,
+    ``failed``), ``message`` and the number of ``evaluations``.
+    """
     from scipy.optimize import brentq
 
     evaluations = 0
@@ -65,7 +129,17 @@ def _search_one(scenario: Scenario, fixed: dict[str, Any], path: str, low: float
     def margin(x: float) -> float:
         nonlocal evaluations
         evaluations += 1
-        row = solo_metrics(scenario, {**fixed, path: f"{x!r} {unit}".strip() if unit else x})
+        overrides = {**fixed, path: f"{x!r} {unit}".strip() if unit else x}
+        if samples is not None:  # the statistic over the same samples at every x (common random numbers)
+            try:
+                variant = scenario.with_overrides(overrides)
+            except ScenarioError as exc:
+                raise RuntimeError(str(exc)) from None
+            value = sampled_statistic(criterion, run_chunk(variant, samples, range(samples.size)))
+            if not math.isfinite(value):
+                raise RuntimeError("no sample ran")
+            return criterion.margin(value)
+        row = solo_metrics(scenario, overrides)
         if row.get("status") != "ok":
             raise RuntimeError(row.get("message") or "the scenario failed")
         if row.get(criterion.metric) is None:
@@ -91,25 +165,35 @@ def _search_one(scenario: Scenario, fixed: dict[str, Any], path: str, low: float
         root = brentq(margin, low, high, xtol=tolerance * abs(high - low), rtol=1e-12)
     except (RuntimeError, ValueError) as exc:
         return {"value": math.nan, "status": "failed", "message": str(exc), "evaluations": evaluations}
+    if criterion.sampled and margin(root) > 0:
+        # a statistic over samples moves in steps: report the side of the step where it holds
+        other = root + (-1 if greatest else 1) * tolerance * abs(high - low)
+        root = min(max(other, low), high)
     return {"value": float(root), "status": "ok", "message": "", "evaluations": evaluations}
 
 
 def design_search(scenario: Scenario, plan: SweepPlan | None, path: str, low: float, high: float, unit: str,
                   criterion: Criterion, greatest: bool = False, tolerance: float = 1e-3,
                   workers: int | None = None):
-    """For every combination of the other swept keys, the least (greatest) value of ``path`` meeting ``criterion``.
+    """For every combination of the other dimensions, the least (greatest) value of ``path`` meeting ``criterion``.
 
     Bracketing at the range ends, then Brent's method on the engine (R. P.
     Brent, *Algorithms for Minimization without Derivatives*, 1973, ch. 4) to
     ``tolerance`` times the range; the metric is taken as monotonic in the key
-    over the range. Every evaluation is a solo run (:func:`thermoelec.analysis.sweep.run.solo_metrics`).
+    over the range. Every evaluation is a solo run (:func:`thermoelec.analysis.sweep.run.solo_metrics`),
+    or, for a criterion on a percentile or the pass probability, the plan's samples at that value
+    through the batched engine (:func:`thermoelec.analysis.sweep.run.run_chunk`): the same samples at
+    every value, so the statistic is a deterministic function of it (a pass probability moves in
+    steps of 1/N, and the value found is on the side of the step where it holds).
 
     Parameters
     ----------
     scenario : Scenario
         The base scenario.
     plan : SweepPlan or None
-        A grid of the other keys (its axis on ``path``, if any, is dropped); None for one search.
+        The other dimensions (grid keys, zipped groups, option groups: one search for each
+        combination; a grid dimension on ``path`` is dropped) and the samples of a sampled
+        criterion; None for one search.
     path : str
         Dotted path of the key searched, e.g. ``thermal.sink_to_ambient``.
     low, high : float
@@ -129,36 +213,57 @@ def design_search(scenario: Scenario, plan: SweepPlan | None, path: str, low: fl
     -------
     xarray.Dataset
         ``least_<path>`` (or ``greatest_<path>``) [unit], ``status``, ``message`` and
-        ``evaluations``, with a dimension per other swept key (``case`` for none).
+        ``evaluations``, with a dimension per other dimension (``case`` for none).
     """
     import xarray as xr
 
-    axes = [a for a in (plan.axes if plan else ()) if a.path != path]
-    if plan is not None and plan.mode == "zip":
-        raise ScenarioError(scenario.source, "sweep.mode", "a design search needs a grid of the other keys")
-    shape = tuple(len(a.values) for a in axes) or (1,)
-    combos = []
-    for flat in range(int(np.prod(shape))):
-        index = np.unravel_index(flat, shape)
-        combos.append({a.path: a.values[i] for a, i in zip(axes, index, strict=False)} if axes else {})
-    args = [(scenario, c, path, low, high, unit, criterion, greatest, tolerance) for c in combos]
+    others, samples = _search_plans(scenario, plan, path, criterion)
+    scenario = scenario.for_variants()
+    combos = [others.overrides(i) for i in range(others.size)] if others.dims else [{}]
+    shape = others.shape if others.dims else (1,)
+    args = [(scenario, c, path, low, high, unit, criterion, greatest, tolerance, samples) for c in combos]
     workers = workers or os.cpu_count() or 1
     if workers > 1 and len(args) > 1:
         with process_pool(workers) as pool:
-            found = list(pool.map(_search_one, *zip(*args, strict=True)))
+            found = list(pool.map(search_one, *zip(*args, strict=True)))
     else:
-        found = [_search_one(*a) for a in args]
-    dims = [a.path for a in axes] or ["case"]
+        found = [search_one(*a) for a in args]
+    dims = list(others.dim_names) or ["case"]
     name = f"{'greatest' if greatest else 'least'}_{path}"
     data = {
         name: (dims, np.array([f["value"] for f in found]).reshape(shape),
-               {"units": unit, "criterion": f"{criterion.metric} {criterion.operator} {criterion.value:g}"}),
+               {"units": unit, "criterion": criterion.text()}),
         "status": (dims, np.array([f["status"] for f in found], dtype=object).reshape(shape)),
         "message": (dims, np.array([f["message"] for f in found], dtype=object).reshape(shape)),
         "evaluations": (dims, np.array([f["evaluations"] for f in found]).reshape(shape)),
     }
-    coords = {a.path: (a.path, np.array(a.coords), {"units": a.unit or "as in the scenario file"}) for a in axes}
-    ds = xr.Dataset(data, coords=coords)
+    ds = xr.Dataset(data, coords=plan_coordinates(others) if others.dims else {})
     ds.attrs.update(search_key=path, search_range=f"{low:g}..{high:g} {unit}", tolerance=tolerance,
-                    criterion=f"{criterion.metric} {criterion.operator} {criterion.value:g}")
+                    criterion=criterion.text())
+    if samples is not None:
+        sampling = samples.sampling
+        ds.attrs.update(sampling=sampling.method, samples=sampling.samples, seed=sampling.seed)
     return ds
+
+
+def _search_plans(scenario: Scenario, plan: SweepPlan | None, path: str,
+                  criterion: Criterion) -> tuple[SweepPlan, SweepPlan | None]:
+    """The other dimensions of a search (one search per combination) and its samples (a sampled criterion)."""
+    if plan is None:
+        plan = SweepPlan(())
+    for dim in plan.dims:
+        if dim.kind == "zip" and path in dim.paths:
+            raise ScenarioError(scenario.source, f"sweep.{dim.name}", f"{path} is paired in a zip; a design "
+                                "search varies it alone: sweep the other keys as a grid")
+        if dim.kind == "sample" and path in dim.paths:
+            raise ScenarioError(scenario.source, f"sweep.{path}", "the searched key has a distribution")
+    sampled = [d for d in plan.dims if d.kind == "sample"]
+    if criterion.sampled and not sampled:
+        raise ScenarioError("--find", criterion.text(), "a percentile or a pass probability is a statistic over "
+                            "samples: give keys distributions ([sweep] or --sweep KEY=normal(...)) and --samples N")
+    if sampled and not criterion.sampled:
+        raise ScenarioError("--find", criterion.text(), "the sweep has distributions: search on a statistic, "
+                            "'P95 of METRIC <= VALUE' or 'pass probability >= 0.99'")
+    others = plan.without([d.name for d in plan.dims if d.kind == "sample" or (d.kind == "grid"
+                                                                                 and path in d.paths)])
+    return others, (SweepPlan(tuple(sampled)) if sampled else None)
