@@ -50,7 +50,7 @@ from thermoelec.physics.loads import maximum_power
 from thermoelec.version import __version__
 
 __all__ = ["BINDING_NONE", "DEFAULT_PULSES", "DEFAULT_TEMPERATURES", "Capability", "CapabilityGrid",
-           "capability", "default_grid", "solo_pulse_margin", "state_pulses"]
+           "bracket_ends", "capability", "default_grid", "solo_pulse_margin", "state_pulses"]
 
 #: Pulse durations of a capability by default [s] (the 2 s, 10 s and 30 s of pack specifications, common practice).
 DEFAULT_PULSES = (2.0, 10.0, 30.0)
@@ -214,9 +214,26 @@ def _instantaneous(pulses: PulseSet) -> tuple[np.ndarray, ...]:
             alg[:, L.A_EMF].reshape(shape), alg[:, L.A_RESISTANCE].reshape(shape))
 
 
-def _upper_bounds(pulses: PulseSet, kinds: np.ndarray, ti: np.ndarray, zi: np.ndarray) -> np.ndarray:
+def bracket_ends(pulses: PulseSet, kinds: np.ndarray, ti: np.ndarray, zi: np.ndarray) -> np.ndarray:
     """Each entry's bracket end: :data:`BRACKET_FACTOR` times the instantaneous voltage-limited current, or the
-    power there (at most the maximum power ``E^2 / 4R``) [A or W]; 0 where a cell is past its limit at rest."""
+    power there (at most the maximum power ``E^2 / 4R``) [A or W]; 0 where a cell is past its limit at rest.
+
+    The batched search brackets from :data:`NEAR_ZERO` times this; the benchmark's solo loop uses the same
+    bracket, so the two searches start alike.
+
+    Parameters
+    ----------
+    pulses : PulseSet
+        The rested starts of the grid (:func:`thermoelec.engine.pulse.prepare_pulses`).
+    kinds, ti, zi : int arrays
+        Per entry: its index into :data:`~thermoelec.engine.pulse.PULSE_KINDS`, the temperature's and the
+        SoC's index into the grid [-].
+
+    Returns
+    -------
+    float64 array
+        The upper end of each entry's bracket [A or W].
+    """
     hold_dis, hold_ch, emf, resistance = _instantaneous(pulses)
     current = np.where([PULSE_KINDS[k].sign > 0 for k in kinds], hold_dis[ti, zi], -hold_ch[ti, zi])
     current = np.maximum(current, 0.0)
@@ -264,7 +281,7 @@ def capability(problem: Problem, grid: CapabilityGrid, options: SolverOptions,
     cold = charging & (grid.temperatures[ti] < problem.limits.charge_temperature_min)
     binding[cold] = COLD_CHARGE
     # a cell at its voltage limit at rest (an empty cell's OCV at voltage_min) takes no pulse that way
-    high = _upper_bounds(pulses, k, ti, zi)
+    high = bracket_ends(pulses, k, ti, zi)
     at_limit = ~cold & ~(high > 0.0)
     binding[at_limit] = np.where(charging[at_limit], "voltage_max", "voltage_min")
     todo = np.flatnonzero(~cold & ~at_limit)
