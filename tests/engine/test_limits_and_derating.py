@@ -269,3 +269,43 @@ def test_a_resolved_pack_of_identical_cells_derates_as_the_lumped_one():
     currents = spread.cells["cells_current_A"]
     assert currents.max() <= 20.0 * (1 + 1e-9) and currents.min() >= -8.0 * (1 + 1e-9)
     assert currents.max() == pytest.approx(20.0, rel=1e-9)  # one cell sits on its allowance
+
+
+def test_a_cell_resting_past_its_voltage_limit_is_not_held_while_it_discharges():
+    # an OCV of 4.21 V over a voltage_max of 4.2 V (a full cell in the cold, its entropic shift past the limit) and a
+    # ramp from zero: at t = 0 no current flows, so the limiter must hold nothing; a held-at-maximum cell while
+    # discharging would be let go at once and held again without time passing. The ramp's closed form (as above):
+    # 5 A/s reaches the 30 A demand after 6 s; the cell then sits at 4.21 - 0.02 * 30 = 3.61 V, inside its limits
+    cell = cell_section(voltage_max="4.2 V", ocv={"soc": [0.0, 1.0], "voltage": [4.21, 4.21]})
+    data = scenario(cell=cell, segments=[{"mode": "current", "value": "30 A", "duration": "20 s"}],
+                    derating={"ramp_rate": "5 A/s", "voltage_limiter": True},
+                    solver={"rtol": 1e-9, "output_interval": "0.5 s"})
+    result = simulate(data)
+    assert result.completed and result.events == []
+    assert result.summary["time_voltage_held_s"] == 0.0
+    assert result.summary["time_derated_s"] == pytest.approx(6.0, rel=1e-9)
+    # the batched solver interpolates the end of the deficit within its step (no root function marks it):
+    # to the 1e-3 s of its accuracy contract on event times
+    batched = _batch(data)
+    assert batched["duration_s"] == pytest.approx(20.0) and batched["time_derated_s"] == pytest.approx(6.0, abs=1e-3)
+
+
+def test_events_that_undo_each_other_at_one_instant_end_the_run_with_a_message(monkeypatch):
+    # a guard, not physics: were a limiter held and let go (or a thermostat switched back) without time passing,
+    # the driver would loop for ever; it gives up after MAX_EVENTS_AT_ONE_INSTANT with the solver's failure status
+    from thermoelec.engine import driver
+    from thermoelec.engine.events import EV_HOLD_MAX, EV_HOLD_RELEASE
+    from thermoelec.engine.mission import MAX_EVENTS_AT_ONE_INSTANT
+
+    calls = []
+
+    def chattering(kernels, backend, options, p, t, y, t_end, run):
+        calls.append(t)
+        return t, y, (EV_HOLD_MAX, EV_HOLD_RELEASE)[len(calls) % 2], False
+
+    monkeypatch.setattr(driver, "_phase", chattering)
+    data = scenario(derating={"voltage_limiter": True})
+    trajectory = driver.integrate_problem(scenario_from_dict(data).problem(), SolverOptions(rtol=1e-9))
+    assert trajectory.status == "failed" and trajectory.stop_reason == "solver_error"
+    assert "without time passing" in trajectory.message and "hold_" in trajectory.message
+    assert len(calls) == MAX_EVENTS_AT_ONE_INSTANT + 1  # one past the most allowed

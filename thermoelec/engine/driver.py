@@ -52,6 +52,7 @@ from thermoelec.engine.layout import (
 )
 from thermoelec.engine.mission import (
     IMPOSED_VOLTAGE_SLACK,
+    MAX_EVENTS_AT_ONE_INSTANT,
     MIN_PHASE,
     START_PROBE,
     MissionPlan,
@@ -281,6 +282,7 @@ def _walk(plan: MissionPlan, problem: Problem, p: np.ndarray, kernels: Kernels, 
     hold, delivered = 0.0, 0.0
     ramped = problem.derating is not None and problem.derating.ramp_rate > 0.0
     t = 0.0
+    at_once = 0  # events in a row without time passing
     for seg in range(plan.n_segments):
         t_seg_end = t + plan.durations[seg]
         phase = 0
@@ -293,9 +295,16 @@ def _walk(plan: MissionPlan, problem: Problem, p: np.ndarray, kernels: Kernels, 
                                    plan.setup_index, default_ambient, default_table, switches, controls, hold,
                                    delivered, t)
             p[H_TIME] = t
+            t_before = t
             t, y, fired, ended_by_time = _phase(kernels, backend, options, p, t, y, t_seg_end, run)
             if fired is None:
                 break
+            at_once = at_once + 1 if t == t_before else 0
+            if at_once > MAX_EVENTS_AT_ONE_INSTANT:
+                run.status, run.stop_reason = "failed", "solver_error"
+                run.message = (f"{at_once} events at t = {t:.6g} s without time passing (the last "
+                               f"{EVENT_NAMES[fired]}): switches that undo each other at once")
+                return seg
             event = {"time_s": t, "event": EVENT_NAMES[fired], "segment": seg, "origin": plan.origins[seg]}
             if problem.resolved is not None and fired in CELL_OF_EVENT:
                 event["cell"] = int(kernels.algebraics(y)[CELL_OF_EVENT[fired]])

@@ -84,6 +84,9 @@ _jit = numba.njit(cache=True, nogil=True, error_model="numpy")
 MIN_PHASE = 1e-12
 #: Time ahead [s] at which a root function's direction is probed at a phase start.
 START_PROBE = 1e-3
+#: Events one instant may fire before the driver gives up on the mission: switches that undo each other
+#: without time passing (a thermostat on its own threshold, a limiter held and let go) would never end.
+MAX_EVENTS_AT_ONE_INSTANT = 100
 #: Relative slack on the cell voltage limits when the terminal voltage is imposed,
 #: so that a CV set point exactly at Ns x voltage_max is not taken as a violation.
 IMPOSED_VOLTAGE_SLACK = 1e-9

@@ -565,9 +565,11 @@ def roots_from(y, g, p, alg):
         elif k == EV_SINK_TEMPERATURE:
             g[k] = thr - y[int(p[H_NCELLS]) * (2 + int(p[H_NRC]))]  # layout.sink_temperature_index
         elif k == EV_HOLD_MIN:
-            g[k] = alg[A_CELL_VOLTAGE] - thr if p[H_HOLD] == 0.0 else 1.0
+            # only while the pack discharges: at no current (a ramp's start) or charging, the limiter holds nothing
+            # (a rested cell's OCV may sit past a limit, e.g. full and cold with its entropic shift)
+            g[k] = alg[A_CELL_VOLTAGE] - thr if p[H_HOLD] == 0.0 and alg[A_CURRENT] > 0.0 else 1.0
         elif k == EV_HOLD_MAX:
-            g[k] = thr - alg[A_CELL_VOLTAGE_HIGH] if p[H_HOLD] == 0.0 else 1.0
+            g[k] = thr - alg[A_CELL_VOLTAGE_HIGH] if p[H_HOLD] == 0.0 and alg[A_CURRENT] < 0.0 else 1.0
         elif k == EV_HOLD_RELEASE:
             # held: the demand (within the allowances) falls below the held current by the hysteresis
             if p[H_HOLD] == 1.0:
