@@ -21,7 +21,7 @@ import thermoelec
 SCENARIOS = Path(__file__).resolve().parents[1] / "scenarios"
 SNAPSHOT = Path(__file__).resolve().parent / "data" / "demo_summaries.json"
 DEMOS = ("drone_delivery", "ebike_route", "robot_cooling", "scooter_commute", "cargo_robot_pack",
-         "delivery_robot_options")
+         "delivery_robot_options", "drone_cold_bms")
 
 
 def _plain(value: Any) -> Any:

@@ -24,7 +24,7 @@ DEMO_FILES = sorted(SCENARIOS.glob("*.toml"))
 
 def test_the_demo_files_are_found():
     assert {p.stem for p in DEMO_FILES} == {"cargo_robot_pack", "drone_delivery", "ebike_route", "robot_cooling",
-                                            "scooter_commute", "delivery_robot_options"}
+                                            "scooter_commute", "delivery_robot_options", "drone_cold_bms"}
 
 
 @pytest.mark.parametrize("path", DEMO_FILES, ids=lambda p: p.stem)

@@ -30,7 +30,7 @@ from thermoelec.output.tables import format_value
 
 from .helpers import SCENARIOS
 
-DEMOS = ("drone_delivery", "ebike_route", "robot_cooling", "scooter_commute")
+DEMOS = ("drone_delivery", "ebike_route", "robot_cooling", "scooter_commute", "drone_cold_bms")
 #: The rows every output must agree on: the energies apart (and efficiencies), and the verdict.
 AGREED = (*ENERGY_ROWS, ("verdict", "verdict", ""))
 
