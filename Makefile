@@ -48,6 +48,12 @@ demo: $(STAMP)
 		--find "cell_temperature_max_degC <= 55" --over thermal.convection.coefficient \
 		--between "5 W/m^2/K" "200 W/m^2/K"
 	@echo
+	@echo "== the sortie's pulse capability: the most power and current for 2, 10 and 30 s, over SoC x temperature"
+	@$(BIN)/thermoelec capability scenarios/drone_delivery.toml --out $(DEMO)/drone-capability
+	@echo
+	@echo "== the sortie at -5 degC under the pack's BMS: derated in the cold, held at its minimum voltage near empty"
+	@$(BIN)/thermoelec compare scenarios/drone_cold_bms.toml --out $(DEMO)/drone-cold-bms
+	@echo
 	@echo "== cargo e-bike round from a 1 Hz CSV, then a CC-CV recharge"
 	@$(BIN)/thermoelec run scenarios/ebike_route.toml --out $(DEMO)/ebike
 	@echo
@@ -88,6 +94,7 @@ bench: $(STAMP)
 	$(BIN)/python benchmarks/bench_uncertainty.py
 	$(BIN)/python benchmarks/bench_options.py
 	$(BIN)/python benchmarks/bench_pack.py
+	$(BIN)/python benchmarks/bench_capability.py
 
 bench-quick: $(STAMP)
 	$(BIN)/python benchmarks/bench_single_mission.py --quick
@@ -97,6 +104,7 @@ bench-quick: $(STAMP)
 	$(BIN)/python benchmarks/bench_uncertainty.py --quick
 	$(BIN)/python benchmarks/bench_options.py --quick
 	$(BIN)/python benchmarks/bench_pack.py --quick
+	$(BIN)/python benchmarks/bench_capability.py --quick
 
 clean:
 	rm -rf $(VENV) out .pytest_cache .ruff_cache

@@ -60,7 +60,16 @@ def test_uncertainty_benchmark_runs_quick():
 def test_options_benchmark_runs_quick():
     out = _run("bench_options.py", "--quick")
     assert "options and review add" in out and "reference, the same plain grid" in out
+
+
+@pytest.mark.slow
 def test_pack_benchmark_runs_quick():
     out = _run("bench_pack.py", "--quick")
     assert "target 14s4p on the batched engine" in out and "solve_ivp LSODA loop, per cell" in out
     assert "thermoelec sweep --workers 2, end to end" in out
+
+
+@pytest.mark.slow
+def test_capability_benchmark_runs_quick():
+    out = _run("bench_capability.py", "--quick")
+    assert "speed-up of the batched grid over the solo loop" in out and "brentq on solo CVODE pulses" in out
