@@ -95,17 +95,37 @@ def _progress(label: str, enabled: bool = True) -> Iterator[None]:
         thread.join()
 
 
-def _write_run(result, scenario, out: Path, figures: bool) -> None:
-    """Results first (so a plotting problem loses nothing), then figures and the report."""
+def _write_with_report(result, scenario, out: Path, figures: bool, drawing) -> None:
+    """Results first (so a plotting problem loses nothing), then figures and the report.
+
+    ``drawing()`` returns the command's figure writer and report builder; it is called only when
+    figures are asked for, so that a run without them imports no plotting.
+    """
     result.write(out)
     if figures:
-        from thermoelec.output.figures import write_figures
-        from thermoelec.output.report import run_report, write_report
+        from thermoelec.output.report import write_report
         from thermoelec.scenario.parameters import resolved_parameters
 
+        write_figures, build_report = drawing()
         pngs = {p.stem: p.read_bytes() for p in write_figures(result, out) if p.suffix == ".png"}
-        write_report(run_report(result, scenario.raw, scenario.spec.scenario.description, pngs,
-                                resolved_parameters(scenario)), out)
+        write_report(build_report(result, scenario.raw, scenario.spec.scenario.description, pngs,
+                                  resolved_parameters(scenario)), out)
+
+
+def _run_drawing():
+    """The figure writer and the report builder of ``run``."""
+    from thermoelec.output.figures import write_figures
+    from thermoelec.output.report import run_report
+
+    return write_figures, run_report
+
+
+def _capability_drawing():
+    """The heat maps and the report builder of ``capability``."""
+    from thermoelec.output.capability_figures import write_capability_figures
+    from thermoelec.output.report import capability_report
+
+    return write_capability_figures, capability_report
 
 
 def _run(args: argparse.Namespace) -> int:
@@ -121,7 +141,7 @@ def _run(args: argparse.Namespace) -> int:
             result = simulate(scenario)
         try:
             with _progress("writing results and figures", not args.quiet), folder.transaction() as stage:
-                _write_run(result, scenario, stage, not args.no_figures)
+                _write_with_report(result, scenario, stage, not args.no_figures, _run_drawing)
         except OSError as exc:
             print(f"thermoelec: cannot write results to {out}: {exc.strerror or exc}", file=sys.stderr)
             return EXIT_FAILURE
@@ -492,8 +512,9 @@ def _print_search(found) -> None:
 
 
 def _axis(text: str | None, unit: str, option: str, default, low: float | None = None,
-          high: float | None = None):
-    """A capability grid's axis from a comma-separated list of quantities (each checked), or its default [SI]."""
+          high: float | None = None, positive: bool = False):
+    """A capability grid's axis from a comma-separated list of quantities (each checked, each > 0 where
+    ``positive``), or its default [SI]."""
     import numpy as np
 
     if text is None:
@@ -503,7 +524,7 @@ def _axis(text: str | None, unit: str, option: str, default, low: float | None =
         raise ScenarioError(option, str(text), "the list is empty: give at least one value")
     if not all(items):
         raise ScenarioError(option, str(text), "an item of the list is empty")
-    values = [_quantity_option(item, unit, option, positive=low == 0.0 and unit == "s") for item in items]
+    values = [_quantity_option(item, unit, option, positive=positive) for item in items]
     for item, value in zip(items, values, strict=True):
         if (low is not None and value < low) or (high is not None and value > high):
             raise ScenarioError(option, item, f"must lie within {low:g}..{high:g}")
@@ -517,7 +538,7 @@ def _capability_grid(args: argparse.Namespace, problem):
     from thermoelec.analysis.capability import DEFAULT_PULSES, CapabilityGrid, default_grid
 
     grid = default_grid(problem)
-    durations = _axis(args.pulse, "s", "--pulse", DEFAULT_PULSES, low=0.0)
+    durations = _axis(args.pulse, "s", "--pulse", DEFAULT_PULSES, positive=True)
     temperatures = _axis(args.temperature, "degC", "--temperature", grid.temperatures)
     socs = _axis(args.soc, "", "--soc", grid.socs, low=0.0, high=1.0)
     return CapabilityGrid(durations, temperatures, socs)
@@ -542,26 +563,13 @@ def _capability(args: argparse.Namespace) -> int:
                                 {"scenario_file": scenario.source, "scenario_sha256": scenario.digest})
         try:
             with _progress("writing results and figures", not args.quiet), folder.transaction() as stage:
-                _write_capability(result, scenario, stage, not args.no_figures)
+                _write_with_report(result, scenario, stage, not args.no_figures, _capability_drawing)
         except OSError as exc:
             print(f"thermoelec: cannot write results to {out}: {exc.strerror or exc}", file=sys.stderr)
             return EXIT_FAILURE
     if not args.quiet:
         _print_capability(result, out)
     return EXIT_OK
-
-
-def _write_capability(result, scenario, out: Path, figures: bool) -> None:
-    """The data first (a plotting problem loses nothing), then the heat maps and the report."""
-    result.write(out)
-    if figures:
-        from thermoelec.output.capability_figures import write_capability_figures
-        from thermoelec.output.report import capability_report, write_report
-        from thermoelec.scenario.parameters import resolved_parameters
-
-        pngs = {p.stem: p.read_bytes() for p in write_capability_figures(result, out) if p.suffix == ".png"}
-        write_report(capability_report(result, scenario.raw, scenario.spec.scenario.description, pngs,
-                                       resolved_parameters(scenario)), out)
 
 
 def _print_capability(result, out: Path) -> None:

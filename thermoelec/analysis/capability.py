@@ -46,7 +46,7 @@ from thermoelec.engine.problem import Problem
 from thermoelec.engine.profile import Segment
 from thermoelec.engine.pulse import PULSE_KINDS, PulseSet, prepare_pulses, run_pulses
 from thermoelec.physics.constants import ZERO_CELSIUS
-from thermoelec.physics.loads import maximum_power
+from thermoelec.physics.loads import maximum_power, terminal_power
 from thermoelec.version import __version__
 
 __all__ = ["BINDING_NONE", "DEFAULT_PULSES", "DEFAULT_TEMPERATURES", "Capability", "CapabilityGrid",
@@ -239,7 +239,7 @@ def bracket_ends(pulses: PulseSet, kinds: np.ndarray, ti: np.ndarray, zi: np.nda
     current = np.maximum(current, 0.0)
     e, r = emf[ti, zi], resistance[ti, zi]
     sign = np.array([PULSE_KINDS[k].sign for k in kinds])
-    power = np.abs(sign * current * e - r * current**2)
+    power = np.abs(terminal_power(e, r, sign * current))
     power = np.where((sign > 0) & (current > 0.5 * e / r), maximum_power(e, r), power)
     is_power = np.array([PULSE_KINDS[k].mode == "power" for k in kinds])
     return BRACKET_FACTOR * np.where(is_power, power, current)

@@ -32,7 +32,7 @@ import numba
 import numpy as np
 
 from thermoelec.engine import layout as L
-from thermoelec.physics.loads import MODE_POWER, derated_current, held_current, ramped_current
+from thermoelec.physics.loads import MODE_POWER, derated_current, held_current, ramped_current, terminal_power
 
 __all__ = ["allowances", "cell_current_margins", "delivered_current", "demand_outputs", "limit_margins",
            "pack_bounds", "power_margins", "table_or"]
@@ -185,7 +185,7 @@ def demand_outputs(ydot, alg, q, mode, value, auxiliary, emf, resistance, demand
     power = voltage * current
     asked = power
     if current != demanded:
-        asked = value + auxiliary if mode == MODE_POWER else (emf - resistance * demanded) * demanded
+        asked = value + auxiliary if mode == MODE_POWER else terminal_power(emf, resistance, demanded)
     alg[L.A_CURRENT_DEMANDED] = demanded
     alg[L.A_POWER_DEMANDED] = asked
     if demanded > 0.0:
