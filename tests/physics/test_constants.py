@@ -3,12 +3,14 @@
 Sources: the SI Brochure, 9th ed. (BIPM 2019): the defining constants k, N_A,
 h, c are exact, so R = N_A k and σ = 2 π⁵ k⁴ / (15 h³ c²) are exact too; 0 °C
 is 273.15 K by the definition of the Celsius scale; standard gravity is
-9.80665 m/s² (3rd CGPM, 1901); an hour is 3600 s.
+9.80665 m/s² (3rd CGPM, 1901); an hour is 3600 s. The values written in the
+module are scipy.constants' to the last bit.
 """
 
 import math
 
 import pytest
+import scipy.constants
 
 from thermoelec.physics import cell, constants
 
@@ -25,6 +27,14 @@ def test_constants_are_their_definitions():
     assert constants.ZERO_CELSIUS == 273.15
     assert constants.STANDARD_GRAVITY == 9.80665
     assert constants.SECONDS_PER_HOUR == constants.JOULES_PER_WH == constants.COULOMBS_PER_AH == 3600.0
+
+
+def test_constants_are_those_of_scipy_to_the_last_bit():
+    assert constants.GAS_CONSTANT == scipy.constants.R
+    assert constants.STEFAN_BOLTZMANN == scipy.constants.Stefan_Boltzmann
+    assert constants.ZERO_CELSIUS == scipy.constants.zero_Celsius
+    assert constants.STANDARD_GRAVITY == scipy.constants.g
+    assert constants.SECONDS_PER_HOUR == scipy.constants.hour
 
 
 def test_the_cell_laws_use_the_gas_constant():
