@@ -186,11 +186,14 @@ class CvodeBackend:
         key = (find_roots, linear)
         solver = self._solvers.get(key)
         if solver is None:
-            from scikits.odes import ode  # imported here: scipy runs need no SUNDIALS
+            # imported here: scipy runs need no SUNDIALS. The integrator class itself, not
+            # scikits.odes.ode("cvode", ...), whose registry imports every integrator it wraps
+            # (dopri5 with scipy.integrate: 0.4 s of start-up a run never uses).
+            from scikits.odes.sundials.cvode import CVODE
 
             roots = {"rootfn": self.kernels.cvode_roots, "nr_rootfns": N_EVENTS} if find_roots else {}
-            solver = self._solvers[key] = ode("cvode", self.kernels.cvode_rhs, **self._common,
-                                              **self._linear(linear), **roots)._integrator
+            solver = self._solvers[key] = CVODE(self.kernels.cvode_rhs, **self._common, **self._linear(linear),
+                                                **roots)
         return solver
 
     def _accumulate(self, solver) -> None:
