@@ -94,3 +94,64 @@ def test_the_layer_imports_nothing_above_it(layer, allowed):
     # the project's layering rule: a module imports from its own layer or below
     above = {name for name in _thermoelec_imports(PACKAGE / layer) if not name.startswith(allowed)}
     assert not above, above
+
+
+_CONVERT = """
+import json, sys
+from thermoelec.inputs import to_si
+values = [to_si(v, d, s) for v, d, s in json.loads(sys.argv[1])]
+print(json.dumps({"values": [repr(v) for v in values], "pint": "pint" in sys.modules}))
+"""
+_QUANTITIES = [["-40 degC", "degC", "K"], ["2.5 Ah", "Ah", "C"], ["25 mohm", "ohm", "ohm"], [0.1, "Ah", "C"],
+               ["950 J/kg/K", "J/kg/K", "J/kg/K"], ["3 mAh", "Ah", "C"], ["72 km/h", "m/s", "m/s"]]
+
+
+def _convert_in_a_fresh_process(cache: Path | str, quantities=_QUANTITIES) -> dict:
+    import json
+    import os
+    import subprocess
+    import sys
+
+    env = {**os.environ, "THERMOELEC_CACHE_DIR": str(cache), "PYTHONPATH": str(PACKAGE.parent)}
+    proc = subprocess.run([sys.executable, "-c", _CONVERT, json.dumps(quantities)], capture_output=True, text=True,
+                          env=env, timeout=120, check=True)
+    return json.loads(proc.stdout)
+
+
+def test_the_disk_memo_gives_pints_own_floats_without_importing_pint(tmp_path):
+    import pint
+
+    ureg = pint.UnitRegistry()  # the source: pint itself, in this process, no cache
+    expected = [repr(float(ureg.Quantity(*((float(v), d) if not isinstance(v, str) else
+                                           (float(v.split()[0]), v.split(None, 1)[1]))).to(s).magnitude))
+                for v, d, s in _QUANTITIES]
+    first = _convert_in_a_fresh_process(tmp_path)
+    assert first["pint"] and first["values"] == expected
+    assert list(tmp_path.glob("conversions-*.json")) and list((tmp_path / "pint").iterdir())  # both caches on disk
+    again = _convert_in_a_fresh_process(tmp_path)
+    assert not again["pint"] and again["values"] == expected  # to the last bit, from the memo
+
+
+def test_a_damaged_memo_is_an_empty_one_and_no_cache_folder_writes_nothing(tmp_path, monkeypatch):
+    _convert_in_a_fresh_process(tmp_path)
+    (memo,) = tmp_path.glob("conversions-*.json")
+    memo.write_text("{not json")
+    assert _convert_in_a_fresh_process(tmp_path)["pint"]  # pint again, and the memo written anew
+    import json
+
+    assert len(json.loads(memo.read_text())) == len(_QUANTITIES)
+    empty = tmp_path / "nothing"
+    empty.mkdir()
+    monkeypatch.chdir(empty)
+    assert _convert_in_a_fresh_process("")["pint"]
+    assert not any(empty.iterdir())
+
+
+def test_an_invalid_quantity_is_never_memoized(tmp_path):
+    import json
+    import subprocess
+
+    with pytest.raises(subprocess.CalledProcessError):  # the unknown unit fails the conversion, as without a memo
+        _convert_in_a_fresh_process(tmp_path, [["1 V", "V", "V"], ["2.5 Ahh", "Ah", "C"]])
+    (memo,) = tmp_path.glob("conversions-*.json")
+    assert list(json.loads(memo.read_text())) == ['["str", "1 V", "V", "V"]']

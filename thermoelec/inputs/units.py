@@ -1,14 +1,29 @@
 """Quantities in input files: a bare number in a default unit or ``"value unit"``, converted to SI with pint.
 
-Owns :func:`to_si`, the one pint unit registry and the cache of conversions.
+Owns :func:`to_si`, the one pint unit registry and the caches of conversions.
 Imports nothing from thermoelec.
+
+Start-up: importing pint takes about half a second (it imports dask when dask is
+installed) and building its registry another half (a tenth with pint's own disk
+cache of the parsed definitions, which the registry is given). A conversion pint
+made once is also kept on disk (:class:`ConversionMemo`, in the user's cache
+folder, one file per pint installation and version of this module), so a
+command whose quantities were all seen before does not import pint at all; the
+value kept is the float pint returned, to the last bit. ``THERMOELEC_CACHE_DIR``
+names another cache folder; set to an empty string, it turns both disk caches off.
 """
 
 from __future__ import annotations
 
+import atexit
+import hashlib
+import json
 import math
+import os
 import re
+import tempfile
 from functools import lru_cache
+from pathlib import Path
 from typing import Any
 
 __all__ = ["from_si", "to_si"]
@@ -21,12 +36,117 @@ _EXPONENT = re.compile(r"\s*[-+]?\s*(\d+\.?\d*|\.\d+)")
 MAX_EXPONENT, MAX_UNIT_LENGTH = 12, 200
 
 
+#: Environment variable naming the cache folder ("" for no disk cache).
+CACHE_ENV = "THERMOELEC_CACHE_DIR"
+#: Conversions kept on disk at most; past this the memo starts afresh.
+MAX_MEMO_ENTRIES = 50_000
+
+
+def cache_folder() -> Path | None:
+    """thermoelec's cache folder: ``$THERMOELEC_CACHE_DIR``, else the user's cache folder; None for no disk cache."""
+    chosen = os.environ.get(CACHE_ENV)
+    if chosen is not None:
+        return Path(chosen) if chosen.strip() else None
+    import platformdirs
+
+    return platformdirs.user_cache_path("thermoelec", appauthor=False)
+
+
 @lru_cache(maxsize=1)
 def _registry():
-    """The one pint registry (building it takes a good fraction of a second: once per process)."""
+    """The one pint registry: once per process, from pint's disk cache of its parsed definitions when it has one."""
     import pint
 
-    return pint.UnitRegistry()
+    folder = cache_folder()
+    return pint.UnitRegistry(cache_folder=None if folder is None else folder / "pint")
+
+
+def _pint_stamp() -> str | None:
+    """What the memo's conversions depend on: pint's installation (its package and definitions file) and this
+    module's own text, by path, size and modification time; found without importing pint. None without pint."""
+    from importlib.util import find_spec
+
+    spec = find_spec("pint")
+    if spec is None or not spec.origin:
+        return None
+    package = Path(spec.origin).parent
+    parts = []
+    for path in (package / "__init__.py", package / "default_en.txt", Path(__file__)):
+        try:
+            info = path.stat()
+        except OSError:
+            return None
+        parts.append(f"{path}:{info.st_size}:{info.st_mtime_ns}")
+    return hashlib.sha1("\n".join(parts).encode()).hexdigest()[:16]
+
+
+class ConversionMemo:
+    """Conversions pint made, kept on disk: key ``[type, value, default unit, SI unit]`` to the SI float.
+
+    Read when first asked; the conversions new to it are merged into the file once, when the
+    process ends (written whole to a temporary file and renamed, so a reader never sees half
+    of one; two processes ending together may lose each other's additions, which only costs
+    a later pint call). Only successful conversions are kept: an invalid quantity goes to pint
+    and its message every time. A missing, unreadable or foreign file is an empty memo.
+    """
+
+    def __init__(self, path: Path | None):
+        self.path = path
+        self._known: dict[str, float] | None = None
+        self._new: dict[str, float] = {}
+
+    @staticmethod
+    def key(value: Any, default_unit: str, si_unit: str) -> str:
+        return json.dumps([type(value).__name__, value, default_unit, si_unit])
+
+    def _load(self) -> dict[str, float]:
+        if self._known is None:
+            self._known = {}
+            if self.path is not None:
+                try:
+                    data = json.loads(self.path.read_text())
+                except (OSError, ValueError):
+                    data = None
+                if isinstance(data, dict):
+                    self._known = {k: v for k, v in data.items() if isinstance(v, float)}
+        return self._known
+
+    def get(self, key: str) -> float | None:
+        return self._load().get(key)
+
+    def add(self, key: str, value: float) -> None:
+        if self.path is None:
+            return
+        if not self._new:
+            atexit.register(self.flush)
+        self._new[key] = value
+        self._load()[key] = value
+
+    def flush(self) -> None:
+        """Merge the new conversions into the file (nothing is raised: a cache that cannot be written is none)."""
+        if self.path is None or not self._new:
+            return
+        new, self._new = self._new, {}
+        on_disk = ConversionMemo(self.path)._load()
+        merged = {**on_disk, **new} if len(on_disk) + len(new) <= MAX_MEMO_ENTRIES else new
+        try:
+            self.path.parent.mkdir(parents=True, exist_ok=True)
+            handle, temporary = tempfile.mkstemp(dir=self.path.parent, prefix=".conversions-", suffix=".tmp")
+        except OSError:
+            return
+        try:
+            with os.fdopen(handle, "w") as stream:
+                json.dump(merged, stream)
+            os.replace(temporary, self.path)
+        except OSError:
+            Path(temporary).unlink(missing_ok=True)
+
+
+@lru_cache(maxsize=1)
+def _memo() -> ConversionMemo:
+    folder = cache_folder()
+    stamp = None if folder is None else _pint_stamp()
+    return ConversionMemo(None if stamp is None else folder / f"conversions-{stamp}.json")
 
 
 def to_si(value: Any, default_unit: str, si_unit: str) -> float:
@@ -71,7 +191,14 @@ def to_si(value: Any, default_unit: str, si_unit: str) -> float:
 @lru_cache(maxsize=65536)
 def _to_si_cached(value: Any, kind: type, default_unit: str, si_unit: str) -> float:
     # ``kind`` in the key: 1 and 1.0 hash alike but a str "1" must not meet them
-    return _to_si(value, default_unit, si_unit)
+    memo = _memo()
+    key = memo.key(value, default_unit, si_unit)
+    known = memo.get(key)
+    if known is not None:
+        return known
+    result = _to_si(value, default_unit, si_unit)
+    memo.add(key, result)
+    return result
 
 
 def _to_si(value: Any, default_unit: str, si_unit: str) -> float:
