@@ -384,9 +384,13 @@ def _sweep(args: argparse.Namespace) -> int:
         except Interrupted as exc:
             _resume_hint(exc, out, args.command_line)
             raise
-        ds = sweep.sweep_dataset(scenario, plan, rows)
+        results = sweep.sweep_data(scenario, plan, rows)
+        # the xarray Dataset only for what works on one: figures, a review, an uncertainty analysis
+        # (building one imports xarray, dask and pint: a second of start-up)
+        wanted = not args.no_figures or plan.sampling is not None or bool(plan.option_dims)
+        ds = results.dataset() if wanted else None
         with folder.transaction() as stage:
-            sweep.write_sweep(ds, stage)
+            sweep.write_sweep(results, stage)
             if not args.no_figures:
                 from thermoelec.output.sweep_figures import write_sweep_figures
 
@@ -401,8 +405,8 @@ def _sweep(args: argparse.Namespace) -> int:
                 answer = _review(scenario, plan, ds, requirement, args, stage, out)
         sweep.Checkpoints(out / "chunks").discard()  # the dataset holds them now
     if not args.quiet:
-        passed = int(sweep.passes(ds).sum())
-        print(f"{passed} of {plan.size} pass; {ds.attrs['failed']} failed to solve or were invalid; "
+        passed = results.passed()
+        print(f"{passed} of {plan.size} pass; {results.attrs['failed']} failed to solve or were invalid; "
               f"results in {out}/sweep.nc and {out}/sweep.csv")
         for line in answer:
             print(line)

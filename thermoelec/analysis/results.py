@@ -31,6 +31,7 @@ from thermoelec.analysis import cells as pack_cells
 from thermoelec.analysis import diagnostics
 from thermoelec.analysis.metrics import Extremes, mission_metrics, pack_limits, pack_soc
 from thermoelec.analysis.stops import explain_stop
+from thermoelec.analysis.tablefiles import write_csv, write_netcdf
 from thermoelec.analysis.verdict import limit_checks
 from thermoelec.engine import layout as L
 from thermoelec.engine.driver import Trajectory
@@ -230,6 +231,13 @@ class SimulationResult:
         """
         import xarray as xr
 
+        data, coords, attrs = self._dataset_parts()
+        ds = xr.Dataset(data, coords=coords)
+        ds.attrs.update(attrs)
+        return ds
+
+    def _dataset_parts(self) -> tuple[dict[str, Any], dict[str, Any], dict[str, Any]]:
+        """The variables, coordinates and attributes of :meth:`to_dataset` (and of ``timeseries.nc``)."""
         data = {k: ("time", self.series[k], {"units": SERIES_UNITS[k], "long_name": SERIES_DESCRIPTIONS[k]})
                 for k in SERIES_UNITS if k != "time_s" and k in self.series}
         coords = {"time": ("time", self.series["time_s"], {"units": "s", "long_name": SERIES_DESCRIPTIONS["time_s"]})}
@@ -238,7 +246,6 @@ class SimulationResult:
                 unit, meaning = pack_cells.CELL_SERIES_UNITS[k]
                 data[k] = (("time", "cell"), values, {"units": unit, "long_name": meaning})
             coords.update(self.cell_coords or {})
-        ds = xr.Dataset(data, coords=coords)
         attrs: dict[str, Any] = {}
         for key, value in self.metadata.items():
             attrs[key] = value if isinstance(value, (int, float, str)) else json.dumps(value)
@@ -248,21 +255,26 @@ class SimulationResult:
         attrs["stop_reason"] = self.stop_reason
         attrs["completed"] = int(self.completed)
         attrs["summary_json"] = json.dumps(self.summary)
-        ds.attrs.update(attrs)
-        return ds
+        return data, coords, attrs
 
     def summary_json(self) -> str:
         """The summary as JSON text."""
         return json.dumps(self.summary, indent=2, allow_nan=False)
 
     def write(self, out_dir: str | Path) -> list[Path]:
-        """Write ``summary.json``, ``timeseries.csv`` and ``timeseries.nc`` into ``out_dir``."""
+        """Write ``summary.json``, ``timeseries.csv`` and ``timeseries.nc`` into ``out_dir``.
+
+        The CSV and NetCDF files are those of :meth:`to_dataframe` and :meth:`to_dataset`
+        (:mod:`thermoelec.analysis.tablefiles`).
+        """
         out = Path(out_dir)
         out.mkdir(parents=True, exist_ok=True)
         written = [out / "summary.json", out / "timeseries.csv", out / "timeseries.nc"]
         written[0].write_text(self.summary_json() + "\n")
-        self.to_dataframe().to_csv(written[1], index=False, float_format="%.9g")
-        self.to_dataset().to_netcdf(written[2])
+        # the files to_dataframe().to_csv(..., float_format="%.9g") and to_dataset().to_netcdf() write,
+        # without pandas and xarray: their import and per-value formatting cost more than a short solve
+        write_csv(written[1], {k: self.series[k] for k in SERIES_UNITS if k in self.series})
+        write_netcdf(written[2], *self._dataset_parts())
         return written
 
 

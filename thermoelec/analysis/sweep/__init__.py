@@ -25,12 +25,20 @@ re-exports the names the command line, the benchmarks and the tests use.
 
 from thermoelec.analysis.metrics import METRICS
 from thermoelec.analysis.sweep.checkpoint import Checkpoints, sweep_identity
-from thermoelec.analysis.sweep.dataset import passes, sweep_dataset, sweep_table, write_series, write_sweep
+from thermoelec.analysis.sweep.dataset import (
+    SweepData,
+    passes,
+    sweep_data,
+    sweep_dataset,
+    sweep_table,
+    write_series,
+    write_sweep,
+)
 from thermoelec.analysis.sweep.plan import SweepAxis, SweepPlan, check_values, iter_combinations, plan_sweep
 from thermoelec.analysis.sweep.run import KEPT_SERIES, decimate, default_chunk_size, run_chunk, run_sweep, solo_metrics
 from thermoelec.analysis.sweep.search import Criterion, design_search, parse_criterion
 
-__all__ = ["KEPT_SERIES", "METRICS", "Checkpoints", "Criterion", "SweepAxis", "SweepPlan", "check_values", "decimate",
-           "default_chunk_size", "design_search", "iter_combinations", "parse_criterion", "passes", "plan_sweep",
-           "run_chunk", "run_sweep", "solo_metrics", "sweep_dataset", "sweep_identity", "sweep_table", "write_series",
-           "write_sweep"]
+__all__ = ["KEPT_SERIES", "METRICS", "Checkpoints", "Criterion", "SweepAxis", "SweepData", "SweepPlan", "check_values",
+           "decimate", "default_chunk_size", "design_search", "iter_combinations", "parse_criterion", "passes",
+           "plan_sweep", "run_chunk", "run_sweep", "solo_metrics", "sweep_data", "sweep_dataset", "sweep_identity",
+           "sweep_table", "write_series", "write_sweep"]

@@ -1,6 +1,7 @@
 """The labelled results of a sweep: the dataset of metrics, the kept series, pass / fail.
 
-Owns :func:`sweep_dataset` (one xarray Dataset: a dimension per swept key, or
+Owns :func:`sweep_data` (the variables, coordinates and attributes, :class:`SweepData`)
+and :func:`sweep_dataset` (them as one xarray Dataset: a dimension per swept key, or
 ``case`` for zip, a variable per metric of :data:`thermoelec.analysis.metrics.METRICS`),
 :func:`write_sweep` (``sweep.nc`` and ``sweep.csv``, one row per scenario:
 :func:`sweep_table`), :func:`write_series` (``series.zarr``) and :func:`passes`.
@@ -15,6 +16,7 @@ from __future__ import annotations
 import json
 import os
 from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
@@ -24,11 +26,13 @@ from thermoelec.analysis.metrics import METRICS, PACK_METRICS, VERDICT_KEYS
 from thermoelec.analysis.sweep.plan import SweepPlan
 from thermoelec.analysis.sweep.run import KEPT_SERIES
 from thermoelec.analysis.sweep.sampling import SAMPLERS
+from thermoelec.analysis.tablefiles import write_csv, write_netcdf
 from thermoelec.analysis.verdict import PASS
 from thermoelec.scenario import Scenario
 from thermoelec.version import __version__
 
-__all__ = ["passes", "plan_coordinates", "sweep_dataset", "sweep_table", "write_series", "write_sweep"]
+__all__ = ["SweepData", "passes", "plan_coordinates", "sweep_data", "sweep_dataset", "sweep_table", "write_series",
+           "write_sweep"]
 
 
 def plan_coordinates(plan: SweepPlan) -> dict[str, tuple[str, np.ndarray, dict[str, str]]]:
@@ -65,18 +69,49 @@ def plan_coordinates(plan: SweepPlan) -> dict[str, tuple[str, np.ndarray, dict[s
     return coords
 
 
-def sweep_dataset(scenario: Scenario, plan: SweepPlan, rows: Sequence[Mapping[str, Any]]):
-    """One xarray Dataset: a dimension per plan dimension (:func:`plan_coordinates`), a variable per metric.
+@dataclass(frozen=True)
+class SweepData:
+    """A sweep's labelled results before any xarray: what ``sweep.nc`` and ``sweep.csv`` hold.
 
-    The metrics are :data:`~thermoelec.analysis.metrics.METRICS`, and those of
-    :data:`~thermoelec.analysis.metrics.PACK_METRICS` a resolved pack's rows have
-    (cells numbered from 1; NaN where a row has none, as a lumped row or no cell at a limit).
+    Attributes
+    ----------
+    data : dict of str to (dims, values, attrs)
+        A variable per metric, the status, message, stop reason, engine and verdict keys.
+    coords : dict of str to (dim, values, attrs)
+        The plan's coordinates (:func:`plan_coordinates`).
+    attrs : dict of str to str, int or float
+        The global attributes (version, scenario file and hash, plan, failures, options, sampling).
     """
-    import xarray as xr
 
+    data: dict[str, Any]
+    coords: dict[str, Any]
+    attrs: dict[str, Any]
+
+    @classmethod
+    def of(cls, ds) -> SweepData:
+        """The parts of an xarray Dataset of :func:`sweep_dataset`."""
+        def parts(variables) -> dict[str, Any]:
+            return {name: (var.dims, var.values, dict(var.attrs)) for name, var in variables.items()}
+
+        return cls(parts(ds.data_vars), parts(ds.coords), dict(ds.attrs))
+
+    def dataset(self):
+        """The xarray Dataset (figures, reviews and the uncertainty analysis work on it)."""
+        import xarray as xr
+
+        ds = xr.Dataset(self.data, coords=self.coords)
+        ds.attrs.update(self.attrs)
+        return ds
+
+    def passed(self) -> int:
+        """How many scenarios pass (:func:`passes`)."""
+        return int(np.count_nonzero(np.asarray(self.data["verdict"][1]) == PASS))
+
+
+def sweep_data(scenario: Scenario, plan: SweepPlan, rows: Sequence[Mapping[str, Any]]) -> SweepData:
+    """The parts of :func:`sweep_dataset`: a dimension per plan dimension, a variable per metric, no xarray."""
     shape = plan.shape
     dims = list(plan.dim_names)
-    coords = plan_coordinates(plan)
     data: dict[str, Any] = {}
     ran = [r.get("status") == "ok" for r in rows]  # a failed or invalid scenario has no metrics: NaN, not numbers
     # a resolved pack's metrics where a row has them (a lumped sweep keeps the variables it had)
@@ -87,24 +122,33 @@ def sweep_dataset(scenario: Scenario, plan: SweepPlan, rows: Sequence[Mapping[st
         data[key] = (dims, values, {"units": _unit_of(key)})
     for key in ("status", "message", "stop_reason", "engine", *VERDICT_KEYS):
         data[key] = (dims, np.array([str(r.get(key) or "") if ok or key in ("status", "message") else ""
-                                     for r, ok in zip(rows, ran, strict=True)], dtype=object).reshape(shape))
-    data["verdict"] += ({"description": "pass / fail of every limit check (analysis.verdict); empty for a scenario "
-                                        "that failed to solve or was invalid"},)
-    ds = xr.Dataset(data, coords=coords)
-    ds.attrs.update(thermoelec_version=__version__, scenario_file=scenario.source, scenario_sha256=scenario.digest,
-                    sweep_mode=plan.mode, scenarios=plan.size, sweep_dimensions=json.dumps(dims),
-                    sweep_fingerprint=plan.signature(scenario.digest),
-                    failed=int(sum(r.get("status") != "ok" for r in rows)))
+                                     for r, ok in zip(rows, ran, strict=True)], dtype=object).reshape(shape), {})
+    data["verdict"][2]["description"] = ("pass / fail of every limit check (analysis.verdict); empty for a scenario "
+                                         "that failed to solve or was invalid")
+    attrs: dict[str, Any] = dict(
+        thermoelec_version=__version__, scenario_file=scenario.source, scenario_sha256=scenario.digest,
+        sweep_mode=plan.mode, scenarios=plan.size, sweep_dimensions=json.dumps(dims),
+        sweep_fingerprint=plan.signature(scenario.digest), failed=int(sum(r.get("status") != "ok" for r in rows)))
     for dim in plan.option_dims:
-        ds.attrs[f"option_group.{dim.name}"] = json.dumps(
+        attrs[f"option_group.{dim.name}"] = json.dumps(
             {o.name: {"description": o.description, "overrides": dict(o.overrides),
                       "attributes": {a.name: [a.value, a.unit] for a in o.attributes}} for o in dim.group.options})
     sampling = plan.sampling
     if sampling is not None:
-        ds.attrs.update(sampling=sampling.method, sampling_description=SAMPLERS[sampling.method],
-                        samples=sampling.samples, seed=sampling.seed,
-                        distributions=json.dumps({d.path: d.describe() for d in sampling.distributions}))
-    return ds
+        attrs.update(sampling=sampling.method, sampling_description=SAMPLERS[sampling.method],
+                     samples=sampling.samples, seed=sampling.seed,
+                     distributions=json.dumps({d.path: d.describe() for d in sampling.distributions}))
+    return SweepData(data, plan_coordinates(plan), attrs)
+
+
+def sweep_dataset(scenario: Scenario, plan: SweepPlan, rows: Sequence[Mapping[str, Any]]):
+    """One xarray Dataset: a dimension per plan dimension (:func:`plan_coordinates`), a variable per metric.
+
+    The metrics are :data:`~thermoelec.analysis.metrics.METRICS`, and those of
+    :data:`~thermoelec.analysis.metrics.PACK_METRICS` a resolved pack's rows have
+    (cells numbered from 1; NaN where a row has none, as a lumped row or no cell at a limit).
+    """
+    return sweep_data(scenario, plan, rows).dataset()
 
 
 def _unit_of(key: str) -> str:
@@ -152,31 +196,41 @@ def sweep_table(ds):
     engine and the metrics, a resolved pack's too (a pandas DataFrame, as ``sweep.csv`` holds it)."""
     import pandas as pd
 
-    flat = {name: ds[name].values.ravel() for name in ds.data_vars}
-    dims = list(ds[METRICS[0]].dims)
-    index = np.indices([ds.sizes[d] for d in dims]).reshape(len(dims), -1)
+    return pd.DataFrame(_table_columns(SweepData.of(ds)))
+
+
+def _table_columns(parts: SweepData) -> dict[str, np.ndarray]:
+    """The columns of :func:`sweep_table`, in order."""
+    flat = {name: np.asarray(values).ravel() for name, (_, values, _) in parts.data.items()}
+    dims = list(parts.data[METRICS[0]][0])
+    shape = np.shape(parts.data[METRICS[0]][1])
+    index = np.indices(shape).reshape(len(dims), -1)
     columns: dict[str, Any] = {}
-    for coord in ds.coords:  # each swept key in its coordinate (a zip sweep: every key along ``case``)
-        axis = dims.index(ds[coord].dims[0])
-        unit = ds[coord].attrs.get("units", "")
+    for coord, (dim, values, attrs) in parts.coords.items():  # each swept key (a zip sweep: every key along ``case``)
+        axis = dims.index(dim if isinstance(dim, str) else dim[0])
+        unit = attrs.get("units", "")
         columns[f"{coord} [{unit}]" if unit and unit != "as in the scenario file" else coord] = \
-            ds[coord].values[index[axis]]
+            np.asarray(values)[index[axis]]
     pack = [key for key in PACK_METRICS if key in flat]  # a resolved pack's metrics, where the sweep has them
     for key in ("status", "message", "stop_reason", *VERDICT_KEYS, "engine", *METRICS, *pack):
         columns[key] = flat[key]
-    return pd.DataFrame(columns)
+    return columns
 
 
-def write_sweep(ds, out: Path) -> list[Path]:
-    """Write the sweep's dataset as ``out/sweep.nc`` (strings as variable-length text) and its table as
-    ``out/sweep.csv`` (:func:`sweep_table`), each atomically.
+def write_sweep(sweep, out: Path) -> list[Path]:
+    """Write a sweep (:class:`SweepData`, or its xarray Dataset) as ``out/sweep.nc`` (strings as
+    variable-length text) and its table as ``out/sweep.csv`` (:func:`sweep_table`), each atomically.
 
+    The files are those ``Dataset.to_netcdf`` and ``sweep_table(ds).to_csv(index=False,
+    float_format="%.9g")`` write, by the plain writers of :mod:`thermoelec.analysis.tablefiles`:
+    a sweep's results need neither xarray (with the dask and pint it imports) nor pandas.
     The heat maps are :func:`thermoelec.output.sweep_figures.write_sweep_figures`.
     """
+    parts = sweep if isinstance(sweep, SweepData) else SweepData.of(sweep)
     path, table = out / "sweep.nc", out / "sweep.csv"
     tmp, tmp_table = out / ".sweep.nc.tmp", out / ".sweep.csv.tmp"
-    ds.to_netcdf(tmp)
-    sweep_table(ds).to_csv(tmp_table, index=False, float_format="%.9g")
+    write_netcdf(tmp, parts.data, parts.coords, parts.attrs)
+    write_csv(tmp_table, _table_columns(parts))
     os.replace(tmp, path)
     os.replace(tmp_table, table)
     return [path, table]
