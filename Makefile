@@ -95,6 +95,7 @@ bench: $(STAMP)
 	$(BIN)/python benchmarks/bench_options.py
 	$(BIN)/python benchmarks/bench_pack.py
 	$(BIN)/python benchmarks/bench_capability.py
+	$(BIN)/python benchmarks/bench_fixed_cost.py
 
 bench-quick: $(STAMP)
 	$(BIN)/python benchmarks/bench_single_mission.py --quick
@@ -105,6 +106,7 @@ bench-quick: $(STAMP)
 	$(BIN)/python benchmarks/bench_options.py --quick
 	$(BIN)/python benchmarks/bench_pack.py --quick
 	$(BIN)/python benchmarks/bench_capability.py --quick
+	$(BIN)/python benchmarks/bench_fixed_cost.py --quick
 
 clean:
 	rm -rf $(VENV) out .pytest_cache .ruff_cache

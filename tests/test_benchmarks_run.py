@@ -73,3 +73,10 @@ def test_pack_benchmark_runs_quick():
 def test_capability_benchmark_runs_quick():
     out = _run("bench_capability.py", "--quick")
     assert "speed-up of the batched grid over the solo loop" in out and "brentq on solo CVODE pulses" in out
+
+
+@pytest.mark.slow
+def test_fixed_cost_benchmark_runs_quick():
+    out = _run("bench_fixed_cost.py", "--quick")
+    assert "floor: import numpy, scipy, pandas" in out and "fixed / floor" in out
+    assert "run --no-figures" in out and "one-scenario sweep" in out and "target < 1.5 s" in out
