@@ -8,6 +8,7 @@ CSV files written here.
 from __future__ import annotations
 
 import ast
+import re
 from pathlib import Path
 
 import numpy as np
@@ -155,3 +156,71 @@ def test_an_invalid_quantity_is_never_memoized(tmp_path):
         _convert_in_a_fresh_process(tmp_path, [["1 V", "V", "V"], ["2.5 Ahh", "Ah", "C"]])
     (memo,) = tmp_path.glob("conversions-*.json")
     assert list(json.loads(memo.read_text())) == ['["str", "1 V", "V", "V"]']
+
+
+def _pandas_columns(path: Path) -> dict[str, np.ndarray]:
+    frame = read_csv_frame(path, "file", "profile")
+    return {str(c): numeric_column(frame, str(c), str(path)) for c in frame.columns}
+
+
+def _bits(values: np.ndarray) -> list[int]:
+    return np.asarray(values, dtype=np.float64).view(np.int64).tolist()  # -0.0 and 0.0 differ here
+
+
+@pytest.mark.parametrize("rows", [
+    ["0,1.5,25", "1,-2.25,25.5", "2,0,-0"],  # an integer column: -0 reads as 0.0, as pandas' int64 column
+    ["0.0,5.,.5", "1e1,-0.0,1E-5", "2.5e+3,123456789012345,0.00000000000001"],
+    ["0,45.123,-3.7", "1,12345.6789,1e22", "2,9.87654321e-7,-1e-22"],
+])
+def test_plain_numeric_files_read_as_pandas_reads_them_to_the_last_bit(tmp_path, rows):
+    from thermoelec.inputs.csvfiles import _plain_numbers, read_numeric_csv
+
+    path = tmp_path / "plain.csv"
+    path.write_text("time_s,power_W,ambient_temperature_degC\n" + "\n".join(rows) + "\n")
+    assert _plain_numbers(path, "file", "profile") is not None  # read without pandas
+    table = read_numeric_csv(path, "file", "profile")
+    expected = _pandas_columns(path)  # the source: pandas' own parser
+    assert table.columns == list(expected)
+    for column, values in expected.items():
+        assert _bits(table.numeric(column)) == _bits(values), column
+
+
+def test_random_plain_numbers_read_as_pandas_reads_them(tmp_path):
+    from thermoelec.inputs.csvfiles import read_numeric_csv
+
+    rng = np.random.default_rng(11)
+    values = rng.normal(size=(2000, 3)) * 10.0 ** rng.integers(-8, 8, (2000, 3))
+    lines = [",".join(f"{v:.{int(rng.integers(1, 14))}g}" for v in row) for row in values]
+    path = tmp_path / "random.csv"
+    path.write_text("time_s,current_A,x\n" + "\n".join(lines) + "\n")
+    table, expected = read_numeric_csv(path, "file", "profile"), _pandas_columns(path)
+    for column in expected:
+        assert _bits(table.numeric(column)) == _bits(expected[column]), column
+
+
+@pytest.mark.parametrize("text", [
+    "time_s,power_W\n0,1.0\n1,1.2345678901234567\n",  # 17 digits: left to pandas
+    "time_s,power_W\n# a comment\n0,1\n1,2\n",
+    "time_s, power_W\n0, 1\n1, 2\n",
+    "time_s,power_W\r\n0,1\r\n1,2\r\n",
+    "time_s,power_W\n0,1\n1,nan\n",
+    "time_s,power_W\n0,1\n1,\n",
+    "time_s,power_W\n0,1\n1,2",
+])
+def test_anything_but_plain_numbers_is_read_by_pandas(tmp_path, text):
+    from thermoelec.inputs.csvfiles import _plain_numbers, read_numeric_csv
+
+    path = tmp_path / "other.csv"
+    path.write_text(text)
+    assert _plain_numbers(path, "file", "profile") is None
+    table = read_numeric_csv(path, "file", "profile")
+    frame = read_csv_frame(path, "file", "profile")
+    assert table.columns == [str(c) for c in frame.columns]
+    for column in table.columns:
+        try:
+            expected = numeric_column(frame, column, str(path))
+        except ScenarioError as exc:
+            with pytest.raises(ScenarioError, match=re.escape(str(exc))):
+                table.numeric(column)
+        else:
+            assert _bits(table.numeric(column)) == _bits(expected)

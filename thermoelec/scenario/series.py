@@ -17,7 +17,7 @@ from pathlib import Path
 
 import numpy as np
 
-from thermoelec.inputs.csvfiles import check_increasing, numeric_column, read_csv_frame
+from thermoelec.inputs.csvfiles import check_increasing, read_numeric_csv
 from thermoelec.inputs.errors import ScenarioError
 from thermoelec.physics.constants import ZERO_CELSIUS
 from thermoelec.physics.loads import LOAD_MODES
@@ -78,21 +78,21 @@ def read_profile_csv(path: Path, key: str) -> SeriesProfile:
         Naming the file and the column (and row) at fault.
     """
     name = str(path)
-    frame = read_csv_frame(path, key, "profile")
-    if TIME_COLUMN not in frame.columns:
+    table = read_numeric_csv(path, key, "profile")
+    if TIME_COLUMN not in table.columns:
         raise ScenarioError(name, TIME_COLUMN, f"column {TIME_COLUMN} is missing "
-                            f"(columns: {', '.join(frame.columns)})")
-    demand_columns = [c for c in frame.columns if c in DEMAND_COLUMNS]
+                            f"(columns: {', '.join(table.columns)})")
+    demand_columns = [c for c in table.columns if c in DEMAND_COLUMNS]
     if len(demand_columns) != 1:
         raise ScenarioError(name, key, "give exactly one demand column of " + ", ".join(DEMAND_COLUMNS)
                             + f" (found {', '.join(demand_columns) or 'none'})")
-    unknown = [c for c in frame.columns if c not in (TIME_COLUMN, AMBIENT_COLUMN, *DEMAND_COLUMNS)]
+    unknown = [c for c in table.columns if c not in (TIME_COLUMN, AMBIENT_COLUMN, *DEMAND_COLUMNS)]
     if unknown:
         raise ScenarioError(name, unknown[0], f"unknown column (valid: {TIME_COLUMN}, "
                             + ", ".join(DEMAND_COLUMNS) + f", {AMBIENT_COLUMN})")
     column = demand_columns[0]
-    columns = [TIME_COLUMN, column] + ([AMBIENT_COLUMN] if AMBIENT_COLUMN in frame.columns else [])
-    arrays = {c: numeric_column(frame, c, name) for c in columns}
+    columns = [TIME_COLUMN, column] + ([AMBIENT_COLUMN] if AMBIENT_COLUMN in table.columns else [])
+    arrays = {c: table.numeric(c) for c in columns}
     time = arrays[TIME_COLUMN]
     if len(time) < 2:
         raise ScenarioError(name, TIME_COLUMN, "a profile file needs at least two rows")
@@ -131,14 +131,14 @@ def read_ambient_csv(path: Path, key: str) -> tuple[np.ndarray, np.ndarray]:
         Naming the file and the column (and row) at fault.
     """
     name = str(path)
-    frame = read_csv_frame(path, key, "ambient profile")
+    table = read_numeric_csv(path, key, "ambient profile")
     for column in (TIME_COLUMN, AMBIENT_COLUMN):
-        if column not in frame.columns:
-            raise ScenarioError(name, column, f"column {column} is missing (columns: {', '.join(frame.columns)})")
-    extra = [c for c in frame.columns if c not in (TIME_COLUMN, AMBIENT_COLUMN)]
+        if column not in table.columns:
+            raise ScenarioError(name, column, f"column {column} is missing (columns: {', '.join(table.columns)})")
+    extra = [c for c in table.columns if c not in (TIME_COLUMN, AMBIENT_COLUMN)]
     if extra:
         raise ScenarioError(name, extra[0], f"unknown column (valid: {TIME_COLUMN}, {AMBIENT_COLUMN})")
-    time, ambient = (numeric_column(frame, column, name) for column in (TIME_COLUMN, AMBIENT_COLUMN))
+    time, ambient = (table.numeric(column) for column in (TIME_COLUMN, AMBIENT_COLUMN))
     if len(time) < 2:
         raise ScenarioError(name, TIME_COLUMN, "an ambient profile needs at least two rows")
     check_increasing(time, name, TIME_COLUMN)
