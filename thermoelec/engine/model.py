@@ -222,7 +222,7 @@ _for_voltage = current_for_voltage
 
 
 @_inline
-def _rc_rate(p, off, z, temperature, icell, v):
+def rc_voltage_rate(p, off, z, temperature, icell, v):
     """``dv/dt = I/C - v/(R C)`` [V/s] of the RC-pair block at ``off``, with fewest divisions.
 
     Given a time constant, ``C = tau / R(z, T_ref)``; when the law does not depend
@@ -317,7 +317,7 @@ def evaluate(y, p, ydot, alg):
     ydot[0] = -icell / p[H_CAPACITY]
     off = int(p[H_RC])
     for k in range(nrc):
-        ydot[1 + k] = _rc_rate(p, off, z, tc, icell, y[1 + k])
+        ydot[1 + k] = rc_voltage_rate(p, off, z, tc, icell, y[1 + k])
         off += rc_length(p, off)
 
     q_cell = _bernardi(icell, u, vcell, tc, dudt)

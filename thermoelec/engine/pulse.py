@@ -247,7 +247,7 @@ def pulse_margins(demands, temperature_index, soc_index, kind_index, durations, 
         t0 = y[int(p[L.H_NCELLS]) * (2 + int(p[L.H_NRC])) - 1]  # a cell's temperature (all start at one)
         status, event, t_stop, _ = _integrate_one(
             p, n_phases, plan_modes, plan_values, duration, ambients, setups[k:k + 1], setup_index, switches,
-            controls[temperature_index[i]].copy(), y, rtol, atol, 0.0, 298.15, 0.0, extra, t0, t0, sink_index)
+            controls[temperature_index[i]].copy(), y, rtol, atol, 0.0, 298.15, 0.0, extra, t0, t0, sink_index, False)
         p[L.H_TIME] = t_stop
         m.roots(y, g, p, alg, np.empty(y.size))
         end_power[i] = alg[L.A_VOLTAGE] * alg[L.A_CURRENT]
