@@ -18,10 +18,7 @@ from thermoelec.analysis.metrics import batch_metrics
 from thermoelec.engine import batch
 
 from ..helpers import scenario
-
-TOLERANCES = {"cell_temperature_max_degC": 1e-4, "sink_temperature_max_degC": 1e-4, "voltage_min_V": 1e-5,
-              "voltage_margin_min_V": 1e-5, "duration_s": 1e-3, "soc_end": 1e-6}
-RELATIVE = ("energy_battery_Wh", "energy_load_Wh", "heat_generated_Wh", "heat_to_ambient_Wh", "charge_throughput_Ah")
+from .test_batch_phases import RELATIVE, TOLERANCES  # the sweep's tolerances for the batch against CVODE
 
 CELL = {
     "capacity": "2.5 Ah", "voltage_max": "4.2 V", "voltage_min": "2.8 V", "mass": "0.045 kg",

@@ -227,6 +227,30 @@ def rc_voltage_rate(p, off, z, temperature, icell, v):
 
     Given a time constant, ``C = tau / R(z, T_ref)``; when the law does not depend
     on temperature, ``R(z, T_ref) = R`` and the rate is ``(R I - v) / tau``.
+
+    Parameters
+    ----------
+    p : float64 array
+        Parameter vector (:mod:`thermoelec.engine.layout`) [SI, unit per slot].
+    off : int
+        Offset of the RC-pair block in ``p`` [-].
+    z : float
+        State of charge [-].
+    temperature : float
+        Cell temperature [K].
+    icell : float
+        Cell current [A], > 0 discharging.
+    v : float
+        Voltage across the pair [V].
+
+    Returns
+    -------
+    float
+        The rate of the pair's voltage [V/s].
+
+    References
+    ----------
+    The Thevenin equivalent circuit's RC branch (circuit theory, common practice).
     """
     law = off + RC_LAW
     r = law_value(p, law, z, temperature)

@@ -56,7 +56,7 @@ def is_plain(params: np.ndarray, plans: list, switches: np.ndarray, soaked: bool
     params : float64 array, shape (n_scenarios, n_parameters)
         The scenarios' parameter vectors (:mod:`thermoelec.engine.layout`) [SI, unit per slot].
     plans : list of MissionPlan
-        The batch's mission plans (:func:`thermoelec.engine.mission.plan_mission`).
+        The batch's mission plans (:func:`thermoelec.engine.mission.plan_mission`) [SI, per field].
     switches : array, shape (n_scenarios, ...)
         The thermostats' switch settings (:func:`thermoelec.engine.mission.thermostat_switches`); all zero
         when no scenario has a thermostat [K].
