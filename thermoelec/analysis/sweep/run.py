@@ -15,7 +15,7 @@ scenarios and an interrupted sweep loses at most the chunks in flight. On
 others start, and each worker is handed the scenario and plan once, then only
 chunks of scenario indices. ``THERMOELEC_SWEEP_TIMING=FILE`` appends one JSON
 line per solved chunk to FILE (process, first index, scenarios, wall-clock start
-and end), for ``benchmarks/bench_two_cores.py``. An
+and end, CPU time), for ``benchmarks/bench_two_cores.py``. An
 interrupt (SIGINT, SIGTERM) or any other exception ends the worker processes and
 the fork server before it propagates (:func:`process_pool`): no worker outlives
 the command. A scenario that fails, or is over the budget of rows, is recorded
@@ -313,11 +313,12 @@ def _timed_chunk(scenario: Scenario, plan: SweepPlan, indices: Sequence[int], ke
                  engine: str) -> list[dict[str, Any]]:
     """:func:`run_chunk`, with a line in the file ``$THERMOELEC_SWEEP_TIMING`` names, if it names one."""
     log = os.environ.get(TIMING_ENV)
-    began = _time.time()
+    began, cpu = _time.time(), _time.process_time()
     rows = run_chunk(scenario, plan, indices, keep_interval, engine)
     if log:
+        # the process's CPU time before the chunk too: for its first chunk, what its start-up cost
         line = json.dumps({"pid": os.getpid(), "start": indices[0], "count": len(indices), "began": began,
-                           "ended": _time.time()})
+                           "ended": _time.time(), "cpu_before": cpu, "cpu": _time.process_time() - cpu})
         with open(log, "a", encoding="utf-8") as handle:  # one short append: whole lines from any process
             handle.write(line + "\n")
     return rows
@@ -355,8 +356,7 @@ def _worker_chunk(indices: list[int]) -> list[dict[str, Any]]:
 def process_pool(workers: int, task: tuple | None = None) -> Iterator[ProcessPoolExecutor]:
     """Worker processes (forkserver) that never outlive the block: on any exception, an interrupt
     included, the workers and the fork server are stopped before it propagates. The workers take
-    the budgets in force (:func:`thermoelec.inputs.budgets.current`). The fork server imports the
-    engine once, before it forks the workers.
+    the budgets in force (:func:`thermoelec.inputs.budgets.current`).
 
     Parameters
     ----------
@@ -373,7 +373,9 @@ def process_pool(workers: int, task: tuple | None = None) -> Iterator[ProcessPoo
     import multiprocessing
 
     context = multiprocessing.get_context("forkserver")
-    context.set_forkserver_preload([__name__])  # numpy, numba, the engine: imported once, in the server
+    # the server imports nothing: starting a worker waits for the server's start-up, and the command
+    # would wait too (it solves chunks meanwhile); each worker imports the engine on its own
+    context.set_forkserver_preload([])
     pool = ProcessPoolExecutor(max_workers=workers, mp_context=context, initializer=_worker_start,
                                initargs=(current(), task))
     try:
