@@ -96,6 +96,7 @@ bench: $(STAMP)
 	$(BIN)/python benchmarks/bench_pack.py
 	$(BIN)/python benchmarks/bench_capability.py
 	$(BIN)/python benchmarks/bench_fixed_cost.py
+	$(BIN)/python benchmarks/bench_two_cores.py
 
 bench-quick: $(STAMP)
 	$(BIN)/python benchmarks/bench_single_mission.py --quick
@@ -107,6 +108,7 @@ bench-quick: $(STAMP)
 	$(BIN)/python benchmarks/bench_pack.py --quick
 	$(BIN)/python benchmarks/bench_capability.py --quick
 	$(BIN)/python benchmarks/bench_fixed_cost.py --quick
+	$(BIN)/python benchmarks/bench_two_cores.py --quick
 
 clean:
 	rm -rf $(VENV) out .pytest_cache .ruff_cache

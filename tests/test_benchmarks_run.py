@@ -80,3 +80,10 @@ def test_fixed_cost_benchmark_runs_quick():
     out = _run("bench_fixed_cost.py", "--quick")
     assert "floor: import numpy, scipy, pandas" in out and "fixed / floor" in out
     assert "run --no-figures" in out and "one-scenario sweep" in out and "target < 1.5 s" in out
+
+
+@pytest.mark.slow
+def test_two_cores_benchmark_runs_quick():
+    out = _run("bench_two_cores.py", "--quick")
+    assert "ratio 1 worker / 2 workers" in out and "--workers 2, 2 cores" in out
+    assert "fixed start-up, a one-scenario sweep" in out and "CPU time of the solves, 2 workers" in out

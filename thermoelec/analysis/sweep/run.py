@@ -9,7 +9,13 @@ kept runs on its own back end, CVODE by default, through
 output folder, spreads the chunks over processes or a cluster and writes each
 finished chunk atomically to ``DIR/chunks/``
 (:mod:`~thermoelec.analysis.sweep.checkpoint`), so ``--resume`` skips its
-scenarios and an interrupted sweep loses at most the chunks in flight. An
+scenarios and an interrupted sweep loses at most the chunks in flight. On
+``workers`` local processes the command itself is one of them
+(:func:`_run_processes`): it solves chunks from the first moment, while the
+others start, and each worker is handed the scenario and plan once, then only
+chunks of scenario indices. ``THERMOELEC_SWEEP_TIMING=FILE`` appends one JSON
+line per solved chunk to FILE (process, first index, scenarios, wall-clock start
+and end, CPU time), for ``benchmarks/bench_two_cores.py``. An
 interrupt (SIGINT, SIGTERM) or any other exception ends the worker processes and
 the fork server before it propagates (:func:`process_pool`): no worker outlives
 the command. A scenario that fails, or is over the budget of rows, is recorded
@@ -19,13 +25,14 @@ inputs/ and analysis/ only; never from output/, fit/, the API or the command lin
 
 from __future__ import annotations
 
+import json
 import math
 import os
 import signal
 import sys
 import time as _time
 from collections.abc import Callable, Iterator, Mapping, Sequence
-from concurrent.futures import ProcessPoolExecutor, as_completed
+from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
 from contextlib import contextmanager
 from pathlib import Path
 from typing import Any
@@ -46,6 +53,9 @@ from thermoelec.scenario import Scenario, ScenarioError
 __all__ = ["KEPT_SERIES", "Progress", "decimate", "default_chunk_size", "process_pool", "run_chunk", "run_sweep",
            "solo_metrics", "stop_pool"]
 
+
+#: Environment variable naming a file that gets one JSON line per solved chunk (benchmarks).
+TIMING_ENV = "THERMOELEC_SWEEP_TIMING"
 
 #: Series kept per scenario with ``--keep-series`` (decimated to a uniform time grid).
 KEPT_SERIES = ("current_A", "voltage_V", "soc", "cell_temperature_degC", "sink_temperature_degC", "heat_W")
@@ -200,6 +210,27 @@ def _pieces(missing: Sequence[int], chunk: int) -> list[list[int]]:
     return pieces
 
 
+#: The smallest chunk the tail is split into [-]: below it the batched solver's cost per call shows
+#: (per scenario, 64-scenario batches took 1.1x and 16-scenario ones 1.8x the time of 256-scenario ones).
+TAIL_CHUNK = 32
+
+
+def _short_tail(pieces: list[list[int]], processes: int) -> list[list[int]]:
+    """The pieces with the last ``2 * processes`` of them split in four (down to :data:`TAIL_CHUNK`).
+
+    The processes take chunks in order, so the last chunks decide how long one
+    process waits for the others at the end: a quarter-size tail shortens that
+    wait to about a quarter, at little cost in the batched solver. Any split
+    checkpoints and resumes the same (chunks are read by scenario index).
+    """
+    cut = max(0, len(pieces) - 2 * processes)
+    tail: list[list[int]] = []
+    for piece in pieces[cut:]:
+        step = max(TAIL_CHUNK, math.ceil(len(piece) / 4))
+        tail += [piece[k:k + step] for k in range(0, len(piece), step)]
+    return pieces[:cut] + tail
+
+
 def run_sweep(scenario: Scenario, plan: SweepPlan, out: Path, workers: int | None = None,
               scheduler: str | None = None, resume: bool = False, chunk_size: int | None = None,
               progress: bool = True, cluster: Any = None, keep_interval: float | None = None,
@@ -270,30 +301,59 @@ def run_sweep(scenario: Scenario, plan: SweepPlan, out: Path, workers: int | Non
                 _run_dask(task, pieces, finish, scheduler, cluster)
             elif workers == 1 or len(pieces) == 1:
                 for indices in pieces:
-                    finish(indices, run_chunk(scenario, plan, indices, keep_interval, engine))
+                    finish(indices, _timed_chunk(scenario, plan, indices, keep_interval, engine))
             else:
-                _run_processes(task, pieces, finish, workers)
+                _run_processes(task, _short_tail(pieces, workers), finish, workers)
         finally:
             bar.close()
         return [done[i] for i in range(plan.size)]
 
 
+def _timed_chunk(scenario: Scenario, plan: SweepPlan, indices: Sequence[int], keep_interval: float | None,
+                 engine: str) -> list[dict[str, Any]]:
+    """:func:`run_chunk`, with a line in the file ``$THERMOELEC_SWEEP_TIMING`` names, if it names one."""
+    log = os.environ.get(TIMING_ENV)
+    began, cpu = _time.time(), _time.process_time()
+    rows = run_chunk(scenario, plan, indices, keep_interval, engine)
+    if log:
+        # the process's CPU time before the chunk too: for its first chunk, what its start-up cost
+        line = json.dumps({"pid": os.getpid(), "start": indices[0], "count": len(indices), "began": began,
+                           "ended": _time.time(), "cpu_before": cpu, "cpu": _time.process_time() - cpu})
+        with open(log, "a", encoding="utf-8") as handle:  # one short append: whole lines from any process
+            handle.write(line + "\n")
+    return rows
+
+
 def _chunk_task(scenario: Scenario, plan: SweepPlan, keep_interval: float | None, engine: str, budgets: Budgets,
                 indices: list[int]) -> list[dict[str, Any]]:
-    """:func:`run_chunk` in a worker process, under the budgets of the command that started it."""
+    """:func:`run_chunk` in a dask worker, under the budgets of the command that started it."""
     with using(budgets):
-        return run_chunk(scenario, plan, indices, keep_interval, engine)
+        return _timed_chunk(scenario, plan, indices, keep_interval, engine)
 
 
-def _worker_start(budgets: Budgets) -> None:
-    """A worker takes its command's budgets and leaves SIGINT to the command (which ends it): Ctrl-C
-    reaches the whole process group."""
+#: The sweep a local worker process solves chunks of (set once, when it starts: :func:`_worker_start`).
+_WORKER_TASK: tuple | None = None
+
+
+def _worker_start(budgets: Budgets, task: tuple | None = None) -> None:
+    """A worker takes its command's budgets (and its sweep, ``(scenario, plan, keep_interval, engine)``,
+    pickled once rather than with every chunk) and leaves SIGINT to the command (which ends it):
+    Ctrl-C reaches the whole process group."""
+    global _WORKER_TASK
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     install(budgets)
+    _WORKER_TASK = task
+
+
+def _worker_chunk(indices: list[int]) -> list[dict[str, Any]]:
+    """A chunk of the sweep this worker process was started with (:func:`_worker_start`)."""
+    assert _WORKER_TASK is not None, "a worker started without its sweep"
+    scenario, plan, keep_interval, engine = _WORKER_TASK
+    return _timed_chunk(scenario, plan, indices, keep_interval, engine)
 
 
 @contextmanager
-def process_pool(workers: int) -> Iterator[ProcessPoolExecutor]:
+def process_pool(workers: int, task: tuple | None = None) -> Iterator[ProcessPoolExecutor]:
     """Worker processes (forkserver) that never outlive the block: on any exception, an interrupt
     included, the workers and the fork server are stopped before it propagates. The workers take
     the budgets in force (:func:`thermoelec.inputs.budgets.current`).
@@ -302,6 +362,8 @@ def process_pool(workers: int) -> Iterator[ProcessPoolExecutor]:
     ----------
     workers : int
         Processes [-].
+    task : tuple, optional
+        ``(scenario, plan, keep_interval, engine)``: the sweep whose chunks :func:`_worker_chunk` solves.
 
     Yields
     ------
@@ -310,8 +372,12 @@ def process_pool(workers: int) -> Iterator[ProcessPoolExecutor]:
     """
     import multiprocessing
 
-    pool = ProcessPoolExecutor(max_workers=workers, mp_context=multiprocessing.get_context("forkserver"),
-                               initializer=_worker_start, initargs=(current(),))
+    context = multiprocessing.get_context("forkserver")
+    # the server imports nothing: starting a worker waits for the server's start-up, and the command
+    # would wait too (it solves chunks meanwhile); each worker imports the engine on its own
+    context.set_forkserver_preload([])
+    pool = ProcessPoolExecutor(max_workers=workers, mp_context=context, initializer=_worker_start,
+                               initargs=(current(), task))
     try:
         yield pool
     except BaseException:
@@ -350,10 +416,35 @@ def stop_pool(pool: ProcessPoolExecutor, grace: float = 2.0) -> None:
 
 
 def _run_processes(task: tuple, pieces: list[list[int]], finish: Callable, workers: int) -> None:
-    with process_pool(workers) as pool:
-        futures = {pool.submit(_chunk_task, *task, indices): n for n, indices in enumerate(pieces)}
-        for future in as_completed(futures):
-            finish(pieces[futures[future]], future.result())
+    """The chunks on ``workers`` processes, this one included.
+
+    ``workers - 1`` processes are started and handed every chunk, in order; this
+    process, which has the scenario and the engine loaded already, takes the
+    first chunk no worker has begun (cancelling it in the pool) and solves it,
+    from the first moment rather than after the workers' start-up, writing the
+    chunks the workers finished in between; when every chunk is begun it waits
+    for the last. The workers get the sweep once and then only scenario indices.
+    """
+    scenario, plan, keep_interval, engine, _ = task
+    with process_pool(workers - 1, (scenario, plan, keep_interval, engine)) as pool:
+        futures = [pool.submit(_worker_chunk, indices) for indices in pieces]
+        pending: dict[Future, int] = dict(zip(futures, range(len(pieces)), strict=True))
+
+        def collect(timeout: float | None) -> None:
+            finished, _ = wait(list(pending), timeout=timeout, return_when=FIRST_COMPLETED)
+            for future in finished:
+                n = pending.pop(future)
+                if not future.cancelled():
+                    finish(pieces[n], future.result())
+
+        for n, future in enumerate(futures):
+            if not future.cancel():
+                continue  # a worker has it
+            pending.pop(future)
+            finish(pieces[n], _timed_chunk(scenario, plan, pieces[n], keep_interval, engine))
+            collect(0)
+        while pending:
+            collect(None)
 
 
 def _run_dask(task: tuple, pieces: list[list[int]], finish: Callable, scheduler: str | None, cluster: Any) -> None:
