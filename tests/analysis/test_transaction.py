@@ -95,6 +95,28 @@ def test_deferred_signals_raise_after_the_block_and_not_inside():
     assert order == ["block finished"] and caught.value.exit_status == 130
 
 
+def test_a_signal_landing_in_a_weakref_callback_is_raised_again_not_printed(capsys):
+    # A signal's exception raised inside a weakref callback (the garbage collector runs them at any
+    # point) is unraisable: Python prints "Exception ignored in ..." with a traceback and drops it.
+    # Under termination_signals it is delivered again and raised at the next ordinary point.
+    import weakref
+
+    class Thing:
+        pass
+
+    def callback(_ref):
+        raise Interrupted(signal.SIGTERM)  # what the handler does when the signal arrives here
+
+    with pytest.raises(Interrupted) as caught, termination_signals():
+        thing = Thing()
+        ref = weakref.ref(thing, callback)
+        del thing  # the callback runs now and its exception is unraisable
+        for _ in range(1000):  # the signal raised again is taken at one of these points
+            time.sleep(0.001)
+    assert ref() is None and caught.value.signum == signal.SIGTERM
+    assert "Traceback" not in capsys.readouterr().err
+
+
 def test_a_commit_cut_short_is_completed_by_the_next_command(tmp_path):
     # the state a SIGKILL between two renames of a commit leaves: the journal (the new manifest),
     # one entry moved in, one still staged; the next command completes the commit first

@@ -13,6 +13,7 @@ outputs in place are never cut in half). Imports nothing from thermoelec.
 from __future__ import annotations
 
 import signal
+import sys
 import threading
 from collections.abc import Iterator
 from contextlib import contextmanager
@@ -21,6 +22,9 @@ __all__ = ["TERMINATION_SIGNALS", "Interrupted", "deferred_signals", "terminatio
 
 #: The signals that end a command cleanly.
 TERMINATION_SIGNALS = (signal.SIGINT, signal.SIGTERM)
+
+#: Seconds after which a signal whose exception could not be raised is sent again [s].
+REDELIVERY_DELAY = 0.005
 
 _state = {"depth": 0, "pending": None}
 
@@ -56,12 +60,33 @@ def _handler(signum: int, frame) -> None:
     raise Interrupted(signum)
 
 
+def _redeliver(unraisable, fallback) -> None:
+    """``sys.unraisablehook`` under :func:`termination_signals`: a signal's exception is delivered again.
+
+    A signal that arrives while Python runs a weakref callback or a ``__del__``
+    (the garbage collector runs them at any point) raises its exception there,
+    where Python can only print it with a traceback and drop it: the command
+    would go on as if never signalled. The signal is sent to the main thread
+    again instead, from a timer a few milliseconds later (sent at once, its handler
+    would run inside this hook and raise here), to be taken at the next ordinary
+    point; anything else goes to ``fallback``.
+    """
+    if isinstance(unraisable.exc_value, Interrupted):
+        again = threading.Timer(REDELIVERY_DELAY, signal.pthread_kill,
+                                (threading.main_thread().ident, unraisable.exc_value.signum))
+        again.daemon = True
+        again.start()
+        return
+    fallback(unraisable)
+
+
 @contextmanager
 def termination_signals() -> Iterator[None]:
     """Raise SIGINT and SIGTERM as :class:`Interrupted` in the main thread inside the block.
 
     Outside the main thread (where Python cannot set handlers) the block runs
-    with the handlers as they are.
+    with the handlers as they are. A signal whose exception lands where Python
+    cannot raise it (a weakref callback, a ``__del__``) is delivered again.
 
     Yields
     ------
@@ -71,9 +96,12 @@ def termination_signals() -> Iterator[None]:
         yield
         return
     previous = {sig: signal.signal(sig, _handler) for sig in TERMINATION_SIGNALS}
+    previous_hook = sys.unraisablehook
+    sys.unraisablehook = lambda unraisable: _redeliver(unraisable, previous_hook)
     try:
         yield
     finally:
+        sys.unraisablehook = previous_hook
         for sig, handler in previous.items():
             signal.signal(sig, handler)
 
