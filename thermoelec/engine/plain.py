@@ -36,9 +36,9 @@ from thermoelec.physics.loads import LOAD_MODES, MODE_POWER, pack_current, power
 
 __all__ = ["PLAIN_MODES", "evaluate_plain", "is_plain"]
 
-#: Load modes a plain mission may demand (an imposed voltage needs the full start check).
-PLAIN_MODES = frozenset(LOAD_MODES[name].code for name in ("current", "power", "resistance", "rest")
-                        if name in LOAD_MODES)
+#: Load modes a plain mission may demand (a rest is a zero current; an imposed voltage needs the
+#: full start check).
+PLAIN_MODES = frozenset(LOAD_MODES[name].code for name in ("current", "power", "resistance"))
 
 #: Parameter slots that must read zero on a plain mission: each switches a feature on. (The pump flag
 #: is 1 without a coolant, so the coolant is absent when it has no conductance, flow, mass or pump power.)
@@ -73,10 +73,9 @@ def is_plain(params: np.ndarray, plans: list, switches: np.ndarray, soaked: bool
     if np.any(params[:, list(_ABSENT)] != 0.0) or np.any(params[:, L.H_LIMITS] == 1.0):
         return False
     for plan in plans:
-        if np.any(np.asarray(plan.n_phases) != 1):
+        if np.any(plan.n_phases != 1):
             return False
-        used = np.asarray(plan.modes)[:, 0]
-        if not set(np.unique(used).astype(int).tolist()) <= PLAIN_MODES:
+        if not set(np.unique(plan.modes[:, 0]).astype(int).tolist()) <= PLAIN_MODES:
             return False
     return True
 
