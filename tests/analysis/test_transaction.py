@@ -18,10 +18,13 @@ from pathlib import Path
 
 import pytest
 
+import thermoelec
 from thermoelec.analysis import transaction
-from thermoelec.analysis.interrupts import Interrupted, deferred_signals, termination_signals
+from thermoelec.analysis.interrupts import Interrupted, deferred_signals, termination_signals, unswallowed_signals
 from thermoelec.analysis.transaction import JOURNAL, MANIFEST, OutputFolder, hold
 from thermoelec.inputs import ScenarioError
+
+from ..helpers import scenario
 
 
 def write(folder: Path, files: dict[str, str]) -> None:
@@ -115,6 +118,55 @@ def test_a_signal_landing_in_a_weakref_callback_is_raised_again_not_printed(caps
             time.sleep(0.001)
     assert ref() is None and caught.value.signum == signal.SIGTERM
     assert "Traceback" not in capsys.readouterr().err
+
+
+def _swallowing_callback() -> None:
+    """What a C library's wrapper of a Python callback may do: take the callback's exception as its failure."""
+    try:
+        os.kill(os.getpid(), signal.SIGTERM)  # the handler raises Interrupted here, at once
+        time.sleep(1.0)
+    except BaseException:
+        pass
+
+
+def test_a_signal_swallowed_inside_the_block_is_raised_after_it():
+    order = []
+    with pytest.raises(Interrupted) as caught, termination_signals():
+        with unswallowed_signals():
+            _swallowing_callback()
+            order.append("block went on")
+        order.append("after the block")
+    assert order == ["block went on"] and caught.value.exit_status == 143
+    with termination_signals(), unswallowed_signals():  # no signal, nothing raised
+        order.append("quiet block")
+    assert order[-1] == "quiet block"
+
+
+def test_a_signal_swallowed_by_cvodes_callback_wrapper_ends_the_run_not_as_a_solver_failure(monkeypatch):
+    # The right-hand side's wrapper taking the signal's exception as the callback's failure: CVODE
+    # reports an unrecoverable right-hand side and returns normally. The run must end as signalled.
+    from thermoelec.engine.model import Kernels
+
+    built = Kernels._cvode_rhs
+
+    def wrapped(self):
+        rhs, calls = built(self), [0]
+
+        def cvode_rhs(t, y, ydot):
+            calls[0] += 1
+            if calls[0] == 50:
+                _swallowing_callback()
+                return -1
+            return rhs(t, y, ydot)
+
+        return cvode_rhs
+
+    monkeypatch.setattr(Kernels, "_cvode_rhs", wrapped)
+    data = scenario(segments=[{"mode": "current", "value": "1 A", "duration": "600 s"}])
+    with pytest.raises(Interrupted) as caught, termination_signals():
+        result = thermoelec.simulate(data)
+        pytest.fail(f"the run went on to a result: {result.status} {result.message}")
+    assert caught.value.signum == signal.SIGTERM
 
 
 def test_a_commit_cut_short_is_completed_by_the_next_command(tmp_path):

@@ -12,6 +12,7 @@ from __future__ import annotations
 from pathlib import Path
 from typing import Any
 
+from thermoelec.analysis.interrupts import unswallowed_signals
 from thermoelec.analysis.results import SimulationResult, build_result
 from thermoelec.engine.driver import integrate_problem
 from thermoelec.engine.options import SolverOptions
@@ -55,7 +56,8 @@ def simulate(scenario: Scenario | Problem | dict, options: SolverOptions | None 
         problem = scenario
         options = options or SolverOptions()
     metadata.update(backend=options.backend, rtol=options.rtol, output_interval_s=options.output_interval)
-    trajectory = integrate_problem(problem, options)
+    with unswallowed_signals():  # a signal CVODE's callback wrapper took for a failure ends the run
+        trajectory = integrate_problem(problem, options)
     return build_result(problem, trajectory, options, metadata)
 
 
