@@ -8,7 +8,7 @@ STAMP  := $(VENV)/.thermoelec-installed
 DEMO   := out/demo
 LOGS   := scenarios/logs
 
-.PHONY: all setup test test-all demo lint bench bench-quick clean
+.PHONY: all setup kernels test test-all demo lint bench bench-quick clean
 
 all: test
 
@@ -21,18 +21,23 @@ $(STAMP): pyproject.toml
 	@$(BIN)/python -m pip install -q --disable-pip-version-check -e '.[dev]'
 	@touch $(STAMP)
 
-setup: $(STAMP)
+# The kernels a run calls, compiled ahead of time (thermoelec/engine/ahead.py): a no-op when today's build
+# is there; should it fail, everything still runs through numba's cache, only slower to start.
+kernels: $(STAMP)
+	@$(BIN)/python -m thermoelec.engine.ahead || true
 
-test: $(STAMP)
+setup: $(STAMP) kernels
+
+test: $(STAMP) kernels
 	$(BIN)/python -m pytest -q -m "not slow"
 
-test-all: $(STAMP)
+test-all: $(STAMP) kernels
 	$(BIN)/python -m pytest -q
 
 lint: $(STAMP)
 	$(BIN)/ruff check thermoelec tests benchmarks
 
-demo: $(STAMP)
+demo: $(STAMP) kernels
 	@echo "== courier drone sortie, hot afternoon (38 degC)"
 	@$(BIN)/thermoelec run scenarios/drone_delivery.toml --out $(DEMO)/drone-hot
 	@echo
@@ -86,7 +91,7 @@ demo: $(STAMP)
 	@echo "open $(DEMO)/*/report.html, $(DEMO)/robot-options/design_report.html and $(DEMO)/fit/*_report.html in a"
 	@echo "browser for the figures and the verdicts"
 
-bench: $(STAMP)
+bench: $(STAMP) kernels
 	$(BIN)/python benchmarks/bench_single_mission.py
 	$(BIN)/python benchmarks/bench_sweep.py
 	$(BIN)/python benchmarks/bench_sweep_scale.py
@@ -98,7 +103,7 @@ bench: $(STAMP)
 	$(BIN)/python benchmarks/bench_fixed_cost.py
 	$(BIN)/python benchmarks/bench_two_cores.py
 
-bench-quick: $(STAMP)
+bench-quick: $(STAMP) kernels
 	$(BIN)/python benchmarks/bench_single_mission.py --quick
 	$(BIN)/python benchmarks/bench_sweep.py --quick
 	$(BIN)/python benchmarks/bench_sweep_scale.py --quick

@@ -57,9 +57,9 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Any
 
-import numba
 import numpy as np
 
+from thermoelec import jit
 from thermoelec.engine import layout as L
 from thermoelec.engine import model as m
 from thermoelec.engine.events import (
@@ -139,7 +139,7 @@ _EXTRA_START = np.array([-np.inf, -np.inf, np.inf, np.inf, 0.0, 0.0, -np.inf, -n
                          0.0, 0.0, 0.0, np.inf, np.inf, np.inf, np.inf, np.inf, -np.inf, 0.0, 0.0])
 
 
-@numba.njit(cache=True, error_model="numpy", inline="always")
+@jit.njit(cache=True, error_model="numpy", inline="always")
 def _stage(y, p, ydot, alg, plain):
     """One evaluation of the right-hand side: the plain mission's lean one or the engine's full one."""
     if plain:
@@ -148,7 +148,7 @@ def _stage(y, p, ydot, alg, plain):
         m.evaluate_any(y, p, ydot, alg)
 
 
-@numba.njit(cache=True, error_model="numpy")
+@jit.njit(cache=True, error_model="numpy")
 def _rk_step(y, p, t, h, k, tmp, alg, out, err, plain):
     """One Bogacki-Shampine step of size h from y at time t, with ``k[0] = f(t, y)`` given.
 
@@ -177,7 +177,7 @@ def _rk_step(y, p, t, h, k, tmp, alg, out, err, plain):
         err[i] = h * (_E1 * k[0, i] + _E2 * k[1, i] + _E3 * k[2, i] + _E4 * k[3, i])
 
 
-@numba.njit(cache=True, error_model="numpy")
+@jit.njit(cache=True, error_model="numpy")
 def _error_norm(y, out, err, rtol, atol):
     total = 0.0
     for i in range(y.size):
@@ -186,7 +186,7 @@ def _error_norm(y, out, err, rtol, atol):
     return np.sqrt(total / y.size)
 
 
-@numba.njit(cache=True, error_model="numpy")
+@jit.njit(cache=True, error_model="numpy")
 def _observe(y, alg, extra, t, ts_index):
     """Running extremes from the state at time ``t`` and its algebraic outputs."""
     if alg[L.A_TEMPERATURE_HIGH] > extra[X_TC_MAX]:
@@ -220,7 +220,7 @@ def _observe(y, alg, extra, t, ts_index):
     extra[X_SHORTFALL] = max(extra[X_SHORTFALL], abs(alg[L.A_POWER_DEMANDED] - power))
 
 
-@numba.njit(cache=True, error_model="numpy")
+@jit.njit(cache=True, error_model="numpy")
 def _derated_time(deficit0, deficit1, h):
     """Time of a step of length h during which the delivered current differs from the demand's [s].
 
@@ -237,7 +237,7 @@ def _derated_time(deficit0, deficit1, h):
     return 0.0
 
 
-@numba.njit(cache=True, error_model="numpy")
+@jit.njit(cache=True, error_model="numpy")
 def _cold_charging(tc0, tc1, i0, i1, t_min, h):
     """Time of a step of length h spent charging below ``t_min`` [s].
 
@@ -256,7 +256,7 @@ def _cold_charging(tc0, tc1, i0, i1, t_min, h):
     return h * share if below0 else h * (1.0 - share)
 
 
-@numba.njit(cache=True, error_model="numpy")
+@jit.njit(cache=True, error_model="numpy")
 def _auxiliary_energy(extra, aux, i0, i1, h):
     """Energy the auxiliaries draw over a step of length h [J]: their power is constant within a phase
     (the thermostats switch at phase boundaries); discharging when the step's mean current is positive."""
@@ -265,7 +265,7 @@ def _auxiliary_energy(extra, aux, i0, i1, h):
         extra[X_AUX_DISCHARGE] += aux * h
 
 
-@numba.njit(cache=True, error_model="numpy")
+@jit.njit(cache=True, error_model="numpy")
 def _any_fired(g, p):
     for e in range(N_EVENTS):
         if p[L.H_ACTIVE + e] != 0.0 and g[e] <= 0.0:
@@ -273,7 +273,7 @@ def _any_fired(g, p):
     return False
 
 
-@numba.njit(cache=True, error_model="numpy")
+@jit.njit(cache=True, error_model="numpy")
 def _near_zero(g, p):
     """True when an active root function is within its tolerance of zero (then the full start check runs)."""
     for e in range(N_EVENTS):
@@ -286,7 +286,7 @@ def _near_zero(g, p):
 MAX_EVENTS_PER_SEGMENT = 1000
 
 
-@numba.njit(cache=True, error_model="numpy")
+@jit.njit(cache=True, error_model="numpy")
 def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setup_index, switches, controls, y,
                    rtol, atol, ea, t_ref, t_charge_min, extra, hot0, cold0, ts_index, plain):
     """One scenario through the segments of its mission plan and their phases (a CC-CV segment has two).
@@ -428,7 +428,7 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
     return 0, -1, t, -1
 
 
-@numba.njit(cache=True, error_model="numpy")
+@jit.njit(cache=True, error_model="numpy")
 def _integrate_many(params, profile, n_phases, modes, values, durations, ambients, setups, setup_index, switches,
                     controls, y0, rtol, atol, ea, t_ref, t_charge_min, hot0, cold0, ts_index, plain):
     """Every scenario of a batch; scenario ``s`` runs the segments of profile ``profile[s]``."""

@@ -39,9 +39,9 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-import numba
 import numpy as np
 
+from thermoelec import jit
 from thermoelec.engine.events import (
     CONTROL_EVENTS,
     EV_CHARGE_CURRENT,
@@ -71,7 +71,7 @@ __all__ = ["ALGEBRAICS", "ALGEBRAIC_NAMES", "CELL_FIELDS", "CELL_OF_EVENT", "HEA
 
 # The block readers are inlined into the kernels that call them (a call between compiled
 # functions is not inlined by numba, and a right-hand side reads six blocks).
-_jit = numba.njit(cache=True, nogil=True, error_model="numpy", inline="always")
+_jit = jit.njit(cache=True, nogil=True, error_model="numpy", inline="always")
 
 
 @dataclass(frozen=True)

@@ -28,16 +28,16 @@ the kernels of :mod:`thermoelec.engine.model` and :mod:`thermoelec.engine.resolv
 
 from __future__ import annotations
 
-import numba
 import numpy as np
 
+from thermoelec import jit
 from thermoelec.engine import layout as L
 from thermoelec.physics.loads import MODE_POWER, derated_current, held_current, ramped_current, terminal_power
 
 __all__ = ["allowances", "cell_current_margins", "delivered_current", "demand_outputs", "limit_margins",
            "pack_bounds", "power_margins", "table_or"]
 
-_inline = numba.njit(cache=True, nogil=True, error_model="numpy", inline="always")
+_inline = jit.njit(cache=True, nogil=True, error_model="numpy", inline="always")
 
 
 @_inline

@@ -25,9 +25,9 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, replace
 
-import numba
 import numpy as np
 
+from thermoelec import jit
 from thermoelec.engine.events import (
     CONTROL_EVENTS,
     EV_CHARGE_CURRENT,
@@ -78,7 +78,7 @@ from thermoelec.physics.loads import LOAD_MODES, MODE_CURRENT, MODE_VOLTAGE
 __all__ = ["IMPOSED_VOLTAGE_SLACK", "MIN_PHASE", "START_PROBE", "MissionPlan", "cccv_cap", "configure_phase",
            "initial_controls", "plan_mission", "soak_problem", "start_after_soak", "thermostat_switches"]
 
-_jit = numba.njit(cache=True, nogil=True, error_model="numpy")
+_jit = jit.njit(cache=True, nogil=True, error_model="numpy")
 
 #: A phase shorter than this is skipped [s] (a root that lands on a segment end).
 MIN_PHASE = 1e-12
@@ -358,6 +358,8 @@ def initial_controls(switches: np.ndarray, cell_temperature: float, coldest: flo
     return on
 
 
+@jit.ahead_of_time("f8(f8[::1], i8, i8, f8[:, ::1], f8[:, ::1], f8[::1], f8[:, ::1], i8[:, ::1], f8, f8, "
+                   "f8[:, ::1], b1[::1], f8, f8, f8)")
 @_jit
 def configure_phase(p, seg, phase, modes, values, ambients, setups, setup_index, default_ambient, default_table,
                     switches, controls, hold, ramp_current, time):

@@ -28,9 +28,9 @@ batched solver call it.
 
 from __future__ import annotations
 
-import numba
 import numpy as np
 
+from thermoelec import jit
 from thermoelec.engine import limits as bms
 from thermoelec.engine.events import (
     EV_CHARGE_CURRENT,
@@ -203,10 +203,10 @@ from thermoelec.physics.loads import (
 
 __all__ = ["Kernels", "evaluate", "evaluate_any", "evaluate_rows", "roots", "trajectory_algebraics"]
 
-_jit = numba.njit(cache=True, nogil=True, error_model="numpy")
+_jit = jit.njit(cache=True, nogil=True, error_model="numpy")
 # Small pieces of the right-hand side are inlined into their callers: a call between two
 # compiled functions is not inlined by numba.
-_inline = numba.njit(cache=True, nogil=True, error_model="numpy", inline="always")
+_inline = jit.njit(cache=True, nogil=True, error_model="numpy", inline="always")
 
 _ocv = cellphys.open_circuit_voltage
 _power_margin = power_deliverable_margin
@@ -471,6 +471,7 @@ def evaluate_any(y, p, ydot, alg):
         evaluate(y, p, ydot, alg)
 
 
+@jit.ahead_of_time("void(f8[::1], f8[::1], f8[::1], f8[::1])")
 @_jit
 def rhs(y, ydot, p, alg):
     """Right-hand side ``dy/dt`` written into ``ydot`` (autonomous within a phase).
@@ -492,6 +493,7 @@ def rhs(y, ydot, p, alg):
     evaluate_any(y, p, ydot, alg)
 
 
+@jit.ahead_of_time("void(f8[::1], f8[::1], f8[::1], f8[::1], f8[::1])")
 @_jit
 def roots(y, g, p, alg, scratch):
     """Event functions ``g_k`` written into ``g``; each is positive while all is well.
@@ -615,6 +617,7 @@ def roots_from(y, g, p, alg):
             g[k] = thr - sensed if rising else sensed - thr
 
 
+@jit.ahead_of_time("void(f8[::1], f8[:, ::1], f8[::1], f8[::1], f8[::1], f8[::1], f8[::1])")
 @_jit
 def jacobian(y, jac, p, alg, f0, f1, yy):
     """Forward-difference Jacobian ``df/dy`` into ``jac`` (dense, row = equation).
@@ -664,6 +667,7 @@ def jacobian(y, jac, p, alg, f0, f1, yy):
             jac[i, j] = (f1[i] - f0[i]) / h
 
 
+@jit.ahead_of_time("f8(f8[::1], f8[::1], f8[::1], f8[::1], f8[::1], f8[::1], f8[:, ::1], f8)")
 @_jit
 def diagonal_newton_contraction(y, p, alg, f0, f1, yy, jac, gamma):
     """Bound on the contraction factor of Newton's iteration when only the Jacobian's diagonal is used.
@@ -817,6 +821,7 @@ def rc_base_setup(y, p, alg, scratch, t0, base):
             off += rc_length(p, off)
 
 
+@jit.ahead_of_time("void(f8[::1], f8[::1], f8[::1], f8, f8)")
 @_jit
 def rc_base_add(w, y, base, t, sign):
     """``y = w + sign * b(t)`` on the RC slots, ``y = w`` elsewhere; returns nothing.
@@ -847,6 +852,8 @@ def rc_base_add(w, y, base, t, sign):
         y[i] = w[i] + sign * b
 
 
+@jit.ahead_of_time("f8(f8[::1], f8[::1], f8[::1], f8[::1], f8, f8[::1], f8[::1], f8[::1], f8[::1], f8[::1], "
+                   "f8[:, ::1], f8)")
 @_jit
 def shift_phase_start(y0, p, alg, scratch, t0, base, w0, f0, f1, yy, jac, gamma):
     """Start a CVODE phase at ``(t0, y0)``.
@@ -896,6 +903,7 @@ def shift_phase_start(y0, p, alg, scratch, t0, base, w0, f0, f1, yy, jac, gamma)
     return diagonal_newton_contraction(y0, p, alg, f0, f1, yy, jac, gamma)
 
 
+@jit.ahead_of_time("void(f8, f8[::1], f8[::1], f8[::1], f8[::1], f8[::1], f8[::1])")
 @_jit
 def shifted_rhs(t, w, wdot, p, alg, base, y):
     """Right-hand side in the shifted variables: ``dw/dt = f(w + b(t)) - b'(t)``; sets the time in ``p``.
@@ -935,6 +943,7 @@ def shifted_rhs(t, w, wdot, p, alg, base, y):
             wdot[i] -= (v_inf - v0) / tau * np.exp(-s / tau)
 
 
+@jit.ahead_of_time("void(f8, f8[::1], f8[::1], f8[::1], f8[::1], f8[::1], f8[::1], f8[::1])")
 @_jit
 def shifted_roots(t, w, g, p, alg, scratch, base, y):
     """Event functions at ``w + b(t)`` (the caller writes the time into ``p``).
@@ -962,6 +971,7 @@ def shifted_roots(t, w, g, p, alg, scratch, base, y):
     roots(y, g, p, alg, scratch)
 
 
+@jit.ahead_of_time("void(f8, f8[::1], f8[:, ::1], f8[::1], f8[::1], f8[::1], f8[::1], f8[::1], f8[::1], f8[::1])")
 @_jit
 def shifted_jacobian(t, w, jac, p, alg, f0, f1, yy, base, y):
     """Jacobian of the shifted system: ``b`` does not depend on ``w``, so it is ``df/dy`` at ``w + b(t)``.
@@ -1099,6 +1109,7 @@ def beyond_reach(g, g_ahead, p, probe, duration, factor):
     return True
 
 
+@jit.ahead_of_time("i8(f8[::1], f8[::1], f8[::1], f8[::1], f8[::1], f8[::1], f8, f8, f8, f8)")
 @_jit
 def phase_start(y, p, alg, scratch, g, g_ahead, probe, slack, duration, factor):
     """:func:`start_check`, then :func:`beyond_reach` over ``duration``, in one call.
@@ -1138,6 +1149,7 @@ def phase_start(y, p, alg, scratch, g, g_ahead, probe, slack, duration, factor):
     return -2 if beyond_reach(g, g_ahead, p, probe, duration, factor) else -1
 
 
+@jit.ahead_of_time("i8(f8[::1], f8[::1])")
 @_jit
 def fired_event(g, p):
     """The event that fired at a located root, given the root-function values ``g``.
@@ -1168,6 +1180,7 @@ def fired_event(g, p):
     return event
 
 
+@jit.ahead_of_time("b1(f8[::1], f8[::1], f8[::1], f8[::1], f8[::1])")
 @_jit
 def all_positive(y, p, alg, scratch, g):
     """True when every active root function is positive at ``y``.
@@ -1517,6 +1530,7 @@ class Kernels:
         return all_positive(y, self.p, self._alg, self._scratch, self._g_end)
 
 
+@jit.ahead_of_time("void(f8[:, ::1], f8[::1], f8[:, ::1], i8[::1], f8[::1], f8[:, ::1])")
 @_jit
 def evaluate_phase_rows(states, times, headers, phase_index, p, algebraics):
     """Algebraic outputs of many rows, each in its phase: the phase's header written into ``p`` first.

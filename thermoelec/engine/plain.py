@@ -24,9 +24,9 @@ functions; it must not import the mission plan, the batch or the drivers.
 
 from __future__ import annotations
 
-import numba
 import numpy as np
 
+from thermoelec import jit
 from thermoelec.engine import layout as L
 from thermoelec.engine import limits as bms
 from thermoelec.engine.model import rc_voltage_rate
@@ -45,7 +45,7 @@ PLAIN_MODES = frozenset(LOAD_MODES[name].code for name in ("current", "power", "
 _ABSENT = (L.H_CELLS, L.H_DERATE, L.H_AMBIENT_TABLE, L.H_FORCED, L.H_NATURAL, L.H_EMISSIVITY, L.H_COOL_C,
            L.H_COOL_UA, L.H_COOL_G, L.H_COOL_MCP, L.H_PUMP_POWER, L.H_FAN_ON, L.H_HEATER_ON)
 
-_inline = numba.njit(cache=True, nogil=True, error_model="numpy", inline="always")
+_inline = jit.njit(cache=True, nogil=True, error_model="numpy", inline="always")
 
 
 def is_plain(params: np.ndarray, plans: list, switches: np.ndarray, soaked: bool) -> bool:

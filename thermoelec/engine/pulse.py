@@ -31,9 +31,9 @@ from __future__ import annotations
 
 from dataclasses import dataclass, replace
 
-import numba
 import numpy as np
 
+from thermoelec import jit
 from thermoelec.engine import batch
 from thermoelec.engine import layout as L
 from thermoelec.engine import model as m
@@ -182,7 +182,7 @@ def prepare_pulses(problem: Problem, temperatures: np.ndarray, socs: np.ndarray,
                     options.atol_vector(plain.n_rc, plain.n_cells), float(options.rtol), sink)
 
 
-@numba.njit(cache=True, error_model="numpy")
+@jit.njit(cache=True, error_model="numpy")
 def pulse_margins(demands, temperature_index, soc_index, kind_index, durations, params, starts, setups, modes,
                   switches, controls, rtol, atol, sink_index, margins, events, end_power):
     """The margin of each pulse, the event that stopped it and the power at its end (one compiled loop).

@@ -33,9 +33,9 @@ dispatches to it.
 
 from __future__ import annotations
 
-import numba
 import numpy as np
 
+from thermoelec import jit
 from thermoelec.engine import layout as L
 from thermoelec.engine import limits as bms
 from thermoelec.physics import cell as cellphys
@@ -47,8 +47,8 @@ from thermoelec.physics.loads import MODE_POWER, MODE_VOLTAGE, auxiliary_power, 
 
 __all__ = ["CELL_VALUES", "N_CELL_VALUES", "evaluate_pack", "pack_cell_values", "trajectory_cell_values"]
 
-_jit = numba.njit(cache=True, nogil=True, error_model="numpy")
-_inline = numba.njit(cache=True, nogil=True, error_model="numpy", inline="always")
+_jit = jit.njit(cache=True, nogil=True, error_model="numpy")
+_inline = jit.njit(cache=True, nogil=True, error_model="numpy", inline="always")
 
 _ocv = cellphys.open_circuit_voltage
 _bernardi = cellphys.bernardi_heat
@@ -410,6 +410,7 @@ N_CELL_VALUES = len(CELL_VALUES)
 _CELL_VALUES = np.array(CELL_VALUES, dtype=np.int64)
 
 
+@jit.ahead_of_time("void(f8[:, ::1], f8[::1], f8[:, ::1], i8[::1], f8[::1], f8[:, :, ::1])")
 @_jit
 def pack_cell_values(states, times, headers, phase_index, p, out):
     """Per-cell values of many rows of a resolved pack, each row in its phase (its header written into ``p``).

@@ -13,8 +13,8 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 import numpy as np
-from numba.extending import register_jitable
 
+from thermoelec.jit import register_jitable
 from thermoelec.physics.constants import GAS_CONSTANT, ZERO_CELSIUS
 from thermoelec.physics.tables import interpolate_1d, interpolate_2d
 

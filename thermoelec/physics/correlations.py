@@ -35,8 +35,8 @@ from dataclasses import dataclass
 from typing import Literal
 
 import numpy as np
-from numba.extending import register_jitable
 
+from thermoelec.jit import register_jitable
 from thermoelec.physics.constants import STANDARD_GRAVITY
 from thermoelec.physics.tables import interpolate_1d as _interp
 

@@ -20,7 +20,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from numba.extending import register_jitable
+
+from thermoelec.jit import register_jitable
 
 __all__ = [
     "COMPOSITE_MODES",

@@ -32,7 +32,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from numba.extending import register_jitable
+
+from thermoelec.jit import register_jitable
 
 __all__ = [
     "SHARE_MIN_C_RATE",

@@ -15,7 +15,8 @@ and bilinear in SoC and temperature, held at their edge values outside the grid.
 from __future__ import annotations
 
 import numpy as np
-from numba.extending import register_jitable
+
+from thermoelec.jit import register_jitable
 
 __all__ = ["bilinear_at", "bracket", "bracket_at", "interpolate_1d", "interpolate_1d_at", "interpolate_2d"]
 

@@ -18,8 +18,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from numba.extending import register_jitable
 
+from thermoelec.jit import register_jitable
 from thermoelec.physics.constants import STEFAN_BOLTZMANN
 
 __all__ = [

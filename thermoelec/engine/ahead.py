@@ -1,0 +1,150 @@
+"""The ahead-of-time build of the kernels a ``run`` calls: ``python -m thermoelec.engine.ahead``.
+
+``make setup`` runs it once. It compiles every kernel declared with
+:func:`thermoelec.jit.ahead_of_time` into one extension module with numba's
+ahead-of-time compiler (``numba.pycc``), from the same Python functions and with
+the same numba as the just-in-time path, so the two give the same numbers; the
+module is named after :func:`thermoelec.jit.source_key` and kept in
+``aot`` of thermoelec's cache folder (``$THERMOELEC_CACHE_DIR``). A build for
+other sources is removed when a new one lands. Without a build everything
+still runs, through numba's cache, a second or so slower to start.
+"""
+
+from __future__ import annotations
+
+import argparse
+import contextlib
+import importlib
+import os
+import shutil
+import sys
+import tempfile
+import time
+import warnings
+from collections.abc import Iterator
+from pathlib import Path
+
+from thermoelec import jit
+
+__all__ = ["KERNEL_MODULES", "build", "declared_kernels", "main"]
+
+#: The modules whose kernels a ``run`` calls from Python; importing them declares their kernels.
+KERNEL_MODULES = ("thermoelec.engine.model", "thermoelec.engine.mission", "thermoelec.engine.resolved")
+
+
+def declared_kernels() -> list[jit.Kernel]:
+    """The kernels with declared argument types, after importing :data:`KERNEL_MODULES`.
+
+    Returns
+    -------
+    list of thermoelec.jit.Kernel
+        In definition order [-].
+    """
+    for name in KERNEL_MODULES:
+        importlib.import_module(name)
+    return [kernel for kernel in jit.kernels() if kernel.signature is not None]
+
+
+@contextlib.contextmanager
+def _numpy_error_model() -> Iterator[None]:
+    """numba's ahead-of-time compiler with the kernels' ``error_model="numpy"`` (its default is "python").
+
+    A division by zero then gives inf or nan, as in the just-in-time kernels,
+    not a Python exception.
+    """
+    from numba.pycc import compiler
+
+    plain = compiler.Flags
+
+    class NumpyErrorFlags(plain):
+        def __init__(self, *args, **kwargs):
+            super().__init__(*args, **kwargs)
+            self.error_model = "numpy"
+
+    compiler.Flags = NumpyErrorFlags
+    try:
+        yield
+    finally:
+        compiler.Flags = plain
+
+
+def build(folder: Path) -> Path:
+    """Compile the declared kernels into ``folder``; returns the extension module's path.
+
+    The module is written in a temporary folder beside the target and moved
+    into place in one step, so a reader never sees half a build; builds of other
+    sources in ``folder`` are removed after.
+
+    Parameters
+    ----------
+    folder : pathlib.Path
+        Folder of builds, created when missing [-].
+
+    Returns
+    -------
+    pathlib.Path
+        The build [-].
+    """
+    kernels = declared_kernels()
+    jit.materialise()
+    from numba.pycc import CC
+
+    folder.mkdir(parents=True, exist_ok=True)
+    name = jit.build_name()
+    with tempfile.TemporaryDirectory(dir=folder, prefix=".building-") as scratch:
+        compiler = CC(name)
+        compiler.output_dir = scratch
+        compiler.verbose = False
+        for kernel in kernels:
+            compiler.export(kernel.export_name, kernel.signature)(kernel.py_func)
+        with warnings.catch_warnings(), _numpy_error_model():
+            warnings.simplefilter("ignore")  # numba's notice that pycc is deprecated; setuptools' notices
+            compiler.compile()
+        made = next(path for path in Path(scratch).iterdir() if path.name.startswith(name + "."))
+        target = folder / made.name
+        os.replace(made, target)
+    for stale in folder.glob(jit.BUILD_PREFIX + "*"):
+        if stale != target:
+            shutil.rmtree(stale) if stale.is_dir() else stale.unlink(missing_ok=True)
+    return target
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Build the kernels unless today's build is there; 0 on success, 1 with a message on failure.
+
+    Parameters
+    ----------
+    argv : list of str, optional
+        Command-line arguments (``--folder``, ``--force``) [-].
+
+    Returns
+    -------
+    int
+        Exit status [-].
+    """
+    parser = argparse.ArgumentParser(prog="python -m thermoelec.engine.ahead", description=__doc__.splitlines()[0])
+    parser.add_argument("--folder", type=Path, help="folder of builds (default: aot in thermoelec's cache folder)")
+    parser.add_argument("--force", action="store_true", help="build even when today's build is there")
+    args = parser.parse_args(argv)
+    folder = args.folder if args.folder is not None else jit.build_folder()
+    if folder is None:
+        print("thermoelec kernels: no cache folder (THERMOELEC_CACHE_DIR is empty); nothing built", file=sys.stderr)
+        return 0
+    present = jit.find_build(folder)
+    if present is not None and not args.force:
+        print(f"thermoelec kernels: built ahead of time, {present}")
+        return 0
+    print("thermoelec kernels: compiling the run's kernels ahead of time (once, half a minute)")
+    start = time.perf_counter()
+    try:
+        target = build(folder)
+    except Exception as exc:  # a failed build only costs start-up time: say so, never stop the set-up
+        print(f"thermoelec kernels: the ahead-of-time build failed ({type(exc).__name__}: {exc}); "
+              "run falls back to numba's cache", file=sys.stderr)
+        return 1
+    print(f"thermoelec kernels: built in {time.perf_counter() - start:.0f} s, {target}")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
