@@ -1,0 +1,187 @@
+"""The kernels compiled ahead of time (thermoelec.jit, thermoelec.engine.ahead) against numba's just-in-time ones.
+
+The build compiles the same Python functions with the same numba, so a ``run``
+through it must write the same files, byte for byte, as one through numba's
+dispatchers (``THERMOELEC_AOT=0``), without importing numba at all. A call the
+build was not compiled for (a strided or float32 array, say) must go to numba
+and give the answer of a contiguous float64 call: the build would misread it.
+"""
+
+from __future__ import annotations
+
+import os
+import shutil
+import subprocess
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+import thermoelec
+from thermoelec import jit
+from thermoelec.engine import ahead
+from thermoelec.engine import layout as L
+from thermoelec.engine.events import N_EVENTS
+from thermoelec.engine.problem import pack_parameters
+from thermoelec.physics.loads import MODE_CURRENT
+
+from ..helpers import scenario
+
+ROOT = Path(__file__).resolve().parents[2]
+SCENARIOS = ROOT / "scenarios"
+
+
+@pytest.fixture(scope="module")
+def build_path(tmp_path_factory) -> Path:
+    """Today's build: the one ``make setup`` made, else one made here (half a minute)."""
+    present = jit.find_build(jit.build_folder())
+    if present is not None:
+        return present
+    return ahead.build(tmp_path_factory.mktemp("aot"))
+
+
+@pytest.fixture(scope="module")
+def cache_with_build(build_path, tmp_path_factory) -> Path:
+    """A cache folder of its own holding the build, for commands run in a fresh process."""
+    cache = tmp_path_factory.mktemp("cache")
+    (cache / "aot").mkdir()
+    shutil.copy2(build_path, cache / "aot" / build_path.name)
+    return cache
+
+
+def _kernel(name: str) -> jit.Kernel:
+    ahead.declared_kernels()
+    return next(kernel for kernel in jit.kernels() if kernel.export_name == name)
+
+
+_RUN = "import sys; from thermoelec.cli import main; code = main(sys.argv[1:]); print('numba' in sys.modules); " \
+       "sys.exit(code)"
+
+
+def _run(scenario_file: Path, out: Path, cache: Path, aot: bool) -> str:
+    env = {**os.environ, "THERMOELEC_CACHE_DIR": str(cache), "PYTHONPATH": str(ROOT),
+           jit.AOT_ENV: "1" if aot else "0"}
+    done = subprocess.run([sys.executable, "-c", _RUN, "run", str(scenario_file), "--out", str(out), "--no-figures"],
+                          env=env, capture_output=True, text=True, timeout=600)
+    assert done.returncode == 0, done.stderr
+    return done.stdout.strip().splitlines()[-1]
+
+
+@pytest.mark.parametrize("name", ["ebike_route", "cargo_robot_pack"])
+def test_a_run_through_the_build_writes_the_files_of_a_run_through_numba(name, cache_with_build, tmp_path):
+    # ebike_route: a CSV power profile, then a CC-CV charge; cargo_robot_pack: every cell of a 14s4p pack resolved
+    built = _run(SCENARIOS / f"{name}.toml", tmp_path / "built", cache_with_build, aot=True)
+    jitted = _run(SCENARIOS / f"{name}.toml", tmp_path / "jitted", cache_with_build, aot=False)
+    assert built == "False", "a run through the build imported numba"
+    assert jitted == "True"
+    for output in ("summary.json", "timeseries.csv"):
+        assert (tmp_path / "built" / output).read_bytes() == (tmp_path / "jitted" / output).read_bytes(), output
+
+
+def _rc_problem():
+    data = scenario(cell={**scenario()["cell"], "rc": [{"resistance": "10 mohm", "time_constant": "20 s"}]},
+                    segments=[{"mode": "current", "value": "5 A", "duration": "60 s"}])
+    problem = thermoelec.scenario_from_dict(data).problem()
+    p = pack_parameters(problem)
+    p[L.H_MODE], p[L.H_VALUE] = MODE_CURRENT, 5.0
+    y = problem.initial_state()
+    y[1] = 0.02
+    return p, y
+
+
+def test_the_build_and_numba_give_the_same_right_hand_side_roots_and_jacobian(build_path):
+    built = jit._import_extension(build_path)
+    p, y = _rc_problem()
+    n = y.size
+    rhs, roots, jacobian = _kernel("model__rhs"), _kernel("model__roots"), _kernel("model__jacobian")
+    jit.materialise()
+    alg = np.empty(L.N_ALGEBRAICS)
+    for kernel, make in ((rhs, lambda: (y.copy(), np.empty(n), p.copy(), alg.copy())),
+                         (roots, lambda: (y.copy(), np.empty(N_EVENTS), p.copy(), alg.copy(), np.empty(n))),
+                         (jacobian, lambda: (y.copy(), np.empty((n, n)), p.copy(), alg.copy(), np.empty(n),
+                                             np.empty(n), np.empty(n)))):
+        by_build, by_numba = make(), make()
+        getattr(built, kernel.export_name)(*by_build)
+        kernel.dispatcher(*by_numba)
+        np.testing.assert_array_equal(by_build[1], by_numba[1], err_msg=kernel.export_name)
+
+
+@pytest.mark.parametrize("layout", ["strided", "float32"])
+def test_a_call_the_build_was_not_made_for_goes_to_numba_with_the_same_answer(layout):
+    p, y = _rc_problem()
+    rhs = _kernel("model__rhs")
+    expected = np.empty(y.size)
+    rhs(y, expected, p, np.empty(L.N_ALGEBRAICS))
+    if layout == "strided":
+        odd = np.zeros(2 * y.size)
+        odd[::2] = y
+        odd = odd[::2]
+    else:
+        odd = y.astype(np.float32)
+    assert not jit._fits((odd, expected, p, p), jit.parse_signature(rhs.signature)[1])
+    ydot = np.empty(y.size)
+    rhs(odd, ydot, p, np.empty(L.N_ALGEBRAICS))
+    reference = np.empty(y.size)
+    rhs(np.ascontiguousarray(odd, dtype=np.float64), reference, p, np.empty(L.N_ALGEBRAICS))
+    np.testing.assert_array_equal(ydot, reference)
+    if layout == "strided":
+        np.testing.assert_array_equal(ydot, expected)
+
+
+def test_signatures_are_read_into_scalars_and_contiguous_arrays():
+    returns, arguments = jit.parse_signature("f8(f8[::1], i8, f8[:, ::1], b1[::1], f8[:, :, ::1])")
+    assert returns == "f8"
+    assert arguments == (jit.Argument("f8", 1), jit.Argument("i8", 0), jit.Argument("f8", 2),
+                         jit.Argument("b1", 1), jit.Argument("f8", 3))
+    assert jit.parse_signature("void()") == ("void", ())
+
+
+@pytest.mark.parametrize("signature", ["void(f8[:])", "void(f8[::1, :])", "void(f4[::1])", "void f8", "c16(f8)",
+                                       "void(f8[:, :])"])
+def test_signatures_the_guard_cannot_check_are_refused(signature):
+    with pytest.raises(ValueError, match="signature"):
+        jit.parse_signature(signature)
+
+
+def test_only_a_kernel_takes_declared_types():
+    with pytest.raises(TypeError, match=r"thermoelec\.jit\.njit"):
+        jit.ahead_of_time("void(f8[::1])")(lambda x: None)
+
+
+class _Marked(np.ndarray):
+    pass
+
+
+def _readonly(shape):
+    array = np.zeros(shape)
+    array.flags.writeable = False
+    return array
+
+
+@pytest.mark.parametrize(("args", "fits"), [
+    ((np.zeros(3), 2, np.zeros((2, 2))), True),
+    ((np.zeros(3), np.int64(2), np.zeros((2, 2))), True),
+    ((np.zeros(6)[::2], 2, np.zeros((2, 2))), False),                         # strided
+    ((np.zeros(3, dtype=np.float32), 2, np.zeros((2, 2))), False),            # float32
+    ((np.zeros(3), 2, np.asfortranarray(np.zeros((2, 3)))), False),          # Fortran order
+    ((np.zeros(3), 2, np.zeros(4)), False),                                   # one dimension short
+    ((_readonly(3), 2, np.zeros((2, 2))), False),                             # read-only
+    ((np.zeros(3).view(_Marked), 2, np.zeros((2, 2))), False),                # a subclass
+    ((np.zeros(3), 2.0, np.zeros((2, 2))), False),                            # a float for an integer
+    ((np.zeros(3), 2), False),                                                 # an argument short
+])
+def test_the_guard_passes_only_exactly_the_declared_types(args, fits):
+    assert jit._fits(args, jit.parse_signature("void(f8[::1], i8, f8[:, ::1])")[1]) is fits
+
+
+def test_an_integer_or_a_numpy_float_is_a_float_argument():
+    arguments = jit.parse_signature("void(f8, b1)")[1]
+    assert jit._fits((3, True), arguments)
+    assert jit._fits((np.float64(3.5), np.bool_(False)), arguments)
+    assert not jit._fits((3.5, 1), arguments)
+
+
+def test_the_build_command_keeps_todays_build(cache_with_build, capsys):
+    assert ahead.main(["--folder", str(cache_with_build / "aot")]) == 0
+    assert "built ahead of time" in capsys.readouterr().out
