@@ -10,6 +10,8 @@ machine is shared and noisy):
 - ``thermoelec run MISSION --out DIR --no-figures`` of the 10-minute mission of
   ``bench_single_mission.py`` (1 Hz power profile with regeneration, one RC
   pair, a 2-D R0 table, entropic heat, 4s2p), summary, time series CSV and NetCDF;
+- the same ``run`` with ``THERMOELEC_AOT=0``: its kernels from numba's cache,
+  not from the ahead-of-time build ``make setup`` makes (``thermoelec.jit``);
 - ``thermoelec sweep MISSION --out DIR --no-figures --sweep KEY=ONE_VALUE``: the
   same mission as a one-scenario sweep (batched solver, ``sweep.nc`` and ``sweep.csv``);
 - the solve alone, in this process after a first call: the CVODE integration
@@ -29,6 +31,7 @@ timed run of each, a check that the script works).
 from __future__ import annotations
 
 import argparse
+import os
 import subprocess
 import sys
 import tempfile
@@ -38,6 +41,7 @@ from pathlib import Path
 from bench_sweep_scale import write_mission
 
 import thermoelec
+from thermoelec import jit
 from thermoelec.analysis import sweep
 from thermoelec.engine.driver import integrate_problem
 
@@ -49,12 +53,12 @@ SWEEP_ITEM = "thermal.ambient_temperature=25 degC"
 THERMOELEC = [sys.executable, "-m", "thermoelec.cli"]
 
 
-def fresh_wall(command: list[str], repeats: int) -> float:
-    """The best wall time [s] of ``repeats`` fresh processes running ``command``."""
+def fresh_wall(command: list[str], repeats: int, env: dict[str, str] | None = None) -> float:
+    """The best wall time [s] of ``repeats`` fresh processes running ``command`` (in ``env``, default ours)."""
     best = float("inf")
     for _ in range(repeats):
         started = time.perf_counter()
-        subprocess.run(command, check=True, stdout=subprocess.DEVNULL)
+        subprocess.run(command, check=True, stdout=subprocess.DEVNULL, env=env)
         best = min(best, time.perf_counter() - started)
     return best
 
@@ -81,12 +85,16 @@ def main() -> None:
         run = [*THERMOELEC, "run", str(mission), "--out", str(folder / "run"), "--no-figures", "--quiet"]
         one = [*THERMOELEC, "sweep", str(mission), "--out", str(folder / "sweep"), "--no-figures", "--quiet",
                "--sweep", SWEEP_ITEM]
+        numba_only = {**os.environ, jit.AOT_ENV: "0"}
         for command in (run, one):  # kernels from numba's cache, conversions from the unit cache
             subprocess.run(command, check=True, stdout=subprocess.DEVNULL)
+        subprocess.run(run, check=True, stdout=subprocess.DEVNULL, env=numba_only)
         floors = {"python -c pass": fresh_wall([sys.executable, "-c", "pass"], repeats),
                   "import numpy, scipy, pandas": fresh_wall([sys.executable, "-c", "import numpy, scipy, pandas"],
                                                             repeats)}
-        walls = {"run --no-figures": fresh_wall(run, repeats), "one-scenario sweep": fresh_wall(one, repeats)}
+        walls = {"run --no-figures": fresh_wall(run, repeats),
+                 "run, numba only": fresh_wall(run, repeats, numba_only),
+                 "one-scenario sweep": fresh_wall(one, repeats)}
 
         scenario = thermoelec.load_scenario(mission)
         problem, options = scenario.problem(), scenario.solver_options()
@@ -102,9 +110,13 @@ def main() -> None:
         solve_run(), solve_sweep()  # the kernels loaded once in this process
         solves = {"run --no-figures": best_of(solve_run, max(repeats, 2)),
                   "one-scenario sweep": best_of(solve_sweep, max(repeats, 2))}
+        solves["run, numba only"] = solves["run --no-figures"]
 
     floor = floors["import numpy, scipy, pandas"]
+    build = jit.find_build(jit.build_folder())
     print(f"fixed cost of a command, {MISSION_S // 60}-minute mission at 1 Hz; best of {repeats} fresh processes")
+    kernels = f"built ahead of time, {build.name}" if build else "no ahead-of-time build (make setup)"
+    print(f"  run's kernels: {kernels}")
     for label, wall in floors.items():
         print(f"  floor: {label:<29} {wall:6.2f} s")
     print(f"{'command':<20} {'wall [s]':>9} {'solve [s]':>10} {'fixed [s]':>10} {'fixed / floor':>14}  "
