@@ -10,8 +10,9 @@ machine is shared and noisy):
 - ``thermoelec run MISSION --out DIR --no-figures`` of the 10-minute mission of
   ``bench_single_mission.py`` (1 Hz power profile with regeneration, one RC
   pair, a 2-D R0 table, entropic heat, 4s2p), summary, time series CSV and NetCDF;
-- the same ``run`` with ``THERMOELEC_AOT=0``: its kernels from numba's cache,
-  not from the ahead-of-time build ``make setup`` makes (``thermoelec.jit``);
+- the same ``run`` and sweep with ``THERMOELEC_AOT=0``: their kernels from
+  numba's cache, not from the ahead-of-time build ``make setup`` makes
+  (``thermoelec.jit``);
 - ``thermoelec sweep MISSION --out DIR --no-figures --sweep KEY=ONE_VALUE``: the
   same mission as a one-scenario sweep (batched solver, ``sweep.nc`` and ``sweep.csv``);
 - the solve alone, in this process after a first call: the CVODE integration
@@ -88,13 +89,15 @@ def main() -> None:
         numba_only = {**os.environ, jit.AOT_ENV: "0"}
         for command in (run, one):  # kernels from numba's cache, conversions from the unit cache
             subprocess.run(command, check=True, stdout=subprocess.DEVNULL)
-        subprocess.run(run, check=True, stdout=subprocess.DEVNULL, env=numba_only)
+        for command in (run, one):
+            subprocess.run(command, check=True, stdout=subprocess.DEVNULL, env=numba_only)
         floors = {"python -c pass": fresh_wall([sys.executable, "-c", "pass"], repeats),
                   "import numpy, scipy, pandas": fresh_wall([sys.executable, "-c", "import numpy, scipy, pandas"],
                                                             repeats)}
         walls = {"run --no-figures": fresh_wall(run, repeats),
                  "run, numba only": fresh_wall(run, repeats, numba_only),
-                 "one-scenario sweep": fresh_wall(one, repeats)}
+                 "one-scenario sweep": fresh_wall(one, repeats),
+                 "sweep, numba only": fresh_wall(one, repeats, numba_only)}
 
         scenario = thermoelec.load_scenario(mission)
         problem, options = scenario.problem(), scenario.solver_options()
@@ -111,12 +114,13 @@ def main() -> None:
         solves = {"run --no-figures": best_of(solve_run, max(repeats, 2)),
                   "one-scenario sweep": best_of(solve_sweep, max(repeats, 2))}
         solves["run, numba only"] = solves["run --no-figures"]
+        solves["sweep, numba only"] = solves["one-scenario sweep"]
 
     floor = floors["import numpy, scipy, pandas"]
     build = jit.find_build(jit.build_folder())
     print(f"fixed cost of a command, {MISSION_S // 60}-minute mission at 1 Hz; best of {repeats} fresh processes")
     kernels = f"built ahead of time, {build.name}" if build else "no ahead-of-time build (make setup)"
-    print(f"  run's kernels: {kernels}")
+    print(f"  kernels: {kernels}")
     for label, wall in floors.items():
         print(f"  floor: {label:<29} {wall:6.2f} s")
     print(f"{'command':<20} {'wall [s]':>9} {'solve [s]':>10} {'fixed [s]':>10} {'fixed / floor':>14}  "

@@ -80,7 +80,7 @@ def test_fixed_cost_benchmark_runs_quick():
     out = _run("bench_fixed_cost.py", "--quick")
     assert "floor: import numpy, scipy, pandas" in out and "fixed / floor" in out
     assert "run --no-figures" in out and "one-scenario sweep" in out and "target < 1.5 s" in out
-    assert "run, numba only" in out and "run's kernels: " in out
+    assert "run, numba only" in out and "sweep, numba only" in out and "kernels: " in out
 
 
 @pytest.mark.slow

@@ -1,9 +1,10 @@
 """Compiled kernels: a build made ahead of time where one fits, numba's just-in-time compiler otherwise.
 
-A ``run`` calls a dozen kernels, each once per CVODE callback. Loading them from
-numba's cache costs about a second in a fresh process (numba's import, then type
-inference and a cache lookup per kernel), more than the solve of a short
-mission. So the kernels a ``run`` calls declare their argument types once
+A ``run`` calls a dozen kernels, each once per CVODE callback, and a sweep one
+batched solver per chunk. Loading them from numba's cache costs about a second in
+a fresh process or worker (numba's import, then type inference and a cache lookup
+per kernel), more than the solve of a short mission. So the kernels called from
+Python declare their argument types once
 (:func:`ahead_of_time`), and ``make setup`` compiles them into one extension
 module (:mod:`thermoelec.engine.ahead`), named after a hash of the engine's and
 physics' sources: an edit of either makes a new name, and the stale build is
@@ -90,10 +91,10 @@ class Argument:
 
 
 def _split_top_level(text: str) -> list[str]:
-    """``text`` split at the commas outside brackets, each part stripped; [] for blank text."""
+    """``text`` split at the commas outside brackets and parentheses, each part stripped; [] for blank text."""
     parts, depth, start = [], 0, 0
     for i, char in enumerate(text):
-        depth += (char == "[") - (char == "]")
+        depth += (char in "[(") - (char in "])")
         if char == "," and depth == 0:
             parts.append(text[start:i].strip())
             start = i + 1
@@ -122,8 +123,8 @@ def parse_signature(signature: str) -> tuple[str, tuple[Argument, ...]]:
     """A signature such as ``"void(f8[::1], f8[:, ::1], i8)"`` read into its return code and arguments.
 
     Only what the build and its guard both understand is accepted: scalars
-    ``f8``, ``i8``, ``b1`` and C-contiguous arrays of them; the return ``void`` or
-    a scalar.
+    ``f8``, ``i8``, ``b1`` and C-contiguous arrays of them; the return ``void``, a
+    scalar or a ``Tuple((...))`` of those (arrays made inside the kernel).
 
     Parameters
     ----------
@@ -133,7 +134,7 @@ def parse_signature(signature: str) -> tuple[str, tuple[Argument, ...]]:
     Returns
     -------
     returns : str
-        Return code, ``void``, ``f8``, ``i8`` or ``b1`` [-].
+        Return type, ``void``, ``f8``, ``i8``, ``b1`` or ``Tuple((...))`` as written [-].
     arguments : tuple of Argument
         The arguments in order [-].
 
@@ -142,12 +143,21 @@ def parse_signature(signature: str) -> tuple[str, tuple[Argument, ...]]:
     ValueError
         For any other form of signature.
     """
-    head, bracket, rest = signature.partition("(")
-    returns = head.strip()
-    if not bracket or not rest.rstrip().endswith(")") or returns not in _RETURNS:
-        raise ValueError(f"signature {signature!r} is not of the form 'void(f8[::1], i8)' (returns void, f8, i8 or b1)")
-    inner = rest.rstrip()[:-1]
-    return returns, tuple(_argument(part, signature) for part in _split_top_level(inner))
+    text = signature.strip()
+    opening, depth = -1, 0
+    for i in range(len(text) - 1, -1, -1):  # the parenthesis that opens the argument list
+        depth += (text[i] == ")") - (text[i] == "(")
+        if depth == 0:
+            opening = i
+            break
+    returns = text[:opening].strip() if text.endswith(")") and opening > 0 else ""
+    if returns.startswith("Tuple((") and returns.endswith("))"):
+        for member in _split_top_level(returns[len("Tuple(("):-2]):
+            _argument(member, signature)
+    elif returns not in _RETURNS:
+        raise ValueError(f"signature {signature!r} is not of the form 'void(f8[::1], i8)' "
+                         "(returns void, f8, i8, b1 or a Tuple((...)) of them)")
+    return returns, tuple(_argument(part, signature) for part in _split_top_level(text[opening + 1:-1]))
 
 
 def _fits(args: tuple, arguments: tuple[Argument, ...]) -> bool:

@@ -59,11 +59,11 @@ _RUN = "import sys; from thermoelec.cli import main; code = main(sys.argv[1:]); 
        "sys.exit(code)"
 
 
-def _run(scenario_file: Path, out: Path, cache: Path, aot: bool) -> str:
+def _run(scenario_file: Path, out: Path, cache: Path, aot: bool, command: tuple[str, ...] = ("run",)) -> str:
     env = {**os.environ, "THERMOELEC_CACHE_DIR": str(cache), "PYTHONPATH": str(ROOT),
            jit.AOT_ENV: "1" if aot else "0"}
-    done = subprocess.run([sys.executable, "-c", _RUN, "run", str(scenario_file), "--out", str(out), "--no-figures"],
-                          env=env, capture_output=True, text=True, timeout=600)
+    done = subprocess.run([sys.executable, "-c", _RUN, command[0], str(scenario_file), "--out", str(out),
+                           "--no-figures", *command[1:]], env=env, capture_output=True, text=True, timeout=600)
     assert done.returncode == 0, done.stderr
     return done.stdout.strip().splitlines()[-1]
 
@@ -77,6 +77,16 @@ def test_a_run_through_the_build_writes_the_files_of_a_run_through_numba(name, c
     assert jitted == "True"
     for output in ("summary.json", "timeseries.csv"):
         assert (tmp_path / "built" / output).read_bytes() == (tmp_path / "jitted" / output).read_bytes(), output
+
+
+@pytest.mark.parametrize("name", ["drone_delivery", "cargo_robot_pack"])
+def test_a_sweep_through_the_build_writes_the_table_of_a_sweep_through_numba(name, cache_with_build, tmp_path):
+    # the batched solver: drone_delivery on its plain right-hand side, cargo_robot_pack on the general one
+    sweep = ("sweep", "--sweep", "thermal.ambient_temperature=5 degC,35 degC", "--workers", "1", "--quiet")
+    built = _run(SCENARIOS / f"{name}.toml", tmp_path / "built", cache_with_build, True, sweep)
+    jitted = _run(SCENARIOS / f"{name}.toml", tmp_path / "jitted", cache_with_build, False, sweep)
+    assert (built, jitted) == ("False", "True")
+    assert (tmp_path / "built" / "sweep.csv").read_bytes() == (tmp_path / "jitted" / "sweep.csv").read_bytes()
 
 
 def _rc_problem():
@@ -135,10 +145,13 @@ def test_signatures_are_read_into_scalars_and_contiguous_arrays():
     assert arguments == (jit.Argument("f8", 1), jit.Argument("i8", 0), jit.Argument("f8", 2),
                          jit.Argument("b1", 1), jit.Argument("f8", 3))
     assert jit.parse_signature("void()") == ("void", ())
+    returns, arguments = jit.parse_signature("Tuple((f8[:, ::1], i8[::1]))(f8[:, ::1], b1)")
+    assert returns == "Tuple((f8[:, ::1], i8[::1]))"
+    assert arguments == (jit.Argument("f8", 2), jit.Argument("b1", 0))
 
 
 @pytest.mark.parametrize("signature", ["void(f8[:])", "void(f8[::1, :])", "void(f4[::1])", "void f8", "c16(f8)",
-                                       "void(f8[:, :])"])
+                                       "void(f8[:, :])", "Tuple((f8[:], i8))(f8)", "(f8)"])
 def test_signatures_the_guard_cannot_check_are_refused(signature):
     with pytest.raises(ValueError, match="signature"):
         jit.parse_signature(signature)

@@ -1,4 +1,4 @@
-"""The ahead-of-time build of the kernels a ``run`` calls: ``python -m thermoelec.engine.ahead``.
+"""The ahead-of-time build of the kernels a ``run`` and a sweep call: ``python -m thermoelec.engine.ahead``.
 
 ``make setup`` runs it once. It compiles every kernel declared with
 :func:`thermoelec.jit.ahead_of_time` into one extension module with numba's
@@ -7,7 +7,8 @@ the same numba as the just-in-time path, so the two give the same numbers; the
 module is named after :func:`thermoelec.jit.source_key` and kept in
 ``aot`` of thermoelec's cache folder (``$THERMOELEC_CACHE_DIR``). A build for
 other sources is removed when a new one lands. Without a build everything
-still runs, through numba's cache, a second or so slower to start.
+still runs, through numba's cache, a second or so slower to start (each sweep
+worker too).
 """
 
 from __future__ import annotations
@@ -28,8 +29,10 @@ from thermoelec import jit
 
 __all__ = ["KERNEL_MODULES", "build", "declared_kernels", "main"]
 
-#: The modules whose kernels a ``run`` calls from Python; importing them declares their kernels.
-KERNEL_MODULES = ("thermoelec.engine.model", "thermoelec.engine.mission", "thermoelec.engine.resolved")
+#: The modules whose kernels a ``run`` and a sweep's batched solver call from Python; importing them declares
+#: their kernels.
+KERNEL_MODULES = ("thermoelec.engine.model", "thermoelec.engine.mission", "thermoelec.engine.resolved",
+                  "thermoelec.engine.batch")
 
 
 def declared_kernels() -> list[jit.Kernel]:
@@ -134,7 +137,7 @@ def main(argv: list[str] | None = None) -> int:
     if present is not None and not args.force:
         print(f"thermoelec kernels: built ahead of time, {present}")
         return 0
-    print("thermoelec kernels: compiling the run's kernels ahead of time (once, half a minute)")
+    print("thermoelec kernels: compiling the kernels of run and sweep ahead of time (once, half a minute)")
     start = time.perf_counter()
     try:
         target = build(folder)

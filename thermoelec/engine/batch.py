@@ -428,6 +428,10 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
     return 0, -1, t, -1
 
 
+@jit.ahead_of_time("Tuple((f8[:, ::1], f8[:, ::1], i8[::1], i8[::1], f8[::1], i8[::1]))("
+                   "f8[:, ::1], i8[::1], i8[:, ::1], f8[:, :, ::1], f8[:, :, ::1], f8[:, ::1], f8[:, ::1], "
+                   "f8[:, :, ::1], i8[:, :, ::1], f8[:, :, ::1], b1[:, ::1], f8[:, ::1], f8, f8[:, ::1], "
+                   "f8[::1], f8[::1], f8[::1], f8[::1], f8[::1], i8, b1)")
 @jit.njit(cache=True, error_model="numpy")
 def _integrate_many(params, profile, n_phases, modes, values, durations, ambients, setups, setup_index, switches,
                     controls, y0, rtol, atol, ea, t_ref, t_charge_min, hot0, cold0, ts_index, plain):
