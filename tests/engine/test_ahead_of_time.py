@@ -13,6 +13,8 @@ import os
 import shutil
 import subprocess
 import sys
+import threading
+import time
 from pathlib import Path
 
 import numpy as np
@@ -87,6 +89,28 @@ def test_a_sweep_through_the_build_writes_the_table_of_a_sweep_through_numba(nam
     jitted = _run(SCENARIOS / f"{name}.toml", tmp_path / "jitted", cache_with_build, False, sweep)
     assert (built, jitted) == ("False", "True")
     assert (tmp_path / "built" / "sweep.csv").read_bytes() == (tmp_path / "jitted" / "sweep.csv").read_bytes()
+
+
+def test_the_batched_solve_lets_other_threads_run(build_path):
+    # a sweep's command solves chunks itself while its pool's threads feed the workers: the solve must not
+    # hold the GIL (nogil in numba, release_gil in the build), or a worker waits for each of its chunks
+    from thermoelec.engine import batch
+
+    loaded = thermoelec.load_scenario(SCENARIOS / "ebike_route.toml")
+    problem, options = loaded.problem(), loaded.solver_options()
+    batch.solve_batch([problem], options)  # loaded once
+    problems = [problem] * 160  # about half a second
+    done = threading.Event()
+    solver = threading.Thread(target=lambda: (batch.solve_batch(problems, options), done.set()))
+    longest_gap, last = 0.0, time.perf_counter()
+    started = last
+    solver.start()
+    while not done.is_set():
+        now = time.perf_counter()
+        longest_gap, last = max(longest_gap, now - last), now
+    solver.join()
+    # holding the GIL, this loop would stand still for the whole solve
+    assert longest_gap < 0.5 * (time.perf_counter() - started)
 
 
 def _rc_problem():

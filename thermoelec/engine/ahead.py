@@ -27,7 +27,7 @@ from pathlib import Path
 
 from thermoelec import jit
 
-__all__ = ["KERNEL_MODULES", "build", "declared_kernels", "main"]
+__all__ = ["BUILD_OPTIONS", "KERNEL_MODULES", "build", "declared_kernels", "main"]
 
 #: The modules whose kernels a ``run`` and a sweep's batched solver call from Python; importing them declares
 #: their kernels.
@@ -48,23 +48,30 @@ def declared_kernels() -> list[jit.Kernel]:
     return [kernel for kernel in jit.kernels() if kernel.signature is not None]
 
 
-@contextlib.contextmanager
-def _numpy_error_model() -> Iterator[None]:
-    """numba's ahead-of-time compiler with the kernels' ``error_model="numpy"`` (its default is "python").
+#: The njit options every declared kernel must have: the build compiles all of them with these.
+BUILD_OPTIONS = {"error_model": "numpy", "nogil": True}
 
-    A division by zero then gives inf or nan, as in the just-in-time kernels,
-    not a Python exception.
+
+@contextlib.contextmanager
+def _kernel_flags() -> Iterator[None]:
+    """numba's ahead-of-time compiler with the kernels' own options (:data:`BUILD_OPTIONS`).
+
+    pycc compiles with the "python" error model and holds the GIL by default. With
+    the numpy model a division by zero gives inf or nan, as in the just-in-time
+    kernels, not a Python exception; without the GIL a sweep's command process
+    keeps feeding its workers while it solves a chunk itself.
     """
     from numba.pycc import compiler
 
     plain = compiler.Flags
 
-    class NumpyErrorFlags(plain):
+    class KernelFlags(plain):
         def __init__(self, *args, **kwargs):
             super().__init__(*args, **kwargs)
-            self.error_model = "numpy"
+            self.error_model = BUILD_OPTIONS["error_model"]
+            self.release_gil = BUILD_OPTIONS["nogil"]
 
-    compiler.Flags = NumpyErrorFlags
+    compiler.Flags = KernelFlags
     try:
         yield
     finally:
@@ -89,6 +96,10 @@ def build(folder: Path) -> Path:
         The build [-].
     """
     kernels = declared_kernels()
+    differing = [kernel.export_name for kernel in kernels
+                 if any(kernel.options.get(key) != value for key, value in BUILD_OPTIONS.items())]
+    if differing:
+        raise ValueError(f"kernels declared for the build need the options {BUILD_OPTIONS}: {', '.join(differing)}")
     jit.materialise()
     from numba.pycc import CC
 
@@ -100,7 +111,7 @@ def build(folder: Path) -> Path:
         compiler.verbose = False
         for kernel in kernels:
             compiler.export(kernel.export_name, kernel.signature)(kernel.py_func)
-        with warnings.catch_warnings(), _numpy_error_model():
+        with warnings.catch_warnings(), _kernel_flags():
             warnings.simplefilter("ignore")  # numba's notice that pycc is deprecated; setuptools' notices
             compiler.compile()
         made = next(path for path in Path(scratch).iterdir() if path.name.startswith(name + "."))

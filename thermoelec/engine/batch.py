@@ -432,7 +432,7 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
                    "f8[:, ::1], i8[::1], i8[:, ::1], f8[:, :, ::1], f8[:, :, ::1], f8[:, ::1], f8[:, ::1], "
                    "f8[:, :, ::1], i8[:, :, ::1], f8[:, :, ::1], b1[:, ::1], f8[:, ::1], f8, f8[:, ::1], "
                    "f8[::1], f8[::1], f8[::1], f8[::1], f8[::1], i8, b1)")
-@jit.njit(cache=True, error_model="numpy")
+@jit.njit(cache=True, nogil=True, error_model="numpy")  # without the GIL: the command feeds its workers meanwhile
 def _integrate_many(params, profile, n_phases, modes, values, durations, ambients, setups, setup_index, switches,
                     controls, y0, rtol, atol, ea, t_ref, t_charge_min, hot0, cold0, ts_index, plain):
     """Every scenario of a batch; scenario ``s`` runs the segments of profile ``profile[s]``."""
