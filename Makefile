@@ -96,6 +96,7 @@ bench: $(STAMP) kernels
 	$(BIN)/python benchmarks/bench_sweep.py
 	$(BIN)/python benchmarks/bench_sweep_scale.py
 	$(BIN)/python benchmarks/bench_sweep_figures.py
+	$(BIN)/python benchmarks/bench_end_to_end.py
 	$(BIN)/python benchmarks/bench_uncertainty.py
 	$(BIN)/python benchmarks/bench_options.py
 	$(BIN)/python benchmarks/bench_pack.py
@@ -108,6 +109,7 @@ bench-quick: $(STAMP) kernels
 	$(BIN)/python benchmarks/bench_sweep.py --quick
 	$(BIN)/python benchmarks/bench_sweep_scale.py --quick
 	$(BIN)/python benchmarks/bench_sweep_figures.py --quick
+	$(BIN)/python benchmarks/bench_end_to_end.py --quick
 	$(BIN)/python benchmarks/bench_uncertainty.py --quick
 	$(BIN)/python benchmarks/bench_options.py --quick
 	$(BIN)/python benchmarks/bench_pack.py --quick

@@ -76,6 +76,13 @@ def test_capability_benchmark_runs_quick():
 
 
 @pytest.mark.slow
+def test_end_to_end_benchmark_runs_quick():
+    out = _run("bench_end_to_end.py", "--quick")
+    assert "thermoelec sweep --workers 2 end to end" in out and "floor process" in out and "figures" in out
+    assert "scenario-hours/s on 2 processes" in out
+
+
+@pytest.mark.slow
 def test_fixed_cost_benchmark_runs_quick():
     out = _run("bench_fixed_cost.py", "--quick")
     assert "floor: import numpy, scipy, pandas" in out and "fixed / floor" in out
