@@ -119,6 +119,23 @@ def test_a_big_third_axis_draws_at_most_a_dozen_facets():
     assert sum(1 for ax in fig.axes if ax.get_title()) == sweep_figures.MAX_FACETS  # one title per facet drawn
 
 
+def test_only_the_outer_facets_carry_ticks():
+    # small multiples on shared axes: ticks along the bottom of each column and the left of each row
+    # (common practice); ten facets on four columns leave the bottom of columns 3 and 4 on the second row
+    loaded = thermoelec.scenario_from_dict(scenario(sweep={
+        "thermal.sink_to_ambient": SINK, "profile.segment[1].value": CURRENT,
+        "thermal.ambient_temperature": {"start": "0 degC", "stop": "36 degC", "num": 10}}))
+    plan = sweep.plan_sweep(loaded)
+    fig = sweep_figures.sweep_map(sweep.sweep_dataset(loaded, plan, _rows(plan)), "cell_temperature_max_degC")
+    facets = [ax for ax in fig.axes if ax.get_title()]
+    assert len(facets) == 10
+    assert [k for k, ax in enumerate(facets) if ax.xaxis.get_visible()] == [6, 7, 8, 9]
+    assert [k for k, ax in enumerate(facets) if ax.yaxis.get_visible()] == [0, 4, 8]
+    assert all(ax.get_xlabel() for ax in facets[6:]) and all(ax.get_ylabel() for ax in facets[::4])
+    fig.canvas.draw()  # the visible ones show their tick labels, shared axes notwithstanding
+    assert all(any(t.get_visible() and t.get_text() for t in ax.get_xticklabels()) for ax in facets[6:])
+
+
 def test_axis_labels_name_the_key_and_its_unit():
     assert sweep_figures.axis_label("thermal.convection.coefficient", "W/m^2/K") == \
         "convection coefficient [W/m^2/K]"
