@@ -236,15 +236,19 @@ def njit(**options) -> Callable[[Callable], Kernel]:
     Returns
     -------
     callable
-        The decorator [-].
+        The decorator: it makes a :class:`Kernel`, or numba's dispatcher at once when numba is
+        already in use (:func:`materialise`) [-].
     """
 
-    def decorate(py_func: Callable) -> Kernel:
+    def decorate(py_func: Callable):
         kernel = Kernel(py_func, options)
         with _lock:
             _kernels.append(kernel)
             if _materialised:
+                # a module imported once numba is in use: its globals must hold dispatchers from the start,
+                # for numba to compile its kernels that call one another
                 _materialise_one(kernel)
+                return kernel.dispatcher
         return kernel
 
     return decorate
@@ -265,10 +269,12 @@ def ahead_of_time(signature: str) -> Callable[[Kernel], Kernel]:
     """
     parse_signature(signature)
 
-    def declare(kernel: Kernel) -> Kernel:
-        if not isinstance(kernel, Kernel):
+    def declare(kernel):
+        made = kernel if isinstance(kernel, Kernel) else next(
+            (k for k in kernels() if k.dispatcher is not None and k.dispatcher is kernel), None)
+        if made is None:
             raise TypeError(f"ahead_of_time({signature!r}) must decorate a kernel made by thermoelec.jit.njit")
-        kernel.signature = signature
+        made.signature = signature
         return kernel
 
     return declare

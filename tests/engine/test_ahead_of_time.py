@@ -183,6 +183,23 @@ def test_signatures_the_guard_cannot_check_are_refused(signature):
         jit.parse_signature(signature)
 
 
+def test_kernels_made_once_numba_is_in_use_compile_calls_between_them():
+    # a kernel module imported after the first numba call: its kernels are dispatchers from the start
+    jit.materialise()
+
+    @jit.njit(cache=False)
+    def half(x):
+        return 0.5 * x
+
+    @jit.ahead_of_time("f8(f8)")
+    @jit.njit(cache=False)
+    def quarter(x):
+        return half(half(x))
+
+    assert quarter(3.0) == 0.75  # 3 / 4 exactly in binary
+    assert next(k for k in jit.kernels() if k.dispatcher is quarter).signature == "f8(f8)"
+
+
 def test_only_a_kernel_takes_declared_types():
     with pytest.raises(TypeError, match=r"thermoelec\.jit\.njit"):
         jit.ahead_of_time("void(f8[::1])")(lambda x: None)
