@@ -136,6 +136,17 @@ def test_only_the_outer_facets_carry_ticks():
     assert all(any(t.get_visible() and t.get_text() for t in ax.get_xticklabels()) for ax in facets[6:])
 
 
+def test_a_zipped_group_has_a_tick_at_each_case():
+    loaded = thermoelec.scenario_from_dict(scenario(sweep={
+        "thermal.sink_to_ambient": SINK, "zip": {"route": {"profile.scale": [0.85, 1.0, 1.15]}}}))
+    plan = sweep.plan_sweep(loaded)
+    ds = sweep.sweep_dataset(loaded, plan, _rows(plan, stopped_at=(0, 0), failed_at=(1, 1)))
+    fig = sweep_figures.sweep_map(ds, "cell_temperature_max_degC")
+    ax = fig.axes[0]
+    cases = ax.get_xticks() if ds["cell_temperature_max_degC"].dims[1] == "route" else ax.get_yticks()
+    np.testing.assert_array_equal(cases, [0, 1, 2])
+
+
 def test_axis_labels_name_the_key_and_its_unit():
     assert sweep_figures.axis_label("thermal.convection.coefficient", "W/m^2/K") == \
         "convection coefficient [W/m^2/K]"

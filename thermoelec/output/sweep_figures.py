@@ -277,8 +277,11 @@ def sweep_map(ds, metric: str) -> Figure:
         if data.facet_titles[k]:
             ax.set_title(data.facet_titles[k], fontsize=9)
         for dim, setter in ((ds[metric].dims[1], ax.set_xticks), (ds[metric].dims[0], ax.set_yticks)):
-            if not np.issubdtype(ds[dim].values.dtype, np.number):  # an option group: its names
-                setter(np.arange(ds.sizes[dim]), [str(v) for v in ds[dim].values], fontsize=8)
+            values = ds[dim].values
+            if not np.issubdtype(values.dtype, np.number):  # an option group: its names
+                setter(np.arange(ds.sizes[dim]), [str(v) for v in values], fontsize=8)
+            elif np.issubdtype(values.dtype, np.integer) and values.size <= MAX_FACETS:
+                setter(values)  # a zipped group's index: a tick at each case, none between
     for ax in axes[n:]:
         ax.set_axis_off()
     bar = fig.add_axes((1 - 1.2 / width, 0.65 / height, 0.18 / width, 1 - 1.6 / height))
