@@ -21,7 +21,7 @@ $(STAMP): pyproject.toml
 	@$(BIN)/python -m pip install -q --disable-pip-version-check -e '.[dev]'
 	@touch $(STAMP)
 
-# The kernels a run calls, compiled ahead of time (thermoelec/engine/ahead.py): a no-op when today's build
+# The kernels run and sweep call, compiled ahead of time (thermoelec/engine/ahead.py): a no-op when today's build
 # is there; should it fail, everything still runs through numba's cache, only slower to start.
 kernels: $(STAMP)
 	@$(BIN)/python -m thermoelec.engine.ahead || true

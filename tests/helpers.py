@@ -41,6 +41,21 @@ def scenario(cell: dict | None = None, thermal: dict | None = None, segments: li
     return data
 
 
+def rc_current_phase(current: float = 5.0):
+    """A one-RC-pair cell (10 mohm, 20 s) under a constant current: its problem and parameter vector with the
+    phase's mode and demand written in, as a driver would (``current`` in A)."""
+    from thermoelec.engine import layout
+    from thermoelec.engine.problem import pack_parameters
+    from thermoelec.physics.loads import MODE_CURRENT
+
+    data = scenario(cell={**scenario()["cell"], "rc": [{"resistance": "10 mohm", "time_constant": "20 s"}]},
+                    segments=[{"mode": "current", "value": f"{current} A", "duration": "60 s"}])
+    problem = thermoelec.scenario_from_dict(data).problem()
+    p = pack_parameters(problem)
+    p[layout.H_MODE], p[layout.H_VALUE] = MODE_CURRENT, current
+    return problem, p
+
+
 def simulate(data: dict, **overrides: Any) -> thermoelec.SimulationResult:
     """Simulate scenario data, with dotted-path overrides."""
     result = thermoelec.simulate(data, overrides=overrides or None)

@@ -191,12 +191,15 @@ class Kernel:
         The kernel once numba is in use (:func:`materialise`) [-].
     signature : str or None
         Argument types declared for the build (:func:`ahead_of_time`), None for numba only [-].
+    arguments : tuple of Argument
+        ``signature`` read by :func:`parse_signature`, once: the guard checks every call against it [-].
     """
 
     def __init__(self, py_func: Callable, options: dict):
         self.py_func = py_func
         self.options = options
         self.signature: str | None = None
+        self.arguments: tuple[Argument, ...] = ()
         self.dispatcher = None
         self._compiled: Any = _UNLOADED
         functools.update_wrapper(self, py_func)
@@ -215,7 +218,7 @@ class Kernel:
 
     def __call__(self, *args):
         compiled = self.compiled()
-        if compiled is not None and _fits(args, parse_signature(self.signature)[1]):
+        if compiled is not None and _fits(args, self.arguments):
             return compiled(*args)
         if self.dispatcher is None:
             materialise()
@@ -265,16 +268,17 @@ def ahead_of_time(signature: str) -> Callable[[Kernel], Kernel]:
     Returns
     -------
     callable
-        The decorator; it raises TypeError for anything but a :class:`Kernel` [-].
+        The decorator; it raises TypeError for anything but a :class:`Kernel` or the dispatcher
+        :func:`njit` returns once numba is in use [-].
     """
-    parse_signature(signature)
+    arguments = parse_signature(signature)[1]
 
     def declare(kernel):
         made = kernel if isinstance(kernel, Kernel) else next(
             (k for k in kernels() if k.dispatcher is not None and k.dispatcher is kernel), None)
         if made is None:
             raise TypeError(f"ahead_of_time({signature!r}) must decorate a kernel made by thermoelec.jit.njit")
-        made.signature = signature
+        made.signature, made.arguments = signature, arguments
         return kernel
 
     return declare

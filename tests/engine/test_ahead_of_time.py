@@ -25,10 +25,8 @@ from thermoelec import jit
 from thermoelec.engine import ahead
 from thermoelec.engine import layout as L
 from thermoelec.engine.events import N_EVENTS
-from thermoelec.engine.problem import pack_parameters
-from thermoelec.physics.loads import MODE_CURRENT
 
-from ..helpers import scenario
+from ..helpers import rc_current_phase
 
 ROOT = Path(__file__).resolve().parents[2]
 SCENARIOS = ROOT / "scenarios"
@@ -116,11 +114,7 @@ def test_the_batched_solve_lets_other_threads_run(build_path):
 
 
 def _rc_problem():
-    data = scenario(cell={**scenario()["cell"], "rc": [{"resistance": "10 mohm", "time_constant": "20 s"}]},
-                    segments=[{"mode": "current", "value": "5 A", "duration": "60 s"}])
-    problem = thermoelec.scenario_from_dict(data).problem()
-    p = pack_parameters(problem)
-    p[L.H_MODE], p[L.H_VALUE] = MODE_CURRENT, 5.0
+    problem, p = rc_current_phase()
     y = problem.initial_state()
     y[1] = 0.02
     return p, y
@@ -155,7 +149,7 @@ def test_a_call_the_build_was_not_made_for_goes_to_numba_with_the_same_answer(la
         odd = odd[::2]
     else:
         odd = y.astype(np.float32)
-    assert not jit._fits((odd, expected, p, p), jit.parse_signature(rhs.signature)[1])
+    assert not jit._fits((odd, expected, p, p), rhs.arguments)
     ydot = np.empty(y.size)
     rhs(odd, ydot, p, np.empty(L.N_ALGEBRAICS))
     reference = np.empty(y.size)

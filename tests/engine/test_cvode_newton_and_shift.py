@@ -20,9 +20,8 @@ from thermoelec.engine.backends import DIAGONAL_CONTRACTION
 from thermoelec.engine.driver import integrate_problem
 from thermoelec.engine.options import SolverOptions
 from thermoelec.engine.problem import pack_parameters
-from thermoelec.physics.loads import MODE_CURRENT
 
-from ..helpers import scenario
+from ..helpers import rc_current_phase, scenario
 
 
 def _two_node(**thermal):
@@ -49,11 +48,7 @@ def test_contraction_bound_of_the_two_node_network(gamma):
 
 
 def test_the_rc_shift_is_an_exact_change_of_variables():
-    data = scenario(cell={**scenario()["cell"], "rc": [{"resistance": "10 mohm", "time_constant": "20 s"}]},
-                    segments=[{"mode": "current", "value": "5 A", "duration": "60 s"}])
-    problem = thermoelec.scenario_from_dict(data).problem()
-    p = pack_parameters(problem)
-    p[L.H_MODE], p[L.H_VALUE] = MODE_CURRENT, 5.0
+    problem, p = rc_current_phase()
     kernels = m.Kernels(p, L.n_states(problem.n_rc))
     y0 = problem.initial_state()
     y0[1] = 0.02

@@ -16,7 +16,7 @@ above it in this list (and from physics), never from one below::
                resolved)
     batch      walks the plan for many scenarios in one compiled loop (events, layout, mission, model,
                options, problem)
-    ahead      the ahead-of-time build of the kernels a run calls (mission, model, resolved)
+    ahead      the ahead-of-time build of the kernels run and sweep call (batch, mission, model, resolved)
 
 The kernels know no integrator and no mission, the back ends no mission; only the
 driver and the batched solver walk the mission plan.
