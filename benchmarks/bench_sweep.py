@@ -49,6 +49,7 @@ from bench_single_mission import engine_run, errors, mission_scenario, segment_l
 from tight_floor import rk4_floor
 
 import thermoelec
+from thermoelec import jit
 from thermoelec.analysis import sweep
 from thermoelec.engine import batch
 from thermoelec.engine import layout as L
@@ -161,6 +162,9 @@ def main() -> None:
     powers = np.array([s.value for s in first.segments])
     params = np.array([pack_parameters(p) for p in problems])
     y0 = np.array([p.initial_state() for p in problems])
+    # the engine's kernels are numba's dispatchers from here on: rk4_batch, compiled by numba, calls them
+    # (the build serves only calls from Python; both solve at the same speed, DEVELOPERS.md)
+    jit.materialise()
     substeps = 1
     while True:
         ends = rk4_batch(params[:1], powers, y0[:1], substeps)
