@@ -7,7 +7,8 @@ different event locator), with the tolerances the sweep asks of the batch
 end condition and then rest, a voltage-held segment, a thermostatic fan that
 switches on and off, a pack heater fed from the pack in the cold, a linear
 ambient profile, a soak before the mission (run first, the mission starting
-from its end state), and stops on the voltage and temperature limits.
+from its end state), a full cell resting at its SoC and voltage limits before a
+discharge, and stops on the voltage and temperature limits.
 """
 
 from __future__ import annotations
@@ -40,6 +41,7 @@ PACK = {"series": 2, "parallel": 1}
 
 def _case(name: str) -> dict:
     th = dict(THERMAL)
+    cell = CELL
     segments: list[dict]
     if name == "cccv":
         segments = [{"mode": "current", "value": "3 A", "duration": "20 min"},
@@ -65,6 +67,11 @@ def _case(name: str) -> dict:
         th.update(ambient_temperature="-10 degC", initial_cell_temperature="20 degC",
                   heater={"power": "6 W", "on_below": "2 degC", "off_above": "6 degC", "source": "pack"})
         segments = [{"mode": "soak", "duration": "2 h"}, {"mode": "current", "value": "2 A", "duration": "30 min"}]
+    elif name == "full cell at rest, then discharge":
+        # at rest the full cell sits at its SoC and voltage limits without heading past them: the phase start
+        # switches those events off for the phase (then no step may read them as fired)
+        cell = {**CELL, "initial_soc": 1.0}
+        segments = [{"mode": "rest", "duration": "2 min"}, {"mode": "current", "value": "2 A", "duration": "10 min"}]
     elif name == "voltage cutoff":
         segments = [{"mode": "power", "value": "25 W", "duration": "2 h"}]
     elif name == "temperature limit":
@@ -72,13 +79,13 @@ def _case(name: str) -> dict:
         segments = [{"mode": "current", "value": "6 A", "duration": "1 h"}]
     else:
         raise KeyError(name)
-    data = scenario(cell=dict(CELL), thermal=th, segments=segments, pack=PACK,
+    data = scenario(cell=dict(cell), thermal=th, segments=segments, pack=PACK,
                     limits={"cell_temperature_max": "45 degC"}, solver={"rtol": 1e-9, "output_interval": "1 s"})
     return data
 
 
 CASES = ("cccv", "end condition, then rest", "voltage held", "fan", "heater in the cold", "ambient profile",
-         "soak, then a heated mission", "voltage cutoff", "temperature limit")
+         "soak, then a heated mission", "full cell at rest, then discharge", "voltage cutoff", "temperature limit")
 
 
 @pytest.fixture(scope="module")
@@ -116,6 +123,8 @@ def test_the_cases_exercise_what_they_name(answers):
     assert by_name["voltage cutoff"].summary["stop_reason"] == "voltage_min"
     assert by_name["temperature limit"].summary["stop_reason"] == "temperature_max"
     assert by_name["end condition, then rest"].summary["stop_reason"] == "end_of_profile"
+    assert by_name["full cell at rest, then discharge"].summary["stop_reason"] == "end_of_profile"
+    assert by_name["full cell at rest, then discharge"].summary["soc_end"] < 1.0 - 0.1
     assert np.isfinite(by_name["voltage held"].summary["energy_load_Wh"])
     soaked = by_name["soak, then a heated mission"].summary["soak"]
     assert soaked is not None and soaked["duration_s"] == pytest.approx(7200.0)

@@ -149,23 +149,25 @@ def _stage(y, p, ydot, alg, plain):
 
 
 @jit.njit(cache=True, error_model="numpy")
-def _rk_step(y, p, t, h, k, tmp, alg, out, err, plain):
+def _rk_step(y, p, t, h, k, tmp, alg, out, err, n_dynamic, plain):
     """One Bogacki-Shampine step of size h from y at time t, with ``k[0] = f(t, y)`` given.
 
     The third-order solution goes to ``out`` and the error estimate to ``err``.
     The last stage is evaluated at ``out`` itself (first same as last), so
     afterwards ``k[3] = f(out)`` and ``alg`` holds the algebraic outputs at ``out``.
-    Each stage writes its own time into ``p`` (the ambient profile reads it).
+    Each stage writes its own time into ``p`` (the ambient profile reads it). The
+    inner stages' arguments are formed for the first ``n_dynamic`` states only: no
+    right-hand side reads a quadrature.
     ``plain``: the batch is a plain lumped mission, its stages the lean
     :func:`thermoelec.engine.plain.evaluate_plain` (the same numbers; compiled into
     each stage: called, it gains nothing).
     """
     n = y.size
-    for i in range(n):
+    for i in range(n_dynamic):
         tmp[i] = y[i] + h * _A21 * k[0, i]
     p[L.H_TIME] = t + 0.5 * h
     _stage(tmp, p, k[1], alg, plain)
-    for i in range(n):
+    for i in range(n_dynamic):
         tmp[i] = y[i] + h * _A32 * k[1, i]
     p[L.H_TIME] = t + 0.75 * h
     _stage(tmp, p, k[2], alg, plain)
@@ -266,18 +268,20 @@ def _auxiliary_energy(extra, aux, i0, i1, h):
 
 
 @jit.njit(cache=True, error_model="numpy")
-def _any_fired(g, p):
-    for e in range(N_EVENTS):
-        if p[L.H_ACTIVE + e] != 0.0 and g[e] <= 0.0:
+def _any_fired(g, active, n_active):
+    """True when an active root function (of ``active[:n_active]``) is non-positive."""
+    for j in range(n_active):
+        if g[active[j]] <= 0.0:
             return True
     return False
 
 
 @jit.njit(cache=True, error_model="numpy")
-def _near_zero(g, p):
+def _near_zero(g, active, n_active):
     """True when an active root function is within its tolerance of zero (then the full start check runs)."""
-    for e in range(N_EVENTS):
-        if p[L.H_ACTIVE + e] != 0.0 and g[e] <= 1e-6 * EVENT_SCALES[e]:
+    for j in range(n_active):
+        e = active[j]
+        if g[e] <= 1e-6 * EVENT_SCALES[e]:
             return True
     return False
 
@@ -307,6 +311,8 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
     k = np.empty((4, n))
     tmp, out, err, trial, scratch = np.empty(n), np.empty(n), np.empty(n), np.empty(n), np.empty(n)
     g, g_ahead = np.empty(N_EVENTS), np.empty(N_EVENTS)
+    active = np.empty(N_EVENTS, dtype=np.int64)  # the phase's active events: the only roots a step updates
+    n_dynamic = ts_index + 2  # the sink, the coolant, then the quadratures (no stage reads those)
     alg = np.empty(L.N_ALGEBRAICS)
     default_ambient = p[L.H_AMBIENT]
     default_table = p[L.H_AMBIENT_TABLE]
@@ -325,6 +331,7 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
             hold = configure_phase(p, seg, phase, modes, values, ambients, setups, setup_index, default_ambient,
                                    default_table, switches, controls, hold, current_prev, t)
             p[L.H_TIME] = t
+            n_active = m.active_events(p, active)
             # the demand changed: a new first stage (the full right-hand side once, for the outputs
             # that a plain mission's stages leave as they are)
             _stage(y, p, k[0], alg, plain and seg > 0)
@@ -332,8 +339,9 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
             code = -1
             # the engine's full check where a limit is reached or near, and always with the
             # terminal voltage imposed (the cell limits are checked only there)
-            if _near_zero(g, p) or p[L.H_MODE] == MODE_VOLTAGE:
+            if _near_zero(g, active, n_active) or p[L.H_MODE] == MODE_VOLTAGE:
                 code = m.start_check(y, p, alg, scratch, g, g_ahead, START_PROBE, IMPOSED_VOLTAGE_SLACK)
+                n_active = m.active_events(p, active)  # it switches off the events that sit at their zero
                 p[L.H_TIME] = t
                 m.evaluate_any(y, p, k[0], alg)
             if code < 0 or EVENT_ACTION[code] != ACTION_HOLD:  # a hold at once: the instant before it is no state
@@ -351,24 +359,24 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
                     if steps > MAX_STEPS_PER_SEGMENT or h < 1e-9:
                         return 2, -1, t, -1
                     h_try = min(h, t_end - t)
-                    _rk_step(y, p, t, h_try, k, tmp, alg, out, err, plain)
+                    _rk_step(y, p, t, h_try, k, tmp, alg, out, err, n_dynamic, plain)
                     norm = _error_norm(y, out, err, rtol, atol)
                     if norm > 1.0 or not np.isfinite(norm):
                         h = h_try * max(0.2, 0.9 * norm ** _ORDER_EXPONENT) if np.isfinite(norm) else 0.25 * h_try
                         continue
-                    m.roots_from(out, g, p, alg)
-                    if _any_fired(g, p):
+                    m.roots_active(out, g, p, alg, active, n_active)
+                    if _any_fired(g, active, n_active):
                         low, high = 0.0, h_try  # a root lies in (low, high]
                         while high - low > EVENT_TIME_TOLERANCE:
                             mid = 0.5 * (low + high)
-                            _rk_step(y, p, t, mid, k, tmp, alg, trial, err, plain)
-                            m.roots_from(trial, g, p, alg)
-                            if _any_fired(g, p):
+                            _rk_step(y, p, t, mid, k, tmp, alg, trial, err, n_dynamic, plain)
+                            m.roots_active(trial, g, p, alg, active, n_active)
+                            if _any_fired(g, active, n_active):
                                 high = mid
                             else:
                                 low = mid
-                        _rk_step(y, p, t, high, k, tmp, alg, trial, err, plain)
-                        m.roots_from(trial, g, p, alg)
+                        _rk_step(y, p, t, high, k, tmp, alg, trial, err, n_dynamic, plain)
+                        m.roots_active(trial, g, p, alg, active, n_active)
                         code = m.fired_event(g, p)
                         rate_new = arrhenius_ageing_rate(alg[L.A_TEMPERATURE_HIGH], ea, t_ref)
                         extra[X_ARRHENIUS] += 0.5 * (rate_prev + rate_new) * high
@@ -402,11 +410,11 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
                         y[i] = out[i]
                         k[0, i] = k[3, i]  # first same as last
                     _observe(y, alg, extra, t, ts_index)
-                    factor = 5.0 if norm == 0.0 else min(5.0, max(0.2, 0.9 * norm ** _ORDER_EXPONENT))
-                    if h_try >= h:  # a step cut short by the boundary says nothing about the next one
-                        h = h_try * factor
-                    else:
-                        h = max(h, h_try * factor)
+                    # a step cut short by the boundary says nothing about the next one: it may only
+                    # lengthen h (and where 5 times it cannot, the power of the norm is not taken)
+                    if h_try >= h or 5.0 * h_try > h:
+                        factor = 5.0 if norm == 0.0 else min(5.0, max(0.2, 0.9 * norm ** _ORDER_EXPONENT))
+                        h = h_try * factor if h_try >= h else max(h, h_try * factor)
                 if code < 0:
                     t = t_end
                     break

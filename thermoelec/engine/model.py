@@ -545,76 +545,148 @@ def roots_from(y, g, p, alg):
     alg : float64 array, shape (N_ALGEBRAICS,)
         The algebraic outputs at ``y``, read [A, V, Ω, W, K, ... unit per slot].
     """
+    for k in range(N_EVENTS):
+        g[k] = 1.0 if p[H_ACTIVE + k] == 0.0 else root_function(k, y, p, alg)
+
+
+@_inline
+def roots_active(y, g, p, alg, active, n_active):
+    """The active event functions only (:func:`roots_from`), those of ``active[:n_active]``.
+
+    The others keep what :func:`roots_from` wrote at the phase start (1: they never fire).
+    The batched solver calls it after every step: a phase has a handful of active events
+    out of :data:`~thermoelec.engine.events.N_EVENTS`.
+
+    Parameters
+    ----------
+    y : float64 array, shape (n_states,)
+        State (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
+    g : float64 array, shape (N_EVENTS,)
+        Written at the active events [V, V², K, - or A, by event].
+    p : float64 array
+        Parameter vector with the phase written in (activity flags, thresholds) [SI, unit per slot].
+    alg : float64 array, shape (N_ALGEBRAICS,)
+        The algebraic outputs at ``y``, read [A, V, Ω, W, K, ... unit per slot].
+    active : int64 array
+        The active events' indices, from :func:`active_events` [-].
+    n_active : int
+        How many there are [-].
+    """
+    for j in range(n_active):
+        k = active[j]
+        g[k] = root_function(k, y, p, alg)
+
+
+@_inline
+def active_events(p, active):
+    """Write the indices of the phase's active events into ``active``; return how many there are.
+
+    Parameters
+    ----------
+    p : float64 array
+        Parameter vector with the phase written in (activity flags) [SI, unit per slot].
+    active : int64 array, shape (N_EVENTS,)
+        Written: the active events' indices, in :data:`~thermoelec.engine.events.EVENTS` order [-].
+
+    Returns
+    -------
+    int
+        The number of active events [-].
+    """
+    n_active = 0
+    for k in range(N_EVENTS):
+        if p[H_ACTIVE + k] != 0.0:
+            active[n_active] = k
+            n_active += 1
+    return n_active
+
+
+@_inline
+def root_function(k, y, p, alg):
+    """The value of active event function ``k`` at ``y`` (:func:`roots_from` says what each measures).
+
+    Parameters
+    ----------
+    k : int
+        Event index (:data:`~thermoelec.engine.events.EVENTS`) [-].
+    y : float64 array, shape (n_states,)
+        State (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
+    p : float64 array
+        Parameter vector with the phase written in (thresholds) [SI, unit per slot].
+    alg : float64 array, shape (N_ALGEBRAICS,)
+        The algebraic outputs at ``y``, read [A, V, Ω, W, K, ... unit per slot].
+
+    Returns
+    -------
+    float
+        The root function, positive on the safe side [V, V², K, - or A, by event].
+    """
     z = alg[A_SOC]
     voltage = alg[A_VOLTAGE]
-    for k in range(N_EVENTS):
-        if p[H_ACTIVE + k] == 0.0:
-            g[k] = 1.0
-            continue
-        thr = p[H_THRESHOLD + k]
-        if k == EV_VOLTAGE_MIN:
-            g[k] = alg[A_CELL_VOLTAGE] - thr
-        elif k == EV_VOLTAGE_MAX:
-            g[k] = thr - alg[A_CELL_VOLTAGE_HIGH]
-        elif k == EV_POWER:
-            g[k] = alg[A_POWER_MARGIN]
-        elif k == EV_TEMPERATURE:
-            g[k] = thr - alg[A_TEMPERATURE_HIGH]
-        elif k == EV_SOC_EMPTY:
-            g[k] = alg[A_SOC_LOW] - thr
-        elif k == EV_SOC_FULL:
-            g[k] = thr - alg[A_SOC_HIGH]
-        elif k == EV_CV_SWITCH:
-            g[k] = thr - voltage
-        elif k == EV_CV_CUTOFF:
-            g[k] = abs(alg[A_CURRENT]) - thr
-        elif k == EV_END_VOLTAGE_BELOW:
-            g[k] = voltage - thr
-        elif k == EV_END_VOLTAGE_ABOVE:
-            g[k] = thr - voltage
-        elif k == EV_END_SOC_BELOW:
-            g[k] = z - thr
-        elif k == EV_END_SOC_ABOVE:
-            g[k] = thr - z
-        elif k == EV_DISCHARGE_CURRENT:
-            g[k] = alg[A_MARGIN_DISCHARGE_CURRENT]
-        elif k == EV_CHARGE_CURRENT:
-            g[k] = alg[A_MARGIN_CHARGE_CURRENT]
-        elif k == EV_DISCHARGE_POWER:
-            g[k] = alg[A_MARGIN_DISCHARGE_POWER]
-        elif k == EV_CHARGE_POWER:
-            g[k] = alg[A_MARGIN_CHARGE_POWER]
-        elif k == EV_DISCHARGE_TEMPERATURE:
-            g[k] = alg[A_TEMPERATURE_LOW] - thr
-        elif k == EV_CHARGE_TEMPERATURE:
-            g[k] = thr - alg[A_TEMPERATURE_HIGH]
-        elif k == EV_SINK_TEMPERATURE:
-            g[k] = thr - y[int(p[H_NCELLS]) * (2 + int(p[H_NRC]))]  # layout.sink_temperature_index
-        elif k == EV_HOLD_MIN:
-            # only while the pack discharges: at no current (a ramp's start) or charging, the limiter holds nothing
-            # (a rested cell's OCV may sit past a limit, e.g. full and cold with its entropic shift)
-            g[k] = alg[A_CELL_VOLTAGE] - thr if p[H_HOLD] == 0.0 and alg[A_CURRENT] > 0.0 else 1.0
-        elif k == EV_HOLD_MAX:
-            g[k] = thr - alg[A_CELL_VOLTAGE_HIGH] if p[H_HOLD] == 0.0 and alg[A_CURRENT] < 0.0 else 1.0
-        elif k == EV_HOLD_RELEASE:
-            # held: the demand (within the allowances) falls below the held current by the hysteresis
-            if p[H_HOLD] == 1.0:
-                g[k] = alg[A_CURRENT_ALLOWED] + p[H_HOLD_HYSTERESIS] - alg[A_HOLD_DISCHARGE]
-            elif p[H_HOLD] == -1.0:
-                g[k] = alg[A_HOLD_CHARGE] - alg[A_CURRENT_ALLOWED] + p[H_HOLD_HYSTERESIS]
-            else:
-                g[k] = 1.0
-        elif k == EV_NOTHING_DELIVERABLE:
-            asked = alg[A_CURRENT_DEMANDED] if alg[A_CURRENT_DEMANDED] > 0.0 else 0.0
-            g[k] = alg[A_DELIVERABLE] - (asked if asked < p[H_CUTOFF] else p[H_CUTOFF])
+    thr = p[H_THRESHOLD + k]
+    if k == EV_VOLTAGE_MIN:
+        return alg[A_CELL_VOLTAGE] - thr
+    elif k == EV_VOLTAGE_MAX:
+        return thr - alg[A_CELL_VOLTAGE_HIGH]
+    elif k == EV_POWER:
+        return alg[A_POWER_MARGIN]
+    elif k == EV_TEMPERATURE:
+        return thr - alg[A_TEMPERATURE_HIGH]
+    elif k == EV_SOC_EMPTY:
+        return alg[A_SOC_LOW] - thr
+    elif k == EV_SOC_FULL:
+        return thr - alg[A_SOC_HIGH]
+    elif k == EV_CV_SWITCH:
+        return thr - voltage
+    elif k == EV_CV_CUTOFF:
+        return abs(alg[A_CURRENT]) - thr
+    elif k == EV_END_VOLTAGE_BELOW:
+        return voltage - thr
+    elif k == EV_END_VOLTAGE_ABOVE:
+        return thr - voltage
+    elif k == EV_END_SOC_BELOW:
+        return z - thr
+    elif k == EV_END_SOC_ABOVE:
+        return thr - z
+    elif k == EV_DISCHARGE_CURRENT:
+        return alg[A_MARGIN_DISCHARGE_CURRENT]
+    elif k == EV_CHARGE_CURRENT:
+        return alg[A_MARGIN_CHARGE_CURRENT]
+    elif k == EV_DISCHARGE_POWER:
+        return alg[A_MARGIN_DISCHARGE_POWER]
+    elif k == EV_CHARGE_POWER:
+        return alg[A_MARGIN_CHARGE_POWER]
+    elif k == EV_DISCHARGE_TEMPERATURE:
+        return alg[A_TEMPERATURE_LOW] - thr
+    elif k == EV_CHARGE_TEMPERATURE:
+        return thr - alg[A_TEMPERATURE_HIGH]
+    elif k == EV_SINK_TEMPERATURE:
+        return thr - y[int(p[H_NCELLS]) * (2 + int(p[H_NRC]))]  # layout.sink_temperature_index
+    elif k == EV_HOLD_MIN:
+        # only while the pack discharges: at no current (a ramp's start) or charging, the limiter holds nothing
+        # (a rested cell's OCV may sit past a limit, e.g. full and cold with its entropic shift)
+        return alg[A_CELL_VOLTAGE] - thr if p[H_HOLD] == 0.0 and alg[A_CURRENT] > 0.0 else 1.0
+    elif k == EV_HOLD_MAX:
+        return thr - alg[A_CELL_VOLTAGE_HIGH] if p[H_HOLD] == 0.0 and alg[A_CURRENT] < 0.0 else 1.0
+    elif k == EV_HOLD_RELEASE:
+        # held: the demand (within the allowances) falls below the held current by the hysteresis
+        if p[H_HOLD] == 1.0:
+            return alg[A_CURRENT_ALLOWED] + p[H_HOLD_HYSTERESIS] - alg[A_HOLD_DISCHARGE]
+        elif p[H_HOLD] == -1.0:
+            return alg[A_HOLD_CHARGE] - alg[A_CURRENT_ALLOWED] + p[H_HOLD_HYSTERESIS]
         else:
-            # a thermostat: the threshold is the one it switches at next; a cooling
-            # switch (fan, pump) that is off and a heater that is on wait for the
-            # temperature to rise to it, the others for it to fall
-            # (the heater senses the coldest cell, the fan and the pump the hottest)
-            rising = (p[CONTROL_FLAG_OF[k - EV_FAN]] == 1.0) == (k == EV_HEATER)
-            sensed = alg[A_TEMPERATURE_LOW] if k == EV_HEATER else alg[A_TEMPERATURE_HIGH]
-            g[k] = thr - sensed if rising else sensed - thr
+            return 1.0
+    elif k == EV_NOTHING_DELIVERABLE:
+        asked = alg[A_CURRENT_DEMANDED] if alg[A_CURRENT_DEMANDED] > 0.0 else 0.0
+        return alg[A_DELIVERABLE] - (asked if asked < p[H_CUTOFF] else p[H_CUTOFF])
+    else:
+        # a thermostat: the threshold is the one it switches at next; a cooling
+        # switch (fan, pump) that is off and a heater that is on wait for the
+        # temperature to rise to it, the others for it to fall
+        # (the heater senses the coldest cell, the fan and the pump the hottest)
+        rising = (p[CONTROL_FLAG_OF[k - EV_FAN]] == 1.0) == (k == EV_HEATER)
+        sensed = alg[A_TEMPERATURE_LOW] if k == EV_HEATER else alg[A_TEMPERATURE_HIGH]
+        return thr - sensed if rising else sensed - thr
 
 
 @jit.ahead_of_time("void(f8[::1], f8[:, ::1], f8[::1], f8[::1], f8[::1], f8[::1], f8[::1])")
