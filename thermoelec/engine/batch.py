@@ -94,6 +94,11 @@ from thermoelec.physics.loads import MODE_VOLTAGE
 
 __all__ = ["EXTREMES", "BatchOutcome", "solve_batch"]
 
+# The step loop's kernels are compiled without numba's reference counting (they allocate nothing; the
+# caller hands them their work arrays): counting the arrays passed between the inlined pieces, an atomic
+# increment and decrement each, cost a third of a right-hand side evaluation.
+_uncounted = jit.njit(cache=True, nogil=True, error_model="numpy", _nrt=False)
+
 #: Event times are located to this many seconds.
 EVENT_TIME_TOLERANCE = 1e-7
 #: Steps allowed in one segment before the scenario goes to CVODE instead.
@@ -148,7 +153,7 @@ def _stage(y, p, ydot, alg, plain):
         m.evaluate_any(y, p, ydot, alg)
 
 
-@jit.njit(cache=True, error_model="numpy")
+@_uncounted
 def _rk_step(y, p, t, h, k, tmp, alg, out, err, n_dynamic, plain):
     """One Bogacki-Shampine step of size h from y at time t, with ``k[0] = f(t, y)`` given.
 
@@ -179,7 +184,7 @@ def _rk_step(y, p, t, h, k, tmp, alg, out, err, n_dynamic, plain):
         err[i] = h * (_E1 * k[0, i] + _E2 * k[1, i] + _E3 * k[2, i] + _E4 * k[3, i])
 
 
-@jit.njit(cache=True, error_model="numpy")
+@_uncounted
 def _error_norm(y, out, err, rtol, atol):
     total = 0.0
     for i in range(y.size):
@@ -188,7 +193,7 @@ def _error_norm(y, out, err, rtol, atol):
     return np.sqrt(total / y.size)
 
 
-@jit.njit(cache=True, error_model="numpy")
+@_uncounted
 def _observe(y, alg, extra, t, ts_index):
     """Running extremes from the state at time ``t`` and its algebraic outputs."""
     if alg[L.A_TEMPERATURE_HIGH] > extra[X_TC_MAX]:
@@ -222,7 +227,7 @@ def _observe(y, alg, extra, t, ts_index):
     extra[X_SHORTFALL] = max(extra[X_SHORTFALL], abs(alg[L.A_POWER_DEMANDED] - power))
 
 
-@jit.njit(cache=True, error_model="numpy")
+@_uncounted
 def _derated_time(deficit0, deficit1, h):
     """Time of a step of length h during which the delivered current differs from the demand's [s].
 
@@ -239,7 +244,7 @@ def _derated_time(deficit0, deficit1, h):
     return 0.0
 
 
-@jit.njit(cache=True, error_model="numpy")
+@_uncounted
 def _cold_charging(tc0, tc1, i0, i1, t_min, h):
     """Time of a step of length h spent charging below ``t_min`` [s].
 
@@ -258,7 +263,7 @@ def _cold_charging(tc0, tc1, i0, i1, t_min, h):
     return h * share if below0 else h * (1.0 - share)
 
 
-@jit.njit(cache=True, error_model="numpy")
+@_uncounted
 def _auxiliary_energy(extra, aux, i0, i1, h):
     """Energy the auxiliaries draw over a step of length h [J]: their power is constant within a phase
     (the thermostats switch at phase boundaries); discharging when the step's mean current is positive."""
@@ -267,7 +272,7 @@ def _auxiliary_energy(extra, aux, i0, i1, h):
         extra[X_AUX_DISCHARGE] += aux * h
 
 
-@jit.njit(cache=True, error_model="numpy")
+@_uncounted
 def _any_fired(g, active, n_active):
     """True when an active root function (of ``active[:n_active]``) is non-positive."""
     for j in range(n_active):
@@ -276,7 +281,7 @@ def _any_fired(g, active, n_active):
     return False
 
 
-@jit.njit(cache=True, error_model="numpy")
+@_uncounted
 def _near_zero(g, active, n_active):
     """True when an active root function is within its tolerance of zero (then the full start check runs)."""
     for j in range(n_active):
@@ -290,9 +295,10 @@ def _near_zero(g, active, n_active):
 MAX_EVENTS_PER_SEGMENT = 1000
 
 
-@jit.njit(cache=True, error_model="numpy")
+@_uncounted
 def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setup_index, switches, controls, y,
-                   rtol, atol, ea, t_ref, t_charge_min, extra, hot0, cold0, ts_index, plain):
+                   rtol, atol, ea, t_ref, t_charge_min, extra, hot0, cold0, ts_index, plain, stages, vectors, roots,
+                   alg, active):
     """One scenario through the segments of its mission plan and their phases (a CC-CV segment has two).
 
     Events act by :data:`thermoelec.engine.events.EVENT_ACTION`, as in the CVODE
@@ -303,17 +309,17 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
     (:data:`thermoelec.engine.layout.EVENT_CELL_SLOT`, -1 for none). ``hot0`` and
     ``cold0`` are the hottest and the coldest cell's temperatures at the start [K]
     (the Arrhenius time is the hottest cell's, the time charging cold the coldest
-    cell's). About 100 lines in one compiled
+    cell's). ``stages``, ``vectors``, ``roots``, ``alg`` and ``active`` are the work
+    arrays of :func:`work_arrays`: the loop allocates nothing, so it is compiled
+    without reference counting. About 100 lines in one compiled
     loop, on purpose: the step loop runs once per segment of every scenario, and as
     a separate function taking a dozen arrays its calls cost a fifth of the batch.
     """
     n = y.size
-    k = np.empty((4, n))
-    tmp, out, err, trial, scratch = np.empty(n), np.empty(n), np.empty(n), np.empty(n), np.empty(n)
-    g, g_ahead = np.empty(N_EVENTS), np.empty(N_EVENTS)
-    active = np.empty(N_EVENTS, dtype=np.int64)  # the phase's active events: the only roots a step updates
+    k = stages
+    tmp, out, err, trial, scratch, yy = vectors[0], vectors[1], vectors[2], vectors[3], vectors[4], vectors[5]
+    g, g_ahead = roots[0], roots[1]
     n_dynamic = ts_index + 2  # the sink, the coolant, then the quadratures (no stage reads those)
-    alg = np.empty(L.N_ALGEBRAICS)
     default_ambient = p[L.H_AMBIENT]
     default_table = p[L.H_AMBIENT_TABLE]
     h = 0.05
@@ -340,7 +346,7 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
             # the engine's full check where a limit is reached or near, and always with the
             # terminal voltage imposed (the cell limits are checked only there)
             if _near_zero(g, active, n_active) or p[L.H_MODE] == MODE_VOLTAGE:
-                code = m.start_check(y, p, alg, scratch, g, g_ahead, START_PROBE, IMPOSED_VOLTAGE_SLACK)
+                code = m.start_check_into(y, p, alg, scratch, yy, g, g_ahead, START_PROBE, IMPOSED_VOLTAGE_SLACK)
                 n_active = m.active_events(p, active)  # it switches off the events that sit at their zero
                 p[L.H_TIME] = t
                 m.evaluate_any(y, p, k[0], alg)
@@ -436,6 +442,28 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
     return 0, -1, t, -1
 
 
+@jit.njit(cache=True, nogil=True, error_model="numpy")
+def work_arrays(n):
+    """The work arrays of :func:`_integrate_one`, made once per batch (the step loop allocates nothing).
+
+    Parameters
+    ----------
+    n : int
+        Number of states (:mod:`thermoelec.engine.layout`) [-].
+
+    Returns
+    -------
+    tuple of arrays
+        The four Runge-Kutta stages, shape (4, n) [unit of dy/dt]; the stage argument, the step's
+        solution, its error, a trial step's solution, a scratch derivative and the start check's probe
+        state, shape (6, n) [unit of y or dy/dt]; the root functions at a point and ahead of it, shape
+        (2, N_EVENTS) [by event]; the algebraic outputs, shape (N_ALGEBRAICS,) [SI]; the phase's
+        active events, int64, shape (N_EVENTS,) [-].
+    """
+    return (np.empty((4, n)), np.empty((6, n)), np.empty((2, N_EVENTS)), np.empty(L.N_ALGEBRAICS),
+            np.empty(N_EVENTS, dtype=np.int64))
+
+
 @jit.ahead_of_time("Tuple((f8[:, ::1], f8[:, ::1], i8[::1], i8[::1], f8[::1], i8[::1]))("
                    "f8[:, ::1], i8[::1], i8[:, ::1], f8[:, :, ::1], f8[:, :, ::1], f8[:, ::1], f8[:, ::1], "
                    "f8[:, :, ::1], i8[:, :, ::1], f8[:, :, ::1], b1[:, ::1], f8[:, ::1], f8, f8[:, ::1], "
@@ -451,6 +479,7 @@ def _integrate_many(params, profile, n_phases, modes, values, durations, ambient
     events = np.empty(n_scen, dtype=np.int64)
     cells = np.empty(n_scen, dtype=np.int64)
     times = np.empty(n_scen)
+    stages, vectors, roots, alg, active = work_arrays(states.shape[1])
     for s in range(n_scen):
         extras[s, :] = _EXTRA_START
         p = params[s].copy()
@@ -458,7 +487,8 @@ def _integrate_many(params, profile, n_phases, modes, values, durations, ambient
         j = profile[s]
         st, ev, tt, cc = _integrate_one(p, n_phases[j], modes[j], values[j], durations[j], ambients[j], setups[j],
                                         setup_index[j], switches[s], controls[s].copy(), y, rtol, atol[s], ea[s],
-                                        t_ref[s], t_charge_min[s], extras[s], hot0[s], cold0[s], ts_index, plain)
+                                        t_ref[s], t_charge_min[s], extras[s], hot0[s], cold0[s], ts_index, plain,
+                                        stages, vectors, roots, alg, active)
         status[s], events[s], times[s], cells[s] = st, ev, tt, cc
     return states, extras, status, events, times, cells
 

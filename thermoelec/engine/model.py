@@ -207,6 +207,10 @@ _jit = jit.njit(cache=True, nogil=True, error_model="numpy")
 # Small pieces of the right-hand side are inlined into their callers: a call between two
 # compiled functions is not inlined by numba.
 _inline = jit.njit(cache=True, nogil=True, error_model="numpy", inline="always")
+# Kernels of the batched solver's step loop are compiled without numba's reference counting: they
+# allocate nothing, and the counting of the arrays handed between the inlined pieces (an atomic
+# increment and decrement each) cost a third of a right-hand side evaluation.
+_uncounted = jit.njit(cache=True, nogil=True, error_model="numpy", _nrt=False)
 
 _ocv = cellphys.open_circuit_voltage
 _power_margin = power_deliverable_margin
@@ -272,7 +276,7 @@ def _rc_pair(p, off, z, temperature):
     return r, p[off + RC_VALUE]
 
 
-@_jit
+@_uncounted
 def evaluate(y, p, ydot, alg):
     """Fill ``ydot`` (state derivatives) and ``alg`` (algebraic outputs) at state ``y``.
 
@@ -518,7 +522,7 @@ def roots(y, g, p, alg, scratch):
     roots_from(y, g, p, alg)
 
 
-@_jit
+@_uncounted
 def roots_from(y, g, p, alg):
     """Event functions from the algebraic outputs ``alg`` already evaluated at ``y``.
 
@@ -1114,13 +1118,47 @@ def start_check(y, p, alg, scratch, g, g_ahead, probe, slack):
         Code of the event that fired (the first by :data:`EVENT_PRIORITY`: the power
         limit, then by code), or -1 for none [-].
     """
+    return start_check_into(y, p, alg, scratch, np.empty(y.shape[0]), g, g_ahead, probe, slack)
+
+
+@_uncounted
+def start_check_into(y, p, alg, scratch, yy, g, g_ahead, probe, slack):
+    """:func:`start_check` with a work array for the probe's state: it allocates nothing.
+
+    Parameters
+    ----------
+    y : float64 array, shape (n_states,)
+        State at the phase start (:mod:`thermoelec.engine.layout`) [-, V, K, J, C].
+    p : float64 array
+        Parameter vector with the phase written in; activity flags may be cleared [SI, unit per slot].
+    alg : float64 array, shape (N_ALGEBRAICS,)
+        Work array for the algebraic outputs [A, V, Ω, W, K, ... unit per slot].
+    scratch : float64 array, shape (n_states,)
+        Work array for ``dy/dt`` [1/s, V/s, K/s, W, A].
+    yy : float64 array, shape (n_states,)
+        Work array for the probe's state [-, V, K, J, C].
+    g : float64 array, shape (N_EVENTS,)
+        Written: the root functions at the start [V, V², K, - or A, by event].
+    g_ahead : float64 array, shape (N_EVENTS,)
+        Written: the root functions ``probe`` seconds along the initial slope [V, V², K, - or A, by event].
+    probe : float
+        Length of the probe step [s].
+    slack : float
+        Relative slack on the cell voltage limits under an imposed terminal voltage [-].
+
+    Returns
+    -------
+    int
+        As :func:`start_check`: the event that fired, or -1 for none [-].
+    """
     n = y.shape[0]
-    roots(y, g, p, alg, scratch)
-    yy = np.empty(n)
+    evaluate_any(y, p, scratch, alg)
+    roots_from(y, g, p, alg)
     evaluate_any(y, p, scratch, alg)
     for i in range(n):
         yy[i] = y[i] + probe * scratch[i]
-    roots(yy, g_ahead, p, alg, scratch)
+    evaluate_any(yy, p, scratch, alg)
+    roots_from(yy, g_ahead, p, alg)
     fired = -1
     for k in range(N_EVENTS):
         if p[H_ACTIVE + k] == 0.0:
