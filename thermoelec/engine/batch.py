@@ -341,7 +341,9 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
             # the demand changed: a new first stage (the full right-hand side once, for the outputs
             # that a plain mission's stages leave as they are)
             _stage(y, p, k[0], alg, plain and seg > 0)
-            m.roots_from(y, g, p, alg)
+            for e in range(N_EVENTS):  # model.roots_from, reading only the active events' functions
+                g[e] = 1.0
+            m.roots_active(y, g, p, alg, active, n_active)
             code = -1
             # the engine's full check where a limit is reached or near, and always with the
             # terminal voltage imposed (the cell limits are checked only there)
