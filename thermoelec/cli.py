@@ -395,7 +395,8 @@ def _sweep(args: argparse.Namespace) -> int:
                 from thermoelec.output.sweep_figures import write_sweep_figures
 
                 with _progress("drawing the sweep's maps", not args.quiet):
-                    write_sweep_figures(ds, stage)
+                    # the second map in a forked process where there is a second core (the pool is done)
+                    write_sweep_figures(ds, stage, parallel=(args.workers or os.cpu_count() or 1) > 1)
             if keep is not None:
                 sweep.write_series(plan, rows, stage)
             answer: list[str] = []

@@ -7,6 +7,8 @@ are checked against known values, not against another run of the engine.
 
 from __future__ import annotations
 
+import os
+
 import numpy as np
 import pytest
 import xarray as xr
@@ -159,6 +161,25 @@ def test_write_sweep_figures_writes_each_map(grid, tmp_path):
     written = sweep_figures.write_sweep_figures(ds, tmp_path)
     assert sorted(p.name for p in written) == sorted(f"sweep_{m}.{e}" for m in sweep_figures.SWEEP_MAP_METRICS
                                                      for e in ("png", "svg"))
+    assert all(p.stat().st_size > 1000 for p in written)
+
+
+def test_maps_drawn_in_a_forked_child_are_the_files_drawn_in_turn(grid, tmp_path):
+    """The PNGs (deterministic, unlike the SVGs' random ids) byte for byte, whichever process drew them."""
+    _, ds = grid
+    (tmp_path / "in_turn").mkdir()
+    (tmp_path / "forked").mkdir()
+    in_turn = sweep_figures.write_sweep_figures(ds, tmp_path / "in_turn", formats=("png",))
+    forked = sweep_figures.write_sweep_figures(ds, tmp_path / "forked", formats=("png",), parallel=True)
+    assert [p.name for p in forked] == [p.name for p in in_turn]
+    assert all(a.read_bytes() == b.read_bytes() for a, b in zip(in_turn, forked, strict=True))
+
+
+def test_a_child_that_fails_leaves_its_map_to_the_parent(grid, tmp_path, monkeypatch):
+    _, ds = grid
+    monkeypatch.setattr(sweep_figures, "_child_map", lambda *args: os._exit(1))  # the child inherits the patch
+    written = sweep_figures.write_sweep_figures(ds, tmp_path, formats=("png",), parallel=True)
+    assert [p.name for p in written] == [f"sweep_{m}.png" for m in sweep_figures.SWEEP_MAP_METRICS]
     assert all(p.stat().st_size > 1000 for p in written)
 
 
