@@ -34,7 +34,7 @@ SCENARIOS = ROOT / "scenarios"
 
 @pytest.fixture(scope="module")
 def build_path(tmp_path_factory) -> Path:
-    """Today's build: the one ``make setup`` made, else one made here (half a minute)."""
+    """Today's build: the one ``make setup`` made, else one made here (a minute or two)."""
     present = jit.find_build(jit.build_folder())
     if present is not None:
         return present

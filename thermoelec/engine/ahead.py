@@ -148,7 +148,7 @@ def main(argv: list[str] | None = None) -> int:
     if present is not None and not args.force:
         print(f"thermoelec kernels: built ahead of time, {present}")
         return 0
-    print("thermoelec kernels: compiling the kernels of run and sweep ahead of time (once, half a minute)")
+    print("thermoelec kernels: compiling the kernels of run and sweep ahead of time (once, a minute or two)")
     start = time.perf_counter()
     try:
         target = build(folder)
