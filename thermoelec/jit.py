@@ -68,7 +68,7 @@ _RETURNS = {"void", *_SCALARS}
 
 _lock = threading.RLock()
 _kernels: list[Kernel] = []
-_jitables: list[tuple[Callable, dict[str, Any]]] = []
+_jitables: list[Callable] = []
 _materialised = False
 _UNLOADED = object()
 _build: Any = _UNLOADED
@@ -284,40 +284,26 @@ def ahead_of_time(signature: str) -> Callable[[Kernel], Kernel]:
     return declare
 
 
-def register_jitable(py_func: Callable | None = None, **options: Any) -> Callable:
+def register_jitable(py_func: Callable) -> Callable:
     """Mark a plain function as callable from kernels (numba's ``register_jitable``, deferred).
-
-    Used bare (``@register_jitable``) or with numba's options
-    (``@register_jitable(inline="always")``: its body is compiled into each kernel that calls it).
 
     Parameters
     ----------
-    py_func : callable, optional
+    py_func : callable
         A function of floats and arrays, plain Python when called from Python [-].
-    **options
-        numba's options for it (``inline``) [-].
 
     Returns
     -------
     callable
-        ``py_func`` itself, or a decorator that returns it [-].
+        ``py_func`` itself [-].
     """
-    if py_func is None:
-        return lambda func: register_jitable(func, **options)
     with _lock:
-        _jitables.append((py_func, options))
+        _jitables.append(py_func)
         if _materialised:
             from numba.extending import register_jitable as numba_register
 
-            _register(numba_register, py_func, options)
+            numba_register(py_func)
     return py_func
-
-
-def _register(numba_register: Callable, py_func: Callable, options: dict[str, Any]) -> None:
-    if options:
-        numba_register(**options)(py_func)
-    else:
-        numba_register(py_func)
 
 
 def kernels() -> list[Kernel]:
@@ -345,8 +331,8 @@ def materialise() -> None:
             return
         from numba.extending import register_jitable as numba_register
 
-        for py_func, options in _jitables:
-            _register(numba_register, py_func, options)
+        for py_func in _jitables:
+            numba_register(py_func)
         for kernel in _kernels:
             _materialise_one(kernel)
         for name, module in list(sys.modules.items()):

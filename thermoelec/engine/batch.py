@@ -94,11 +94,9 @@ from thermoelec.physics.loads import MODE_VOLTAGE
 
 __all__ = ["EXTREMES", "BatchOutcome", "solve_batch"]
 
-# The step loop's kernels are compiled without numba's reference counting (they allocate nothing; the
-# caller hands them their work arrays): the counting of the arrays passed between the inlined pieces (an
-# atomic increment and decrement each) cost 87 against 60 ns of a right-hand side evaluated alone, 5 % of
-# the batched loop's instructions.
-_uncounted = jit.njit(cache=True, nogil=True, error_model="numpy", _nrt=False)
+# the step loop's kernels, without reference counting (model.uncounted says why): the caller hands
+# them their work arrays
+_uncounted = m.uncounted
 
 #: Event times are located to this many seconds.
 EVENT_TIME_TOLERANCE = 1e-7
@@ -349,7 +347,7 @@ def _integrate_one(p, n_phases, modes, values, durations, ambients, setups, setu
             # the engine's full check where a limit is reached or near, and always with the
             # terminal voltage imposed (the cell limits are checked only there)
             if _near_zero(g, active, n_active) or p[L.H_MODE] == MODE_VOLTAGE:
-                code = m.start_check_into(y, p, alg, scratch, yy, g, g_ahead, START_PROBE, IMPOSED_VOLTAGE_SLACK)
+                code = m.start_check(y, p, alg, scratch, yy, g, g_ahead, START_PROBE, IMPOSED_VOLTAGE_SLACK)
                 n_active = m.active_events(p, active)  # it switches off the events that sit at their zero
                 p[L.H_TIME] = t
                 m.evaluate_any(y, p, k[0], alg)

@@ -446,7 +446,7 @@ def write_sweep_figures(ds, out: Path, formats: Sequence[str] = ("png", "svg"), 
     written: dict[str, list[Path]] = {}
     try:
         for metric in metrics[:-1] if child is not None else metrics:
-            written[metric] = save(sweep_map(ds, metric), out, f"sweep_{metric}", formats)
+            written[metric] = _write_map(ds, out, metric, formats)
     finally:
         if child is not None:
             if sys.exc_info()[0] is not None:  # interrupted or failed here: the child's map is not wanted
@@ -455,8 +455,13 @@ def write_sweep_figures(ds, out: Path, formats: Sequence[str] = ("png", "svg"), 
     if child is not None:
         metric = metrics[-1]
         written[metric] = [out / f"sweep_{metric}.{fmt}" for fmt in formats] if child.exitcode == 0 else \
-            save(sweep_map(ds, metric), out, f"sweep_{metric}", formats)
+            _write_map(ds, out, metric, formats)
     return [path for metric in metrics for path in written[metric]]
+
+
+def _write_map(ds, out: Path, metric: str, formats: Sequence[str]) -> list[Path]:
+    """The heat map of ``metric`` as ``out/sweep_<metric>.<format>``; returns the files."""
+    return save(sweep_map(ds, metric), out, f"sweep_{metric}", formats)
 
 
 def _draw_in_child(ds, out: Path, metric: str, formats: Sequence[str]):
@@ -475,7 +480,7 @@ def _child_map(ds, out: Path, metric: str, formats: tuple[str, ...]) -> None:
     """In the forked child: write the map and leave at once (no exit handlers of the parent run here);
     exit status 1 on any failure, and the parent draws the map itself."""
     try:
-        save(sweep_map(ds, metric), out, f"sweep_{metric}", formats)
+        _write_map(ds, out, metric, formats)
     except BaseException:  # the parent redraws it, and reports what goes wrong there
         os._exit(1)
     os._exit(0)
