@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import replace
+from functools import lru_cache
 from pathlib import Path
 
 import numpy as np
@@ -90,6 +91,12 @@ def build_problem(spec: ScenarioSpec, base_dir: Path, source: str, cache: Scenar
     )
 
 
+@lru_cache(maxsize=1024)
+def _file(base_dir: Path, name: str) -> Path:
+    """A file a scenario names, the same object for every variant (a path keeps its text once made)."""
+    return base_dir / name
+
+
 def _initial_coolant_temperature(spec: ScenarioSpec, t_cell: float, t_sink: float) -> float | None:
     """The coolant node's start [K]: ``thermal.coolant.initial_temperature``, else the sink's when a pump
     starts off (coolant standing in the plate has taken the plate's temperature, so the plate carries no heat
@@ -114,7 +121,7 @@ def _ambient_notes(spec: ScenarioSpec, base_dir: Path, cache: ScenarioCache, soa
     for i, seg in enumerate(spec.profile.segment):
         if seg.file is None:
             continue
-        series = cache.read(read_profile_csv, base_dir / seg.file, f"profile.segment[{i + 1}].file")
+        series = cache.read(read_profile_csv, _file(base_dir, seg.file), f"profile.segment[{i + 1}].file")
         if series.ambient is None:
             continue
         low, high = (float(np.min(series.ambient)) - ZERO_CELSIUS, float(np.max(series.ambient)) - ZERO_CELSIUS)
@@ -172,8 +179,8 @@ def _profile_segments(spec: ScenarioSpec, base_dir: Path, source: str, cache: Sc
     profile = spec.profile
     given = spec.thermal.ambient_temperature
     has_soak = any(seg.mode == "soak" for seg in profile.segment)
-    files = tuple(None if seg.file is None else file_version(base_dir / seg.file) for seg in profile.segment)
-    key = ("profile", repr(profile), given if has_soak or given is None else "given", first_ambient, files)
+    files = tuple(None if seg.file is None else file_version(_file(base_dir, seg.file)) for seg in profile.segment)
+    key = ("profile", cache.text_of(profile), given if has_soak or given is None else "given", first_ambient, files)
     segments, soak, ambient = cache.built(
         key, lambda: _make_profile_segments(spec, base_dir, source, cache, first_ambient))
     return segments, soak, given if given is not None else ambient
@@ -187,7 +194,7 @@ def _make_profile_segments(spec: ScenarioSpec, base_dir: Path, source: str, cach
     for i, seg in enumerate(spec.profile.segment):
         key_name = f"profile.segment[{i + 1}]"
         if seg.file is not None:
-            path = base_dir / seg.file
+            path = _file(base_dir, seg.file)
             series = cache.read(read_profile_csv, path, f"{key_name}.file")
             if first_ambient is None and series.ambient is not None:
                 first_ambient = float(series.ambient[0])

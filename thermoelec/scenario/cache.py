@@ -62,6 +62,7 @@ class ScenarioCache:
         self.max_entries = max_entries
         self._reads: dict[tuple, Any] = {}
         self._built: dict[Hashable, Any] = {}
+        self._texts: dict[int, tuple[Any, str]] = {}
         #: Files actually read (not found in the cache), for tests and diagnostics [-].
         self.files_read = 0
 
@@ -111,6 +112,18 @@ class ScenarioCache:
         if key not in self._built:
             self._put(self._built, key, make())
         return self._built[key]
+
+    def text_of(self, value: Any) -> str:
+        """``repr(value)``, once per object while the cache holds it (a key part for :meth:`built`).
+
+        The variants of a sweep share the tables no override touched, the very
+        objects: their text is written once, not once per variant.
+        """
+        entry = self._texts.get(id(value))
+        if entry is None or entry[0] is not value:
+            entry = (value, repr(value))  # the object is held, so its id is not reused while it is here
+            self._put(self._texts, id(value), entry)
+        return entry[1]
 
     def _put(self, table: dict, key: Hashable, value: Any) -> None:
         if len(table) >= self.max_entries:

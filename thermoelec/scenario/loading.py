@@ -22,7 +22,7 @@ from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any
 
-from pydantic import ValidationError
+from pydantic import BaseModel, ValidationError
 
 from thermoelec.engine.options import SolverOptions
 from thermoelec.engine.problem import Problem
@@ -31,7 +31,7 @@ from thermoelec.inputs.errors import ScenarioError
 from thermoelec.scenario.build import build_problem
 from thermoelec.scenario.cache import ScenarioCache
 from thermoelec.scenario.locate import Origins, Source, first_error
-from thermoelec.scenario.overrides import apply_override, split_path
+from thermoelec.scenario.overrides import apply_override, copy_along, split_path
 from thermoelec.scenario.schema import ScenarioSpec
 from thermoelec.scenario.series import read_ambient_csv, read_profile_csv
 
@@ -105,9 +105,15 @@ class Scenario:
         items = list(overrides.items())
         origins = None if self.origins is None else \
             self.origins.with_overrides(_override_sources(items, origin or self.source))
-        return _validate(_deep_copy(self.raw), self.source, self.base_dir, None, items, self.digest, self.overrides,
-                         check_files=any(names_files(path) for path, _ in items), cache=self.cache,
-                         origins=origins, included=self.included, variant=True)
+        paths = []
+        for path, _ in items:
+            try:
+                paths.append(split_path(path))
+            except ValueError:
+                pass  # apply_override names it
+        return _validate(copy_along(self.raw, paths), self.source, self.base_dir, None, items, self.digest,
+                         self.overrides, check_files=any(names_files(path) for path, _ in items), cache=self.cache,
+                         origins=origins, included=self.included, variant=True, base=(self.spec, paths))
 
     def for_variants(self) -> Scenario:
         """This scenario without its ``[sweep]``, ``[[option]]`` and ``[review]`` tables (same digest and cache).
@@ -142,6 +148,41 @@ def _deep_copy(data: Any) -> Any:
     return data
 
 
+def _reusing(raw: Any, validated: Any, paths: list[list[str | int]]) -> Any:
+    """``raw`` with each table off the overrides' ``paths`` replaced by its validated model from the base scenario.
+
+    pydantic takes a model instance as it is (it runs the model's after-checks on
+    it again, not its fields' conversions), so a variant converts afresh only the
+    tables on its overrides' paths: the same specification as validating
+    everything, because a table's checks see only its own contents. A table whose
+    before-validator reshapes its contents (an RC pair hands its activation energy
+    to its resistance table) is validated whole.
+    """
+    if not paths:  # off every path
+        if isinstance(validated, BaseModel):
+            return validated
+        if isinstance(validated, list) and isinstance(raw, list) and len(raw) == len(validated) \
+                and all(isinstance(item, BaseModel) for item in validated):
+            return list(validated)
+        return raw
+    if any(not p for p in paths):  # an override sets this very value
+        return raw
+    if isinstance(validated, BaseModel) and isinstance(raw, dict) and not _reshapes(type(validated)):
+        fields = type(validated).model_fields
+        heads = {p[0] for p in paths}
+        return {key: value if key not in fields else _reusing(value, getattr(validated, key), [
+                    p[1:] for p in paths if p[0] == key] if key in heads else []) for key, value in raw.items()}
+    if isinstance(validated, list) and isinstance(raw, list) and len(raw) == len(validated):
+        return [_reusing(value, item, [p[1:] for p in paths if p[0] == i])
+                for i, (value, item) in enumerate(zip(raw, validated, strict=True))]
+    return raw
+
+
+def _reshapes(model: type[BaseModel]) -> bool:
+    """Whether a model has a before-validator (it may hand values of its own to the tables inside it)."""
+    return any(d.info.mode == "before" for d in model.__pydantic_decorators__.model_validators.values())
+
+
 def _check_sizes(data: Any, source: str, path: str = "") -> int:
     """Refuse tables larger than the budget of rows before validating them; returns the values counted."""
     if isinstance(data, dict):
@@ -173,8 +214,13 @@ def _override_sources(items: list[tuple[str, Any]], label: str, flag: bool = Fal
 def _validate(data: dict, source: str, base_dir: Path, text: str | None, overrides: list[tuple[str, Any]],
               digest: str, previous: tuple = (), check_files: bool = True,
               cache: ScenarioCache | None = None, origins: Origins | None = None,
-              included: tuple[Path, ...] = (), variant: bool = False) -> Scenario:
-    """The scenario of raw ``data`` with ``overrides`` applied, validated (its CSV files too if ``check_files``)."""
+              included: tuple[Path, ...] = (), variant: bool = False,
+              base: tuple[ScenarioSpec, list] | None = None) -> Scenario:
+    """The scenario of raw ``data`` with ``overrides`` applied, validated (its CSV files too if ``check_files``).
+
+    ``base``: the validated specification ``data`` was copied from and the overrides' key paths; its tables
+    off those paths are taken as they are (:func:`_reusing`).
+    """
     if variant:  # the base was checked when it was loaded: only what the overrides bring
         for path, value in overrides:
             _check_sizes(value, source, path)
@@ -187,7 +233,7 @@ def _validate(data: dict, source: str, base_dir: Path, text: str | None, overrid
         except ValueError as exc:
             raise ScenarioError(labels[i].name if labels else source, path, f"cannot override: {exc}") from None
     try:
-        spec = ScenarioSpec.model_validate(data)
+        spec = ScenarioSpec.model_validate(data if base is None else _reusing(data, *base))
     except ValidationError as exc:
         raise first_error(exc, source, text, origins) from None
     if overrides:

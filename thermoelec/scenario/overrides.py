@@ -12,17 +12,24 @@ from __future__ import annotations
 
 import re
 import tomllib
+from functools import lru_cache
 from typing import Any
 
 from thermoelec.scenario.locate import dotted
 
-__all__ = ["apply_override", "parse_value", "split_path"]
+__all__ = ["apply_override", "copy_along", "parse_value", "split_path"]
 
 _PART = re.compile(r"([^.\[\]]+)|\[(\d+)\]")
 
 
 def split_path(path: str) -> list[str | int]:
     """``profile.segment[2].value`` -> ``['profile', 'segment', 1, 'value']`` (0-based inside)."""
+    return list(_split(path))
+
+
+@lru_cache(maxsize=4096)
+def _split(path: str) -> tuple[str | int, ...]:
+    """:func:`split_path`, once per path (a sweep's thousands of variants name the same few)."""
     parts: list[str | int] = []
     pos = 0
     for match in _PART.finditer(path):
@@ -39,7 +46,7 @@ def split_path(path: str) -> list[str | int]:
             parts.append(match.group(1).strip().strip('"'))
     if not parts or path[pos:] not in ("",):
         raise ValueError(f"cannot read the key path {path!r}")
-    return parts
+    return tuple(parts)
 
 
 def parse_value(text: str) -> Any:
@@ -48,6 +55,41 @@ def parse_value(text: str) -> Any:
         return tomllib.loads(f"v = {text}")["v"]
     except tomllib.TOMLDecodeError:
         return text
+
+
+def copy_along(data: dict, paths: list[list[str | int]]) -> dict:
+    """``data`` with every table and list on the key ``paths`` copied, the rest shared (for :func:`apply_override`).
+
+    A variant changes only what lies on its overrides' paths: copying the whole
+    scenario for each of a sweep's thousands of variants costs more than
+    validating what they change.
+
+    Parameters
+    ----------
+    data : dict
+        Raw scenario data (parsed TOML); not changed.
+    paths : list of list
+        Key paths (:func:`split_path`).
+
+    Returns
+    -------
+    dict
+        A copy in which :func:`apply_override` along ``paths`` changes nothing ``data`` holds.
+    """
+    top = dict(data)
+    for parts in paths:
+        node: Any = top
+        for part in parts[:-1]:
+            if isinstance(node, dict) and part in node and isinstance(node[part], (dict, list)):
+                child = node[part]
+            elif isinstance(node, list) and isinstance(part, int) and part < len(node) \
+                    and isinstance(node[part], (dict, list)):
+                child = node[part]
+            else:
+                break  # apply_override creates what is missing or names what is wrong
+            node[part] = child = dict(child) if isinstance(child, dict) else list(child)
+            node = child
+    return top
 
 
 def apply_override(data: dict, path: str, value: Any) -> None:
