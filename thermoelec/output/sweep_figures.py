@@ -28,7 +28,7 @@ from matplotlib.colors import Normalize
 from matplotlib.figure import Figure
 from matplotlib.patches import Rectangle
 
-from thermoelec.analysis.sweep import passes
+from thermoelec.analysis.sweep import numpy_backed, passes
 from thermoelec.output.figures import save
 
 __all__ = ["MAX_FACETS", "SWEEP_MAP_METRICS", "MapData", "axis_label", "boundary_segments", "facet_indices",
@@ -437,6 +437,11 @@ def write_sweep_figures(ds, out: Path, formats: Sequence[str] = ("png", "svg"), 
     """
     if "sample" in ds.dims:  # a sampled sweep is drawn by its statistics (thermoelec.output.uncertainty)
         return []
+    with numpy_backed():  # the sweep's dataset holds numpy arrays: xarray need not import dask and pint to see it
+        return _write_maps(ds, out, formats, parallel)
+
+
+def _write_maps(ds, out: Path, formats: Sequence[str], parallel: bool) -> list[Path]:
     # option groups last: their options become the facets (or the columns), the grid keys the axes
     options = [d for d in ds["verdict"].dims if ds[d].dtype == object]
     if options and len(ds["verdict"].dims) > len(options):

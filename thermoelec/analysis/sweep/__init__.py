@@ -27,6 +27,7 @@ from thermoelec.analysis.metrics import METRICS
 from thermoelec.analysis.sweep.checkpoint import Checkpoints, sweep_identity
 from thermoelec.analysis.sweep.dataset import (
     SweepData,
+    numpy_backed,
     passes,
     sweep_data,
     sweep_dataset,
@@ -39,6 +40,6 @@ from thermoelec.analysis.sweep.run import KEPT_SERIES, decimate, default_chunk_s
 from thermoelec.analysis.sweep.search import Criterion, design_search, parse_criterion
 
 __all__ = ["KEPT_SERIES", "METRICS", "Checkpoints", "Criterion", "SweepAxis", "SweepData", "SweepPlan", "check_values",
-           "decimate", "default_chunk_size", "design_search", "iter_combinations", "parse_criterion", "passes",
-           "plan_sweep", "run_chunk", "run_sweep", "solo_metrics", "sweep_data", "sweep_dataset", "sweep_identity",
-           "sweep_table", "write_series", "write_sweep"]
+           "decimate", "default_chunk_size", "design_search", "iter_combinations", "numpy_backed", "parse_criterion",
+           "passes", "plan_sweep", "run_chunk", "run_sweep", "solo_metrics", "sweep_data", "sweep_dataset",
+           "sweep_identity", "sweep_table", "write_series", "write_sweep"]

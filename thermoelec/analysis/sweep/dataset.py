@@ -15,7 +15,9 @@ from __future__ import annotations
 
 import json
 import os
-from collections.abc import Mapping, Sequence
+import sys
+from collections.abc import Iterator, Mapping, Sequence
+from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -31,8 +33,46 @@ from thermoelec.analysis.verdict import PASS
 from thermoelec.scenario import Scenario
 from thermoelec.version import __version__
 
-__all__ = ["SweepData", "passes", "plan_coordinates", "sweep_data", "sweep_dataset", "sweep_table", "write_series",
-           "write_sweep"]
+__all__ = ["SweepData", "numpy_backed", "passes", "plan_coordinates", "sweep_data", "sweep_dataset", "sweep_table",
+           "write_series", "write_sweep"]
+
+
+#: The array libraries xarray imports to tell their arrays from numpy's, and the module each array type lives in.
+_DUCK_ARRAY_MODULES = {"dask": "dask.array", "pint": "pint"}
+
+
+@contextmanager
+def numpy_backed() -> Iterator[None]:
+    """Within: xarray takes every array for numpy's without importing dask.array and pint to look (0.5 s).
+
+    xarray asks, of each array it is given, whether it is a dask array or a pint
+    quantity, and imports those libraries to know (dask.array brings
+    scipy.fftpack). An array of a module nobody has imported cannot be one of
+    its arrays, so while no one has, xarray is told here that the module is
+    absent; on the way out it is told nothing, and looks again when next asked
+    (a dataset chunked into dask arrays after this works as before). For the
+    sweep's own datasets, numpy throughout; a changed xarray without the table
+    this fills just looks, as it would have.
+    """
+    seeded = []
+    try:
+        from xarray.namedarray import pycompat
+
+        known = pycompat._cached_duck_array_modules
+        for name, module in _DUCK_ARRAY_MODULES.items():
+            if name not in known and module not in sys.modules:
+                absent = object.__new__(pycompat.DuckArrayModule)
+                absent.module, absent.version, absent.type, absent.available = None, pycompat.Version("0"), (), False
+                known[name] = absent
+                seeded.append((name, absent))
+    except (ImportError, AttributeError, TypeError):
+        pass
+    try:
+        yield
+    finally:
+        for name, absent in seeded:
+            if known.get(name) is absent:
+                del known[name]
 
 
 def plan_coordinates(plan: SweepPlan) -> dict[str, tuple[str, np.ndarray, dict[str, str]]]:
@@ -99,7 +139,8 @@ class SweepData:
         """The xarray Dataset (figures, reviews and the uncertainty analysis work on it)."""
         import xarray as xr
 
-        ds = xr.Dataset(self.data, coords=self.coords)
+        with numpy_backed():
+            ds = xr.Dataset(self.data, coords=self.coords)
         ds.attrs.update(self.attrs)
         return ds
 
