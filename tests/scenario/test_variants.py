@@ -20,6 +20,7 @@ from pydantic import ValidationError
 
 import thermoelec
 from thermoelec.scenario import ScenarioError, apply_override
+from thermoelec.scenario.loading import names_files
 from thermoelec.scenario.schema import ScenarioSpec
 
 SCENARIOS = Path(__file__).resolve().parents[2] / "scenarios"
@@ -87,3 +88,14 @@ def test_a_variants_bad_value_names_its_key_as_before():
         with pytest.raises(ScenarioError) as caught:
             base.with_overrides({path: value})
         assert path.split("[")[0].split(".")[-1] in str(caught.value) or path in str(caught.value), caught.value
+
+
+@pytest.mark.parametrize(("path", "names"), [
+    ("profile.scale", False), ("profile.repeat", False), ("profile.segment[2].value", False),
+    ("thermal.ambient_temperature", False), ("cell.initial_soc", False),
+    ("profile", True), ("profile.segment", True), ("profile.segment[2]", True), ("profile.segment[2].file", True),
+    ("thermal", True), ("thermal.ambient_profile", True), ("include", True)])
+def test_only_an_override_that_can_name_a_file_has_the_files_checked_again(path, names):
+    # the keys that name CSV files: thermal.ambient_profile and a segment's file (SCENARIO-FORMAT), or a table
+    # holding them; a variant of any other key reads the files its base read
+    assert names_files(path) is names

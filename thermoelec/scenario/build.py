@@ -19,6 +19,7 @@ from functools import lru_cache
 from pathlib import Path
 
 import numpy as np
+from pydantic import BaseModel
 
 from thermoelec.engine.problem import Problem
 from thermoelec.engine.profile import Segment, expand_repeats, segments_from_series
@@ -28,7 +29,7 @@ from thermoelec.physics.constants import ZERO_CELSIUS
 from thermoelec.physics.loads import LOAD_MODES
 from thermoelec.scenario.cache import ScenarioCache, file_version
 from thermoelec.scenario.resolved import resolved_pack
-from thermoelec.scenario.schema import CellSpec, ScenarioSpec, SegmentSpec
+from thermoelec.scenario.schema import CellSpec, ProfileSpec, ScenarioSpec, SegmentSpec
 from thermoelec.scenario.series import AMBIENT_COLUMN, read_ambient_csv, read_profile_csv
 
 __all__ = ["SCALED_MODES", "build_problem", "scale_demand"]
@@ -180,10 +181,19 @@ def _profile_segments(spec: ScenarioSpec, base_dir: Path, source: str, cache: Sc
     given = spec.thermal.ambient_temperature
     has_soak = any(seg.mode == "soak" for seg in profile.segment)
     files = tuple(None if seg.file is None else file_version(_file(base_dir, seg.file)) for seg in profile.segment)
-    key = ("profile", cache.text_of(profile), given if has_soak or given is None else "given", first_ambient, files)
+    key = ("profile", _profile_text(profile, cache), given if has_soak or given is None else "given", first_ambient,
+           files)
     segments, soak, ambient = cache.built(
         key, lambda: _make_profile_segments(spec, base_dir, source, cache, first_ambient))
     return segments, soak, given if given is not None else ambient
+
+
+def _profile_text(profile: ProfileSpec, cache: ScenarioCache) -> tuple:
+    """The profile section as a key: each field's text, a segment's once per segment table (variants share them)."""
+    return cache.of_object(profile, lambda section: tuple(
+        (name, tuple(cache.of_object(item, repr) for item in value) if isinstance(value, list) else
+         cache.of_object(value, repr) if isinstance(value, BaseModel) else value) for name, value in section),
+        "profile key")
 
 
 def _make_profile_segments(spec: ScenarioSpec, base_dir: Path, source: str, cache: ScenarioCache,

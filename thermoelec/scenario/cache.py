@@ -62,7 +62,7 @@ class ScenarioCache:
         self.max_entries = max_entries
         self._reads: dict[tuple, Any] = {}
         self._built: dict[Hashable, Any] = {}
-        self._texts: dict[int, tuple[Any, str]] = {}
+        self._objects: dict[tuple[int, str], tuple[Any, Any]] = {}
         #: Files actually read (not found in the cache), for tests and diagnostics [-].
         self.files_read = 0
 
@@ -113,16 +113,26 @@ class ScenarioCache:
             self._put(self._built, key, make())
         return self._built[key]
 
-    def text_of(self, value: Any) -> str:
-        """``repr(value)``, once per object while the cache holds it (a key part for :meth:`built`).
+    def of_object(self, value: Any, make: Callable[[Any], T], kind: str = "") -> T:
+        """``make(value)``, once per object and ``kind`` while the cache holds it (``repr``: a key for :meth:`built`).
 
         The variants of a sweep share the tables no override touched, the very
-        objects: their text is written once, not once per variant.
+        objects: what is made of one is made once, not once per variant.
+
+        Parameters
+        ----------
+        value : Any
+            The object.
+        make : callable
+            Makes what is wanted of it.
+        kind : str
+            What is made, where one object is asked for more than one thing [-].
         """
-        entry = self._texts.get(id(value))
+        key = (id(value), kind)
+        entry = self._objects.get(key)
         if entry is None or entry[0] is not value:
-            entry = (value, repr(value))  # the object is held, so its id is not reused while it is here
-            self._put(self._texts, id(value), entry)
+            entry = (value, make(value))  # the object is held, so its id is not reused while it is here
+            self._put(self._objects, key, entry)
         return entry[1]
 
     def _put(self, table: dict, key: Hashable, value: Any) -> None:

@@ -19,6 +19,7 @@ import re
 import tomllib
 from collections.abc import Mapping
 from dataclasses import dataclass, field, replace
+from functools import lru_cache
 from pathlib import Path
 from typing import Any
 
@@ -154,30 +155,42 @@ def _reusing(raw: Any, validated: Any, paths: list[list[str | int]]) -> Any:
     pydantic takes a model instance as it is (it runs the model's after-checks on
     it again, not its fields' conversions), so a variant converts afresh only the
     tables on its overrides' paths: the same specification as validating
-    everything, because a table's checks see only its own contents. A table whose
+    everything, because a table's checks see only their own contents. A table whose
     before-validator reshapes its contents (an RC pair hands its activation energy
     to its resistance table) is validated whole.
     """
-    if not paths:  # off every path
-        if isinstance(validated, BaseModel):
-            return validated
-        if isinstance(validated, list) and isinstance(raw, list) and len(raw) == len(validated) \
-                and all(isinstance(item, BaseModel) for item in validated):
-            return list(validated)
-        return raw
     if any(not p for p in paths):  # an override sets this very value
         return raw
     if isinstance(validated, BaseModel) and isinstance(raw, dict) and not _reshapes(type(validated)):
         fields = type(validated).model_fields
         heads = {p[0] for p in paths}
-        return {key: value if key not in fields else _reusing(value, getattr(validated, key), [
-                    p[1:] for p in paths if p[0] == key] if key in heads else []) for key, value in raw.items()}
+        out = {}
+        for key, value in raw.items():
+            if key not in fields:
+                out[key] = value  # pydantic names it
+            elif key in heads:
+                out[key] = _reusing(value, getattr(validated, key), [p[1:] for p in paths if p[0] == key])
+            else:
+                out[key] = _untouched(value, getattr(validated, key))
+        return out
     if isinstance(validated, list) and isinstance(raw, list) and len(raw) == len(validated):
-        return [_reusing(value, item, [p[1:] for p in paths if p[0] == i])
+        heads = {p[0] for p in paths}
+        return [_reusing(value, item, [p[1:] for p in paths if p[0] == i]) if i in heads else _untouched(value, item)
                 for i, (value, item) in enumerate(zip(raw, validated, strict=True))]
     return raw
 
 
+def _untouched(raw: Any, validated: Any) -> Any:
+    """A value off every override's path: its validated model (or list of them) as it is, else the raw value."""
+    if isinstance(validated, BaseModel):
+        return validated
+    if isinstance(validated, list) and isinstance(raw, list) and len(raw) == len(validated) and validated \
+            and all(isinstance(item, BaseModel) for item in validated):
+        return list(validated)
+    return raw
+
+
+@lru_cache(maxsize=256)
 def _reshapes(model: type[BaseModel]) -> bool:
     """Whether a model has a before-validator (it may hand values of its own to the tables inside it)."""
     return any(d.info.mode == "before" for d in model.__pydantic_decorators__.model_validators.values())
@@ -248,8 +261,23 @@ def _validate(data: dict, source: str, base_dir: Path, text: str | None, overrid
 
 
 def names_files(path: str) -> bool:
-    """Whether an override at this dotted path can change which CSV files the scenario reads."""
-    return path.startswith(("profile", "thermal.ambient_profile")) or path in ("thermal", "include")
+    """Whether an override at this dotted path can change which CSV files the scenario reads.
+
+    A file is named by ``thermal.ambient_profile`` or a segment's ``file``: an override of one of
+    them, or of a table that holds them (``profile``, ``profile.segment[2]``, ``thermal``), or an
+    ``include``. ``profile.scale`` or ``profile.segment[2].value`` name none.
+    """
+    try:
+        parts = split_path(path)
+    except ValueError:
+        return True  # the override fails and says why; nothing is assumed of it
+    if parts[0] == "include":
+        return True
+    if parts[0] == "thermal":
+        return len(parts) == 1 or parts[1] == "ambient_profile"
+    if parts[0] == "profile":
+        return len(parts) == 1 or (parts[1] == "segment" and (len(parts) <= 3 or parts[3] == "file"))
+    return False
 
 
 def data_files(spec: ScenarioSpec) -> list[tuple[str, str, Any]]:
