@@ -30,6 +30,7 @@ import math
 import os
 import signal
 import sys
+import threading
 import time as _time
 from collections.abc import Callable, Iterator, Mapping, Sequence
 from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
@@ -158,8 +159,13 @@ class Progress:
         if self.enabled:
             from tqdm import tqdm
 
+            class Bar(tqdm):
+                # no monitor thread (it forces a refresh of bars updated rarely; this one is updated at
+                # every chunk): with a thread running, the workers could not be forks (process_pool)
+                monitor_interval = 0
+
             # disable=None: quiet when the stream is no terminal (a log file, a pipe, a test)
-            self._bar = tqdm(total=self.total, initial=done, unit="scenario", desc="sweep", file=self.stream,
+            self._bar = Bar(total=self.total, initial=done, unit="scenario", desc="sweep", file=self.stream,
                              disable=None, delay=1.0, dynamic_ncols=True)
 
     def update(self, count: int) -> None:
@@ -341,6 +347,7 @@ def _worker_start(budgets: Budgets, task: tuple | None = None) -> None:
     Ctrl-C reaches the whole process group."""
     global _WORKER_TASK
     signal.signal(signal.SIGINT, signal.SIG_IGN)
+    signal.signal(signal.SIGTERM, signal.SIG_DFL)  # a forked worker had the command's handler: it just ends
     install(budgets)
     _WORKER_TASK = task
 
@@ -354,9 +361,15 @@ def _worker_chunk(indices: list[int]) -> list[dict[str, Any]]:
 
 @contextmanager
 def process_pool(workers: int, task: tuple | None = None) -> Iterator[ProcessPoolExecutor]:
-    """Worker processes (forkserver) that never outlive the block: on any exception, an interrupt
-    included, the workers and the fork server are stopped before it propagates. The workers take
-    the budgets in force (:func:`thermoelec.inputs.budgets.current`).
+    """Worker processes that never outlive the block: on any exception, an interrupt included, the
+    workers (and the fork server) are stopped before it propagates. The workers take the budgets in
+    force (:func:`thermoelec.inputs.budgets.current`).
+
+    Where the system forks and this process runs no other Python thread, the workers are forks of
+    it: they start with the engine loaded and the sweep in memory, in milliseconds rather than the
+    0.6-0.7 s of CPU a fresh worker spends importing and unpickling (bench_two_cores.py). A fork
+    copies the calling thread only, so with another thread running (the progress display) they come
+    from a fork server that imports nothing, as on systems that do not fork.
 
     Parameters
     ----------
@@ -372,10 +385,13 @@ def process_pool(workers: int, task: tuple | None = None) -> Iterator[ProcessPoo
     """
     import multiprocessing
 
-    context = multiprocessing.get_context("forkserver")
-    # the server imports nothing: starting a worker waits for the server's start-up, and the command
-    # would wait too (it solves chunks meanwhile); each worker imports the engine on its own
-    context.set_forkserver_preload([])
+    if "fork" in multiprocessing.get_all_start_methods() and threading.active_count() == 1:
+        context = multiprocessing.get_context("fork")
+    else:
+        context = multiprocessing.get_context("forkserver")
+        # the server imports nothing: starting a worker waits for the server's start-up, and the command
+        # would wait too (it solves chunks meanwhile); each worker imports the engine on its own
+        context.set_forkserver_preload([])
     pool = ProcessPoolExecutor(max_workers=workers, mp_context=context, initializer=_worker_start,
                                initargs=(current(), task))
     try:

@@ -1,0 +1,60 @@
+"""The sweep's worker processes: forks of the command where that is safe, else from a fork server.
+
+A fork copies the calling thread only (POSIX ``fork``: a lock another thread
+holds stays locked in the child), so the workers are forks only while this
+process runs no other Python thread; either way they end with the pool, and
+at once when it is stopped (:func:`thermoelec.analysis.sweep.run.stop_pool`).
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import subprocess
+import sys
+import textwrap
+import threading
+
+import psutil
+
+from thermoelec.analysis.sweep.run import process_pool, stop_pool
+
+#: In a fresh process (this one may run threads other tests left): the workers' parents, and whether a fork
+#: server ran.
+FORKED = textwrap.dedent("""
+    import json, os, psutil, threading
+    from thermoelec.analysis.sweep.run import process_pool
+    assert threading.active_count() == 1
+    with process_pool(1) as pool:
+        pids = {pool.submit(os.getpid).result(timeout=60) for _ in range(4)}
+        parents = [psutil.Process(pid).ppid() for pid in pids]
+        server = any("forkserver" + " import main" in " ".join(c.cmdline())  # not this script's own text
+                     for c in psutil.Process().children(recursive=True))
+    _, alive = psutil.wait_procs([psutil.Process(pid) for pid in pids if psutil.pid_exists(pid)], timeout=10)
+    print(json.dumps({"me": os.getpid(), "parents": parents, "server": server, "alive": len(alive)}))
+""")
+
+
+def test_workers_are_forks_of_the_command_when_it_runs_no_other_thread():
+    done = subprocess.run([sys.executable, "-c", FORKED], capture_output=True, text=True, timeout=120, check=True)
+    found = json.loads(done.stdout.strip().splitlines()[-1])
+    assert found["parents"] == [found["me"]] and not found["server"]
+    assert found["alive"] == 0  # ended with the pool
+
+
+def test_with_another_thread_running_the_workers_come_from_a_fork_server_and_stop_with_the_pool():
+    done = threading.Event()
+    other = threading.Thread(target=done.wait, daemon=True)
+    other.start()
+    try:
+        with process_pool(1) as pool:
+            workers = [psutil.Process(pid) for pid in {pool.submit(os.getpid).result(timeout=60) for _ in range(4)}]
+            assert workers[0].ppid() != os.getpid()  # the fork server's child
+            assert any("forkserver import main" in " ".join(c.cmdline())
+                       for c in psutil.Process().children(recursive=True))
+            stop_pool(pool)
+            _, alive = psutil.wait_procs(workers, timeout=10)
+            assert not alive
+    finally:
+        done.set()
+        other.join()
