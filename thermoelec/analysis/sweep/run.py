@@ -11,13 +11,13 @@ finished chunk atomically to ``DIR/chunks/``
 (:mod:`~thermoelec.analysis.sweep.checkpoint`), so ``--resume`` skips its
 scenarios and an interrupted sweep loses at most the chunks in flight. On
 ``workers`` local processes the command itself is one of them
-(:func:`_run_processes`): it solves chunks from the first moment, while the
-others start, and each worker is handed the scenario and plan once, then only
-chunks of scenario indices. ``THERMOELEC_SWEEP_TIMING=FILE`` appends one JSON
+(:func:`_run_processes`): it solves chunks from the first moment, the workers
+are forks of it where that is safe (:func:`process_pool`), and each worker is
+handed the scenario and plan once, then only chunks of scenario indices. ``THERMOELEC_SWEEP_TIMING=FILE`` appends one JSON
 line per solved chunk to FILE (process, first index, scenarios, wall-clock start
 and end, CPU time), for ``benchmarks/bench_two_cores.py``. An
-interrupt (SIGINT, SIGTERM) or any other exception ends the worker processes and
-the fork server before it propagates (:func:`process_pool`): no worker outlives
+interrupt (SIGINT, SIGTERM) or any other exception ends the worker processes (and
+the fork server) before it propagates (:func:`process_pool`): no worker outlives
 the command. A scenario that fails, or is over the budget of rows, is recorded
 with its message and never stops the sweep. Imports from scenario/, engine/,
 inputs/ and analysis/ only; never from output/, fit/, the API or the command line.
