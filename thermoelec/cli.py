@@ -24,6 +24,7 @@ place whole or not at all. "thermoelec COMMAND --help" for each.
 from __future__ import annotations
 
 import argparse
+import importlib
 import os
 import shlex
 import sys
@@ -93,6 +94,33 @@ def _progress(label: str, enabled: bool = True) -> Iterator[None]:
     finally:
         done.set()
         thread.join()
+
+
+class _ImportsAhead:
+    """Modules imported in a thread while a sweep solves: the kernels run without the GIL, so the
+    figures' libraries (xarray, pandas, matplotlib: about a second of CPU) load meanwhile instead of
+    after the last chunk. Started by the sweep once its workers run (``run_sweep(meanwhile=...)``: a
+    thread started before would keep them from being forks). An import that fails here is left to
+    fail again, with its message, where the module is used."""
+
+    def __init__(self, modules: tuple[str, ...]):
+        self.modules, self.thread = modules, None
+
+    def start(self) -> None:
+        if self.modules and self.thread is None:
+            self.thread = threading.Thread(target=self._load, name="imports-ahead", daemon=True)
+            self.thread.start()
+
+    def _load(self) -> None:
+        for name in self.modules:
+            try:
+                importlib.import_module(name)
+            except Exception:  # imported again where it is used, which reports it
+                return
+
+    def join(self) -> None:
+        if self.thread is not None:
+            self.thread.join()
 
 
 def _write_with_report(result, scenario, out: Path, figures: bool, drawing) -> None:
@@ -377,17 +405,20 @@ def _sweep(args: argparse.Namespace) -> int:
         if args.resume and not args.force and not sweep.Checkpoints(out / "chunks").finished():
             print(f"thermoelec: note: no finished chunks in {out}/chunks/: the sweep starts from the beginning",
                   file=sys.stderr)
+        # the xarray Dataset only for what works on one: figures, a review, an uncertainty analysis
+        # (building one imports xarray and pandas: half a second of start-up)
+        wanted = not args.no_figures or plan.sampling is not None or bool(plan.option_dims)
+        ahead = _ImportsAhead((("xarray",) if wanted else ()) +
+                              (() if args.no_figures else ("thermoelec.output.sweep_figures",)))
         try:
             rows = sweep.run_sweep(scenario, plan, out, args.workers, args.scheduler, args.resume, args.chunk_size,
                                    progress=not args.quiet, keep_interval=keep, engine=args.engine,
-                                   force=args.force)
+                                   force=args.force, meanwhile=ahead.start)
         except Interrupted as exc:
             _resume_hint(exc, out, args.command_line)
             raise
+        ahead.join()  # the maps' forked child must find no import half done
         results = sweep.sweep_data(scenario, plan, rows)
-        # the xarray Dataset only for what works on one: figures, a review, an uncertainty analysis
-        # (building one imports xarray, dask and pint: a second of start-up)
-        wanted = not args.no_figures or plan.sampling is not None or bool(plan.option_dims)
         ds = results.dataset() if wanted else None
         with folder.transaction() as stage:
             sweep.write_sweep(results, stage)

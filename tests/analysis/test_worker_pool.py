@@ -58,3 +58,41 @@ def test_with_another_thread_running_the_workers_come_from_a_fork_server_and_sto
     finally:
         done.set()
         other.join()
+
+
+#: A sweep of 8 scenarios in chunks of 2 on two workers and on one, in a fresh process: how often ``meanwhile``
+#: was called, whether the workers were already forks then, and that the thread it started kept none from forking.
+MEANWHILE = textwrap.dedent("""
+    import json, os, sys, tempfile, threading
+    from pathlib import Path
+    import psutil
+    import thermoelec
+    from thermoelec.analysis import sweep
+    from tests.helpers import scenario
+
+    loaded = thermoelec.scenario_from_dict(scenario(sweep={"thermal.sink_to_ambient": ["0.5 W/K", "1 W/K"],
+                                                           "cell.initial_soc": [0.5, 0.6, 0.7, 0.8]}))
+    plan = sweep.plan_sweep(loaded)
+    found = {}
+    for workers in (2, 1):
+        calls = []
+
+        def meanwhile():
+            children = psutil.Process().children(recursive=True)
+            calls.append({"workers": len(children), "forks": all(c.ppid() == os.getpid() for c in children)})
+            threading.Thread(target=lambda: None).start()  # what the command starts: the imports ahead
+
+        with tempfile.TemporaryDirectory() as name:
+            rows = sweep.run_sweep(loaded, plan, Path(name) / "o", workers=workers, chunk_size=2, progress=False,
+                                   meanwhile=meanwhile)
+        found[workers] = {"calls": calls, "ok": sum(r["status"] == "ok" for r in rows)}
+    print(json.dumps(found))
+""")
+
+
+def test_the_sweep_calls_meanwhile_once_after_its_workers_are_forked():
+    done = subprocess.run([sys.executable, "-c", MEANWHILE], capture_output=True, text=True, timeout=300,
+                          check=True)
+    found = json.loads(done.stdout.strip().splitlines()[-1])
+    assert found["2"]["calls"] == [{"workers": 1, "forks": True}] and found["2"]["ok"] == 8
+    assert len(found["1"]["calls"]) == 1 and found["1"]["ok"] == 8

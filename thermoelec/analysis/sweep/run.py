@@ -13,14 +13,15 @@ scenarios and an interrupted sweep loses at most the chunks in flight. On
 ``workers`` local processes the command itself is one of them
 (:func:`_run_processes`): it solves chunks from the first moment, the workers
 are forks of it where that is safe (:func:`process_pool`), and each worker is
-handed the scenario and plan once, then only chunks of scenario indices. ``THERMOELEC_SWEEP_TIMING=FILE`` appends one JSON
-line per solved chunk to FILE (process, first index, scenarios, wall-clock start
-and end, CPU time), for ``benchmarks/bench_two_cores.py``. An
-interrupt (SIGINT, SIGTERM) or any other exception ends the worker processes (and
-the fork server) before it propagates (:func:`process_pool`): no worker outlives
-the command. A scenario that fails, or is over the budget of rows, is recorded
-with its message and never stops the sweep. Imports from scenario/, engine/,
-inputs/ and analysis/ only; never from output/, fit/, the API or the command line.
+handed the scenario and plan once, then only chunks of scenario indices.
+``THERMOELEC_SWEEP_TIMING=FILE`` appends one JSON line per solved chunk to FILE
+(process, first index, scenarios, wall-clock start and end, CPU time), for
+``benchmarks/bench_two_cores.py``. An interrupt (SIGINT, SIGTERM) or any other
+exception ends the worker processes (and the fork server) before it propagates
+(:func:`process_pool`): no worker outlives the command. A scenario that fails,
+or is over the budget of rows, is recorded with its message and never stops the
+sweep. Imports from scenario/, engine/, inputs/ and analysis/ only; never from
+output/, fit/, the API or the command line.
 """
 
 from __future__ import annotations
@@ -240,7 +241,8 @@ def _short_tail(pieces: list[list[int]], processes: int) -> list[list[int]]:
 def run_sweep(scenario: Scenario, plan: SweepPlan, out: Path, workers: int | None = None,
               scheduler: str | None = None, resume: bool = False, chunk_size: int | None = None,
               progress: bool = True, cluster: Any = None, keep_interval: float | None = None,
-              engine: str = "batch", force: bool = False) -> list[dict[str, Any]]:
+              engine: str = "batch", force: bool = False, meanwhile: Callable[[], None] | None = None
+              ) -> list[dict[str, Any]]:
     """Run every scenario of a plan, checkpointing each chunk; returns the rows in plan order.
 
     The output folder is held (:func:`thermoelec.analysis.transaction.hold`) while it runs.
@@ -272,6 +274,10 @@ def run_sweep(scenario: Scenario, plan: SweepPlan, out: Path, workers: int | Non
         ``"batch"`` (default) or ``"solo"``, as in :func:`run_chunk`.
     force : bool
         Discard finished chunks in ``out`` (another sweep's, or this one's) and start again.
+    meanwhile : callable, optional
+        Called once, when the chunks start (after the local workers are started, so a thread it
+        starts does not keep them from being forks: :func:`process_pool`); the command line starts
+        the figures' imports there, while the kernels solve without the GIL.
 
     Returns
     -------
@@ -300,7 +306,10 @@ def run_sweep(scenario: Scenario, plan: SweepPlan, out: Path, workers: int | Non
             bar.update(len(rows))
 
         task = (scenario, plan, keep_interval, engine, current())
+        started = meanwhile or (lambda: None)
         try:
+            if not pieces or workers == 1 or len(pieces) == 1 or scheduler is not None or cluster is not None:
+                started()
             if not pieces:
                 pass
             elif scheduler is not None or cluster is not None:
@@ -309,7 +318,7 @@ def run_sweep(scenario: Scenario, plan: SweepPlan, out: Path, workers: int | Non
                 for indices in pieces:
                     finish(indices, _timed_chunk(scenario, plan, indices, keep_interval, engine))
             else:
-                _run_processes(task, _short_tail(pieces, workers), finish, workers)
+                _run_processes(task, _short_tail(pieces, workers), finish, workers, started)
         finally:
             bar.close()
         return [done[i] for i in range(plan.size)]
@@ -431,7 +440,8 @@ def stop_pool(pool: ProcessPoolExecutor, grace: float = 2.0) -> None:
         stop()
 
 
-def _run_processes(task: tuple, pieces: list[list[int]], finish: Callable, workers: int) -> None:
+def _run_processes(task: tuple, pieces: list[list[int]], finish: Callable, workers: int,
+                   started: Callable[[], None]) -> None:
     """The chunks on ``workers`` processes, this one included.
 
     ``workers - 1`` processes are started and handed every chunk, in order; this
@@ -440,10 +450,12 @@ def _run_processes(task: tuple, pieces: list[list[int]], finish: Callable, worke
     from the first moment rather than after the workers' start-up, writing the
     chunks the workers finished in between; when every chunk is begun it waits
     for the last. The workers get the sweep once and then only scenario indices.
+    ``started`` is called once every chunk is handed to the pool (the workers run).
     """
     scenario, plan, keep_interval, engine, _ = task
     with process_pool(workers - 1, (scenario, plan, keep_interval, engine)) as pool:
         futures = [pool.submit(_worker_chunk, indices) for indices in pieces]
+        started()
         pending: dict[Future, int] = dict(zip(futures, range(len(pieces)), strict=True))
 
         def collect(timeout: float | None) -> None:
