@@ -377,8 +377,9 @@ def process_pool(workers: int, task: tuple | None = None) -> Iterator[ProcessPoo
     Where the system forks and this process runs no other Python thread, the workers are forks of
     it: they start with the engine loaded and the sweep in memory, in milliseconds rather than the
     0.6-0.7 s of CPU a fresh worker spends importing and unpickling (bench_two_cores.py). A fork
-    copies the calling thread only, so with another thread running (the progress display) they come
-    from a fork server that imports nothing, as on systems that do not fork.
+    copies the calling thread only (a lock another thread holds would stay locked in the child), so
+    with another thread running they come from a fork server that imports nothing, as on systems
+    that do not fork.
 
     Parameters
     ----------
