@@ -17,7 +17,7 @@ import threading
 
 import psutil
 
-from thermoelec.analysis.sweep.run import process_pool, stop_pool
+from thermoelec.analysis.sweep.run import _short_tail, process_pool, stop_pool
 
 #: In a fresh process (this one may run threads other tests left): the workers' parents, and whether a fork
 #: server ran.
@@ -96,3 +96,12 @@ def test_the_sweep_calls_meanwhile_once_after_its_workers_are_forked():
     found = json.loads(done.stdout.strip().splitlines()[-1])
     assert found["2"]["calls"] == [{"workers": 1, "forks": True}] and found["2"]["ok"] == 8
     assert len(found["1"]["calls"]) == 1 and found["1"]["ok"] == 8
+
+
+def test_the_last_chunks_are_split_smaller_and_keep_every_scenario_in_order():
+    # ten chunks of 256 on two processes: the last four in quarters, the last four quarters in halves
+    pieces = [list(range(k, k + 256)) for k in range(0, 2560, 256)]
+    split = _short_tail(pieces, 2)
+    assert [len(p) for p in split] == [256] * 6 + [64] * 12 + [32] * 8
+    assert [i for p in split for i in p] == list(range(2560))
+    assert _short_tail([list(range(40))], 2) == [list(range(32)), list(range(32, 40))]  # none below 32 but the rest
