@@ -168,3 +168,31 @@ def test_the_stop_cases_stop_where_they_say(tmp_path):
              for name in ("voltage cutoff", "temperature limit", "end condition, then rest")}
     assert stops == {"voltage cutoff": "voltage_min", "temperature limit": "temperature_max",
                      "end condition, then rest": "end_of_profile"}
+
+
+def test_a_later_batch_on_the_same_profile_walks_the_plan_made_for_the_first(tmp_path, monkeypatch):
+    # a sweep's chunks are batches on one segment tuple: its plan is made once in the process
+    # (engine.batch._PLANS), read-only, and a batch on it solves the very same numbers
+    loaded = _load("1 Hz power with regeneration", tmp_path)
+    first = [loaded.with_overrides({"cell.initial_soc": soc}).problem() for soc in (0.5, 0.7)]
+    options = loaded.solver_options()
+    made = []
+    real = batch.plan_mission
+    monkeypatch.setattr(batch, "_PLANS", {})
+    monkeypatch.setattr(batch, "plan_mission", lambda problem: made.append(problem) or real(problem))
+    before = batch.solve_batch(first, options)
+    again = batch.solve_batch([loaded.with_overrides({"cell.initial_soc": soc}).problem() for soc in (0.5, 0.7)],
+                              options)
+    assert len(made) == 1 and first[0].segments is made[0].segments
+    np.testing.assert_array_equal(before.states, again.states)
+    np.testing.assert_array_equal(before.extras, again.extras)
+    plan = batch._PLANS[id(first[0].segments)][0][2]
+    with pytest.raises(ValueError):
+        plan.values[0, 0] = 1.0
+    # other limits the plan reads (the cell's voltage_min): a plan of their own
+    batch.solve_batch([loaded.with_overrides({"cell.voltage_min": "2.9 V"}).problem()], options)
+    assert len(made) == 2
+    # the kept plan is the one made afresh for another scenario on the profile
+    fresh = real(first[1])
+    for name in ("n_phases", "modes", "values", "durations", "setups", "setup_index"):
+        np.testing.assert_array_equal(getattr(plan, name), getattr(fresh, name))
