@@ -249,8 +249,7 @@ def _split_last(pieces: list[list[int]], count: int, parts: int) -> list[list[in
 def run_sweep(scenario: Scenario, plan: SweepPlan, out: Path, workers: int | None = None,
               scheduler: str | None = None, resume: bool = False, chunk_size: int | None = None,
               progress: bool = True, cluster: Any = None, keep_interval: float | None = None,
-              engine: str = "batch", force: bool = False, meanwhile: Callable[[], None] | None = None
-              ) -> list[dict[str, Any]]:
+              engine: str = "batch", force: bool = False, meanwhile: Callable | None = None) -> list[dict[str, Any]]:
     """Run every scenario of a plan, checkpointing each chunk; returns the rows in plan order.
 
     The output folder is held (:func:`thermoelec.analysis.transaction.hold`) while it runs.
@@ -283,9 +282,8 @@ def run_sweep(scenario: Scenario, plan: SweepPlan, out: Path, workers: int | Non
     force : bool
         Discard finished chunks in ``out`` (another sweep's, or this one's) and start again.
     meanwhile : callable, optional
-        Called once, when the chunks start (after the local workers are started, so a thread it
-        starts does not keep them from being forks: :func:`process_pool`); the command line starts
-        the figures' imports there, while the kernels solve without the GIL.
+        Called once when the chunks start, after the local workers (a thread it starts keeps none
+        from being a fork, :func:`process_pool`): the command line's imports for the figures.
 
     Returns
     -------
@@ -316,17 +314,15 @@ def run_sweep(scenario: Scenario, plan: SweepPlan, out: Path, workers: int | Non
         task = (scenario, plan, keep_interval, engine, current())
         started = meanwhile or (lambda: None)
         try:
-            if not pieces or workers == 1 or len(pieces) == 1 or scheduler is not None or cluster is not None:
-                started()
-            if not pieces:
-                pass
-            elif scheduler is not None or cluster is not None:
-                _run_dask(task, pieces, finish, scheduler, cluster)
-            elif workers == 1 or len(pieces) == 1:
-                for indices in pieces:
-                    finish(indices, _timed_chunk(scenario, plan, indices, keep_interval, engine))
-            else:
+            if scheduler is None and cluster is None and workers > 1 and len(pieces) > 1:
                 _run_processes(task, _short_tail(pieces, workers), finish, workers, started)
+            else:
+                started()  # no local workers to start first
+                if pieces and (scheduler is not None or cluster is not None):
+                    _run_dask(task, pieces, finish, scheduler, cluster)
+                else:
+                    for indices in pieces:
+                        finish(indices, _timed_chunk(scenario, plan, indices, keep_interval, engine))
         finally:
             bar.close()
         return [done[i] for i in range(plan.size)]
