@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import os
 import subprocess
 import sys
 
@@ -95,6 +96,26 @@ def test_invalid_input_from_a_subprocess_has_no_traceback(tmp_path):
                           capture_output=True, text=True)
     assert proc.returncode == 2
     assert "Traceback" not in proc.stderr and "cell.capacity" in proc.stderr
+
+
+def test_the_command_ends_without_teardown_but_with_its_exit_handlers_and_streams(tmp_path):
+    # thermoelec.cli.console ends the process with os._exit after main: the exit handlers must have run
+    # (the unit memo is written at exit into the cache folder), the printed summary must be whole and the
+    # exit status main's, for a run that passes and for input that is refused
+    cache = tmp_path / "cache"
+    env = {**os.environ, "THERMOELEC_CACHE_DIR": str(cache)}
+    done = subprocess.run([sys.executable, "-m", "thermoelec.cli", "run", str(DRONE), "--out", str(tmp_path / "o"),
+                           "--no-figures"], capture_output=True, text=True, env=env, timeout=300)
+    assert done.returncode == 0, done.stderr
+    assert "verdict" in done.stdout.lower() and done.stdout.endswith("\n")
+    assert json.loads((tmp_path / "o" / "summary.json").read_text())["completed"] in (True, False)
+    (memo,) = cache.glob("conversions-*.json")
+    assert json.loads(memo.read_text())  # written by the exit handler
+    bad = tmp_path / "bad.toml"
+    bad.write_text(DRONE.read_text().replace('capacity = "5 Ah"', 'capacity = "5 V"'))
+    refused = subprocess.run([sys.executable, "-m", "thermoelec.cli", "run", str(bad), "--out", str(tmp_path / "b")],
+                             capture_output=True, text=True, env=env, timeout=300)
+    assert refused.returncode == 2 and "cell.capacity" in refused.stderr
 
 
 def test_api_from_file_dict_and_overrides():

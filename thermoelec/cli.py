@@ -24,6 +24,7 @@ place whole or not at all. "thermoelec COMMAND --help" for each.
 from __future__ import annotations
 
 import argparse
+import atexit
 import importlib
 import os
 import shlex
@@ -946,5 +947,24 @@ def main(argv: list[str] | None = None) -> int:
         return EXIT_FAILURE
 
 
+def console() -> None:
+    """The ``thermoelec`` command: :func:`main`, then the process ends without tearing the interpreter down.
+
+    Clearing every module and freeing every object one at a time took a third of a
+    second after a 10 000-scenario sweep (0.27 s, median of 4 pairs), for nothing: the
+    exit handlers run first (the unit memo is written; a sweep's workers are gone by
+    then) and the output streams are flushed, so what the command wrote is all there.
+    An exception :func:`main` does not handle ends the process as Python does.
+    """
+    code = main()
+    atexit._run_exitfuncs()
+    for stream in (sys.stdout, sys.stderr):
+        try:
+            stream.flush()
+        except (OSError, ValueError):  # a reader that went away, or closed (main says how it ended)
+            pass
+    os._exit(code)
+
+
 if __name__ == "__main__":
-    sys.exit(main())
+    console()
