@@ -54,6 +54,7 @@ Appl. Math. Lett. 2 (1989) 321.
 
 from __future__ import annotations
 
+import threading
 from dataclasses import dataclass
 from typing import Any
 
@@ -536,6 +537,7 @@ class BatchOutcome:
 _PLANS: dict[int, list[tuple[tuple, tuple, MissionPlan]]] = {}
 #: Segment tuples whose plans are kept (a sweep's chunks come back to the same few profiles).
 PLANS_KEPT = 64
+_PLANS_LOCK = threading.Lock()
 
 
 def _plans(problems: list[Problem]) -> tuple[list[MissionPlan], np.ndarray]:
@@ -566,20 +568,23 @@ def _plans(problems: list[Problem]) -> tuple[list[MissionPlan], np.ndarray]:
 
 
 def _kept_plan(problem: Problem, limits: tuple) -> MissionPlan:
-    """The plan of ``problem`` from :data:`_PLANS`, made and kept when it is not there (plans are not changed)."""
-    entries = _PLANS.setdefault(id(problem.segments), [])
-    for segments, known, plan in entries:
-        if segments is problem.segments and known == limits:
-            return plan
-    plan = plan_mission(problem)
-    for name in vars(plan):
-        value = getattr(plan, name)
-        if isinstance(value, np.ndarray):
-            value.flags.writeable = False  # shared by every batch after: nobody may change it
-    if len(_PLANS) > PLANS_KEPT:
-        del _PLANS[next(iter(_PLANS))]  # dicts keep insertion order: the oldest
-    _PLANS.setdefault(id(problem.segments), []).append((problem.segments, limits, plan))
-    return plan
+    """The plan of ``problem`` from :data:`_PLANS`, made and kept when it is not there (plans are not changed).
+
+    Under a lock: a dask worker solves chunks in several threads.
+    """
+    with _PLANS_LOCK:
+        for segments, known, plan in _PLANS.get(id(problem.segments), ()):
+            if segments is problem.segments and known == limits:
+                return plan
+        plan = plan_mission(problem)
+        for name in vars(plan):
+            value = getattr(plan, name)
+            if isinstance(value, np.ndarray):
+                value.flags.writeable = False  # shared by every batch after: nobody may change it
+        if len(_PLANS) >= PLANS_KEPT and id(problem.segments) not in _PLANS:
+            del _PLANS[next(iter(_PLANS))]  # dicts keep insertion order: the oldest
+        _PLANS.setdefault(id(problem.segments), []).append((problem.segments, limits, plan))
+        return plan
 
 
 def _stack(plans: list[MissionPlan]) -> tuple[np.ndarray, ...]:
