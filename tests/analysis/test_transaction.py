@@ -221,3 +221,36 @@ def test_output_paths_are_checked_before_anything_runs(tmp_path):
     for bad, message in (("", "empty"), (str(tmp_path / "file"), "is a file")):
         with pytest.raises(ScenarioError, match=message):
             transaction.check_output_path(bad)
+
+
+#: Holds ``argv[1]``, forks a child that sleeps on (as a sweep's worker solves on), prints the child's pid and
+#: kills itself outright.
+_KILLED_HOLDER = textwrap.dedent("""
+    import os, signal, sys, time
+    from pathlib import Path
+    from thermoelec.analysis.transaction import hold
+    with hold(Path(sys.argv[1]), "thermoelec sweep"):
+        child = os.fork()
+        if child == 0:
+            quiet = os.open(os.devnull, os.O_WRONLY)
+            os.dup2(quiet, 1)  # the pipes are the test's: it reads them to their end
+            os.dup2(quiet, 2)
+            time.sleep(60)
+            os._exit(0)
+        print(child, flush=True)
+        os.kill(os.getpid(), signal.SIGKILL)
+""")
+
+
+def test_a_forked_child_does_not_keep_the_folder_locked_once_its_command_is_killed(tmp_path):
+    # flock(2): the lock lives while any descriptor of the open file is open, and a fork copies them
+    done = subprocess.run([sys.executable, "-c", _KILLED_HOLDER, str(tmp_path)], capture_output=True, text=True,
+                          timeout=120)
+    assert done.returncode == -signal.SIGKILL, done.stderr
+    child = int(done.stdout.split()[0])
+    try:
+        os.kill(child, 0)  # still running
+        with hold(tmp_path, "the next command") as folder:  # the folder is free: taken over with a note
+            assert any("no longer running" in note for note in folder.notes)
+    finally:
+        os.kill(child, signal.SIGKILL)

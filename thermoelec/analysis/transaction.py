@@ -8,7 +8,9 @@ Every command (``run``, ``compare``, ``sweep``, ``fit``) writes through an
   the file. A second command into the folder is refused naming the holder. The
   kernel drops the lock when its process dies, so a lock left by a killed
   process is recognised as stale (the file names a holder, the lock is free)
-  and taken over with a note.
+  and taken over with a note. A forked child (a sweep's workers, a heat map
+  drawn beside the command) closes its copy of the lock file at once, so the
+  folder is free once the command is gone, whatever its children still do.
 - **the transaction** (:meth:`OutputFolder.transaction`): the command writes
   into a staging folder inside ``DIR`` (``.thermoelec-staging-<pid>``); on
   success its entries are moved into ``DIR`` with signals held back
@@ -108,6 +110,26 @@ def write_text_atomic(path: Path, text: str) -> None:
     os.replace(tmp, path)
 
 
+#: The lock files this process holds open, by descriptor, with their folders (:func:`_forget_in_child`).
+_LOCK_FDS: dict[int, OutputFolder] = {}
+
+
+def _forget_in_child() -> None:
+    """In a forked child: close the copies of the held lock files (a flock lives while any copy is
+    open: a command killed outright would leave its folder locked while a worker of it runs on)."""
+    for fd, folder in list(_LOCK_FDS.items()):
+        folder._fd = None  # nothing in the child may write through it again
+        try:
+            os.close(fd)
+        except OSError:
+            pass
+    _LOCK_FDS.clear()
+
+
+if hasattr(os, "register_at_fork"):
+    os.register_at_fork(after_in_child=_forget_in_child)
+
+
 def _now() -> str:
     return _dt.datetime.now(_dt.UTC).strftime("%Y-%m-%d %H:%M:%S UTC")
 
@@ -196,10 +218,12 @@ class OutputFolder:
             os.close(fd)
             raise
         self._fd = fd
+        _LOCK_FDS[fd] = self
 
     def _unlock(self) -> None:
         if self._fd is None:
             return
+        _LOCK_FDS.pop(self._fd, None)
         try:
             os.ftruncate(self._fd, 0)  # an empty lock file is a free one; a named holder without the lock, stale
         finally:
