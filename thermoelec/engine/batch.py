@@ -550,20 +550,19 @@ def _plans(problems: list[Problem]) -> tuple[list[MissionPlan], np.ndarray]:
     takes 12 ms to make, and a chunk of a sweep over ten demand scales needs ten.
     """
     plans: list[MissionPlan] = []
-    seen: list[tuple[tuple, tuple]] = []
     which = np.empty(len(problems), dtype=np.int64)
     for i, problem in enumerate(problems):
         cell = problem.cell
         limits = (cell.voltage_min, cell.voltage_max, cell.capacity, problem.pack.series, problem.pack.parallel,
                   problem.limits, problem.derating, problem.resolved is None)
-        for j, (segments, known) in enumerate(seen):
-            if segments is problem.segments and known == limits:
+        plan = _kept_plan(problem, limits)  # the same object for the same segments and limits
+        for j, known in enumerate(plans):
+            if known is plan:
                 which[i] = j
                 break
         else:
             which[i] = len(plans)
-            seen.append((problem.segments, limits))
-            plans.append(_kept_plan(problem, limits))
+            plans.append(plan)
     return plans, which
 
 
