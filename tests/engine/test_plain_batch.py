@@ -67,6 +67,12 @@ def _data(name: str) -> dict:
     elif name == "end condition, then rest":
         segments = [{"mode": "power", "value": "18 W", "duration": "2 h", "voltage_below": "6.8 V"},
                     {"mode": "rest", "duration": "15 min"}, {"mode": "current", "value": "1 A", "duration": "5 min"}]
+    elif name == "set-ups that recur":  # the root functions' set-up changes and comes back (batch's kept_row)
+        pulses = _pulses()
+        segments = [*pulses[:30], {"mode": "power", "value": "20 W", "duration": "1 h", "voltage_below": "7.2 V"},
+                    {"mode": "rest", "duration": "2 min"}, *pulses[30:60],
+                    {"mode": "current", "value": "2 A", "duration": "30 min", "voltage_below": "7.0 V"},
+                    *pulses[60:90], {"mode": "rest", "duration": "1 min"}, *pulses[90:]]
     elif name == "voltage cutoff":  # a 3.3 V minimum stops it before the cells are empty
         cell["voltage_min"] = "3.3 V"
         segments = [{"mode": "power", "value": "25 W", "duration": "2 h"}]
@@ -108,7 +114,8 @@ def _data(name: str) -> dict:
 
 
 PLAIN = ("1 Hz power with regeneration", "current and rest", "resistance load", "two RC pairs, cell to ambient",
-         "no RC pair, interconnect, Arrhenius R0", "end condition, then rest", "voltage cutoff", "temperature limit")
+         "no RC pair, interconnect, Arrhenius R0", "end condition, then rest", "set-ups that recur", "voltage cutoff",
+         "temperature limit")
 GENERAL = ("fan", "heater", "soak", "ambient profile", "coolant", "convection correlation", "radiation", "derating",
            "limit table", "voltage held", "cccv", "resolved pack")
 
@@ -196,3 +203,25 @@ def test_a_later_batch_on_the_same_profile_walks_the_plan_made_for_the_first(tmp
     fresh = real(first[1])
     for name in ("n_phases", "modes", "values", "durations", "setups", "setup_index"):
         np.testing.assert_array_equal(getattr(plan, name), getattr(fresh, name))
+
+
+def test_a_step_taken_without_the_norm_is_one_the_norm_takes():
+    # batch._clearly_within stands in for the error norm where only acceptance is asked: where it says
+    # yes, the RMS norm of the scaled errors (Hairer, Norsett & Wanner, Solving ODEs I, 2nd ed., II.4,
+    # Eq. 4.11) is at most 0.5; a NaN anywhere says no (the norm refuses the step)
+    rng = np.random.default_rng(3)
+    n = 20
+    atol = np.full(n, 1e-6)
+    said_yes = 0
+    for _ in range(2000):
+        y, out = rng.normal(0.0, 10.0, n), rng.normal(0.0, 10.0, n)
+        err = rng.normal(0.0, 1.0, n) * 10.0 ** rng.uniform(-12.0, -3.0)
+        within = batch._clearly_within(y, out, err, 1e-6, atol)
+        norm = batch._error_norm(y, out, err, 1e-6, atol)
+        assert not within or norm <= 0.5
+        scale = atol + 1e-6 * np.maximum(np.abs(y), np.abs(out))
+        assert within == bool(np.all(2.0 * np.abs(err) <= scale))
+        said_yes += within
+        err[rng.integers(n)] = np.nan
+        assert not batch._clearly_within(y, out, err, 1e-6, atol)
+    assert 100 < said_yes < 1900  # both answers were asked for

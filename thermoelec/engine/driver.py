@@ -293,7 +293,7 @@ def _walk(plan: MissionPlan, problem: Problem, p: np.ndarray, kernels: Kernels, 
                 delivered = float(kernels.algebraics(y)[A_CURRENT])
             hold = configure_phase(p, seg, phase, plan.modes, plan.values, plan.ambients, plan.setups,
                                    plan.setup_index, default_ambient, default_table, switches, controls, hold,
-                                   delivered, t)
+                                   delivered, t, -1)
             p[H_TIME] = t
             t_before = t
             t, y, fired, ended_by_time = _phase(kernels, backend, options, p, t, y, t_seg_end, run)

@@ -660,10 +660,37 @@ def ocv_at(p, off, z):
     dudt : float
         Entropic coefficient dU/dT [V/K].
     """
-    n = int(p[off + OCV_N])
-    i, w = bracket_at(p, off + OCV_SOC, n, z)
+    return ocv_read(p, off + OCV_SOC, int(p[off + OCV_N]), z)
+
+
+@_jit
+def ocv_read(p, soc_start, n, z):
+    """:func:`ocv_at` from the OCV block's SoC grid at ``soc_start`` of ``n`` points (its size read already).
+
+    A caller that reads one block many times (the plain right-hand side,
+    :mod:`thermoelec.engine.plain`) keeps the offset and the size as integers.
+
+    Parameters
+    ----------
+    p : float64 array
+        Parameter vector (:mod:`thermoelec.engine.layout`) [SI, unit per slot].
+    soc_start : int
+        Offset of the block's SoC grid in ``p`` (the block's offset plus ``OCV_SOC``) [-].
+    n : int
+        Number of grid points [-], >= 1.
+    z : float
+        State of charge [-].
+
+    Returns
+    -------
+    u_ref : float
+        Open-circuit voltage at the block's reference temperature [V].
+    dudt : float
+        Entropic coefficient dU/dT [V/K].
+    """
+    i, w = bracket_at(p, soc_start, n, z)
     i1 = i + 1 if n > 1 else i
-    voltage = off + OCV_SOC + n
+    voltage = soc_start + n
     entropic = voltage + n
     return (p[voltage + i] * (1.0 - w) + p[voltage + i1] * w,
             p[entropic + i] * (1.0 - w) + p[entropic + i1] * w)
@@ -692,8 +719,31 @@ def law_base(p, off, z, temperature):
     float
         Table resistance [Ω].
     """
-    nz = int(p[off + LAW_NZ])
-    nt = int(p[off + LAW_NT])
+    return law_read(p, off, int(p[off + LAW_NZ]), int(p[off + LAW_NT]), z, temperature)
+
+
+@_jit
+def law_read(p, off, nz, nt, z, temperature):
+    """:func:`law_base` of the block at ``off`` whose grid sizes ``nz`` and ``nt`` are read already.
+
+    Parameters
+    ----------
+    p : float64 array
+        Parameter vector (:mod:`thermoelec.engine.layout`) [SI, unit per slot].
+    off : int
+        Offset of the resistance-law block in ``p`` [-].
+    nz, nt : int
+        Its SoC and temperature grid sizes [-], >= 1.
+    z : float
+        State of charge [-].
+    temperature : float
+        Cell temperature [K].
+
+    Returns
+    -------
+    float
+        Table resistance [Ω].
+    """
     grid = off + LAW_SOC
     if nz == 1 and nt == 1:
         return p[grid + 2]
@@ -723,7 +773,32 @@ def law_value(p, off, z, temperature):
     float
         Resistance [Ω].
     """
-    base = law_base(p, off, z, temperature)
+    return law_value_sized(p, off, int(p[off + LAW_NZ]), int(p[off + LAW_NT]), z, temperature)
+
+
+@_jit
+def law_value_sized(p, off, nz, nt, z, temperature):
+    """:func:`law_value` of the block at ``off`` whose grid sizes ``nz`` and ``nt`` are read already.
+
+    Parameters
+    ----------
+    p : float64 array
+        Parameter vector (:mod:`thermoelec.engine.layout`) [SI, unit per slot].
+    off : int
+        Offset of the resistance-law block in ``p`` [-].
+    nz, nt : int
+        Its SoC and temperature grid sizes [-], >= 1.
+    z : float
+        State of charge [-].
+    temperature : float
+        Cell temperature [K].
+
+    Returns
+    -------
+    float
+        Resistance [Ω].
+    """
+    base = law_read(p, off, nz, nt, z, temperature)
     if p[off + LAW_EA] != 0.0:
         base *= arrhenius_factor(temperature, p[off + LAW_EA], p[off + LAW_REFERENCE])
     return base

@@ -359,10 +359,10 @@ def initial_controls(switches: np.ndarray, cell_temperature: float, coldest: flo
 
 
 @jit.ahead_of_time("f8(f8[::1], i8, i8, f8[:, ::1], f8[:, ::1], f8[::1], f8[:, ::1], i8[:, ::1], f8, f8, "
-                   "f8[:, ::1], b1[::1], f8, f8, f8)")
+                   "f8[:, ::1], b1[::1], f8, f8, f8, i8)")
 @_jit
 def configure_phase(p, seg, phase, modes, values, ambients, setups, setup_index, default_ambient, default_table,
-                    switches, controls, hold, ramp_current, time):
+                    switches, controls, hold, ramp_current, time, kept_row):
     """Write one phase into the parameter vector ``p``: demand, ambient, root functions, thermostats, hold, ramp.
 
     The one writer of the per-phase slots, for both drivers. A segment with its
@@ -407,6 +407,10 @@ def configure_phase(p, seg, phase, modes, values, ambients, setups, setup_index,
         The pack current delivered just before the phase (re)starts [A].
     time : float
         Time of the phase (re)start [s].
+    kept_row : int
+        The row of ``setups`` that ``p``'s root-function slots hold unchanged since it was
+        written, -1 for none [-]: its copy is skipped (a plain 1 Hz mission's segments
+        mostly share one row; the copy was a tenth of a step of the batched solver).
 
     Returns
     -------
@@ -419,8 +423,9 @@ def configure_phase(p, seg, phase, modes, values, ambients, setups, setup_index,
     p[H_AMBIENT] = ambients[seg] if own else default_ambient
     p[H_AMBIENT_TABLE] = 0.0 if own else default_table
     row = setup_index[seg, phase]
-    for e in range(H_THRESHOLD + N_EVENTS - H_ACTIVE):  # element by element: a slice copy costs ~4x as much
-        p[H_ACTIVE + e] = setups[row, e]
+    if row != kept_row:
+        for e in range(H_THRESHOLD + N_EVENTS - H_ACTIVE):  # element by element: a slice copy costs ~4x as much
+            p[H_ACTIVE + e] = setups[row, e]
     for c in range(switches.shape[0]):
         if switches[c, 0] != 0.0:
             event = EV_FAN + c
