@@ -89,7 +89,18 @@ _RC_WIDTH = 3
 
 @_inline
 def plain_offsets_size(n_rc):
-    """Length of :func:`plain_offsets`'s array for ``n_rc`` RC pairs [-]."""
+    """Length of the offsets array :func:`plain_offsets` writes.
+
+    Parameters
+    ----------
+    n_rc : int
+        Number of RC pairs [-], >= 0.
+
+    Returns
+    -------
+    int
+        Its length [-]: the fixed slots and three per RC pair (room for one when there is none).
+    """
     return O_RC + _RC_WIDTH * max(n_rc, 1)
 
 

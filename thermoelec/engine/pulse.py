@@ -235,6 +235,7 @@ def pulse_margins(demands, temperature_index, soc_index, kind_index, durations, 
     g = np.empty(N_EVENTS)
     alg = np.empty(L.N_ALGEBRAICS)
     stages, vectors, roots, step_alg, active = work_arrays(starts.shape[2])
+    no_offsets = np.zeros(1, dtype=np.int64)  # the plain right-hand side's table offsets: a pulse takes the full one
     for i in range(demands.size):
         p = params[temperature_index[i]].copy()
         y = starts[temperature_index[i], soc_index[i]].copy()
@@ -248,9 +249,9 @@ def pulse_margins(demands, temperature_index, soc_index, kind_index, durations, 
         extra[:] = _EXTRA_START
         t0 = y[int(p[L.H_NCELLS]) * (2 + int(p[L.H_NRC])) - 1]  # a cell's temperature (all start at one)
         status, event, t_stop, _ = _integrate_one(
-            p, n_phases, plan_modes, plan_values, duration, ambients, setups[k:k + 1], setup_index, switches,
-            controls[temperature_index[i]].copy(), y, rtol, atol, 0.0, 298.15, 0.0, extra, t0, t0, sink_index, False,
-            stages, vectors, roots, step_alg, active)
+            p, no_offsets, n_phases, plan_modes, plan_values, duration, ambients, setups[k:k + 1], setup_index,
+            switches, controls[temperature_index[i]].copy(), y, rtol, atol, 0.0, 298.15, 0.0, extra, t0, t0,
+            sink_index, False, stages, vectors, roots, step_alg, active)
         p[L.H_TIME] = t_stop
         m.roots(y, g, p, alg, np.empty(y.size))
         end_power[i] = alg[L.A_VOLTAGE] * alg[L.A_CURRENT]
