@@ -697,64 +697,11 @@ def ocv_read(p, soc_start, n, z):
 
 
 @_jit
-def law_base(p, off, z, temperature):
-    """The table value of the resistance-law block at ``off``, before its Arrhenius factor.
-
-    Bilinear in SoC and temperature (constant along an axis of one point), held at the
-    edge values outside the grid; a 1 x 1 table is read directly.
-
-    Parameters
-    ----------
-    p : float64 array
-        Parameter vector (:mod:`thermoelec.engine.layout`) [SI, unit per slot].
-    off : int
-        Offset of the resistance-law block in ``p`` [-].
-    z : float
-        State of charge [-].
-    temperature : float
-        Cell temperature [K].
-
-    Returns
-    -------
-    float
-        Table resistance [Ω].
-    """
-    return law_read(p, off, int(p[off + LAW_NZ]), int(p[off + LAW_NT]), z, temperature)
-
-
-@_jit
-def law_read(p, off, nz, nt, z, temperature):
-    """:func:`law_base` of the block at ``off`` whose grid sizes ``nz`` and ``nt`` are read already.
-
-    Parameters
-    ----------
-    p : float64 array
-        Parameter vector (:mod:`thermoelec.engine.layout`) [SI, unit per slot].
-    off : int
-        Offset of the resistance-law block in ``p`` [-].
-    nz, nt : int
-        Its SoC and temperature grid sizes [-], >= 1.
-    z : float
-        State of charge [-].
-    temperature : float
-        Cell temperature [K].
-
-    Returns
-    -------
-    float
-        Table resistance [Ω].
-    """
-    grid = off + LAW_SOC
-    if nz == 1 and nt == 1:
-        return p[grid + 2]
-    return _bilinear_at(p, grid, p, grid + nz, p, grid + nz + nt, nz, nt, z, temperature)
-
-
-@_jit
 def law_value(p, off, z, temperature):
     """Resistance of the resistance-law block at ``off`` at SoC ``z`` and ``temperature``.
 
-    The bilinear table (:func:`law_base`) times the Arrhenius factor
+    Bilinear in SoC and temperature (constant along an axis of one point), held at the
+    edge values outside the grid, a 1 x 1 table read directly; times the Arrhenius factor
     :func:`thermoelec.physics.cell.arrhenius_factor` when the block has an activation energy.
 
     Parameters
@@ -798,7 +745,11 @@ def law_value_sized(p, off, nz, nt, z, temperature):
     float
         Resistance [Ω].
     """
-    base = law_read(p, off, nz, nt, z, temperature)
+    grid = off + LAW_SOC
+    if nz == 1 and nt == 1:
+        base = p[grid + 2]
+    else:
+        base = _bilinear_at(p, grid, p, grid + nz, p, grid + nz + nt, nz, nt, z, temperature)
     if p[off + LAW_EA] != 0.0:
         base *= arrhenius_factor(temperature, p[off + LAW_EA], p[off + LAW_REFERENCE])
     return base

@@ -138,7 +138,7 @@ def plain_offsets(p, offsets):
                     and p[law + L.LAW_EA] == 0.0)
         offsets[O_RC + _RC_WIDTH * k] = off
         offsets[O_RC + _RC_WIDTH * k + 1] = 1 if constant else 0
-        offsets[O_RC + _RC_WIDTH * k + 2] = law + L.LAW_SOC + 2  # a 1 x 1 table's value (law_read)
+        offsets[O_RC + _RC_WIDTH * k + 2] = law + L.LAW_SOC + 2  # a 1 x 1 table's value (L.law_value_sized)
         off += L.rc_length(p, off)
 
 
